@@ -1,0 +1,63 @@
+"""Exception types raised by lossfit.
+
+Every error that bad user input can trigger is a :class:`LossfitValueError`, a
+``ValueError`` subclass whose message names the offending argument and value.
+"""
+
+__all__ = ["LossfitError", "LossfitValueError", "ConvergenceWarning", "ValidityWarning",
+           "check_finite", "check_positive", "check_nonzero"]
+
+import numpy as np
+
+
+class LossfitError(Exception):
+    """Base class of all lossfit exceptions."""
+
+
+class LossfitValueError(LossfitError, ValueError):
+    """An argument has a bad value; the message names the argument."""
+
+    def __init__(self, argument, message):
+        self.argument = argument
+        super().__init__(f"{argument}: {message}")
+
+
+class ConvergenceWarning(UserWarning):
+    """A Markov chain is too short for its autocorrelation time."""
+
+
+class ValidityWarning(UserWarning):
+    """Input lies outside the validity range of the physical model (warn, not refuse)."""
+
+
+def _describe(values):
+    values = np.asarray(values)
+    return repr(values.item()) if values.size == 1 else f"array with bad entries {values[:5]!r}"
+
+
+def check_finite(name, value):
+    """Return ``value`` as a float array, raising if any entry is NaN or infinite."""
+    arr = np.asarray(value, dtype=float)
+    bad = ~np.isfinite(arr)
+    if bad.any():
+        raise LossfitValueError(name, f"must be finite, got {_describe(arr[bad])}")
+    return arr
+
+
+def check_positive(name, value, *, allow_zero=False):
+    """Return ``value`` as a float array, raising unless every entry is finite and > 0."""
+    arr = check_finite(name, value)
+    bad = arr < 0 if allow_zero else arr <= 0
+    if bad.any():
+        word = "non-negative" if allow_zero else "positive"
+        raise LossfitValueError(name, f"must be {word}, got {_describe(arr[bad])}")
+    return arr
+
+
+def check_nonzero(name, value):
+    """Return ``value`` as a float array, raising if any entry is zero or non-finite."""
+    arr = check_finite(name, value)
+    bad = arr == 0
+    if bad.any():
+        raise LossfitValueError(name, "must be non-zero (the zero-range theory needs |a| > 0)")
+    return arr
