@@ -1,3 +1,22 @@
-"""lossfit: thermally averaged zero-range fits of three-body and atom-dimer loss."""
+"""lossfit: thermally averaged zero-range fits of three-body and atom-dimer loss.
+
+Scattering lengths in a0, temperatures and energies in nK, L3 in cm^6/s (atoms lost
+from a thermal gas, dN/dt = -L3 ∫n^3), beta in cm^3/s, fields in G, times in s,
+trap frequencies in Hz.
+"""
 
 __version__ = "0.1.0"
+
+from . import errors
+from .constants import S0, SCALING_FACTOR
+from .errors import LossfitError, LossfitValueError
+from .rates import beta, beta_energy, k3, l3
+from .species import Species, known_species, register_species, species
+from .universal.models import EnergyModel, available_models, register_model
+from .universal.threshold import Efimov, beta_threshold, convert_l3, l3_threshold
+
+__all__ = ["__version__", "errors", "S0", "SCALING_FACTOR", "LossfitError", "LossfitValueError",
+           "Species", "species", "known_species", "register_species",
+           "Efimov", "l3_threshold", "beta_threshold", "convert_l3",
+           "EnergyModel", "available_models", "register_model",
+           "k3", "beta_energy", "l3", "beta"]

@@ -7,7 +7,7 @@ not typed in.
 """
 
 __all__ = ["HBAR", "K_B", "ATOMIC_MASS", "BOHR", "ELECTRON_MASS", "HARTREE",
-           "S0", "SCALING_FACTOR", "KAPPA_A_MINUS", "KAPPA_A_STAR",
+           "S0", "SCALING_FACTOR", "KAPPA_A_MINUS", "KAPPA_A_STAR", "KAPPA_A_PLUS",
            "UNIVERSAL_A_STAR_OVER_A_MINUS", "ABAR_OVER_RVDW", "VDW_A_MINUS_OVER_RVDW"]
 
 import math
@@ -37,6 +37,9 @@ SCALING_FACTOR = math.exp(math.pi / S0)
 KAPPA_A_MINUS = -1.50763
 #: kappa* a*_0 for the atom-dimer threshold of the same Efimov branch (same sources).
 KAPPA_A_STAR = 0.0707645
+#: kappa* a_+ for the recombination minimum (quoted from memory from Braaten & Hammer,
+#: Ann. Phys. 322, 120 (2007); the project's solver is to confirm it).
+KAPPA_A_PLUS = 0.316943
 #: a*/|a_-| when the atom-dimer resonance of the next (deeper) branch is paired with a_-:
 #: (KAPPA_A_STAR * SCALING_FACTOR) / |KAPPA_A_MINUS| = 1.0652 (DESIGN §5).
 UNIVERSAL_A_STAR_OVER_A_MINUS = KAPPA_A_STAR * SCALING_FACTOR / KAPPA_A_MINUS

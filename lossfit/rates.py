@@ -1,0 +1,201 @@
+"""Public loss coefficients: at fixed collision energy and thermally averaged.
+
+All functions broadcast ``a`` against ``energy``/``temperature`` (numpy rules) and
+return a float for scalar input. Units (DESIGN §3): a in a0, energy and temperature in
+nK (energy as E/k_B), L3 and K3 in cm^6/s (lossfit convention, see
+:mod:`lossfit.universal.threshold`), beta in cm^3/s.
+"""
+
+__all__ = ["k3", "beta_energy", "l3", "beta"]
+
+import warnings
+
+import numba
+import numpy as np
+
+from .constants import HBAR
+from .errors import LossfitValueError, ValidityWarning, check_finite, check_nonzero, check_positive
+from .species import species as _species
+from .thermal import ATOM_DIMER, THREE_BODY, thermal_average
+from .units import A0, CM3_PER_S, CM6_PER_S, NK
+from .universal.models import DEFAULT_MODEL, get_model, scale_wavenumber_a0
+from .universal.threshold import Efimov
+
+#: Below this |a|/r_vdW the zero-range theory is outside its validity range (warning only).
+MIN_ABS_A_OVER_RVDW = 5.0
+
+
+@numba.njit(cache=True)
+def _evaluate_rows(kernel, params, x, out):
+    for i in range(params.shape[0]):
+        out[i] = kernel(x, params[i])
+
+
+def _prepare(a, scale_nk, species, efimov, model, scale_name, process, stacklevel):
+    sp = _species(species)
+    if not isinstance(efimov, Efimov):
+        raise LossfitValueError("efimov", f"must be a lossfit.Efimov, got {efimov!r}")
+    mdl = get_model(DEFAULT_MODEL if model is None else model)
+    a = check_nonzero("a", a)
+    scale = check_positive(scale_name, scale_nk)
+    if process == ATOM_DIMER and (a <= 0).any():
+        raise LossfitValueError("a", "atom-dimer relaxation needs a shallow dimer: a must be > 0 a0, "
+                                f"got {a[a <= 0][:5]!r}")
+    try:
+        a_b, scale_b = np.broadcast_arrays(a, scale)
+    except ValueError:
+        raise LossfitValueError("a", f"shape {a.shape} does not broadcast against "
+                                f"{scale_name} shape {scale.shape}") from None
+    if (np.abs(a_b) < MIN_ABS_A_OVER_RVDW * sp.r_vdw).any():
+        warnings.warn(f"|a| < {MIN_ABS_A_OVER_RVDW:g} r_vdW ({MIN_ABS_A_OVER_RVDW * sp.r_vdw:.0f} a0 "
+                      f"for {sp.name}): zero-range theory is not reliable there", ValidityWarning,
+                      stacklevel=stacklevel)
+    q = a_b * scale_wavenumber_a0(scale_b * NK, sp.mass)
+    return sp, mdl, a_b, scale_b, q
+
+
+def three_body_rows(a, scale_nk, species, efimov, model, stacklevel=4):
+    """Private helper shared with the likelihood: (model, params, natural unit in cm^6/s)."""
+    sp, mdl, a_b, scale_b, q = _prepare(a, scale_nk, species, efimov, model, "temperature",
+                                        THREE_BODY, stacklevel)
+    params = mdl.three_body_rows(a_b, efimov, q)
+    k_s = scale_wavenumber_a0(scale_b * NK, sp.mass).ravel() / A0
+    unit = HBAR / (sp.mass * k_s ** 4) / CM6_PER_S
+    return mdl, params, unit, a_b.shape
+
+
+def atom_dimer_rows(a, scale_nk, species, efimov, model, stacklevel=4):
+    """Private helper shared with the likelihood: (model, params, natural unit in cm^3/s)."""
+    sp, mdl, a_b, scale_b, q = _prepare(a, scale_nk, species, efimov, model, "temperature",
+                                        ATOM_DIMER, stacklevel)
+    params = mdl.atom_dimer_rows(a_b, efimov, q)
+    k_s = scale_wavenumber_a0(scale_b * NK, sp.mass).ravel() / A0
+    unit = HBAR / (sp.mass * k_s) / CM3_PER_S
+    return mdl, params, unit, a_b.shape
+
+
+def _finish(values, shape):
+    out = values.reshape(shape)
+    return out.item() if out.ndim == 0 else out
+
+
+def _rename(err, name):
+    # The helpers validate the energy scale under one name; report the caller's.
+    if isinstance(err, LossfitValueError) and err.argument == "temperature" and name != "temperature":
+        return LossfitValueError(name, str(err).split(": ", 1)[1])
+    return err
+
+
+def k3(a, energy, *, species, efimov, model=None):
+    """Three-body loss rate coefficient at fixed three-body collision energy.
+
+    Parameters
+    ----------
+    a : float or array_like
+        Scattering length in a0 (non-zero).
+    energy : float or array_like
+        Collision energy E/k_B in nK (> 0), relative motion in the centre-of-mass frame.
+    species : Species or str
+    efimov : Efimov
+    model : str, optional
+        ``"threshold"``, ``"capped"`` (an approximation) or a registered model name.
+
+    Returns
+    -------
+    float or ndarray
+        K3(a, E) in cm^6/s (lossfit convention: atoms lost, thermal gas).
+    """
+    try:
+        mdl, params, unit, shape = three_body_rows(a, energy, species, efimov, model)
+    except LossfitValueError as err:
+        raise _rename(err, "energy") from None
+    out = np.empty(params.shape[0])
+    _evaluate_rows(mdl.three_body_kernel, params, 1.0, out)
+    return _finish(out * unit, shape)
+
+
+def beta_energy(a, energy, *, species, efimov, model=None):
+    """Atom-dimer relaxation rate coefficient at fixed atom-dimer collision energy.
+
+    Parameters
+    ----------
+    a : float or array_like
+        Scattering length in a0 (> 0: the shallow dimer exists).
+    energy : float or array_like
+        Atom-dimer collision energy E/k_B in nK (> 0).
+    species, efimov, model
+        As for :func:`k3`.
+
+    Returns
+    -------
+    float or ndarray
+        beta(a, E) in cm^3/s (dimers lost).
+    """
+    try:
+        mdl, params, unit, shape = atom_dimer_rows(a, energy, species, efimov, model)
+    except LossfitValueError as err:
+        raise _rename(err, "energy") from None
+    out = np.empty(params.shape[0])
+    _evaluate_rows(mdl.atom_dimer_kernel, params, 1.0, out)
+    return _finish(out * unit, shape)
+
+
+def _averaged(rows, kernel_attr, features_attr, weight, a, temperature, species, efimov, model,
+              rtol):
+    mdl, params, unit, shape = rows(a, temperature, species, efimov, model, stacklevel=5)
+    value, err = thermal_average(getattr(mdl, kernel_attr), getattr(mdl, features_attr),
+                                 params, weight, rtol=rtol)
+    bad = err > max(rtol, 1e-7) * np.abs(value) * 10.0
+    if bad.any():
+        warnings.warn(f"thermal quadrature did not reach rtol={rtol:g} at {bad.sum()} point(s)",
+                      RuntimeWarning, stacklevel=3)
+    return _finish(value * unit, shape)
+
+
+def l3(a, temperature, *, species, efimov, model=None, rtol=1e-9):
+    """Thermally averaged three-body loss coefficient of a non-degenerate gas.
+
+    ``L3(a, T) = ∫ K3(a, E) P3(E) dE`` with P3(E) = E^2 exp(-E/k_BT)/(2 (k_BT)^3).
+
+    Parameters
+    ----------
+    a : float or array_like
+        Scattering length in a0 (non-zero).
+    temperature : float or array_like
+        Gas temperature in nK (> 0).
+    species, efimov, model
+        As for :func:`k3`.
+    rtol : float
+        Relative accuracy target of the thermal quadrature.
+
+    Returns
+    -------
+    float or ndarray
+        L3 in cm^6/s.
+    """
+    return _averaged(three_body_rows, "three_body_kernel", "three_body_features", THREE_BODY,
+                     a, temperature, species, efimov, model, rtol)
+
+
+def beta(a, temperature, *, species, efimov, model=None, rtol=1e-9):
+    """Thermally averaged atom-dimer relaxation coefficient.
+
+    ``beta(a, T) = ∫ beta(a, E) P2(E) dE`` with
+    P2(E) = (2/sqrt(pi)) E^(1/2) (k_BT)^(-3/2) exp(-E/k_BT); atoms and dimers share T.
+
+    Parameters
+    ----------
+    a : float or array_like
+        Scattering length in a0 (> 0).
+    temperature : float or array_like
+        Temperature in nK (> 0).
+    species, efimov, model, rtol
+        As for :func:`l3`.
+
+    Returns
+    -------
+    float or ndarray
+        beta in cm^3/s.
+    """
+    return _averaged(atom_dimer_rows, "atom_dimer_kernel", "atom_dimer_features", ATOM_DIMER,
+                     a, temperature, species, efimov, model, rtol)

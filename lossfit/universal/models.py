@@ -1,0 +1,204 @@
+"""Energy-resolved rate models behind ``model=...``: a small base class and its registry.
+
+A model supplies, for each process, a numba kernel ``kernel(x, p)`` giving the rate at
+collision energy E = x E_s in *natural units* of the energy scale E_s, the feature
+points of that kernel, and a packer that turns (a, Efimov parameters, E_s) into one
+parameter row per point. The thermal engine (:mod:`lossfit.thermal`) averages any such
+kernel; fixed-energy evaluation uses x = 1 with E_s = E.
+
+Natural units, with k_s = sqrt(m E_s)/hbar (m the atom mass):
+
+* three-body:  K3 in units of hbar/(m k_s^4) = hbar^5 / (m^3 E_s^2)
+* atom-dimer:  beta in units of hbar/(m k_s)
+
+Unitarity bounds of the J = 0 channel (derivation, lossfit convention)
+----------------------------------------------------------------------
+*Three-body.* Take coordinates x = (r1-r2)/sqrt(2), y = sqrt(2/3)(r3-(r1+r2)/2): the
+relative kinetic energy is -hbar^2/(2m)(∇_x^2 + ∇_y^2), a free particle of mass m in
+6-D, with E = hbar^2 K^2/(2m), and d^3r1 d^3r2 d^3r3 = 3 sqrt(3) d^3R d^3x d^3y. The
+projection of a unit-density 6-D plane wave on the constant hyperspherical harmonic
+is 8 J_2(K rho)/(K rho)^2; its incoming part carries the flux 32 pi^2 hbar/(m K^4)
+through a large hypersphere (surface pi^3 rho^5). At most all of it is absorbed.
+In a thermal gas the n^3/3! unordered triples of identical bosons each have a
+symmetric state whose J = 0 intensity is 3! times that of one ordering, so the event
+rate per volume is 3 sqrt(3) n^3 x flux; three atoms are lost per event. Hence
+
+    L3(E) <= 3 * 3 sqrt(3) * 32 pi^2 hbar/(m K^4) = 72 sqrt(3) pi^2 hbar^5 / (m^3 E^2),
+
+i.e. 72 sqrt(3) pi^2 / x^2 in natural units. Its Boltzmann average over P3(E) is
+36 sqrt(3) pi^2 hbar^5 / (m^3 (k_BT)^2), the unitarity-limited law with the
+prefactor of Rem et al., PRL 110, 163202 (2013).
+
+*Atom-dimer.* Atom and dimer are distinguishable; s-wave inelastic scattering is
+bounded by sigma <= pi/k^2, so beta(E) <= v pi/k^2 = pi hbar/(mu k) with mu = 2m/3
+and E = hbar^2 k^2/(2 mu); in natural units beta <= (3 sqrt(3) pi / 4) / sqrt(x).
+"""
+
+__all__ = ["EnergyModel", "ThresholdModel", "CappedModel", "get_model", "register_model",
+           "available_models", "UNITARITY_THREE_BODY", "UNITARITY_ATOM_DIMER"]
+
+import math
+
+import numba
+import numpy as np
+
+from ..constants import HBAR
+from ..errors import LossfitValueError
+from ..units import A0
+from .threshold import beta_coefficient, l3_coefficient
+
+UNITARITY_THREE_BODY = 72.0 * math.sqrt(3.0) * math.pi ** 2
+UNITARITY_ATOM_DIMER = 3.0 * math.sqrt(3.0) * math.pi / 4.0
+
+
+def scale_wavenumber_a0(energy_joule, mass):
+    """k_s = sqrt(m E_s)/hbar in 1/a0 for an energy scale in J and a mass in kg."""
+    return np.sqrt(mass * energy_joule) / HBAR * A0
+
+
+class EnergyModel:
+    """Base class of energy-resolved models (see the module docstring for the contract).
+
+    Subclasses set ``name``, ``description``, ``approximate`` and the four numba
+    functions, and implement :meth:`three_body_rows` and :meth:`atom_dimer_rows`.
+    """
+
+    name = None
+    description = ""
+    approximate = True
+    three_body_kernel = None
+    three_body_features = None
+    atom_dimer_kernel = None
+    atom_dimer_features = None
+
+    def three_body_rows(self, a, efimov, q):
+        """Parameter rows for K3: ``a`` in a0, ``q = a k_s`` (dimensionless), same shapes."""
+        raise NotImplementedError
+
+    def atom_dimer_rows(self, a, efimov, q):
+        """Parameter rows for beta (a > 0)."""
+        raise NotImplementedError
+
+    @property
+    def label(self):
+        """Name for outputs, with "approximation" spelled out where it applies."""
+        return f"{self.name} (approximation: {self.description})" if self.approximate else self.name
+
+    def __repr__(self):
+        return f"<lossfit model {self.label}>"
+
+
+# ---- shared packers: both current models need only |q| and the threshold coefficient.
+def _threshold_rows_three_body(a, efimov, q):
+    rows = np.empty((a.size, 2))
+    rows[:, 0] = np.abs(q).ravel()
+    rows[:, 1] = l3_coefficient(a.ravel(), efimov)
+    return rows
+
+
+def _threshold_rows_atom_dimer(a, efimov, q):
+    rows = np.empty((a.size, 2))
+    rows[:, 0] = np.abs(q).ravel()
+    rows[:, 1] = beta_coefficient(a.ravel(), efimov)
+    return rows
+
+
+@numba.njit(cache=True)
+def _no_features(p, out):
+    return 0
+
+
+@numba.njit(cache=True)
+def _threshold_three_body(x, p):
+    q2 = p[0] * p[0]
+    return p[1] * q2 * q2
+
+
+@numba.njit(cache=True)
+def _threshold_atom_dimer(x, p):
+    return p[1] * p[0]
+
+
+@numba.njit(cache=True)
+def _capped_three_body(x, p):
+    q2 = p[0] * p[0]
+    return min(p[1] * q2 * q2, UNITARITY_THREE_BODY / (x * x))
+
+
+@numba.njit(cache=True)
+def _capped_three_body_features(p, out):
+    q2 = p[0] * p[0]
+    out[0] = math.sqrt(UNITARITY_THREE_BODY / (p[1] * q2 * q2))
+    return 1
+
+
+@numba.njit(cache=True)
+def _capped_atom_dimer(x, p):
+    return min(p[1] * p[0], UNITARITY_ATOM_DIMER / math.sqrt(x))
+
+
+@numba.njit(cache=True)
+def _capped_atom_dimer_features(p, out):
+    r = UNITARITY_ATOM_DIMER / (p[1] * p[0])
+    out[0] = r * r
+    return 1
+
+
+class ThresholdModel(EnergyModel):
+    """The zero-energy law used at every collision energy."""
+
+    name = "threshold"
+    description = "zero-energy law at every collision energy"
+    three_body_kernel = _threshold_three_body
+    three_body_features = _no_features
+    atom_dimer_kernel = _threshold_atom_dimer
+    atom_dimer_features = _no_features
+
+    def three_body_rows(self, a, efimov, q):
+        return _threshold_rows_three_body(a, efimov, q)
+
+    def atom_dimer_rows(self, a, efimov, q):
+        return _threshold_rows_atom_dimer(a, efimov, q)
+
+
+class CappedModel(ThresholdModel):
+    """The zero-energy law saturated (hard minimum) at the J = 0 unitarity bound."""
+
+    name = "capped"
+    description = "zero-energy law saturated at the J=0 unitarity bound"
+    three_body_kernel = _capped_three_body
+    three_body_features = _capped_three_body_features
+    atom_dimer_kernel = _capped_atom_dimer
+    atom_dimer_features = _capped_atom_dimer_features
+
+
+_MODELS = {}
+
+
+def register_model(model):
+    """Make an :class:`EnergyModel` instance available as ``model=model.name``."""
+    if not isinstance(model, EnergyModel) or not model.name:
+        raise LossfitValueError("model", f"must be a named EnergyModel instance, got {model!r}")
+    _MODELS[model.name] = model
+    return model
+
+
+def get_model(model):
+    """Resolve ``model`` (a name or an :class:`EnergyModel`) to a model instance."""
+    if isinstance(model, EnergyModel):
+        return model
+    if model in _MODELS:
+        return _MODELS[model]
+    raise LossfitValueError("model", f"unknown model {model!r}; available: {available_models()}")
+
+
+def available_models():
+    """Names of the registered models."""
+    return list(_MODELS)
+
+
+register_model(ThresholdModel())
+register_model(CappedModel())
+
+#: Model used when ``model`` is not given. "zero-range" replaces it once its tables ship.
+DEFAULT_MODEL = "capped"

@@ -1,0 +1,296 @@
+"""Zero-energy (threshold) laws of zero-range theory and the Efimov parameter set.
+
+The laws are those of Braaten & Hammer, Phys. Rep. 428, 259 (2006), written as
+``K3 = C(a) hbar a^4 / m`` and ``beta = C_beta(a) hbar a / m`` with
+
+* a < 0:  C = 4590 sinh(2 eta_-) / (sin^2[s0 ln(a/a_-)] + sinh^2 eta_-)
+* a > 0:  C = 67.1 exp(-2 eta_+) (sin^2[s0 ln(a/a_+)] + sinh^2 eta_+) + 16.8 (1 - exp(-4 eta_+))
+* atom-dimer:  C_beta = 20.3 sinh(2 eta*) / (sin^2[s0 ln(a/a*)] + sinh^2 eta*)
+
+Loss-coefficient convention (pinned project-wide, DESIGN §4)
+-------------------------------------------------------------
+lossfit's ``L3`` is the *atom-loss* coefficient of a *non-degenerate (thermal)* gas:
+``dN/dt = -L3 ∫ n^3 d^3r``. The dimensionless Braaten-Hammer coefficients are used in
+experimental analyses as an *event* rate constant of a thermal gas, so that
+``L3 = 3 C(a) hbar a^4 / m`` (three atoms lost per recombination event; common practice
+in experimental analyses, e.g. Kraemer et al., Nature 440, 315 (2006) — quoted from
+memory). :data:`BRAATEN_HAMMER_CONVENTION` records this choice and
+:func:`convert_l3` moves a number between the four conventions met in the literature:
+
+============================  ====================================  ======================
+convention                    definition                            value in lossfit units
+============================  ====================================  ======================
+``"atoms-thermal"`` (ours)    dn/dt = -L3 n^3, thermal gas          x 1
+``"events-thermal"``          events/(volume time) = K n^3, thermal x 3
+``"atoms-condensate"``        dn/dt = -K n^3 in a condensate        x 3! = 6
+``"events-condensate"``       events/(volume time) = K n^3, BEC     x 18
+============================  ====================================  ======================
+
+The factor 3! between thermal gas and condensate is the value g3(0) = 3! of the
+third-order correlation function of a thermal Bose gas (Kagan, Svistunov &
+Shlyapnikov, JETP Lett. 42, 209 (1985)).
+
+For the atom-dimer coefficient, ``dN_D/dt = -beta ∫ n_A n_D d^3r`` (dimers lost), one
+dimer is lost per relaxation event and the Braaten-Hammer C_beta is used as is.
+"""
+
+__all__ = ["Efimov", "l3_threshold", "beta_threshold", "convert_l3",
+           "CONVENTIONS", "BRAATEN_HAMMER_CONVENTION",
+           "C_NEGATIVE", "C_POSITIVE_SHALLOW", "C_POSITIVE_DEEP", "C_ATOM_DIMER"]
+
+import dataclasses
+import math
+
+import numba
+import numpy as np
+
+from ..constants import (HBAR, KAPPA_A_MINUS, KAPPA_A_PLUS, KAPPA_A_STAR, S0,
+                         SCALING_FACTOR)
+from ..errors import LossfitValueError, check_finite, check_nonzero
+from ..species import species as _species
+from ..units import A0, CM3_PER_S, CM6_PER_S
+
+# Braaten & Hammer, Phys. Rep. 428, 259 (2006): dimensionless threshold coefficients.
+C_NEGATIVE = 4590.0
+C_POSITIVE_SHALLOW = 67.1
+C_POSITIVE_DEEP = 16.8
+C_ATOM_DIMER = 20.3
+
+CONVENTIONS = {"atoms-thermal": 1.0, "events-thermal": 3.0,
+               "atoms-condensate": 6.0, "events-condensate": 18.0}
+BRAATEN_HAMMER_CONVENTION = "events-thermal"
+#: lossfit's L3 = BH_TO_L3 * C hbar a^4/m.
+BH_TO_L3 = CONVENTIONS[BRAATEN_HAMMER_CONVENTION]
+
+
+def convert_l3(value, from_convention, to_convention="atoms-thermal"):
+    """Convert a three-body loss coefficient between literature conventions.
+
+    Parameters
+    ----------
+    value : float or array_like
+        Coefficient in cm^6/s (any units: the conversion is a pure number).
+    from_convention, to_convention : str
+        One of ``"atoms-thermal"`` (lossfit), ``"events-thermal"``,
+        ``"atoms-condensate"``, ``"events-condensate"``.
+
+    Returns
+    -------
+    float or ndarray
+    """
+    for name, conv in (("from_convention", from_convention), ("to_convention", to_convention)):
+        if conv not in CONVENTIONS:
+            raise LossfitValueError(name, f"unknown convention {conv!r}; one of {list(CONVENTIONS)}")
+    return np.asarray(value, dtype=float) * CONVENTIONS[from_convention] / CONVENTIONS[to_convention]
+
+
+def _check_eta(name, value):
+    if value is None:
+        return None
+    if not (isinstance(value, (int, float, np.floating)) and math.isfinite(value) and value > 0):
+        raise LossfitValueError(name, f"must be a positive finite number, got {value!r}")
+    return float(value)
+
+
+def _check_length(name, value, sign):
+    if value is None:
+        return None
+    if not (isinstance(value, (int, float, np.floating)) and math.isfinite(value)) or value * sign <= 0:
+        want = "negative" if sign < 0 else "positive"
+        raise LossfitValueError(name, f"must be a {want} finite scattering length in a0, got {value!r}")
+    return float(value)
+
+
+@dataclasses.dataclass(frozen=True)
+class Efimov:
+    """Efimov parameters of zero-range theory for three identical bosons.
+
+    Any subset may be given; a law that needs a missing parameter raises.
+
+    Parameters
+    ----------
+    a_minus : float, optional
+        Scattering length (a0, < 0) of the three-atom resonance.
+    eta_minus : float, optional
+        Inelasticity parameter eta (> 0) used for a < 0.
+    a_star : float, optional
+        Scattering length (a0, > 0) of the atom-dimer resonance.
+    eta_star : float, optional
+        Inelasticity parameter used for atom-dimer relaxation.
+    a_plus : float, optional
+        Scattering length (a0, > 0) of the recombination minimum.
+    eta_plus : float, optional
+        Inelasticity parameter used for three-body recombination at a > 0.
+    """
+
+    a_minus: float = None
+    eta_minus: float = None
+    a_star: float = None
+    eta_star: float = None
+    a_plus: float = None
+    eta_plus: float = None
+
+    def __post_init__(self):
+        checks = {"a_minus": lambda v: _check_length("a_minus", v, -1),
+                  "a_star": lambda v: _check_length("a_star", v, +1),
+                  "a_plus": lambda v: _check_length("a_plus", v, +1),
+                  "eta_minus": lambda v: _check_eta("eta_minus", v),
+                  "eta_star": lambda v: _check_eta("eta_star", v),
+                  "eta_plus": lambda v: _check_eta("eta_plus", v)}
+        for name, check in checks.items():
+            object.__setattr__(self, name, check(getattr(self, name)))
+
+    @classmethod
+    def universal(cls, a_minus, eta):
+        """All features tied to one three-body parameter kappa* by zero-range relations.
+
+        kappa* a_- = -1.50763, kappa* a*_0 = 0.0707645 (Gogolin, Mora & Egger,
+        PRL 100, 140404 (2008); Braaten & Hammer 2006), so the atom-dimer resonance of
+        the next branch is a* = 1.0652 |a_-|; kappa* a_+ = 0.316943 (from memory,
+        Braaten & Hammer, Ann. Phys. 322, 120 (2007)). One eta serves every feature.
+
+        Parameters
+        ----------
+        a_minus : float
+            Three-atom resonance position in a0 (< 0).
+        eta : float
+            Inelasticity parameter (> 0).
+        """
+        a_minus = _check_length("a_minus", a_minus, -1)
+        eta = _check_eta("eta", eta)
+        kappa = KAPPA_A_MINUS / a_minus          # in 1/a0, > 0
+        return cls(a_minus=a_minus, eta_minus=eta,
+                   a_star=KAPPA_A_STAR * SCALING_FACTOR / kappa, eta_star=eta,
+                   a_plus=KAPPA_A_PLUS / kappa, eta_plus=eta)
+
+    def replace(self, **changes):
+        """A copy with some parameters changed."""
+        return dataclasses.replace(self, **changes)
+
+    def require(self, *names):
+        """Return the named parameters, raising a clear error for any that are missing."""
+        missing = [n for n in names if getattr(self, n) is None]
+        if missing:
+            raise LossfitValueError("efimov", f"this calculation needs {', '.join(missing)}, "
+                                    f"which the Efimov parameters {self} do not set")
+        return tuple(getattr(self, n) for n in names)
+
+    def as_dict(self):
+        """Parameters that are set, as a dict."""
+        return {k: v for k, v in dataclasses.asdict(self).items() if v is not None}
+
+
+# ---------------------------------------------------------------------------------
+# Dimensionless laws, shared by the public functions and the energy-resolved kernels.
+
+@numba.njit(cache=True)
+def c_negative(a_over_a_minus, eta):
+    """Braaten-Hammer C(a) for a < 0 at ratio a/a_- > 0 (dimensionless)."""
+    s = math.sin(S0 * math.log(a_over_a_minus))
+    sh = math.sinh(eta)
+    return C_NEGATIVE * math.sinh(2.0 * eta) / (s * s + sh * sh)
+
+
+@numba.njit(cache=True)
+def c_positive(a_over_a_plus, eta):
+    """Braaten-Hammer C(a) for a > 0 (shallow plus deep dimers), ratio a/a_+ > 0."""
+    s = math.sin(S0 * math.log(a_over_a_plus))
+    sh = math.sinh(eta)
+    return (C_POSITIVE_SHALLOW * math.exp(-2.0 * eta) * (s * s + sh * sh)
+            + C_POSITIVE_DEEP * (1.0 - math.exp(-4.0 * eta)))
+
+
+@numba.njit(cache=True)
+def c_atom_dimer(a_over_a_star, eta):
+    """Braaten-Hammer C_beta(a) for atom-dimer relaxation, ratio a/a* > 0."""
+    s = math.sin(S0 * math.log(a_over_a_star))
+    sh = math.sinh(eta)
+    return C_ATOM_DIMER * math.sinh(2.0 * eta) / (s * s + sh * sh)
+
+
+@numba.vectorize(["float64(float64, float64, float64, float64, float64, float64)"], cache=True)
+def _l3_coefficient(a, a_minus, eta_minus, a_plus, eta_plus, bh_to_l3):
+    # Returns lossfit's dimensionless L3 m / (hbar a^4) for either sign of a.
+    if a < 0.0:
+        return bh_to_l3 * c_negative(a / a_minus, eta_minus)
+    return bh_to_l3 * c_positive(a / a_plus, eta_plus)
+
+
+def l3_coefficient(a, efimov):
+    """Dimensionless ``L3 m / (hbar a^4)`` of the threshold law (lossfit convention).
+
+    Parameters
+    ----------
+    a : array_like
+        Scattering length in a0 (non-zero; sign selects the law).
+    efimov : Efimov
+    """
+    a = check_nonzero("a", a)
+    nan = float("nan")
+    a_minus, eta_minus = efimov.require("a_minus", "eta_minus") if (a < 0).any() else (nan, nan)
+    a_plus, eta_plus = efimov.require("a_plus", "eta_plus") if (a > 0).any() else (nan, nan)
+    return _l3_coefficient(a, a_minus, eta_minus, a_plus, eta_plus, BH_TO_L3)
+
+
+def beta_coefficient(a, efimov):
+    """Dimensionless ``beta m / (hbar a)`` of the threshold law; needs a > 0."""
+    a = check_finite("a", a)
+    if (a <= 0).any():
+        raise LossfitValueError("a", "atom-dimer relaxation needs a shallow dimer: a must be > 0 a0, "
+                                f"got {a[a <= 0][:5]!r}")
+    a_star, eta_star = efimov.require("a_star", "eta_star")
+    return np.vectorize(c_atom_dimer, otypes=[float])(a / a_star, eta_star)
+
+
+def _as_output(x):
+    return x.item() if np.ndim(x) == 0 else x
+
+
+def l3_threshold(a, *, species, efimov):
+    """Zero-energy three-body loss coefficient L3 (cm^6/s, lossfit convention).
+
+    ``L3 = 3 C(a) hbar a^4 / m`` with the Braaten-Hammer C(a) (module docstring).
+
+    Parameters
+    ----------
+    a : float or array_like
+        Scattering length in a0, either sign, non-zero.
+    species : Species or str
+    efimov : Efimov
+        Needs ``a_minus, eta_minus`` for a < 0 and ``a_plus, eta_plus`` for a > 0.
+
+    Returns
+    -------
+    float or ndarray
+        L3 in cm^6/s.
+    """
+    sp = _species(species)
+    a_arr = check_nonzero("a", a)
+    c = l3_coefficient(a_arr, efimov)
+    value = c * HBAR * (a_arr * A0) ** 4 / sp.mass / CM6_PER_S
+    return _as_output(value)
+
+
+def beta_threshold(a, *, species, efimov):
+    """Zero-energy atom-dimer relaxation coefficient beta (cm^3/s).
+
+    ``beta = C_beta(a) hbar a / m`` (Braaten & Hammer 2006), dimers lost per
+    ``∫ n_A n_D d^3r``.
+
+    Parameters
+    ----------
+    a : float or array_like
+        Scattering length in a0, > 0.
+    species : Species or str
+    efimov : Efimov
+        Needs ``a_star, eta_star``.
+
+    Returns
+    -------
+    float or ndarray
+        beta in cm^3/s.
+    """
+    sp = _species(species)
+    a_arr = check_finite("a", a)
+    c = beta_coefficient(a_arr, efimov)
+    return _as_output(c * HBAR * a_arr * A0 / sp.mass / CM3_PER_S)
