@@ -10,6 +10,8 @@ __version__ = "0.1.0"
 from . import errors
 from .constants import S0, SCALING_FACTOR
 from .errors import LossfitError, LossfitValueError
+from .data import LossSpectrum, read_csv, read_spectra, write_spectra
+from .inference import FitResult, LogNormal, LogUniform, Normal, Uniform, fit
 from .rates import beta, beta_energy, k3, l3
 from .species import Species, known_species, register_species, species
 from .universal.models import EnergyModel, available_models, register_model
@@ -19,4 +21,6 @@ __all__ = ["__version__", "errors", "S0", "SCALING_FACTOR", "LossfitError", "Los
            "Species", "species", "known_species", "register_species",
            "Efimov", "l3_threshold", "beta_threshold", "convert_l3",
            "EnergyModel", "available_models", "register_model",
-           "k3", "beta_energy", "l3", "beta"]
+           "k3", "beta_energy", "l3", "beta",
+           "LossSpectrum", "read_spectra", "write_spectra", "read_csv",
+           "fit", "FitResult", "LogUniform", "Uniform", "LogNormal", "Normal"]

@@ -45,7 +45,7 @@ import numpy as np
 from ..constants import HBAR
 from ..errors import LossfitValueError
 from ..units import A0
-from .threshold import beta_coefficient, l3_coefficient
+from .threshold import beta_coefficient_unchecked, l3_coefficient_unchecked
 
 UNITARITY_THREE_BODY = 72.0 * math.sqrt(3.0) * math.pi ** 2
 UNITARITY_ATOM_DIMER = 3.0 * math.sqrt(3.0) * math.pi / 4.0
@@ -72,7 +72,8 @@ class EnergyModel:
     atom_dimer_features = None
 
     def three_body_rows(self, a, efimov, q):
-        """Parameter rows for K3: ``a`` in a0, ``q = a k_s`` (dimensionless), same shapes."""
+        """Parameter rows for K3: ``a`` in a0 (validated, non-zero), ``q = a k_s``
+        (dimensionless), same shapes; one row per point in C order."""
         raise NotImplementedError
 
     def atom_dimer_rows(self, a, efimov, q):
@@ -92,14 +93,14 @@ class EnergyModel:
 def _threshold_rows_three_body(a, efimov, q):
     rows = np.empty((a.size, 2))
     rows[:, 0] = np.abs(q).ravel()
-    rows[:, 1] = l3_coefficient(a.ravel(), efimov)
+    rows[:, 1] = l3_coefficient_unchecked(a.ravel(), efimov)
     return rows
 
 
 def _threshold_rows_atom_dimer(a, efimov, q):
     rows = np.empty((a.size, 2))
     rows[:, 0] = np.abs(q).ravel()
-    rows[:, 1] = beta_coefficient(a.ravel(), efimov)
+    rows[:, 1] = beta_coefficient_unchecked(a.ravel(), efimov)
     return rows
 
 

@@ -208,12 +208,40 @@ def c_atom_dimer(a_over_a_star, eta):
     return C_ATOM_DIMER * math.sinh(2.0 * eta) / (s * s + sh * sh)
 
 
-@numba.vectorize(["float64(float64, float64, float64, float64, float64, float64)"], cache=True)
-def _l3_coefficient(a, a_minus, eta_minus, a_plus, eta_plus, bh_to_l3):
-    # Returns lossfit's dimensionless L3 m / (hbar a^4) for either sign of a.
-    if a < 0.0:
-        return bh_to_l3 * c_negative(a / a_minus, eta_minus)
-    return bh_to_l3 * c_positive(a / a_plus, eta_plus)
+@numba.njit(cache=True)
+def _l3_coefficients(a, a_minus, eta_minus, a_plus, eta_plus, bh_to_l3):
+    # lossfit's dimensionless L3 m / (hbar a^4) for either sign of a.
+    out = np.empty(a.size)
+    for i in range(a.size):
+        if a[i] < 0.0:
+            out[i] = bh_to_l3 * c_negative(a[i] / a_minus, eta_minus)
+        else:
+            out[i] = bh_to_l3 * c_positive(a[i] / a_plus, eta_plus)
+    return out
+
+
+@numba.njit(cache=True)
+def _beta_coefficients(a, a_star, eta_star):
+    out = np.empty(a.size)
+    for i in range(a.size):
+        out[i] = c_atom_dimer(a[i] / a_star, eta_star)
+    return out
+
+
+def l3_coefficient_unchecked(a, efimov):
+    """As :func:`l3_coefficient` for a validated 1-D float array ``a`` (fast path)."""
+    nan = math.nan
+    has_neg = a.min() < 0.0
+    has_pos = a.max() > 0.0
+    a_minus, eta_minus = efimov.require("a_minus", "eta_minus") if has_neg else (nan, nan)
+    a_plus, eta_plus = efimov.require("a_plus", "eta_plus") if has_pos else (nan, nan)
+    return _l3_coefficients(a, a_minus, eta_minus, a_plus, eta_plus, BH_TO_L3)
+
+
+def beta_coefficient_unchecked(a, efimov):
+    """As :func:`beta_coefficient` for a validated 1-D float array of a > 0 (fast path)."""
+    a_star, eta_star = efimov.require("a_star", "eta_star")
+    return _beta_coefficients(a, a_star, eta_star)
 
 
 def l3_coefficient(a, efimov):
@@ -226,10 +254,7 @@ def l3_coefficient(a, efimov):
     efimov : Efimov
     """
     a = check_nonzero("a", a)
-    nan = float("nan")
-    a_minus, eta_minus = efimov.require("a_minus", "eta_minus") if (a < 0).any() else (nan, nan)
-    a_plus, eta_plus = efimov.require("a_plus", "eta_plus") if (a > 0).any() else (nan, nan)
-    return _l3_coefficient(a, a_minus, eta_minus, a_plus, eta_plus, BH_TO_L3)
+    return l3_coefficient_unchecked(np.ravel(a), efimov).reshape(a.shape)
 
 
 def beta_coefficient(a, efimov):
@@ -238,8 +263,7 @@ def beta_coefficient(a, efimov):
     if (a <= 0).any():
         raise LossfitValueError("a", "atom-dimer relaxation needs a shallow dimer: a must be > 0 a0, "
                                 f"got {a[a <= 0][:5]!r}")
-    a_star, eta_star = efimov.require("a_star", "eta_star")
-    return np.vectorize(c_atom_dimer, otypes=[float])(a / a_star, eta_star)
+    return beta_coefficient_unchecked(np.ravel(a), efimov).reshape(a.shape)
 
 
 def _as_output(x):

@@ -1,0 +1,213 @@
+"""Loss-spectrum containers, validation, the HDF5 schema and CSV import.
+
+HDF5 schema ``lossfit.spectra``, version 1
+-----------------------------------------
+File attributes: ``schema = "lossfit.spectra"``, ``schema_version = 1``,
+``lossfit_version``. One group per spectrum under ``/spectra/<name>`` with attributes
+``kind`` (``"l3"`` or ``"beta"``), ``label``, ``species`` (may be empty) and datasets
+``a`` (attribute ``units = "a0"``), ``temperature`` (``"nK"``), ``value`` and
+``error`` (``"cm^6/s"`` for L3, ``"cm^3/s"`` for beta). Readers refuse files with an
+unknown schema or a newer version.
+
+CSV import: a header line naming the columns ``a``, ``temperature``, ``value``,
+``error`` (any order, extra columns ignored); ``#`` starts a comment line.
+"""
+
+__all__ = ["LossSpectrum", "write_spectra", "read_spectra", "read_csv", "SCHEMA", "SCHEMA_VERSION"]
+
+import csv
+import os
+import tempfile
+
+import numpy as np
+
+from .errors import LossfitValueError, check_finite, check_nonzero, check_positive
+
+SCHEMA = "lossfit.spectra"
+SCHEMA_VERSION = 1
+KINDS = {"l3": "cm^6/s", "beta": "cm^3/s"}
+
+
+class LossSpectrum:
+    """Measured loss coefficients against scattering length, one temperature per point.
+
+    Parameters
+    ----------
+    a : array_like
+        Scattering lengths in a0 (non-zero; > 0 for ``kind="beta"``).
+    temperature : float or array_like
+        Temperature of each point in nK (> 0); a scalar applies to every point.
+    value : array_like
+        Measured L3 in cm^6/s (``kind="l3"``) or beta in cm^3/s (``kind="beta"``).
+    error : array_like
+        One-standard-deviation uncertainty of ``value``, same units (> 0).
+    kind : {"l3", "beta"}
+    label : str, optional
+        Name used in plots and files.
+    species : str, optional
+        Species name, recorded with the data.
+    """
+
+    def __init__(self, a, temperature, value, error, kind="l3", label=None, species=None):
+        if kind not in KINDS:
+            raise LossfitValueError("kind", f"must be one of {list(KINDS)}, got {kind!r}")
+        a = np.atleast_1d(check_nonzero("a", a)).astype(float)
+        if a.ndim != 1 or a.size == 0:
+            raise LossfitValueError("a", f"must be a non-empty 1-D sequence, got shape {a.shape}")
+        n = a.size
+        arrays = {}
+        for name, raw, check in (("temperature", temperature, check_positive),
+                                 ("value", value, check_finite),
+                                 ("error", error, check_positive)):
+            arr = np.atleast_1d(check(name, raw)).astype(float)
+            if arr.size == 1 and name == "temperature":
+                arr = np.full(n, arr.item())
+            if arr.shape != (n,):
+                raise LossfitValueError(name, f"has {arr.size} entries but a has {n}")
+            arrays[name] = arr
+        if kind == "beta" and (a <= 0).any():
+            raise LossfitValueError("a", "beta (atom-dimer relaxation) needs a > 0 (a shallow dimer); "
+                                    f"got {a[a <= 0][:5]!r}")
+        for arr in (a, *arrays.values()):
+            arr.setflags(write=False)
+        self.a = a
+        self.temperature = arrays["temperature"]
+        self.value = arrays["value"]
+        self.error = arrays["error"]
+        self.kind = kind
+        self.label = label or f"{kind} spectrum"
+        self.species = species
+
+    @property
+    def units(self):
+        """Units of ``value`` and ``error``."""
+        return KINDS[self.kind]
+
+    def __len__(self):
+        return self.a.size
+
+    def __repr__(self):
+        t = np.unique(self.temperature)
+        temps = f"{t[0]:g} nK" if t.size == 1 else f"{t.min():g}-{t.max():g} nK"
+        return (f"LossSpectrum({self.label!r}, kind={self.kind!r}, {len(self)} points, "
+                f"a={self.a.min():g}..{self.a.max():g} a0, T={temps})")
+
+    def select(self, mask):
+        """A new spectrum with only the points where ``mask`` is true."""
+        mask = np.asarray(mask, dtype=bool)
+        return LossSpectrum(self.a[mask], self.temperature[mask], self.value[mask],
+                            self.error[mask], kind=self.kind, label=self.label, species=self.species)
+
+
+def _atomic_h5_write(path, overwrite, fill):
+    # Write to a temporary file beside the target, then rename: a crash never leaves a
+    # half-written result under the final name, and an existing result is kept.
+    import h5py
+    path = os.fspath(path)
+    if os.path.exists(path) and not overwrite:
+        raise LossfitValueError("path", f"{path!r} exists; pass overwrite=True to replace it")
+    directory = os.path.dirname(os.path.abspath(path))
+    fd, tmp = tempfile.mkstemp(suffix=".h5.tmp", dir=directory)
+    os.close(fd)
+    try:
+        with h5py.File(tmp, "w") as h5:
+            fill(h5)
+        os.replace(tmp, path)
+    except BaseException:
+        if os.path.exists(tmp):
+            os.remove(tmp)
+        raise
+
+
+def write_spectra(path, spectra, *, overwrite=False):
+    """Write spectra to an HDF5 file in the ``lossfit.spectra`` schema (module docstring).
+
+    Parameters
+    ----------
+    path : str or path-like
+    spectra : LossSpectrum or sequence of LossSpectrum
+    overwrite : bool
+        Replace an existing file; otherwise an existing file is an error.
+    """
+    from . import __version__
+    spectra = [spectra] if isinstance(spectra, LossSpectrum) else list(spectra)
+    if not spectra or not all(isinstance(s, LossSpectrum) for s in spectra):
+        raise LossfitValueError("spectra", "must be one or more LossSpectrum objects")
+
+    def fill(h5):
+        h5.attrs["schema"] = SCHEMA
+        h5.attrs["schema_version"] = SCHEMA_VERSION
+        h5.attrs["lossfit_version"] = __version__
+        root = h5.create_group("spectra")
+        for i, s in enumerate(spectra):
+            g = root.create_group(f"{i:03d}")
+            g.attrs["kind"] = s.kind
+            g.attrs["label"] = s.label
+            g.attrs["species"] = s.species or ""
+            for name, arr, unit in (("a", s.a, "a0"), ("temperature", s.temperature, "nK"),
+                                    ("value", s.value, s.units), ("error", s.error, s.units)):
+                g.create_dataset(name, data=arr).attrs["units"] = unit
+
+    _atomic_h5_write(path, overwrite, fill)
+
+
+def read_spectra(path):
+    """Read every spectrum of a ``lossfit.spectra`` HDF5 file.
+
+    Returns
+    -------
+    list of LossSpectrum
+    """
+    import h5py
+    path = os.fspath(path)
+    if not os.path.exists(path):
+        raise LossfitValueError("path", f"no such file {path!r}")
+    try:
+        h5 = h5py.File(path, "r")
+    except OSError as err:
+        raise LossfitValueError("path", f"{path!r} is not a readable HDF5 file ({err})") from None
+    with h5:
+        schema = h5.attrs.get("schema")
+        version = int(h5.attrs.get("schema_version", -1))
+        if schema != SCHEMA:
+            raise LossfitValueError("path", f"{path!r} has schema {schema!r}, expected {SCHEMA!r}")
+        if version > SCHEMA_VERSION or version < 1:
+            raise LossfitValueError("path", f"{path!r} has schema version {version}; this lossfit "
+                                    f"reads versions 1..{SCHEMA_VERSION}")
+        out = []
+        for key in sorted(h5["spectra"]):
+            g = h5["spectra"][key]
+            kind = g.attrs["kind"]
+            for name in ("value", "error"):
+                if g[name].attrs.get("units") != KINDS[kind]:
+                    raise LossfitValueError("path", f"{path!r}: spectra/{key}/{name} has units "
+                                            f"{g[name].attrs.get('units')!r}, expected {KINDS[kind]!r}")
+            out.append(LossSpectrum(g["a"][()], g["temperature"][()], g["value"][()], g["error"][()],
+                                    kind=kind, label=g.attrs["label"], species=g.attrs["species"] or None))
+        return out
+
+
+def read_csv(path, *, kind="l3", label=None, species=None):
+    """Import one spectrum from a CSV file with columns a, temperature, value, error.
+
+    Units as in :class:`LossSpectrum` (a0, nK, cm^6/s or cm^3/s).
+    """
+    path = os.fspath(path)
+    if not os.path.exists(path):
+        raise LossfitValueError("path", f"no such file {path!r}")
+    with open(path, newline="") as fh:
+        lines = [ln for ln in fh if ln.strip() and not ln.lstrip().startswith("#")]
+    reader = csv.DictReader(lines, skipinitialspace=True)
+    rows = [{(k or "").strip(): v for k, v in r.items()} for r in reader]
+    columns = [c.strip() for c in (reader.fieldnames or [])]
+    missing = [c for c in ("a", "temperature", "value", "error") if c not in columns]
+    if missing:
+        raise LossfitValueError("path", f"{path!r} lacks column(s) {missing}; header is {columns}")
+    cols = {}
+    for c in ("a", "temperature", "value", "error"):
+        try:
+            cols[c] = [float(r[c]) for r in rows]
+        except (TypeError, ValueError) as err:
+            raise LossfitValueError("path", f"{path!r}: column {c!r} has a non-numeric entry ({err})") from None
+    return LossSpectrum(cols["a"], cols["temperature"], cols["value"], cols["error"], kind=kind,
+                        label=label or os.path.splitext(os.path.basename(path))[0], species=species)

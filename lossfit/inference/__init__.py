@@ -1,0 +1,7 @@
+"""Bayesian inference of Efimov parameters: priors, likelihoods, sampling, results."""
+
+from .fitting import Posterior, fit
+from .priors import LogNormal, LogUniform, Normal, Prior, Uniform
+from .result import FitResult
+
+__all__ = ["fit", "Posterior", "FitResult", "Prior", "LogUniform", "Uniform", "LogNormal", "Normal"]

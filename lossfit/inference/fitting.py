@@ -1,0 +1,227 @@
+"""``lossfit.fit``: posterior Efimov parameters from loss spectra with emcee."""
+
+__all__ = ["fit"]
+
+import math
+import sys
+
+import emcee
+import numpy as np
+from scipy.optimize import minimize
+
+from ..data import LossSpectrum
+from ..errors import LossfitValueError
+from ..species import species as _species
+from ..universal.models import DEFAULT_MODEL, get_model
+from .likelihood import SpectrumLikelihood
+from .parameters import EFIMOV_NAMES, ParameterSpace, default_priors
+from .priors import LogUniform, Prior
+from .result import FitResult
+
+
+class Posterior:
+    """log posterior in sampling coordinates; picklable, so any pool can map it."""
+
+    def __init__(self, space, likelihood):
+        self.space = space
+        self.likelihood = likelihood
+
+    def __call__(self, theta):
+        lp = self.space.log_prior(theta)
+        if lp == -math.inf:
+            return -math.inf
+        values = self.space.values(theta)
+        return lp + self.likelihood(self.space.efimov(values), self.space.density_scale(values))
+
+
+def _interactive():
+    try:
+        from IPython import get_ipython
+        if get_ipython() is not None:
+            return True
+    except ImportError:
+        pass
+    return sys.stderr.isatty()
+
+
+def _coerce_priors(priors):
+    out = {}
+    for name, p in (priors or {}).items():
+        if isinstance(p, Prior):
+            out[name] = p
+        elif isinstance(p, (tuple, list)) and len(p) == 2:
+            out[name] = LogUniform(*p)
+        else:
+            raise LossfitValueError(f"priors[{name!r}]", f"must be a Prior or a (lo, hi) pair, got {p!r}")
+    return out
+
+
+def _check_constrained(space, spectra):
+    has = {"l3-": any((s.kind == "l3") & (s.a < 0).any() for s in spectra),
+           "l3+": any((s.kind == "l3") & (s.a > 0).any() for s in spectra),
+           "beta": any(s.kind == "beta" for s in spectra)}
+    needs = {"a_minus": "l3-", "eta_minus": "l3-", "a_plus": "l3+", "eta_plus": "l3+",
+             "a_star": "beta", "eta_star": "beta"}
+    if space.tie == "universal":
+        return
+    for name in space.names:
+        if name in needs and not has[needs[name]]:
+            what = {"l3-": "L3 data at a < 0", "l3+": "L3 data at a > 0", "beta": "beta data"}[needs[name]]
+            raise LossfitValueError("free", f"{name} is free but there is no {what} to constrain it")
+
+
+def _start(posterior, space, walkers, rng, initial):
+    ndim = space.ndim
+    if initial is not None:
+        centre = space.theta([initial[n] for n in space.names])
+        if not np.isfinite(posterior(centre)):
+            raise LossfitValueError("initial", f"has zero posterior density: {initial}")
+    else:
+        draws = np.column_stack([p.sample(rng, 256) for p in space.priors])
+        thetas = space.theta(draws)
+        lps = np.array([posterior(t) for t in thetas])
+        if not np.isfinite(lps).any():
+            raise LossfitValueError("priors", "no prior draw gives a finite posterior; check data and priors")
+        best = None
+        for i in np.argsort(-lps)[:6]:
+            res = minimize(lambda t: -posterior(t) if np.isfinite(posterior(t)) else 1e300,
+                           thetas[i], method="Nelder-Mead",
+                           options={"maxiter": 400 * ndim, "xatol": 1e-6, "fatol": 1e-8})
+            if best is None or res.fun < best.fun:
+                best = res
+        centre = best.x
+    p0 = np.empty((walkers, ndim))
+    for w in range(walkers):
+        for _ in range(1000):
+            trial = centre + 1e-3 * rng.standard_normal(ndim)
+            if np.isfinite(posterior(trial)):
+                break
+        p0[w] = trial
+    return p0
+
+
+def _make_backend(backend, walkers, ndim):
+    if backend is None:
+        return emcee.backends.Backend(), 0
+    if isinstance(backend, emcee.backends.Backend):
+        done = backend.iteration if getattr(backend, "initialized", True) else 0
+        return backend, done
+    path = str(backend)
+    import os
+    hdf = emcee.backends.HDFBackend(path, name="mcmc")
+    done = 0
+    if os.path.exists(path):
+        try:
+            done = hdf.iteration
+            shape = hdf.shape
+        except Exception as err:    # truncated or foreign file
+            raise LossfitValueError("backend", f"{path!r} cannot be read as a lossfit chain file ({err})") from None
+        if done and shape != (walkers, ndim):
+            raise LossfitValueError("backend", f"{path!r} holds chains of shape {shape}, this fit needs "
+                                    f"{(walkers, ndim)}")
+    return hdf, done
+
+
+def fit(data, *, species, free, model=None, priors=None, walkers=32, steps=3000, burn=None, thin=1,
+        seed=None, backend=None, pool=None, fixed=None, tie=None, density_sigma=None,
+        progress=None, initial=None, rtol=1e-7):
+    """Sample the posterior of Efimov parameters given loss spectra.
+
+    Parameters
+    ----------
+    data : LossSpectrum or sequence of LossSpectrum
+        Any mix of L3 (either side, any temperatures) and beta spectra.
+    species : Species or str
+    free : sequence of str
+        Parameters to sample: any of ``a_minus, eta_minus, a_star, eta_star, a_plus,
+        eta_plus``, or ``eta`` (one shared inelasticity), plus ``density_scale``.
+    model : str or EnergyModel, optional
+        Energy-resolved model averaged over the thermal distribution (default: the
+        library default, see ``lossfit.available_models()``).
+    priors : dict, optional
+        name -> Prior (or a (lo, hi) pair meaning LogUniform, in physical units: a0 for
+        lengths). Defaults: log-uniform over the measured |a| range on the relevant
+        side, eta log-uniform in [0.005, 2], density scale log-normal of ``density_sigma``.
+    walkers, steps : int
+        Ensemble size (>= 2 x number of free parameters) and number of steps.
+    burn : int, optional
+        Steps discarded; default max(3 tau_max, steps/5), at most steps/2.
+    thin : int
+        Keep every ``thin``-th step after burn-in.
+    seed : int, optional
+        Seed of the start-point search and of emcee's random state (reproducible runs).
+    backend : str, path or emcee Backend, optional
+        HDF5 file for the chain; an existing file with the same shape is resumed.
+    pool : object with ``map``, optional
+        Evaluates walkers' posteriors in parallel (multiprocessing, MPI, ...).
+    fixed : dict, optional
+        Values of Efimov parameters that are not sampled.
+    tie : {None, "universal"}
+        ``"universal"``: sample only a_minus and eta; a* and a_+ follow zero-range theory.
+    density_sigma : float, optional
+        Width of the log-normal prior of ``density_scale`` (e.g. 0.2 for 20 %).
+    progress : bool, optional
+        tqdm progress bar; default on in a terminal or notebook.
+    initial : dict, optional
+        Start point (physical units) instead of the automatic search.
+    rtol : float
+        Thermal quadrature tolerance inside the likelihood.
+
+    Returns
+    -------
+    FitResult
+    """
+    spectra = [data] if isinstance(data, LossSpectrum) else list(data)
+    if not spectra or not all(isinstance(s, LossSpectrum) for s in spectra):
+        raise LossfitValueError("data", "must be one or more LossSpectrum objects")
+    sp = _species(species)
+    mdl = get_model(DEFAULT_MODEL if model is None else model)
+    if isinstance(free, str):
+        free = [free]
+    free = list(free)
+    for name, value, lo in (("walkers", walkers, 2), ("steps", steps, 2), ("thin", thin, 1)):
+        if not isinstance(value, (int, np.integer)) or value < lo:
+            raise LossfitValueError(name, f"must be an integer >= {lo}, got {value!r}")
+    if walkers < 2 * len(free):
+        raise LossfitValueError("walkers", f"must be at least twice the number of free parameters "
+                                f"({2 * len(free)}), got {walkers}")
+    if "density_scale" in free and density_sigma is not None:
+        if not (isinstance(density_sigma, (int, float)) and math.isfinite(density_sigma) and density_sigma > 0):
+            raise LossfitValueError("density_sigma", f"must be a positive number, got {density_sigma!r}")
+    user_priors = _coerce_priors(priors)
+    all_priors = default_priors([n for n in free if n not in user_priors], spectra, density_sigma)
+    all_priors.update(user_priors)
+    space = ParameterSpace(free, all_priors, fixed=fixed, tie=tie)
+    _check_constrained(space, spectra)
+    likelihood = SpectrumLikelihood(spectra, sp, mdl, rtol=rtol)
+    posterior = Posterior(space, likelihood)
+
+    rng = np.random.default_rng(seed)
+    probe = space.theta([p.sample(rng, 1)[0] for p in space.priors])
+    try:
+        likelihood(space.efimov(space.values(probe)))
+    except LossfitValueError as err:
+        raise LossfitValueError("fixed", f"the data need a parameter that is neither free nor fixed: {err}") from None
+
+    store, done = _make_backend(backend, walkers, space.ndim)
+    sampler = emcee.EnsembleSampler(walkers, space.ndim, posterior, pool=pool, backend=store)
+    show = _interactive() if progress is None else bool(progress)
+    if done == 0:
+        store.reset(walkers, space.ndim)
+        p0 = _start(posterior, space, walkers, rng, initial)
+        sampler.random_state = np.random.RandomState(rng.integers(2 ** 31)).get_state()
+        sampler.run_mcmc(p0, steps, progress=show)
+    elif done < steps:
+        sampler.run_mcmc(None, steps - done, progress=show)
+
+    chain = sampler.get_chain()
+    log_prob = sampler.get_log_prob()
+    if burn is None:
+        tau = np.atleast_1d(emcee.autocorr.integrated_time(chain, c=5, tol=0, quiet=True))
+        burn = int(min(max(3 * np.nanmax(tau), chain.shape[0] / 5), chain.shape[0] / 2))
+    elif not isinstance(burn, (int, np.integer)) or not (0 <= burn < chain.shape[0] - 1):
+        raise LossfitValueError("burn", f"must be an integer in [0, {chain.shape[0] - 2}], got {burn!r}")
+    settings = {"walkers": walkers, "steps": int(chain.shape[0]), "seed": seed, "model": mdl.name,
+                "free": ",".join(free), "tie": tie or "", "density_sigma": density_sigma}
+    return FitResult(space=space, chain=chain, log_prob=log_prob, acceptance=sampler.acceptance_fraction,
+                     burn=burn, thin=thin, likelihood=likelihood, species=sp, model=mdl, settings=settings)

@@ -1,0 +1,161 @@
+"""The fit's parameter space: names, sampling coordinates, priors and the Efimov set.
+
+Names: the six Efimov parameters ``a_minus, eta_minus, a_star, eta_star, a_plus,
+eta_plus``; ``eta`` for one inelasticity shared by every feature; the nuisance
+``density_scale`` (the ratio of the density calibration used for the data to the true
+density: measured L3 = L3_true / s^2 and measured beta = beta_true / s, since L3 is
+inferred through ∫n^3 ∝ n^2 N and beta through ∫n_A n_D ∝ n N_D). With
+``tie="universal"`` only ``a_minus`` and ``eta`` are physical parameters and a*, a_+
+follow from the zero-range relations (:meth:`lossfit.Efimov.universal`).
+"""
+
+__all__ = ["ParameterSpace", "EFIMOV_NAMES", "UNITS"]
+
+import math
+
+import numpy as np
+
+from ..constants import KAPPA_A_MINUS, KAPPA_A_PLUS, KAPPA_A_STAR, SCALING_FACTOR
+from ..errors import LossfitValueError
+from ..universal.threshold import Efimov
+from .priors import LogNormal, LogUniform, Prior
+
+EFIMOV_NAMES = ("a_minus", "eta_minus", "a_star", "eta_star", "a_plus", "eta_plus")
+NUISANCE_NAMES = ("density_scale",)
+UNITS = {"a_minus": "a0", "a_star": "a0", "a_plus": "a0", "eta_minus": "", "eta_star": "",
+         "eta_plus": "", "eta": "", "density_scale": ""}
+SIGNS = {"a_minus": -1.0}
+DEFAULT_ETA_PRIOR = (0.005, 2.0)
+
+
+def _unchecked_efimov(values):
+    # The priors already keep every value in its domain; skipping the dataclass checks
+    # keeps the likelihood fast.
+    ef = object.__new__(Efimov)
+    for name in EFIMOV_NAMES:
+        object.__setattr__(ef, name, values.get(name))
+    return ef
+
+
+class ParameterSpace:
+    """Free parameters with their priors, fixed values and the tie between features.
+
+    Parameters
+    ----------
+    free : sequence of str
+        Names to sample (module docstring).
+    priors : dict name -> Prior
+        Prior of every free name (defaults must be filled in by the caller).
+    fixed : dict name -> float, optional
+        Values of Efimov parameters that are not sampled.
+    tie : {None, "universal"}
+    """
+
+    def __init__(self, free, priors, fixed=None, tie=None):
+        free = list(free)
+        fixed = dict(fixed or {})
+        allowed = set(EFIMOV_NAMES) | {"eta"} | set(NUISANCE_NAMES)
+        if tie not in (None, "universal"):
+            raise LossfitValueError("tie", f"must be None or 'universal', got {tie!r}")
+        if tie == "universal":
+            allowed = {"a_minus", "eta"} | set(NUISANCE_NAMES)
+        if not free:
+            raise LossfitValueError("free", "name at least one parameter to fit")
+        for name in free:
+            if name not in allowed:
+                raise LossfitValueError("free", f"unknown or disallowed parameter {name!r} "
+                                        f"(tie={tie!r}); allowed: {sorted(allowed)}")
+        if len(set(free)) != len(free):
+            raise LossfitValueError("free", f"lists a parameter twice: {free}")
+        if "eta" in free and any(n.startswith("eta_") for n in free):
+            raise LossfitValueError("free", "use either the shared 'eta' or the separate eta_* parameters")
+        for name, value in fixed.items():
+            if name not in allowed | set(EFIMOV_NAMES):
+                raise LossfitValueError("fixed", f"unknown parameter {name!r}")
+            if name in free:
+                raise LossfitValueError("fixed", f"{name!r} is both free and fixed")
+            if not (isinstance(value, (int, float)) and math.isfinite(value)):
+                raise LossfitValueError(f"fixed[{name!r}]", f"must be a finite number, got {value!r}")
+        for name in free:
+            if not isinstance(priors.get(name), Prior):
+                raise LossfitValueError("priors", f"needs a Prior for {name!r}, got {priors.get(name)!r}")
+            want = SIGNS.get(name, 1.0)
+            if priors[name].sign != want:
+                raise LossfitValueError(f"priors[{name!r}]", f"support must be {'negative' if want < 0 else 'positive'}")
+        self.names = free
+        self.priors = [priors[n] for n in free]
+        self.fixed = fixed
+        self.tie = tie
+        # validate the fixed values through the public constructor once
+        Efimov(**{k: v for k, v in fixed.items() if k in EFIMOV_NAMES})
+        self.ndim = len(free)
+
+    def physical(self, theta):
+        """Physical values of a theta vector (or an array of them, last axis = parameters)."""
+        signs = np.array([SIGNS.get(n, 1.0) for n in self.names])
+        return signs * np.exp(np.asarray(theta, dtype=float))
+
+    def theta(self, values):
+        """Sampling coordinates of physical values."""
+        return np.log(np.abs(np.asarray(values, dtype=float)))
+
+    def log_prior(self, theta):
+        total = 0.0
+        for prior, t in zip(self.priors, theta):
+            lp = prior.log_density_theta(t)
+            if lp == -math.inf:
+                return -math.inf
+            total += lp
+        return total
+
+    def values(self, theta):
+        """Dict name -> physical value of every named parameter (free and fixed)."""
+        out = dict(self.fixed)
+        for name, t in zip(self.names, theta):
+            out[name] = SIGNS.get(name, 1.0) * math.exp(t)
+        return out
+
+    def efimov(self, values):
+        """The Efimov parameter set for a values dict (no validation: priors keep domains)."""
+        vals = {k: v for k, v in values.items() if k in EFIMOV_NAMES}
+        eta = values.get("eta")
+        if self.tie == "universal":
+            a_minus = values["a_minus"]
+            eta = eta if eta is not None else values.get("eta_minus")
+            kappa = KAPPA_A_MINUS / a_minus
+            vals = {"a_minus": a_minus, "eta_minus": eta,
+                    "a_star": KAPPA_A_STAR * SCALING_FACTOR / kappa, "eta_star": eta,
+                    "a_plus": KAPPA_A_PLUS / kappa, "eta_plus": eta}
+        elif eta is not None:
+            for name in ("eta_minus", "eta_star", "eta_plus"):
+                vals.setdefault(name, eta)
+        return _unchecked_efimov(vals)
+
+    def density_scale(self, values):
+        return values.get("density_scale", 1.0)
+
+
+def default_priors(free, spectra, density_sigma=None):
+    """Default priors: log-uniform lengths over the measured range of |a| on the
+    relevant side of the resonance, log-uniform eta in [0.005, 2], and a log-normal
+    density scale of width ``density_sigma``."""
+    pos = np.concatenate([s.a[s.a > 0] for s in spectra] or [np.array([])])
+    neg = np.concatenate([-s.a[s.a < 0] for s in spectra] or [np.array([])])
+    out = {}
+    for name in free:
+        if name == "a_minus":
+            if neg.size == 0:
+                raise LossfitValueError("free", "a_minus is free but no data point has a < 0")
+            out[name] = LogUniform(-neg.min(), -neg.max())
+        elif name in ("a_star", "a_plus"):
+            if pos.size == 0:
+                raise LossfitValueError("free", f"{name} is free but no data point has a > 0")
+            out[name] = LogUniform(pos.min(), pos.max())
+        elif name.startswith("eta"):
+            out[name] = LogUniform(*DEFAULT_ETA_PRIOR)
+        elif name == "density_scale":
+            if density_sigma is None:
+                raise LossfitValueError("density_scale", "give its prior width (e.g. density_sigma=0.2) "
+                                        "or a prior in priors['density_scale']")
+            out[name] = LogNormal(1.0, density_sigma)
+    return out

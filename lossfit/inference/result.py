@@ -1,0 +1,240 @@
+"""The result of a fit: posterior samples, summaries, diagnostics and derived ratios."""
+
+__all__ = ["FitResult"]
+
+import html
+import json
+import math
+import os
+import tempfile
+import warnings
+
+import numpy as np
+
+from ..constants import (KAPPA_A_MINUS, KAPPA_A_PLUS, UNIVERSAL_A_STAR_OVER_A_MINUS,
+                         VDW_A_MINUS_OVER_RVDW)
+from ..errors import ConvergenceWarning
+from .diagnostics import MIN_STEPS_PER_TAU, autocorrelation_times, split_rhat
+from .parameters import UNITS
+
+#: Reference values printed beside the derived ratios.
+REFERENCES = {
+    "a_star/a_minus": (UNIVERSAL_A_STAR_OVER_A_MINUS,
+                       "zero-range, next branch (Braaten & Hammer 2006; Gogolin, Mora & Egger 2008)"),
+    "a_plus/a_minus": (KAPPA_A_PLUS / KAPPA_A_MINUS,
+                       "zero-range, same branch (kappa* a_+ = 0.316943, from memory)"),
+    "a_minus/r_vdw": (VDW_A_MINUS_OVER_RVDW,
+                      "van der Waals universality (Wang, D'Incao, Esry & Greene 2012)"),
+}
+
+
+def _quantiles(x):
+    q = np.percentile(x, [2.5, 16.0, 50.0, 84.0, 97.5])
+    return {"median": q[2], "lo68": q[1], "hi68": q[3], "lo95": q[0], "hi95": q[4],
+            "mean": float(np.mean(x)), "std": float(np.std(x))}
+
+
+class FitResult:
+    """Posterior of a lossfit fit.
+
+    Attributes
+    ----------
+    names : list of str
+        Free parameters in sampling order.
+    samples : dict name -> ndarray
+        Flattened posterior samples after burn-in, in physical units (a in a0).
+    derived : dict name -> ndarray
+        Samples of a*/a_-, a_+/a_-, a_-/r_vdW where the fit determines them.
+    chain : ndarray, shape (steps, walkers, ndim)
+        Full chain in sampling coordinates theta = ln|value|.
+    log_prob : ndarray, shape (steps, walkers)
+    burn, thin : int
+    tau, ess, rhat : dict name -> float
+        Integrated autocorrelation time (steps), effective sample size, split-R̂.
+    acceptance_fraction : float
+        Mean over walkers.
+    warnings : list of str
+        Convergence problems found (also issued as ConvergenceWarning).
+    """
+
+    def __init__(self, *, space, chain, log_prob, acceptance, burn, thin, likelihood, species,
+                 model, settings):
+        self.space = space
+        self.names = list(space.names)
+        self.chain = chain
+        self.log_prob = log_prob
+        self.burn = int(burn)
+        self.thin = int(thin)
+        self.likelihood = likelihood
+        self.species = species
+        self.model = model
+        self.settings = dict(settings)
+        self.acceptance_fraction = float(np.mean(acceptance))
+        kept = chain[self.burn::self.thin]
+        self._kept_theta = kept.reshape(-1, chain.shape[2])
+        phys = space.physical(self._kept_theta)
+        self.samples = {n: phys[:, i] for i, n in enumerate(self.names)}
+        tau = autocorrelation_times(chain[self.burn:]) if kept.shape[0] > 1 else np.full(len(self.names), np.nan)
+        rhat = split_rhat(chain[self.burn:])
+        n_total = (chain.shape[0] - self.burn) * chain.shape[1]
+        self.tau = dict(zip(self.names, map(float, tau)))
+        self.ess = {n: float(n_total / t) if t > 0 else float("nan") for n, t in self.tau.items()}
+        self.rhat = dict(zip(self.names, map(float, rhat)))
+        self.warnings = []
+        steps_kept = chain.shape[0] - self.burn
+        tau_max = float(np.nanmax(tau)) if np.isfinite(tau).any() else float("nan")
+        if not math.isfinite(tau_max) or steps_kept < MIN_STEPS_PER_TAU * tau_max:
+            self.warnings.append(f"chain too short: {steps_kept} steps after burn-in but "
+                                 f"{MIN_STEPS_PER_TAU} x tau_max = {MIN_STEPS_PER_TAU * tau_max:.0f}; "
+                                 "run longer before trusting intervals")
+        bad_rhat = [n for n, r in self.rhat.items() if not (r < 1.05)]
+        if bad_rhat:
+            self.warnings.append(f"split-R-hat above 1.05 for {bad_rhat}")
+        if not (0.15 <= self.acceptance_fraction <= 0.8):
+            self.warnings.append(f"acceptance fraction {self.acceptance_fraction:.2f} outside 0.15-0.8")
+        for w in self.warnings:
+            warnings.warn(w, ConvergenceWarning, stacklevel=3)
+        self.derived = self._derived_samples()
+
+    # ---- derived quantities -------------------------------------------------------
+    def _values_per_sample(self):
+        n = self._kept_theta.shape[0]
+        vals = {k: np.full(n, v) for k, v in self.space.fixed.items()}
+        vals.update(self.samples)
+        return vals
+
+    def _derived_samples(self):
+        vals = self._values_per_sample()
+        out = {}
+        n = self._kept_theta.shape[0]
+        if "a_minus" in vals:
+            a_minus = vals["a_minus"]
+            if self.space.tie == "universal":
+                # the tie fixes these ratios exactly; report them for completeness
+                out["a_star/a_minus"] = np.full(n, UNIVERSAL_A_STAR_OVER_A_MINUS)
+                out["a_plus/a_minus"] = np.full(n, KAPPA_A_PLUS / KAPPA_A_MINUS)
+            else:
+                for name in ("a_star", "a_plus"):
+                    if name in vals:
+                        out[f"{name}/a_minus"] = vals[name] / a_minus
+            out["a_minus/r_vdw"] = a_minus / self.species.r_vdw
+        return {k: np.broadcast_to(v, (n,)).copy() for k, v in out.items()
+                if any(p in self.names for p in ("a_minus", "a_star", "a_plus"))}
+
+    # ---- summaries ----------------------------------------------------------------
+    def summary(self):
+        """List of dicts: name, units, median, 68 % and 95 % equal-tailed intervals,
+        tau, ESS, R-hat (free parameters), then derived ratios with their references."""
+        rows = []
+        for n in self.names:
+            row = {"name": n, "units": UNITS.get(n, ""), **_quantiles(self.samples[n]),
+                   "tau": self.tau[n], "ess": self.ess[n], "rhat": self.rhat[n]}
+            rows.append(row)
+        for n, x in self.derived.items():
+            ref, source = REFERENCES[n]
+            rows.append({"name": n, "units": "", **_quantiles(x), "reference": ref, "reference_source": source})
+        return rows
+
+    def correlation(self):
+        """Correlation matrix of the free parameters (physical units), rows in ``names`` order."""
+        x = np.column_stack([self.samples[n] for n in self.names])
+        if x.shape[1] == 1:
+            return np.ones((1, 1))
+        return np.corrcoef(x, rowvar=False)
+
+    def median_values(self):
+        """Dict name -> posterior median of every free parameter, with the fixed ones."""
+        out = dict(self.space.fixed)
+        out.update({n: float(np.median(x)) for n, x in self.samples.items()})
+        return out
+
+    def efimov(self):
+        """Efimov parameters at the posterior medians."""
+        from ..universal.threshold import Efimov
+        ef = self.space.efimov(self.median_values())
+        return Efimov(**ef.as_dict())
+
+    def draws(self, n, seed=0):
+        """``n`` posterior draws as (Efimov, density_scale) pairs, for predictive bands."""
+        rng = np.random.default_rng(seed)
+        idx = rng.choice(self._kept_theta.shape[0], size=min(n, self._kept_theta.shape[0]), replace=False)
+        out = []
+        for i in idx:
+            vals = self.space.values(self._kept_theta[i])
+            out.append((self.space.efimov(vals), self.space.density_scale(vals)))
+        return out
+
+    def table(self):
+        """Plain-text summary table."""
+        head = (f"{'parameter':<16}{'median':>12}{'68% interval':>26}{'95% interval':>26}"
+                f"{'tau':>8}{'ESS':>9}{'R-hat':>7}")
+        lines = [f"lossfit posterior — model: {self.model.label}; species {self.species.name}; "
+                 f"{self.chain.shape[1]} walkers x {self.chain.shape[0]} steps, burn-in {self.burn}, "
+                 f"acceptance {self.acceptance_fraction:.2f}", head, "-" * len(head)]
+        for r in self.summary():
+            ci68 = f"[{r['lo68']:.4g}, {r['hi68']:.4g}]"
+            ci95 = f"[{r['lo95']:.4g}, {r['hi95']:.4g}]"
+            name = r["name"] + (f" ({r['units']})" if r["units"] else "")
+            if "tau" in r:
+                lines.append(f"{name:<16}{r['median']:>12.5g}{ci68:>26}{ci95:>26}"
+                             f"{r['tau']:>8.1f}{r['ess']:>9.0f}{r['rhat']:>7.3f}")
+            else:
+                lines.append(f"{name:<16}{r['median']:>12.5g}{ci68:>26}{ci95:>26}"
+                             f"   reference {r['reference']:.4g}: {r['reference_source']}")
+        if len(self.names) > 1:
+            lines.append("correlation matrix (" + ", ".join(self.names) + "):")
+            for n, row in zip(self.names, self.correlation()):
+                lines.append(f"  {n:<14}" + " ".join(f"{v:+.2f}" for v in row))
+        for w in self.warnings:
+            lines.append(f"WARNING: {w}")
+        return "\n".join(lines)
+
+    def __str__(self):
+        return self.table()
+
+    def __repr__(self):
+        meds = ", ".join(f"{n}={np.median(x):.4g}" for n, x in self.samples.items())
+        return f"<FitResult {meds}; {len(self.warnings)} warning(s)>"
+
+    def _repr_html_(self):
+        esc = html.escape
+        rows = []
+        for r in self.summary():
+            extra = (f"<td>{r['tau']:.1f}</td><td>{r['ess']:.0f}</td><td>{r['rhat']:.3f}</td>"
+                     if "tau" in r else f"<td colspan=3>ref. {r['reference']:.4g} ({esc(r['reference_source'])})</td>")
+            rows.append(f"<tr><td>{esc(r['name'])}</td><td>{esc(r['units'])}</td><td>{r['median']:.5g}</td>"
+                        f"<td>[{r['lo68']:.4g}, {r['hi68']:.4g}]</td><td>[{r['lo95']:.4g}, {r['hi95']:.4g}]</td>"
+                        f"{extra}</tr>")
+        warn = "".join(f"<p style='color:#b00'>⚠ {esc(w)}</p>" for w in self.warnings)
+        return (f"<div><p><b>lossfit posterior</b> — model {esc(self.model.label)}; {esc(self.species.name)}; "
+                f"{self.chain.shape[1]} walkers × {self.chain.shape[0]} steps (burn-in {self.burn}); "
+                f"acceptance {self.acceptance_fraction:.2f}</p><table><tr><th>parameter</th><th>units</th>"
+                f"<th>median</th><th>68 %</th><th>95 %</th><th>τ</th><th>ESS</th><th>R̂</th></tr>"
+                + "".join(rows) + f"</table>{warn}</div>")
+
+    def to_dict(self):
+        """JSON-ready summary: settings, summary rows, correlation, diagnostics, warnings."""
+        def clean(v):
+            if isinstance(v, (np.floating, float)):
+                return float(v) if math.isfinite(v) else None
+            if isinstance(v, np.integer):
+                return int(v)
+            return v
+        return {"model": self.model.label, "species": self.species.name,
+                "settings": {k: clean(v) for k, v in self.settings.items()},
+                "walkers": int(self.chain.shape[1]), "steps": int(self.chain.shape[0]), "burn": self.burn,
+                "thin": self.thin, "acceptance_fraction": self.acceptance_fraction,
+                "summary": [{k: clean(v) for k, v in r.items()} for r in self.summary()],
+                "correlation": {"names": self.names, "matrix": self.correlation().tolist()},
+                "fixed": self.space.fixed, "tie": self.space.tie, "warnings": self.warnings}
+
+    def write_json(self, path, *, overwrite=False):
+        """Write :meth:`to_dict` atomically (temporary file, then rename)."""
+        path = os.fspath(path)
+        if os.path.exists(path) and not overwrite:
+            from ..errors import LossfitValueError
+            raise LossfitValueError("path", f"{path!r} exists; pass overwrite=True to replace it")
+        fd, tmp = tempfile.mkstemp(suffix=".json.tmp", dir=os.path.dirname(os.path.abspath(path)))
+        with os.fdopen(fd, "w") as fh:
+            json.dump(self.to_dict(), fh, indent=2)
+        os.replace(tmp, path)
