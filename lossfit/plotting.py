@@ -1,0 +1,155 @@
+"""Publication figures: corner plots and loss spectra with posterior bands."""
+
+__all__ = ["corner_plot", "spectrum_plot", "posterior_bands", "save_figure"]
+
+import os
+
+import numpy as np
+
+from .errors import LossfitValueError
+from .inference.parameters import UNITS
+
+_LABELS = {"a_minus": r"$a_-$", "a_star": r"$a_*$", "a_plus": r"$a_+$", "eta_minus": r"$\eta_-$",
+           "eta_star": r"$\eta_*$", "eta_plus": r"$\eta_+$", "eta": r"$\eta$",
+           "density_scale": r"density scale"}
+
+
+def _label(name):
+    unit = UNITS.get(name, "")
+    return _LABELS.get(name, name) + (f" ({unit})" if unit else "")
+
+
+def corner_plot(result, *, truths=None, fig=None, **corner_kwargs):
+    """Corner plot of the free parameters (physical units) with optional true values.
+
+    Parameters
+    ----------
+    result : FitResult
+    truths : dict name -> float, optional
+        Values drawn as lines (e.g. the truth of a synthetic scenario).
+    fig : matplotlib Figure, optional
+    **corner_kwargs
+        Passed to :func:`corner.corner`.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    import corner
+    x = np.column_stack([result.samples[n] for n in result.names])
+    kw = dict(labels=[_label(n) for n in result.names], quantiles=[0.16, 0.5, 0.84],
+              show_titles=True, title_fmt=".3g", levels=(0.68, 0.95), plot_datapoints=False)
+    if truths is not None:
+        kw["truths"] = [truths.get(n) for n in result.names]
+    kw.update(corner_kwargs)
+    return corner.corner(x, fig=fig, **kw)
+
+
+def posterior_bands(result, a, temperature, kind, *, draws=200, seed=0):
+    """Median and 68 %/95 % bands of the model, as the data would report it.
+
+    Parameters
+    ----------
+    result : FitResult
+    a : array_like
+        Scattering lengths in a0.
+    temperature : float
+        Temperature in nK.
+    kind : {"l3", "beta"}
+    draws : int
+        Number of posterior draws.
+
+    Returns
+    -------
+    dict with keys "median", "lo68", "hi68", "lo95", "hi95" (arrays, cm^6/s or cm^3/s)
+    """
+    from . import rates
+    if kind not in ("l3", "beta"):
+        raise LossfitValueError("kind", f"must be 'l3' or 'beta', got {kind!r}")
+    a = np.asarray(a, dtype=float)
+    func, power = (rates.l3, 2.0) if kind == "l3" else (rates.beta, 1.0)
+    import warnings
+    curves = []
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        for ef, scale in result.draws(draws, seed=seed):
+            curves.append(func(a, temperature, species=result.species, efimov=ef,
+                               model=result.model, rtol=1e-7) / scale ** power)
+    q = np.percentile(np.array(curves), [2.5, 16, 50, 84, 97.5], axis=0)
+    return dict(zip(("lo95", "lo68", "median", "hi68", "hi95"), q))
+
+
+def _panels(spectra):
+    panels = []
+    for key, title in ((("l3", -1), "three-body loss, a < 0"), (("l3", 1), "three-body loss, a > 0"),
+                       (("beta", 1), "atom-dimer relaxation, a > 0")):
+        kind, sign = key
+        members = [(s, s.a * sign > 0) for s in spectra if s.kind == kind and (s.a * sign > 0).any()]
+        if members:
+            panels.append((kind, sign, title, members))
+    return panels
+
+
+def _tidy_log_axis(axis):
+    # Label 2x and 5x minor ticks only: the default labels every minor tick of a short
+    # log axis and the labels collide.
+    from matplotlib import ticker
+    axis.set_minor_locator(ticker.LogLocator(subs=(2.0, 5.0)))
+    axis.set_minor_formatter(ticker.LogFormatterSciNotation(labelOnlyBase=False,
+                                                           minor_thresholds=(np.inf, np.inf)))
+
+
+def spectrum_plot(result, *, draws=200, points=160, seed=0, fig=None):
+    """Data with error bars, the posterior median model and 68/95 % bands on log axes.
+
+    One panel per side of the resonance and process present in the data; one colour
+    per temperature. The model curves include the fitted density-calibration factor so
+    that they compare with the data as reported.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    import matplotlib.pyplot as plt
+    spectra = result.likelihood.spectra
+    panels = _panels(spectra)
+    if fig is None:
+        fig = plt.figure(figsize=(5.2 * len(panels), 4.2), layout="constrained")
+    axes = fig.subplots(1, len(panels), squeeze=False)[0]
+    colours = plt.rcParams["axes.prop_cycle"].by_key()["color"]
+    for ax, (kind, sign, title, members) in zip(axes, panels):
+        temps = sorted({float(t) for s, m in members for t in s.temperature[m]})
+        lo = min(np.abs(s.a[m]).min() for s, m in members)
+        hi = max(np.abs(s.a[m]).max() for s, m in members)
+        grid = np.geomspace(lo / 1.15, hi * 1.15, points)
+        for i, t in enumerate(temps):
+            c = colours[i % len(colours)]
+            band = posterior_bands(result, sign * grid, t, kind, draws=draws, seed=seed)
+            ax.fill_between(grid, band["lo95"], band["hi95"], color=c, alpha=0.15, lw=0)
+            ax.fill_between(grid, band["lo68"], band["hi68"], color=c, alpha=0.3, lw=0)
+            ax.plot(grid, band["median"], color=c, lw=1.5, label=f"{t:g} nK")
+            for s, m in members:
+                sel = m & (s.temperature == t)
+                if sel.any():
+                    ax.errorbar(np.abs(s.a[sel]), s.value[sel], yerr=s.error[sel], fmt="o", ms=4,
+                                color=c, mec="k", mew=0.4, elinewidth=0.8, capsize=2)
+        ax.set_xscale("log")
+        ax.set_yscale("log")
+        _tidy_log_axis(ax.xaxis)
+        ax.set_xlabel(r"$|a|$ ($a_0$)" + (", $a<0$" if sign < 0 else ", $a>0$"))
+        ax.set_ylabel(r"$L_3$ (cm$^6$/s)" if kind == "l3" else r"$\beta$ (cm$^3$/s)")
+        ax.set_title(title, fontsize=10)
+        ax.legend(fontsize=8, title="median, 68/95 % bands", title_fontsize=7)
+    fig.suptitle(f"model: {result.model.label}", fontsize=8)
+    return fig
+
+
+def save_figure(fig, path, *, dpi=150):
+    """Save a figure as PNG or PDF (by extension), creating the folder if needed."""
+    path = os.fspath(path)
+    ext = os.path.splitext(path)[1].lower()
+    if ext not in (".png", ".pdf"):
+        raise LossfitValueError("path", f"must end in .png or .pdf, got {path!r}")
+    os.makedirs(os.path.dirname(os.path.abspath(path)), exist_ok=True)
+    fig.savefig(path, dpi=dpi)
+    return path
