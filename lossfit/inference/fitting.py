@@ -17,6 +17,7 @@ from .likelihood import SpectrumLikelihood
 from .parameters import EFIMOV_NAMES, ParameterSpace, default_priors
 from .priors import LogUniform, Prior
 from .result import FitResult
+from .sampling import open_backend, sample
 
 
 class Posterior:
@@ -100,28 +101,6 @@ def _start(posterior, space, walkers, rng, initial):
     return p0
 
 
-def _make_backend(backend, walkers, ndim):
-    if backend is None:
-        return emcee.backends.Backend(), 0
-    if isinstance(backend, emcee.backends.Backend):
-        done = backend.iteration if getattr(backend, "initialized", True) else 0
-        return backend, done
-    path = str(backend)
-    import os
-    hdf = emcee.backends.HDFBackend(path, name="mcmc")
-    done = 0
-    if os.path.exists(path):
-        try:
-            done = hdf.iteration
-            shape = hdf.shape
-        except Exception as err:    # truncated or foreign file
-            raise LossfitValueError("backend", f"{path!r} cannot be read as a lossfit chain file ({err})") from None
-        if done and shape != (walkers, ndim):
-            raise LossfitValueError("backend", f"{path!r} holds chains of shape {shape}, this fit needs "
-                                    f"{(walkers, ndim)}")
-    return hdf, done
-
-
 def fit(data, *, species, free, model=None, priors=None, walkers=32, steps=3000, burn=None, thin=1,
         seed=None, backend=None, pool=None, fixed=None, tie=None, density_sigma=None,
         progress=None, initial=None, rtol=1e-7):
@@ -203,19 +182,12 @@ def fit(data, *, species, free, model=None, priors=None, walkers=32, steps=3000,
     except LossfitValueError as err:
         raise LossfitValueError("fixed", f"the data need a parameter that is neither free nor fixed: {err}") from None
 
-    store, done = _make_backend(backend, walkers, space.ndim)
-    sampler = emcee.EnsembleSampler(walkers, space.ndim, posterior, pool=pool, backend=store)
+    store, done = open_backend(backend, walkers, space.ndim)
     show = _interactive() if progress is None else bool(progress)
-    if done == 0:
-        store.reset(walkers, space.ndim)
-        p0 = _start(posterior, space, walkers, rng, initial)
-        sampler.random_state = np.random.RandomState(rng.integers(2 ** 31)).get_state()
-        sampler.run_mcmc(p0, steps, progress=show)
-    elif done < steps:
-        sampler.run_mcmc(None, steps - done, progress=show)
-
-    chain = sampler.get_chain()
-    log_prob = sampler.get_log_prob()
+    p0 = _start(posterior, space, walkers, rng, initial) if done == 0 else np.zeros((walkers, space.ndim))
+    run = sample(posterior, p0, steps, backend=store, pool=pool,
+                 seed=int(rng.integers(2 ** 31)), progress=show)
+    chain, log_prob = run.chain, run.log_prob
     if burn is None:
         tau = np.atleast_1d(emcee.autocorr.integrated_time(chain, c=5, tol=0, quiet=True))
         burn = int(min(max(3 * np.nanmax(tau), chain.shape[0] / 5), chain.shape[0] / 2))
@@ -223,5 +195,5 @@ def fit(data, *, species, free, model=None, priors=None, walkers=32, steps=3000,
         raise LossfitValueError("burn", f"must be an integer in [0, {chain.shape[0] - 2}], got {burn!r}")
     settings = {"walkers": walkers, "steps": int(chain.shape[0]), "seed": seed, "model": mdl.name,
                 "free": ",".join(free), "tie": tie or "", "density_sigma": density_sigma}
-    return FitResult(space=space, chain=chain, log_prob=log_prob, acceptance=sampler.acceptance_fraction,
+    return FitResult(space=space, chain=chain, log_prob=log_prob, acceptance=run.acceptance,
                      burn=burn, thin=thin, likelihood=likelihood, species=sp, model=mdl, settings=settings)

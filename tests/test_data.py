@@ -1,0 +1,119 @@
+"""LossSpectrum validation, the HDF5 schema round trip, CSV import, safe writes."""
+
+import h5py
+import numpy as np
+import pytest
+
+import lossfit as lf
+from lossfit.errors import LossfitValueError
+
+
+def _spec(**kw):
+    args = dict(a=[-500.0, -900.0, -1500.0], temperature=50.0, value=[1e-24, 5e-23, 2e-23],
+                error=[1e-25, 5e-24, 2e-24], kind="l3", label="test")
+    args.update(kw)
+    return lf.LossSpectrum(**args)
+
+
+def test_scalar_temperature_broadcasts_and_arrays_are_read_only():
+    s = _spec()
+    assert np.array_equal(s.temperature, [50.0, 50.0, 50.0])
+    with pytest.raises(ValueError):
+        s.a[0] = 1.0
+    assert s.units == "cm^6/s" and len(s) == 3
+
+
+@pytest.mark.parametrize("kw, argument", [
+    (dict(a=[-500.0, 0.0, -1500.0]), "a"),
+    (dict(a=[-500.0, np.nan, -1500.0]), "a"),
+    (dict(temperature=[50.0, -1.0, 50.0]), "temperature"),
+    (dict(temperature=[50.0, 50.0]), "temperature"),
+    (dict(temperature=np.inf), "temperature"),
+    (dict(value=[1e-24, 5e-23]), "value"),
+    (dict(value=[1e-24, np.nan, 1.0]), "value"),
+    (dict(error=[1e-25, -5e-24, 2e-24]), "error"),
+    (dict(error=[1e-25, 0.0, 2e-24]), "error"),
+    (dict(kind="l4"), "kind"),
+    (dict(kind="beta"), "a"),          # beta needs a > 0
+])
+def test_bad_input_names_the_argument(kw, argument):
+    with pytest.raises(LossfitValueError) as info:
+        _spec(**kw)
+    assert info.value.argument == argument
+    assert argument in str(info.value)
+
+
+def test_hdf5_round_trip_with_units(tmp_path):
+    s1 = _spec()
+    s2 = lf.LossSpectrum([300.0, 900.0], [40.0, 45.0], [1e-10, 3e-10], [1e-11, 3e-11], kind="beta",
+                         label="ad", species="133Cs")
+    path = tmp_path / "spectra.h5"
+    lf.write_spectra(path, [s1, s2])
+    back = lf.read_spectra(path)
+    assert [b.kind for b in back] == ["l3", "beta"]
+    for orig, new in zip((s1, s2), back):
+        for name in ("a", "temperature", "value", "error"):
+            assert np.array_equal(getattr(orig, name), getattr(new, name))
+        assert new.label == orig.label
+    with h5py.File(path) as h5:
+        assert h5.attrs["schema"] == "lossfit.spectra" and h5.attrs["schema_version"] == 1
+        assert h5["spectra/000/a"].attrs["units"] == "a0"
+        assert h5["spectra/001/value"].attrs["units"] == "cm^3/s"
+        assert h5["spectra/000/temperature"].attrs["units"] == "nK"
+
+
+def test_existing_file_is_never_overwritten_without_consent(tmp_path):
+    path = tmp_path / "spectra.h5"
+    lf.write_spectra(path, _spec())
+    before = path.read_bytes()
+    with pytest.raises(LossfitValueError, match="exists"):
+        lf.write_spectra(path, _spec(label="other"))
+    assert path.read_bytes() == before
+    lf.write_spectra(path, _spec(label="other"), overwrite=True)
+    assert lf.read_spectra(path)[0].label == "other"
+
+
+def test_failed_write_leaves_no_partial_file(tmp_path):
+    path = tmp_path / "spectra.h5"
+    with pytest.raises(LossfitValueError):
+        lf.write_spectra(path, ["not a spectrum"])
+    assert not path.exists()
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_reader_rejects_foreign_truncated_and_newer_files(tmp_path):
+    foreign = tmp_path / "foreign.h5"
+    with h5py.File(foreign, "w") as h5:
+        h5.attrs["schema"] = "something-else"
+    with pytest.raises(LossfitValueError, match="schema"):
+        lf.read_spectra(foreign)
+    good = tmp_path / "good.h5"
+    lf.write_spectra(good, _spec())
+    truncated = tmp_path / "truncated.h5"
+    truncated.write_bytes(good.read_bytes()[:500])
+    with pytest.raises(LossfitValueError, match="not a readable HDF5"):
+        lf.read_spectra(truncated)
+    with h5py.File(good, "a") as h5:
+        h5.attrs["schema_version"] = 99
+    with pytest.raises(LossfitValueError, match="version 99"):
+        lf.read_spectra(good)
+    with pytest.raises(LossfitValueError, match="no such file"):
+        lf.read_spectra(tmp_path / "missing.h5")
+
+
+def test_csv_import(tmp_path):
+    path = tmp_path / "run7.csv"
+    path.write_text("# invented test data\n temperature, a, value, error, note\n"
+                    "50, -500, 1e-24, 1e-25, x\n60, -900, 5e-23, 5e-24, y\n")
+    s = lf.read_csv(path)
+    assert np.array_equal(s.a, [-500.0, -900.0])
+    assert np.array_equal(s.temperature, [50.0, 60.0])
+    assert s.label == "run7"
+    bad = tmp_path / "bad.csv"
+    bad.write_text("a,temperature,value\n-500,50,1e-24\n")
+    with pytest.raises(LossfitValueError, match="error"):
+        lf.read_csv(bad)
+    worse = tmp_path / "worse.csv"
+    worse.write_text("a,temperature,value,error\n-500,fifty,1e-24,1e-25\n")
+    with pytest.raises(LossfitValueError, match="non-numeric"):
+        lf.read_csv(worse)
