@@ -1,0 +1,49 @@
+"""The notebooks execute and the demo command produces every promised output."""
+
+import json
+import os
+import pathlib
+import subprocess
+import sys
+
+import nbformat
+import pytest
+from nbclient import NotebookClient
+
+ROOT = pathlib.Path(__file__).resolve().parents[1]
+NOTEBOOKS = sorted((ROOT / "notebooks").glob("*.ipynb"))
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("path", NOTEBOOKS, ids=[p.name for p in NOTEBOOKS])
+def test_notebook_executes(path, tmp_path):
+    nb = nbformat.read(path, as_version=4)
+    NotebookClient(nb, timeout=600, kernel_name="python3",
+                   resources={"metadata": {"path": str(tmp_path)}}).execute()
+    errors = [o for c in nb.cells if c.cell_type == "code" for o in c.get("outputs", [])
+              if o.get("output_type") == "error"]
+    assert not errors
+
+
+def _lossfit(*args, **kw):
+    env = dict(os.environ, MPLBACKEND="Agg")
+    return subprocess.run([sys.executable, "-m", "lossfit.cli", *args], capture_output=True, text=True,
+                          env=env, cwd=ROOT, **kw)
+
+
+@pytest.mark.slow
+def test_demo_writes_all_outputs_and_refuses_to_overwrite(tmp_path):
+    out = tmp_path / "demo"
+    proc = _lossfit("demo", "--out", str(out), "--steps", "600", "--quiet")
+    assert proc.returncode == 0, proc.stderr
+    for name in ("data.h5", "chains.h5", "summary.json", "corner.png", "spectrum.png"):
+        assert (out / name).stat().st_size > 0
+    summary = json.loads((out / "summary.json").read_text())
+    assert "approximation" in summary["model"]          # "capped" is labelled
+    assert "invented" in summary["settings"]["scenario"]
+    assert {r["name"] for r in summary["summary"]} >= {"a_minus", "eta_minus", "a_star", "eta_star"}
+    assert "a_minus (a0)" in proc.stdout
+    before = (out / "summary.json").read_bytes()
+    again = _lossfit("demo", "--out", str(out), "--steps", "600", "--quiet")
+    assert again.returncode == 2 and "--overwrite" in again.stderr
+    assert (out / "summary.json").read_bytes() == before
