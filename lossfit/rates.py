@@ -16,7 +16,7 @@ import numpy as np
 from .constants import HBAR
 from .errors import LossfitValueError, ValidityWarning, check_finite, check_nonzero, check_positive
 from .species import species as _species
-from .thermal import ATOM_DIMER, THREE_BODY, thermal_average
+from .thermal import ATOM_DIMER, KERNEL_SIGNATURE, THREE_BODY, thermal_average
 from .units import A0, CM3_PER_S, CM6_PER_S, NK
 from .universal.models import DEFAULT_MODEL, get_model, scale_wavenumber_a0
 from .universal.threshold import Efimov
@@ -25,7 +25,8 @@ from .universal.threshold import Efimov
 MIN_ABS_A_OVER_RVDW = 5.0
 
 
-@numba.njit(cache=True)
+@numba.njit(numba.types.void(numba.types.FunctionType(KERNEL_SIGNATURE), numba.types.float64[:, ::1],
+                             numba.types.float64, numba.types.float64[::1]), cache=True)
 def _evaluate_rows(kernel, params, x, out):
     for i in range(params.shape[0]):
         out[i] = kernel(x, params[i])

@@ -44,6 +44,7 @@ import numpy as np
 
 from ..constants import HBAR
 from ..errors import LossfitValueError
+from ..thermal import feature_points, rate_kernel
 from ..units import A0
 from .threshold import beta_coefficient_unchecked, l3_coefficient_unchecked
 
@@ -60,7 +61,8 @@ class EnergyModel:
     """Base class of energy-resolved models (see the module docstring for the contract).
 
     Subclasses set ``name``, ``description``, ``approximate`` and the four numba
-    functions, and implement :meth:`three_body_rows` and :meth:`atom_dimer_rows`.
+    functions (wrapped in ``staticmethod``: numba dispatchers bind like methods
+    otherwise), and implement :meth:`three_body_rows` and :meth:`atom_dimer_rows`.
     """
 
     name = None
@@ -104,41 +106,41 @@ def _threshold_rows_atom_dimer(a, efimov, q):
     return rows
 
 
-@numba.njit(cache=True)
+@feature_points
 def _no_features(p, out):
     return 0
 
 
-@numba.njit(cache=True)
+@rate_kernel
 def _threshold_three_body(x, p):
     q2 = p[0] * p[0]
     return p[1] * q2 * q2
 
 
-@numba.njit(cache=True)
+@rate_kernel
 def _threshold_atom_dimer(x, p):
     return p[1] * p[0]
 
 
-@numba.njit(cache=True)
+@rate_kernel
 def _capped_three_body(x, p):
     q2 = p[0] * p[0]
     return min(p[1] * q2 * q2, UNITARITY_THREE_BODY / (x * x))
 
 
-@numba.njit(cache=True)
+@feature_points
 def _capped_three_body_features(p, out):
     q2 = p[0] * p[0]
     out[0] = math.sqrt(UNITARITY_THREE_BODY / (p[1] * q2 * q2))
     return 1
 
 
-@numba.njit(cache=True)
+@rate_kernel
 def _capped_atom_dimer(x, p):
     return min(p[1] * p[0], UNITARITY_ATOM_DIMER / math.sqrt(x))
 
 
-@numba.njit(cache=True)
+@feature_points
 def _capped_atom_dimer_features(p, out):
     r = UNITARITY_ATOM_DIMER / (p[1] * p[0])
     out[0] = r * r
@@ -150,10 +152,10 @@ class ThresholdModel(EnergyModel):
 
     name = "threshold"
     description = "zero-energy law at every collision energy"
-    three_body_kernel = _threshold_three_body
-    three_body_features = _no_features
-    atom_dimer_kernel = _threshold_atom_dimer
-    atom_dimer_features = _no_features
+    three_body_kernel = staticmethod(_threshold_three_body)
+    three_body_features = staticmethod(_no_features)
+    atom_dimer_kernel = staticmethod(_threshold_atom_dimer)
+    atom_dimer_features = staticmethod(_no_features)
 
     def three_body_rows(self, a, efimov, q):
         return _threshold_rows_three_body(a, efimov, q)
@@ -167,10 +169,10 @@ class CappedModel(ThresholdModel):
 
     name = "capped"
     description = "zero-energy law saturated at the J=0 unitarity bound"
-    three_body_kernel = _capped_three_body
-    three_body_features = _capped_three_body_features
-    atom_dimer_kernel = _capped_atom_dimer
-    atom_dimer_features = _capped_atom_dimer_features
+    three_body_kernel = staticmethod(_capped_three_body)
+    three_body_features = staticmethod(_capped_three_body_features)
+    atom_dimer_kernel = staticmethod(_capped_atom_dimer)
+    atom_dimer_features = staticmethod(_capped_atom_dimer_features)
 
 
 _MODELS = {}
