@@ -1,6 +1,16 @@
-"""Command line: ``lossfit demo`` (and, for batch use, the job commands).
+"""Command line for interactive and batch use.
 
-Exit codes: 0 success; 2 bad input (the message names the argument or key).
+``lossfit demo --out DIR``
+    Fit the built-in invented scenario; writes data, job file, chain, summary, figures.
+``lossfit run JOB.toml --out DIR [--pool serial|processes|mpi] [--workers N] [--steps N]``
+    Run or resume a job (schema: :mod:`lossfit.jobs`); under MPI start it as
+    ``mpiexec -n N lossfit run JOB.toml --out DIR --pool mpi``.
+``lossfit report DIR``
+    Re-create summary and figures from the stored chain.
+
+Exit codes: 0 success; 2 bad input (the message names the argument or job key);
+3 the output folder is locked or holds results that need ``--overwrite``;
+75 stopped by SIGTERM/SIGINT after saving the chain (run the same command to resume).
 """
 
 __all__ = ["main"]
@@ -18,6 +28,19 @@ def _cmd_demo(args):
     return 0
 
 
+def _cmd_run(args):
+    from .runner import run_job
+    run_job(args.job, args.out, pool=args.pool, workers=args.workers, steps=args.steps,
+            overwrite=args.overwrite, progress=False if args.quiet else None)
+    return 0
+
+
+def _cmd_report(args):
+    from .runner import report
+    report(args.dir, overwrite=args.overwrite)
+    return 0
+
+
 def build_parser():
     parser = argparse.ArgumentParser(prog="lossfit", description="Thermally averaged zero-range fits "
                                      "of three-body and atom-dimer loss spectra (Efimov parameters).")
@@ -32,17 +55,38 @@ def build_parser():
     demo.add_argument("--overwrite", action="store_true", help="replace results already in --out")
     demo.add_argument("--quiet", action="store_true", help="no progress bar")
     demo.set_defaults(func=_cmd_demo)
+    run = sub.add_parser("run", help="run or resume a job file (TOML)")
+    run.add_argument("job", help="job file")
+    run.add_argument("--out", required=True, help="output folder")
+    run.add_argument("--pool", choices=("serial", "processes", "mpi"), default="serial")
+    run.add_argument("--workers", type=int, default=None, help="processes for --pool processes")
+    run.add_argument("--steps", type=int, default=None, help="override the job's number of steps")
+    run.add_argument("--overwrite", action="store_true", help="discard results already in --out")
+    run.add_argument("--quiet", action="store_true", help="no progress bar")
+    run.set_defaults(func=_cmd_run)
+    rep = sub.add_parser("report", help="re-create summary and figures from stored chains")
+    rep.add_argument("dir", help="output folder of a run")
+    rep.add_argument("--overwrite", action="store_true", help="replace existing summary and figures")
+    rep.set_defaults(func=_cmd_report)
     return parser
 
 
 def main(argv=None):
     parser = build_parser()
     args = parser.parse_args(argv)
+    from .inference.sampling import Interrupted
+    from .runner import EXIT_BAD_INPUT, EXIT_CONFLICT, EXIT_INTERRUPTED, OutputConflict
     try:
         return args.func(args)
     except LossfitValueError as err:
         print(f"lossfit: error: {err}", file=sys.stderr)
-        return 2
+        return EXIT_BAD_INPUT
+    except OutputConflict as err:
+        print(f"lossfit: error: {err}", file=sys.stderr)
+        return EXIT_CONFLICT
+    except Interrupted as err:
+        print(f"lossfit: {err}", file=sys.stderr)
+        return EXIT_INTERRUPTED
 
 
 if __name__ == "__main__":

@@ -17,10 +17,10 @@ __all__ = ["LossSpectrum", "write_spectra", "read_spectra", "read_csv", "SCHEMA"
 
 import csv
 import os
-import tempfile
 
 import numpy as np
 
+from ._io import atomic_path
 from .errors import LossfitValueError, check_finite, check_nonzero, check_positive
 
 SCHEMA = "lossfit.spectra"
@@ -99,26 +99,6 @@ class LossSpectrum:
                             self.error[mask], kind=self.kind, label=self.label, species=self.species)
 
 
-def _atomic_h5_write(path, overwrite, fill):
-    # Write to a temporary file beside the target, then rename: a crash never leaves a
-    # half-written result under the final name, and an existing result is kept.
-    import h5py
-    path = os.fspath(path)
-    if os.path.exists(path) and not overwrite:
-        raise LossfitValueError("path", f"{path!r} exists; pass overwrite=True to replace it")
-    directory = os.path.dirname(os.path.abspath(path))
-    fd, tmp = tempfile.mkstemp(suffix=".h5.tmp", dir=directory)
-    os.close(fd)
-    try:
-        with h5py.File(tmp, "w") as h5:
-            fill(h5)
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.remove(tmp)
-        raise
-
-
 def write_spectra(path, spectra, *, overwrite=False):
     """Write spectra to an HDF5 file in the ``lossfit.spectra`` schema (module docstring).
 
@@ -148,7 +128,10 @@ def write_spectra(path, spectra, *, overwrite=False):
                                     ("value", s.value, s.units), ("error", s.error, s.units)):
                 g.create_dataset(name, data=arr).attrs["units"] = unit
 
-    _atomic_h5_write(path, overwrite, fill)
+    import h5py
+    with atomic_path(path, overwrite=overwrite) as tmp:
+        with h5py.File(tmp, "w") as h5:
+            fill(h5)
 
 
 def read_spectra(path):

@@ -37,16 +37,18 @@ J. Comput. Appl. Math. 6, 19 (1980)) compiled with numba.
 """
 
 __all__ = ["DecaySolution", "TabulatedRate", "tabulate_rate", "simulate_decay",
-           "simulate_decay_batch"]
+           "DecayBatch", "BatchResult", "simulate_decay_batch"]
 
 import math
+import warnings
 from dataclasses import dataclass
+from typing import NamedTuple
 
 import numba
 import numpy as np
 from scipy.interpolate import CubicSpline
 
-from .errors import LossfitValueError, check_finite, check_positive
+from .errors import LossfitValueError, ValidityWarning, check_finite, check_positive
 from .species import species as _lookup_species
 from .trap import as_trap
 
@@ -54,7 +56,7 @@ from .trap import as_trap
 _GAMMA, _GAMMA_D, _C3, _CAD, _L3, _BETA, _TH, _HEAT = range(8)
 _NPAR = 8
 
-_OK, _MAX_STEPS, _OUT_OF_TABLE, _NOT_FINITE = 0, 1, 2, 3
+_OK, _MAX_STEPS, _OUT_OF_TABLE, _NOT_FINITE, _OUT_OF_BETA_TABLE = 0, 1, 2, 3, 4
 
 # Dormand-Prince 5(4) tableau.
 _C2, _C3S, _C4, _C5 = 1.0 / 5.0, 3.0 / 10.0, 4.0 / 5.0, 8.0 / 9.0
@@ -65,6 +67,12 @@ _A51, _A52, _A53, _A54 = 19372.0 / 6561.0, -25360.0 / 2187.0, 64448.0 / 6561.0, 
 _A61, _A62, _A63, _A64, _A65 = (9017.0 / 3168.0, -355.0 / 33.0, 46732.0 / 5247.0,
                                 49.0 / 176.0, -5103.0 / 18656.0)
 _B1, _B3, _B4, _B5, _B6 = 35.0 / 384.0, 500.0 / 1113.0, 125.0 / 192.0, -2187.0 / 6784.0, 11.0 / 84.0
+# stage rows (coefficient of f, then of k2..k5), a compile-time constant for numba
+_A_ROWS = np.array([[_A21, 0.0, 0.0, 0.0, 0.0],
+                    [_A31, _A32, 0.0, 0.0, 0.0],
+                    [_A41, _A42, _A43, 0.0, 0.0],
+                    [_A51, _A52, _A53, _A54, 0.0],
+                    [_A61, _A62, _A63, _A64, _A65]])
 # error weights: b(5th order) - b(4th order)
 _E1, _E3, _E4, _E5, _E6, _E7 = (71.0 / 57600.0, -71.0 / 16695.0, 71.0 / 1920.0,
                                 -17253.0 / 339200.0, 22.0 / 525.0, -1.0 / 40.0)
@@ -101,8 +109,10 @@ def _rhs(y, p, l3k, l3c, bk, bc, out):
         return _NOT_FINITE
     l3 = _rate(temp, p[_L3], l3k, l3c)
     beta = _rate(temp, p[_BETA], bk, bc)
-    if l3 < 0.0 or beta < 0.0:
+    if l3 < 0.0:
         return _OUT_OF_TABLE
+    if beta < 0.0:
+        return _OUT_OF_BETA_TABLE
     r3 = l3 * p[_C3] * n_a * n_a * n_a / (temp * temp * temp)      # atoms lost per s
     r_ad = beta * p[_CAD] * n_a * n_d / temp ** 1.5                  # relaxation events per s
     out[0] = -p[_GAMMA] * n_a - r3 - r_ad
@@ -115,6 +125,42 @@ def _rhs(y, p, l3k, l3c, bk, bc, out):
 
 
 @numba.njit(cache=True)
+def _dp_step(y, f, h, p, l3k, l3c, bk, bc, rtol, atol, ks, ys, yn):
+    """One Dormand-Prince 5(4) trial step of size h from (y, f = rhs(y)).
+
+    Writes the 5th-order solution to ``yn`` and rhs(yn) to ``ks[5]``; returns
+    (status, scaled error norm).
+    """
+    dim = y.shape[0]
+    for s in range(5):
+        for i in range(dim):
+            acc = _A_ROWS[s, 0] * f[i]
+            for j in range(s):
+                acc += _A_ROWS[s, j + 1] * ks[j, i]
+            ys[i] = y[i] + h * acc
+        status = _rhs(ys, p, l3k, l3c, bk, bc, ks[s])
+        if status != _OK:
+            return status, 0.0
+    # ks[0..4] hold k2..k6
+    for i in range(dim):
+        yn[i] = y[i] + h * (_B1 * f[i] + _B3 * ks[1, i] + _B4 * ks[2, i] + _B5 * ks[3, i]
+                            + _B6 * ks[4, i])
+    status = _rhs(yn, p, l3k, l3c, bk, bc, ks[5])
+    if status != _OK:
+        return status, 0.0
+    err = 0.0
+    for i in range(dim):
+        e = h * (_E1 * f[i] + _E3 * ks[1, i] + _E4 * ks[2, i] + _E5 * ks[3, i] + _E6 * ks[4, i]
+                 + _E7 * ks[5, i])
+        r = abs(e) / (atol[i] + rtol * max(abs(y[i]), abs(yn[i])))
+        if r > err:
+            err = r
+    if not math.isfinite(err):
+        return _NOT_FINITE, 0.0
+    return _OK, err
+
+
+@numba.njit(cache=True)
 def _integrate(t_out, y0, p, l3k, l3c, bk, bc, rtol, atol, max_steps, out):
     """Integrate from t = 0 and write the state at each ``t_out`` into ``out[k, :]``.
 
@@ -123,12 +169,7 @@ def _integrate(t_out, y0, p, l3k, l3c, bk, bc, rtol, atol, max_steps, out):
     dim = 3
     y = y0.copy()
     f = np.empty(dim)
-    k2 = np.empty(dim)
-    k3 = np.empty(dim)
-    k4 = np.empty(dim)
-    k5 = np.empty(dim)
-    k6 = np.empty(dim)
-    k7 = np.empty(dim)
+    ks = np.empty((6, dim))
     ys = np.empty(dim)
     yn = np.empty(dim)
     status = _rhs(y, p, l3k, l3c, bk, bc, f)
@@ -158,58 +199,19 @@ def _integrate(t_out, y0, p, l3k, l3c, bk, bc, rtol, atol, max_steps, out):
         landing = h >= t_out[k] - t
         if landing:
             h = t_out[k] - t
-        for i in range(dim):
-            ys[i] = y[i] + h * _A21 * f[i]
-        status = _rhs(ys, p, l3k, l3c, bk, bc, k2)
+        status, err = _dp_step(y, f, h, p, l3k, l3c, bk, bc, rtol, atol, ks, ys, yn)
+        if status == _NOT_FINITE and h > 1e-12 * t_end:
+            # an over-long trial step drove T through zero: retry shorter
+            h *= 0.25
+            continue
         if status != _OK:
             return status
-        for i in range(dim):
-            ys[i] = y[i] + h * (_A31 * f[i] + _A32 * k2[i])
-        status = _rhs(ys, p, l3k, l3c, bk, bc, k3)
-        if status != _OK:
-            return status
-        for i in range(dim):
-            ys[i] = y[i] + h * (_A41 * f[i] + _A42 * k2[i] + _A43 * k3[i])
-        status = _rhs(ys, p, l3k, l3c, bk, bc, k4)
-        if status != _OK:
-            return status
-        for i in range(dim):
-            ys[i] = y[i] + h * (_A51 * f[i] + _A52 * k2[i] + _A53 * k3[i] + _A54 * k4[i])
-        status = _rhs(ys, p, l3k, l3c, bk, bc, k5)
-        if status != _OK:
-            return status
-        for i in range(dim):
-            ys[i] = y[i] + h * (_A61 * f[i] + _A62 * k2[i] + _A63 * k3[i] + _A64 * k4[i]
-                                + _A65 * k5[i])
-        status = _rhs(ys, p, l3k, l3c, bk, bc, k6)
-        if status != _OK:
-            return status
-        for i in range(dim):
-            yn[i] = y[i] + h * (_B1 * f[i] + _B3 * k3[i] + _B4 * k4[i] + _B5 * k5[i]
-                                + _B6 * k6[i])
-        status = _rhs(yn, p, l3k, l3c, bk, bc, k7)
-        if status != _OK:
-            # a trial point outside the table or at T <= 0: shrink before giving up
-            if h > 1e-12 * t_end and status == _NOT_FINITE:
-                h *= 0.25
-                continue
-            return status
-        err = 0.0
-        for i in range(dim):
-            e = h * (_E1 * f[i] + _E3 * k3[i] + _E4 * k4[i] + _E5 * k5[i] + _E6 * k6[i]
-                     + _E7 * k7[i])
-            scale = atol[i] + rtol * max(abs(y[i]), abs(yn[i]))
-            r = abs(e) / scale
-            if r > err:
-                err = r
-        if not math.isfinite(err):
-            return _NOT_FINITE
         if err <= 1.0:
             factor = 5.0 if err == 0.0 else min(5.0, max(0.2, 0.9 * err ** -0.2))
             t = t_out[k] if landing else t + h
             for i in range(dim):
                 y[i] = yn[i]
-                f[i] = k7[i]         # first-same-as-last
+                f[i] = ks[5, i]      # first-same-as-last
             h_next = factor * h
             if landing and factor >= 1.0 and h_free > h_next:
                 h_next = h_free      # the clip to the output time was not an accuracy limit
@@ -220,25 +222,24 @@ def _integrate(t_out, y0, p, l3k, l3c, bk, bc, rtol, atol, max_steps, out):
 
 
 @numba.njit(cache=True)
-def _integrate_batch(t_all, t_off, y0s, ps, l3k, l3c, k_off, c_off, rtol, atol_rel, max_steps,
-                     out, status):
-    """Integrate many atom-only curves.
+def _integrate_batch(t_all, t_off, y0s, ps, l3k, l3c, l3_koff, l3_coff, bk, bc, b_koff, b_coff,
+                     rtol, atol_rel, max_steps, out, status):
+    """Integrate many curves.
 
-    Curve j uses times t_all[t_off[j]:t_off[j+1]], L3 knots l3k[k_off[j]:k_off[j+1]] and
-    coefficient columns l3c[:, c_off[j]:c_off[j+1]] (empty slices mean a constant L3).
+    Curve j uses times t_all[t_off[j]:t_off[j+1]], L3 knots l3k[l3_koff[j]:l3_koff[j+1]] and
+    coefficient columns l3c[:, l3_coff[j]:l3_coff[j+1]] (empty slices: the constant in
+    ps[j]), and likewise for beta.
     """
     atol = np.empty(3)
-    no_knots = np.empty(0)
-    no_coefs = np.empty((4, 0))
     for j in range(y0s.shape[0]):
         y0 = y0s[j]
-        atol[0] = atol_rel * max(y0[0], 1.0)
+        atol[0] = atol_rel * max(y0[0], y0[1], 1.0)
         atol[1] = atol[0]
         atol[2] = atol_rel * y0[2]
         status[j] = _integrate(t_all[t_off[j]:t_off[j + 1]], y0, ps[j],
-                               l3k[k_off[j]:k_off[j + 1]], l3c[:, c_off[j]:c_off[j + 1]],
-                               no_knots, no_coefs, rtol, atol, max_steps,
-                               out[t_off[j]:t_off[j + 1]])
+                               l3k[l3_koff[j]:l3_koff[j + 1]], l3c[:, l3_coff[j]:l3_coff[j + 1]],
+                               bk[b_koff[j]:b_koff[j + 1]], bc[:, b_coff[j]:b_coff[j + 1]],
+                               rtol, atol, max_steps, out[t_off[j]:t_off[j + 1]])
 
 
 # --- rates as functions of temperature ---------------------------------------------------
@@ -384,6 +385,10 @@ def _times(t):
 
 
 def _scalar(name, value, *, allow_zero=True):
+    if isinstance(value, (float, int, np.floating, np.integer)) and not isinstance(value, bool):
+        x = float(value)
+        if math.isfinite(x) and (x > 0.0 or (allow_zero and x == 0.0)):
+            return x          # fast path; anything else gets the full message below
     arr = check_positive(name, value, allow_zero=allow_zero)
     if arr.ndim != 0:
         raise LossfitValueError(name, f"must be a scalar, got shape {arr.shape}")
@@ -452,7 +457,10 @@ def _resolve_rate(name, value, efimov, a, kind, species, model, required):
 _STATUS_TEXT = {_MAX_STEPS: "too many integration steps (is a rate absurdly large?)",
                 _NOT_FINITE: "the solution became non-finite or the temperature non-positive"}
 
-_MAX_TABLE_EXTENSIONS = 40
+_MAX_TABLE_EXTENSIONS = 12       # 1.5 * 2^11: three decades of heating
+# Bose enhancement of the density becomes noticeable well before n lambda^3 reaches the
+# condensation point 1.202 (common practice, no source): warn above this value.
+_PSD_WARN = 0.5
 
 
 def simulate_decay(t, *, species, trap_hz, n0, t0_nK, l3=None, efimov=None, a=None, gamma=0.0,
@@ -514,8 +522,13 @@ def simulate_decay(t, *, species, trap_hz, n0, t0_nK, l3=None, efimov=None, a=No
     if a is not None:
         a = float(check_finite("a", a))
     mixture = n_d > 0.0
-    if mixture and efimov is not None and beta is None and a is not None and a <= 0:
+    if mixture and a is not None and a <= 0:
         raise LossfitValueError("a", f"Feshbach dimers (and beta) exist only for a > 0, got a = {a!r} a0")
+    psd = float(trap.phase_space_density(n_a, temp0, sp))
+    if psd > _PSD_WARN:
+        warnings.warn(f"peak phase-space density {psd:.2g} at t = 0: the Boltzmann densities of "
+                      "lossfit.trap (and the thermal L3) are unreliable close to degeneracy",
+                      ValidityWarning, stacklevel=2)
     l3_spec = _resolve_rate("l3", l3, efimov, a, "l3", sp, model, required=True)
     beta_spec = (_resolve_rate("beta", beta, efimov, a, "beta", sp, model, required=True)
                  if mixture else _RateSpec("beta", 0.0))
@@ -533,19 +546,22 @@ def simulate_decay(t, *, species, trap_hz, n0, t0_nK, l3=None, efimov=None, a=No
     out = np.empty((times.size, 3))
 
     # Heating never cools (T_h >= 0), so T(t) lies in [t0, T_max]; tables of callables
-    # start narrow and grow until the temperature stays inside.
-    t_lo = temp0 * (1.0 - 1e-9)
-    t_hi = temp0 * 1.5 if heating else temp0
+    # start narrow and grow until the temperature stays inside. The lower margin covers
+    # Runge-Kutta trial stages, which may undershoot the current T slightly.
+    t_lo, t_hi = (temp0 * 0.98, temp0 * 1.5) if heating else (temp0, temp0)
     for _ in range(_MAX_TABLE_EXTENSIONS):
         p[_L3], l3_knots, l3_coefs = l3_spec.kernel_args(t_lo, t_hi)
         p[_BETA], b_knots, b_coefs = beta_spec.kernel_args(t_lo, t_hi)
         status = _integrate(times, y0, p, l3_knots, l3_coefs, b_knots, b_coefs, tol, atol,
                             1_000_000, out)
-        if status != _OUT_OF_TABLE or (l3_spec.func is None and beta_spec.func is None):
+        which = {_OUT_OF_TABLE: l3_spec, _OUT_OF_BETA_TABLE: beta_spec}.get(status)
+        if which is None or which.func is None:
             break
         t_hi *= 2.0
-    if status == _OUT_OF_TABLE:
-        which = l3_spec if l3_spec.table is not None else beta_spec
+    if which is not None:
+        if which.table is None:
+            raise LossfitValueError(which.name, f"T(t) rose beyond {t_hi:g} nK; the rate callable "
+                                    "cannot be tabulated that far (runaway heating?)")
         raise LossfitValueError(which.name, f"T(t) left the tabulated range "
                                 f"[{which.table.t_min_nK:g}, {which.table.t_max_nK:g}] nK; "
                                 "extend the table")
@@ -557,101 +573,182 @@ def simulate_decay(t, *, species, trap_hz, n0, t0_nK, l3=None, efimov=None, a=No
                          mean_n2=p[_C3] * atoms ** 2 / temperature ** 3)
 
 
-def simulate_decay_batch(times, *, species, traps_hz, n0, t0_nK, l3, gamma=0.0, heating=True,
-                         recombination_heating_nK=0.0, rtol=1e-6):
-    """Integrate many atom-only decay curves in one compiled call (the global-fit fast path).
+def _per_curve_scalars(name, value, m, *, allow_zero=True):
+    arr = check_positive(name, value, allow_zero=allow_zero)
+    if arr.ndim == 0:
+        return np.full(m, float(arr))
+    if arr.shape != (m,):
+        raise LossfitValueError(name, f"needs one value per curve ({m}), got shape {arr.shape}")
+    return arr
 
-    Every per-curve argument is a sequence with one entry per curve (scalars are
-    broadcast). Rates are constants or :class:`TabulatedRate` tables (no callables:
-    tabulate them once with :func:`tabulate_rate` outside the fit loop).
+
+class BatchResult(NamedTuple):
+    """Concatenated solutions of a :class:`DecayBatch`; curve j is ``[offsets[j]:offsets[j+1]]``.
+
+    Attributes
+    ----------
+    atoms : ndarray
+        Atom numbers.
+    temperature : ndarray
+        Temperatures in nK.
+    dimers : ndarray
+        Dimer numbers (zeros for atom-only curves).
+    """
+
+    atoms: np.ndarray
+    temperature: np.ndarray
+    dimers: np.ndarray
+
+
+_NO_OFFSETS = {}
+
+
+def _pack_rates(name, value, m, column):
+    """Per-curve rates -> (constants into ``column``, knots, coefs, knot and column offsets)."""
+    if isinstance(value, TabulatedRate):
+        value = [value] * m
+    if isinstance(value, (list, tuple)) and any(isinstance(x, TabulatedRate) for x in value):
+        if len(value) != m or not all(isinstance(x, TabulatedRate) for x in value):
+            raise LossfitValueError(name, f"a list of tables needs one TabulatedRate per curve ({m})")
+        column[:] = 0.0
+        knots = np.concatenate([x._knots for x in value])
+        coefs = np.ascontiguousarray(np.concatenate([x._coefs for x in value], axis=1))
+        k_off = np.cumsum([0] + [x._knots.size for x in value]).astype(np.int64)
+        c_off = np.cumsum([0] + [x._coefs.shape[1] for x in value]).astype(np.int64)
+        return knots, coefs, k_off, c_off
+    if callable(value):
+        raise LossfitValueError(name, "callables are not accepted here; tabulate them once "
+                                "with lossfit.decay.tabulate_rate")
+    column[:] = _per_curve_scalars(name, value, m)
+    if m not in _NO_OFFSETS:
+        _NO_OFFSETS[m] = np.zeros(m + 1, dtype=np.int64)
+    return _EMPTY_KNOTS, _EMPTY_COEFS, _NO_OFFSETS[m], _NO_OFFSETS[m]
+
+
+class DecayBatch:
+    """Many decay curves prepared once, integrated in one compiled call.
+
+    This is the fast path for global fits: everything that does not change between
+    likelihood evaluations (times, traps, species, heating model) is validated and
+    converted here; :meth:`__call__` only checks the per-curve parameters and runs the
+    numba kernel. Atom-only curves and atom-dimer mixtures may be mixed freely.
 
     Parameters
     ----------
     times : sequence of arrays
-        Hold times in s for each curve (strictly increasing, >= 0).
+        Hold times in s for each curve (strictly increasing, >= 0; initial state at t = 0).
     species : str or Species
         Common to all curves.
-    traps_hz : HarmonicTrap, sequence of 3 floats, or a sequence of those (one per curve)
-    n0, t0_nK, gamma, recombination_heating_nK : float or sequence
-        As in :func:`simulate_decay` (atoms, nK, 1/s, nK).
-    l3 : float, TabulatedRate, or a sequence of those
-        Three-body coefficient in cm^6/s per curve.
+    traps_hz : HarmonicTrap, 3 frequencies in Hz, or a sequence of those (one per curve)
     heating : bool
+        Include anti-evaporation and recombination heating.
+    recombination_heating_nK : float or array
+        T_h in nK, per curve or common.
     rtol : float
-        Relative tolerance.
+        Relative tolerance of the integrator.
+    """
+
+    def __init__(self, times, *, species, traps_hz, heating=True, recombination_heating_nK=0.0,
+                 rtol=1e-6):
+        ts = [_times(x) for x in times]
+        m = len(ts)
+        if m == 0:
+            raise LossfitValueError("times", "need at least one curve")
+        sp = _lookup_species(species)
+        if isinstance(traps_hz, (list, tuple)) and len(traps_hz) == m and not np.isscalar(traps_hz[0]):
+            traps = [as_trap(x, "traps_hz") for x in traps_hz]
+        else:
+            traps = [as_trap(traps_hz, "traps_hz")] * m
+        self.n_curves = m
+        self.times = ts
+        self.offsets = np.cumsum([0] + [x.size for x in ts]).astype(np.int64)
+        self._t_all = np.concatenate(ts)
+        self._p = np.zeros((m, _NPAR))
+        self._p[:, _C3] = [tr.n2_coefficient(sp) for tr in traps]
+        self._p[:, _CAD] = [tr.overlap_coefficient(sp) for tr in traps]
+        self._p[:, _TH] = _per_curve_scalars("recombination_heating_nK", recombination_heating_nK, m)
+        self._p[:, _HEAT] = 1.0 if heating else 0.0
+        self._rtol = _scalar("rtol", rtol, allow_zero=False)
+        self._y0 = np.zeros((m, 3))
+
+    @property
+    def n2_coefficients(self):
+        """Per-curve c with <n^2> = c N^2 / T^3, in cm^-6 nK^3."""
+        return self._p[:, _C3].copy()
+
+    @property
+    def overlap_coefficients(self):
+        """Per-curve d with (1/N_D) int n_A n_D = d N_A / T^(3/2), in cm^-3 nK^(3/2)."""
+        return self._p[:, _CAD].copy()
+
+    def __call__(self, n0, t0_nK, l3, gamma=0.0, *, n_dimers0=0.0, beta=0.0, gamma_dimer=0.0):
+        """Integrate every curve.
+
+        Parameters
+        ----------
+        n0 : float or array (n_curves,)
+            Initial atom numbers.
+        t0_nK : float or array (n_curves,)
+            Initial temperatures in nK.
+        l3 : float, array (n_curves,), TabulatedRate or sequence of TabulatedRate
+            Three-body coefficients in cm^6/s (constants or tables in T).
+        gamma : float or array (n_curves,)
+            One-body loss rates of the atoms in 1/s.
+        n_dimers0 : float or array (n_curves,)
+            Initial dimer numbers (0 for atom-only curves).
+        beta : float, array (n_curves,), TabulatedRate or sequence of TabulatedRate
+            Atom-dimer relaxation coefficients in cm^3/s.
+        gamma_dimer : float or array (n_curves,)
+            One-body loss rates of the dimers in 1/s.
+
+        Returns
+        -------
+        BatchResult
+            ``atoms``, ``temperature`` (nK), ``dimers``, concatenated over curves.
+        """
+        m = self.n_curves
+        self._y0[:, 0] = _per_curve_scalars("n0", n0, m)
+        self._y0[:, 1] = _per_curve_scalars("n_dimers0", n_dimers0, m)
+        self._y0[:, 2] = _per_curve_scalars("t0_nK", t0_nK, m, allow_zero=False)
+        self._p[:, _GAMMA] = _per_curve_scalars("gamma", gamma, m)
+        self._p[:, _GAMMA_D] = _per_curve_scalars("gamma_dimer", gamma_dimer, m)
+        l3_args = _pack_rates("l3", l3, m, self._p[:, _L3])
+        b_args = _pack_rates("beta", beta, m, self._p[:, _BETA])
+        out = np.empty((self._t_all.size, 3))
+        status = np.zeros(m, dtype=np.int64)
+        _integrate_batch(self._t_all, self.offsets, self._y0, self._p, *l3_args, *b_args,
+                         self._rtol, self._rtol * 1e-6, 1_000_000, out, status)
+        bad = np.flatnonzero(status)
+        if bad.size:
+            j = int(bad[0])
+            if status[j] == _OUT_OF_TABLE:
+                raise LossfitValueError("l3", f"curve {j}: T(t) left the tabulated L3 range")
+            if status[j] == _OUT_OF_BETA_TABLE:
+                raise LossfitValueError("beta", f"curve {j}: T(t) left the tabulated beta range")
+            raise LossfitValueError("n0", f"curve {j}: {_STATUS_TEXT[int(status[j])]}")
+        return BatchResult(out[:, 0], out[:, 2], out[:, 1])
+
+
+def simulate_decay_batch(times, *, species, traps_hz, n0, t0_nK, l3, gamma=0.0, heating=True,
+                         recombination_heating_nK=0.0, n_dimers0=0.0, beta=0.0, gamma_dimer=0.0,
+                         rtol=1e-6):
+    """Integrate many curves at once; see :class:`DecayBatch` for repeated calls.
+
+    Parameters are those of :class:`DecayBatch` and :meth:`DecayBatch.__call__`.
 
     Returns
     -------
     list of DecaySolution
+        ``dimers`` is None for curves without dimers.
     """
-    ts = [_times(x) for x in times]
-    m = len(ts)
-    if m == 0:
-        raise LossfitValueError("times", "need at least one curve")
-    sp = _lookup_species(species)
-
-    def per_curve(name, value):
-        if isinstance(value, (list, tuple)) and not (name == "traps_hz" and len(value) == 3
-                                                     and np.isscalar(value[0])):
-            if len(value) != m:
-                raise LossfitValueError(name, f"needs one entry per curve ({m}), got {len(value)}")
-            return list(value)
-        if isinstance(value, np.ndarray) and value.ndim == 1 and name != "traps_hz":
-            if value.size != m:
-                raise LossfitValueError(name, f"needs one entry per curve ({m}), got {value.size}")
-            return list(value)
-        return [value] * m
-
-    traps = [as_trap(x, "traps_hz") for x in per_curve("traps_hz", traps_hz)]
-    n_a = [_scalar("n0", x) for x in per_curve("n0", n0)]
-    temp0 = [_scalar("t0_nK", x, allow_zero=False) for x in per_curve("t0_nK", t0_nK)]
-    gam = [_scalar("gamma", x) for x in per_curve("gamma", gamma)]
-    t_h = [_scalar("recombination_heating_nK", x)
-           for x in per_curve("recombination_heating_nK", recombination_heating_nK)]
-    specs = [_RateSpec("l3", x) for x in per_curve("l3", l3)]
-    if any(s.func is not None for s in specs):
-        raise LossfitValueError("l3", "callables are not accepted here; tabulate them with "
-                                "lossfit.decay.tabulate_rate first")
-    tol = _scalar("rtol", rtol, allow_zero=False)
-
-    ps = np.zeros((m, _NPAR))
-    y0s = np.zeros((m, 3))
-    knots, coefs, offsets = [], [], [0]
-    for j in range(m):
-        ps[j, _GAMMA] = gam[j]
-        ps[j, _C3] = traps[j].n2_coefficient(sp)
-        ps[j, _L3] = specs[j].const
-        ps[j, _TH] = t_h[j]
-        ps[j, _HEAT] = 1.0 if heating else 0.0
-        y0s[j] = (n_a[j], 0.0, temp0[j])
-        if specs[j].table is not None:
-            knots.append(specs[j].table._knots)
-            coefs.append(specs[j].table._coefs)
-        else:
-            knots.append(_EMPTY_KNOTS)
-            coefs.append(_EMPTY_COEFS)
-        offsets.append(offsets[-1] + knots[-1].size)
-    l3k = np.ascontiguousarray(np.concatenate(knots))
-    l3c = np.ascontiguousarray(np.concatenate(coefs, axis=1))
-    k_off = np.asarray(offsets, dtype=np.int64)
-    c_off = np.cumsum([0] + [c.shape[1] for c in coefs]).astype(np.int64)
-    t_all = np.concatenate(ts)
-    t_off = np.cumsum([0] + [x.size for x in ts]).astype(np.int64)
-    out = np.empty((t_all.size, 3))
-    status = np.zeros(m, dtype=np.int64)
-    _integrate_batch(t_all, t_off, y0s, ps, l3k, l3c, k_off, c_off, tol, tol * 1e-6,
-                     1_000_000, out, status)
-    bad = np.flatnonzero(status)
-    if bad.size:
-        j = int(bad[0])
-        text = ("T(t) left the tabulated L3 range" if status[j] == _OUT_OF_TABLE
-                else _STATUS_TEXT[int(status[j])])
-        raise LossfitValueError("l3" if status[j] == _OUT_OF_TABLE else "times", f"curve {j}: {text}")
+    batch = DecayBatch(times, species=species, traps_hz=traps_hz, heating=heating,
+                       recombination_heating_nK=recombination_heating_nK, rtol=rtol)
+    res = batch(n0, t0_nK, l3, gamma, n_dimers0=n_dimers0, beta=beta, gamma_dimer=gamma_dimer)
     sols = []
-    for j in range(m):
-        block = out[t_off[j]:t_off[j + 1]]
-        atoms, temperature = block[:, 0].copy(), block[:, 2].copy()
-        sols.append(DecaySolution(t=ts[j], atoms=atoms, temperature=temperature, dimers=None,
-                                  mean_n2=ps[j, _C3] * atoms ** 2 / temperature ** 3))
+    for j in range(batch.n_curves):
+        sl = slice(batch.offsets[j], batch.offsets[j + 1])
+        n, temp = res.atoms[sl].copy(), res.temperature[sl].copy()
+        dimers = res.dimers[sl].copy() if batch._y0[j, 1] > 0 else None
+        sols.append(DecaySolution(t=batch.times[j], atoms=n, temperature=temp, dimers=dimers,
+                                  mean_n2=batch._p[j, _C3] * n ** 2 / temp ** 3))
     return sols
-

@@ -18,7 +18,7 @@ import warnings
 import numpy as np
 
 from .data import LossSpectrum, write_spectra
-from .errors import LossfitValueError, ValidityWarning
+from .errors import ValidityWarning
 from .rates import beta, l3
 from .species import species
 from .universal.threshold import Efimov
@@ -68,49 +68,60 @@ def demo_spectra(scenario=SCENARIO):
     return out, dict(truth)
 
 
+def demo_job_text(walkers=32, steps=5000, seed=1):
+    """The job file the demo runs (TOML; see :mod:`lossfit.jobs`)."""
+    return f"""# lossfit demo job: {SCENARIO['description']}
+[data]
+species = "{SCENARIO['species']}"
+spectra = ["data.h5"]
+
+[model]
+name = "capped"      # an approximation: zero-energy law saturated at the J=0 unitarity bound
+tie = "none"
+
+[free]
+a_minus = {{ prior = "default" }}
+eta_minus = {{ prior = "default" }}
+a_star = {{ prior = "default" }}
+eta_star = {{ prior = "default" }}
+density_scale = {{ prior = "log-normal", median = 1.0, sigma = 0.2 }}
+
+[sampler]
+walkers = {walkers}
+steps = {steps}
+seed = {seed}
+burn = "auto"
+thin = 1
+checkpoint_every = 250
+log_every = 500
+"""
+
+
 def run_demo(out_dir, *, walkers=32, steps=5000, seed=1, overwrite=False, progress=None):
-    """Generate the demo data, fit it and write every output into ``out_dir``.
+    """Write the demo's data and job file into ``out_dir`` and run the job there.
 
-    Writes ``data.h5`` (spectra), ``chains.h5`` (emcee chain), ``summary.json``,
-    ``corner.png`` and ``spectrum.png``; returns the FitResult.
+    Writes ``data.h5`` (spectra), ``job.toml`` (so that ``lossfit run DIR/job.toml
+    --out OTHER`` reproduces the run), ``chains.h5``, ``summary.json``, ``corner.png``
+    and ``spectrum.png``; returns the FitResult.
     """
-    from .inference import fit
-    from .plotting import corner_plot, save_figure, spectrum_plot
-    import matplotlib
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
+    from .runner import OUTPUTS, OutputConflict, run_job
     out_dir = os.fspath(out_dir)
-    names = ["data.h5", "chains.h5", "summary.json", "corner.png", "spectrum.png"]
+    names = ["data.h5", "job.toml", *OUTPUTS]
     existing = [n for n in names if os.path.exists(os.path.join(out_dir, n))]
     if existing and not overwrite:
-        raise LossfitValueError("out", f"{out_dir!r} already holds {existing}; choose another folder "
-                                "or pass --overwrite")
+        raise OutputConflict(f"{out_dir!r} already holds {existing}; choose another folder or pass "
+                             "--overwrite")
     os.makedirs(out_dir, exist_ok=True)
-    if overwrite:
-        for n in existing:
-            os.remove(os.path.join(out_dir, n))
+    for n in existing:
+        os.remove(os.path.join(out_dir, n))
     spectra, truth = demo_spectra()
     write_spectra(os.path.join(out_dir, "data.h5"), spectra)
+    with open(os.path.join(out_dir, "job.toml"), "w") as fh:
+        fh.write(demo_job_text(walkers, steps, seed))
     print(f"lossfit demo — {SCENARIO['description']}")
     t0 = time.perf_counter()
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", ValidityWarning)
-        result = fit(spectra, species=SCENARIO["species"],
-                     free=["a_minus", "eta_minus", "a_star", "eta_star", "density_scale"],
-                     density_sigma=0.2, walkers=walkers, steps=steps, seed=seed,
-                     backend=os.path.join(out_dir, "chains.h5"), progress=progress)
+    result = run_job(os.path.join(out_dir, "job.toml"), out_dir, progress=progress, truths=truth)
     elapsed = time.perf_counter() - t0
-    result.settings["scenario"] = SCENARIO["description"]
-    result.settings["wall_time_s"] = elapsed
-    result.write_json(os.path.join(out_dir, "summary.json"))
-    print(result.table())
     print("truth of the invented scenario: " + ", ".join(f"{k}={v:g}" for k, v in truth.items()))
-    fig = corner_plot(result, truths=truth)
-    save_figure(fig, os.path.join(out_dir, "corner.png"))
-    plt.close(fig)
-    fig = spectrum_plot(result)
-    save_figure(fig, os.path.join(out_dir, "spectrum.png"))
-    plt.close(fig)
-    print(f"fit wall time {elapsed:.1f} s; outputs in {out_dir}/: {', '.join(names)}")
+    print(f"wall time {elapsed:.1f} s; outputs in {out_dir}/: {', '.join(names)}")
     return result

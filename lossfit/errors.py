@@ -5,9 +5,16 @@ Every error that bad user input can trigger is a :class:`LossfitValueError`, a
 """
 
 __all__ = ["LossfitError", "LossfitValueError", "ConvergenceWarning", "ValidityWarning",
-           "check_finite", "check_positive", "check_nonzero"]
+           "check_finite", "check_positive", "check_nonzero", "is_real"]
+
+import numbers
 
 import numpy as np
+
+
+def is_real(value):
+    """True for a real scalar (Python or numpy int/float), False for bool and others."""
+    return isinstance(value, numbers.Real) and not isinstance(value, (bool, np.bool_))
 
 
 class LossfitError(Exception):

@@ -14,7 +14,7 @@ import numba
 import numpy as np
 
 from .constants import HBAR
-from .errors import LossfitValueError, ValidityWarning, check_finite, check_nonzero, check_positive
+from .errors import LossfitValueError, ValidityWarning, check_nonzero, check_positive, is_real
 from .species import species as _species
 from .thermal import ATOM_DIMER, KERNEL_SIGNATURE, THREE_BODY, thermal_average
 from .units import A0, CM3_PER_S, CM6_PER_S, NK
@@ -55,9 +55,9 @@ def _prepare(a, scale_nk, species, efimov, model, scale_name, process, stackleve
     return sp, mdl, a_b, scale_b, q
 
 
-def three_body_rows(a, scale_nk, species, efimov, model, stacklevel=4):
+def three_body_rows(a, scale_nk, species, efimov, model, stacklevel=4, scale_name="temperature"):
     """Private helper shared with the likelihood: (model, params, natural unit in cm^6/s)."""
-    sp, mdl, a_b, scale_b, q = _prepare(a, scale_nk, species, efimov, model, "temperature",
+    sp, mdl, a_b, scale_b, q = _prepare(a, scale_nk, species, efimov, model, scale_name,
                                         THREE_BODY, stacklevel)
     params = mdl.three_body_rows(a_b, efimov, q)
     k_s = scale_wavenumber_a0(scale_b * NK, sp.mass).ravel() / A0
@@ -65,9 +65,9 @@ def three_body_rows(a, scale_nk, species, efimov, model, stacklevel=4):
     return mdl, params, unit, a_b.shape
 
 
-def atom_dimer_rows(a, scale_nk, species, efimov, model, stacklevel=4):
+def atom_dimer_rows(a, scale_nk, species, efimov, model, stacklevel=4, scale_name="temperature"):
     """Private helper shared with the likelihood: (model, params, natural unit in cm^3/s)."""
-    sp, mdl, a_b, scale_b, q = _prepare(a, scale_nk, species, efimov, model, "temperature",
+    sp, mdl, a_b, scale_b, q = _prepare(a, scale_nk, species, efimov, model, scale_name,
                                         ATOM_DIMER, stacklevel)
     params = mdl.atom_dimer_rows(a_b, efimov, q)
     k_s = scale_wavenumber_a0(scale_b * NK, sp.mass).ravel() / A0
@@ -78,13 +78,6 @@ def atom_dimer_rows(a, scale_nk, species, efimov, model, stacklevel=4):
 def _finish(values, shape):
     out = values.reshape(shape)
     return out.item() if out.ndim == 0 else out
-
-
-def _rename(err, name):
-    # The helpers validate the energy scale under one name; report the caller's.
-    if isinstance(err, LossfitValueError) and err.argument == "temperature" and name != "temperature":
-        return LossfitValueError(name, str(err).split(": ", 1)[1])
-    return err
 
 
 def k3(a, energy, *, species, efimov, model=None):
@@ -106,10 +99,7 @@ def k3(a, energy, *, species, efimov, model=None):
     float or ndarray
         K3(a, E) in cm^6/s (lossfit convention: atoms lost, thermal gas).
     """
-    try:
-        mdl, params, unit, shape = three_body_rows(a, energy, species, efimov, model)
-    except LossfitValueError as err:
-        raise _rename(err, "energy") from None
+    mdl, params, unit, shape = three_body_rows(a, energy, species, efimov, model, scale_name="energy")
     out = np.empty(params.shape[0])
     _evaluate_rows(mdl.three_body_kernel, params, 1.0, out)
     return _finish(out * unit, shape)
@@ -132,10 +122,7 @@ def beta_energy(a, energy, *, species, efimov, model=None):
     float or ndarray
         beta(a, E) in cm^3/s (dimers lost).
     """
-    try:
-        mdl, params, unit, shape = atom_dimer_rows(a, energy, species, efimov, model)
-    except LossfitValueError as err:
-        raise _rename(err, "energy") from None
+    mdl, params, unit, shape = atom_dimer_rows(a, energy, species, efimov, model, scale_name="energy")
     out = np.empty(params.shape[0])
     _evaluate_rows(mdl.atom_dimer_kernel, params, 1.0, out)
     return _finish(out * unit, shape)
@@ -143,6 +130,8 @@ def beta_energy(a, energy, *, species, efimov, model=None):
 
 def _averaged(rows, kernel_attr, features_attr, weight, a, temperature, species, efimov, model,
               rtol):
+    if not (is_real(rtol) and 0 < rtol < 1):
+        raise LossfitValueError("rtol", f"must be a number in (0, 1), got {rtol!r}")
     mdl, params, unit, shape = rows(a, temperature, species, efimov, model, stacklevel=5)
     value, err = thermal_average(getattr(mdl, kernel_attr), getattr(mdl, features_attr),
                                  params, weight, rtol=rtol)

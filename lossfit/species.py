@@ -16,7 +16,7 @@ import math
 from dataclasses import dataclass, field
 
 from .constants import ABAR_OVER_RVDW, ATOMIC_MASS, ELECTRON_MASS
-from .errors import LossfitValueError
+from .errors import LossfitValueError, is_real
 
 
 @dataclass(frozen=True)
@@ -43,7 +43,7 @@ class Species:
     def __post_init__(self):
         for arg in ("mass_u", "c6_au"):
             value = getattr(self, arg)
-            if not (isinstance(value, (int, float)) and math.isfinite(value) and value > 0):
+            if not (is_real(value) and math.isfinite(value) and value > 0):
                 raise LossfitValueError(arg, f"must be a positive finite number, got {value!r}")
 
     @property
@@ -111,9 +111,9 @@ def species(name_or_species):
         return name_or_species
     if not isinstance(name_or_species, str):
         raise LossfitValueError("species", f"must be a name or a Species, got {name_or_species!r}")
-    key = _aliases(_normalise(name_or_species))
+    key = _aliases(_normalise(name_or_species)).lower()
     for known, sp in _REGISTRY.items():
-        if known.lower() == key.lower():
+        if _aliases(_normalise(known)).lower() == key:
             return sp
     raise LossfitValueError("species", f"unknown species {name_or_species!r}; known: "
                             f"{', '.join(_REGISTRY)} (or build lossfit.Species(name, mass_u, c6_au))")

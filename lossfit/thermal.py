@@ -55,7 +55,7 @@ _WG = np.array([0.129484966168869693270611432679082, 0.2797053914892766679014677
 
 _BASE_EDGES = np.array([0.0, 1.0, 1.75, 2.5, 3.5, 4.75, 6.5])   # in u = sqrt(E/k_BT)
 _U_MAX = 6.5
-_MAX_INTERVALS = 400
+_MAX_INTERVALS = 600
 _MAX_FEATURES = 32
 
 
@@ -108,9 +108,49 @@ def _gk15(kernel, p, weight, a, b):
     return resk * half, abs((resk - resg) * half)
 
 
+def _base_panel_tables():
+    # Kronrod nodes (x = u^2) and weight-times-Boltzmann factors of the fixed panels,
+    # so that a panel without features costs one kernel call per node and no exp().
+    nodes = np.concatenate([-_XGK[:7], [0.0], _XGK[6::-1]])
+    wk = np.concatenate([_WGK[:7], [_WGK[7]], _WGK[6::-1]])
+    wg = np.zeros(15)
+    wg[1:14:2] = np.concatenate([_WG[:3], [_WG[3]], _WG[2::-1]])
+    n_panels = _BASE_EDGES.size - 1
+    x = np.empty((n_panels, 15))
+    fk = np.empty((2, n_panels, 15))
+    fg = np.empty((2, n_panels, 15))
+    for i in range(n_panels):
+        a, b = _BASE_EDGES[i], _BASE_EDGES[i + 1]
+        u = 0.5 * (a + b) + 0.5 * (b - a) * nodes
+        x[i] = u * u
+        for w in (THREE_BODY, ATOM_DIMER):
+            bw = np.array([boltzmann_weight(v, w) for v in u]) * 0.5 * (b - a)
+            fk[w, i] = wk * bw
+            fg[w, i] = wg * bw
+    return x, fk, fg
+
+
+_PANEL_X, _PANEL_WK, _PANEL_WG = _base_panel_tables()
+_GRADING = 4.0          # ratio of successive edges when grading towards a feature cluster
+_MAX_EDGES = 256
+
+
+@numba.njit
+def _base_panel(kernel, p, weight, i):
+    resk = 0.0
+    resg = 0.0
+    for j in range(15):
+        f = kernel(_PANEL_X[i, j], p)
+        resk += _PANEL_WK[weight, i, j] * f
+        resg += _PANEL_WG[weight, i, j] * f
+    return resk, abs(resk - resg)
+
+
 @numba.njit(cache=True)
 def _insert_sorted(edges, n, value):
     # Keep the first n entries of `edges` sorted and unique while adding `value`.
+    if n >= edges.size:
+        return n
     for i in range(n):
         if edges[i] == value:
             return n
@@ -122,23 +162,69 @@ def _insert_sorted(edges, n, value):
     return n + 1
 
 
+@numba.njit(cache=True)
+def _feature_edges(feat, n_feat, edges, n_edges):
+    """Add feature points (given in x) as edges in u, graded geometrically around
+    clusters: a feature whose nearest other feature lies at distance d gets edges at
+    f -+ d 4^k out to the neighbouring fixed edges, so that the tails of a line narrower
+    than k_BT are sampled on every scale (a light-tailed line is otherwise invisible to
+    the error estimate of the panels beside it)."""
+    us = np.empty(n_feat)
+    m = 0
+    for j in range(n_feat):
+        x = feat[j]
+        if x > 0.0 and x < _U_MAX * _U_MAX:
+            us[m] = math.sqrt(x)
+            m += 1
+    for j in range(m):
+        n_edges = _insert_sorted(edges, n_edges, us[j])
+    for j in range(m):
+        d = math.inf
+        for k in range(m):
+            if k != j and us[k] != us[j]:
+                d = min(d, abs(us[k] - us[j]))
+        if d == math.inf:
+            continue
+        lo_edge = 0.0
+        hi_edge = _U_MAX
+        for i in range(_BASE_EDGES.size):
+            e = _BASE_EDGES[i]
+            if e < us[j]:
+                lo_edge = e
+            elif e > us[j]:
+                hi_edge = e
+                break
+        step = d * _GRADING
+        while us[j] - step > lo_edge or us[j] + step < hi_edge:
+            if us[j] - step > lo_edge:
+                n_edges = _insert_sorted(edges, n_edges, us[j] - step)
+            if us[j] + step < hi_edge:
+                n_edges = _insert_sorted(edges, n_edges, us[j] + step)
+            step *= _GRADING
+    return n_edges
+
+
 @numba.njit
 def _average_one(kernel, features, p, weight, rtol, edges, feat, lo, hi, val, err):
     n_edges = _BASE_EDGES.size
     for i in range(n_edges):
         edges[i] = _BASE_EDGES[i]
-    n_feat = features(p, feat)
-    for j in range(min(n_feat, _MAX_FEATURES)):
-        x = feat[j]
-        if x > 0.0 and x < _U_MAX * _U_MAX:
-            n_edges = _insert_sorted(edges, n_edges, math.sqrt(x))
+    n_feat = min(features(p, feat), _MAX_FEATURES)
+    if n_feat > 0:
+        n_edges = _feature_edges(feat, n_feat, edges, n_edges)
     n = 0
     total = 0.0
     total_err = 0.0
+    base = 0
     for i in range(n_edges - 1):
         lo[n] = edges[i]
         hi[n] = edges[i + 1]
-        val[n], err[n] = _gk15(kernel, p, weight, lo[n], hi[n])
+        while base < _BASE_EDGES.size - 1 and _BASE_EDGES[base + 1] <= lo[n]:
+            base += 1
+        if lo[n] == _BASE_EDGES[base] and hi[n] == _BASE_EDGES[base + 1]:
+            val[n], err[n] = _base_panel(kernel, p, weight, base)
+        else:
+            val[n], err[n] = _gk15(kernel, p, weight, lo[n], hi[n])
         total += val[n]
         total_err += err[n]
         n += 1
@@ -169,7 +255,7 @@ def _average_one(kernel, features, p, weight, rtol, edges, feat, lo, hi, val, er
                              numba.types.int64, numba.types.float64, numba.types.float64[::1],
                              numba.types.float64[::1]), cache=True)
 def _average_rows(kernel, features, params, weight, rtol, out, out_err):
-    edges = np.empty(_BASE_EDGES.size + _MAX_FEATURES)
+    edges = np.empty(_MAX_EDGES)
     feat = np.empty(_MAX_FEATURES)
     lo = np.empty(_MAX_INTERVALS)
     hi = np.empty(_MAX_INTERVALS)

@@ -40,10 +40,14 @@ def test_demo_writes_all_outputs_and_refuses_to_overwrite(tmp_path):
         assert (out / name).stat().st_size > 0
     summary = json.loads((out / "summary.json").read_text())
     assert "approximation" in summary["model"]          # "capped" is labelled
-    assert "invented" in summary["settings"]["scenario"]
+    assert "invented" in summary["provenance"]["job_text"]
+    for key in ("lossfit_version", "numpy", "scipy", "numba", "emcee", "host", "seed", "started_utc",
+                "finished_utc"):
+        assert key in summary["provenance"], key
+    assert (out / "job.toml").read_text() == summary["provenance"]["job_text"]
     assert {r["name"] for r in summary["summary"]} >= {"a_minus", "eta_minus", "a_star", "eta_star"}
     assert "a_minus (a0)" in proc.stdout
     before = (out / "summary.json").read_bytes()
     again = _lossfit("demo", "--out", str(out), "--steps", "600", "--quiet")
-    assert again.returncode == 2 and "--overwrite" in again.stderr
+    assert again.returncode == 3 and "--overwrite" in again.stderr     # documented exit code
     assert (out / "summary.json").read_bytes() == before

@@ -18,11 +18,11 @@ __all__ = ["CheckpointBackend", "read_chain_file", "CHAIN_SCHEMA", "CHAIN_SCHEMA
 
 import json
 import os
-import tempfile
 
 import emcee
 import numpy as np
 
+from .._io import atomic_path
 from ..errors import LossfitValueError
 
 CHAIN_SCHEMA = "lossfit.chains"
@@ -106,6 +106,7 @@ class CheckpointBackend(emcee.backends.Backend):
                 self.accepted = stored["accepted"].astype(float)
                 self.iteration = stored["iteration"]
                 self.random_state = stored["random_state"]
+                self.stored_names = stored["names"]
                 self.names = self.names or stored["names"]
                 self.stored_metadata = stored["metadata"]
 
@@ -124,31 +125,22 @@ class CheckpointBackend(emcee.backends.Backend):
         import h5py
         if not self.initialized:
             return
-        directory = os.path.dirname(os.path.abspath(self.path))
-        fd, tmp = tempfile.mkstemp(suffix=".h5.tmp", dir=directory)
-        os.close(fd)
         n = self.iteration
-        try:
-            with h5py.File(tmp, "w") as h5:
-                h5.attrs["schema"] = CHAIN_SCHEMA
-                h5.attrs["schema_version"] = CHAIN_SCHEMA_VERSION
-                h5.attrs["iteration"] = n
-                h5.attrs["names"] = json.dumps(self.names)
-                h5.attrs["metadata"] = json.dumps(self.metadata, default=str)
-                h5.create_dataset("chain", data=self.chain[:n])
-                h5.create_dataset("log_prob", data=self.log_prob[:n])
-                h5.create_dataset("accepted", data=self.accepted)
-                g = h5.create_group("random_state")
-                if self.random_state is not None:
-                    name, key, pos, has_gauss, cached = self.random_state
-                    g.attrs["name"] = name
-                    g.create_dataset("key", data=np.asarray(key))
-                    g.attrs["pos"] = int(pos)
-                    g.attrs["has_gauss"] = int(has_gauss)
-                    g.attrs["cached_gaussian"] = float(cached)
-            os.replace(tmp, self.path)
-        except BaseException:
-            if os.path.exists(tmp):
-                os.remove(tmp)
-            raise
+        with atomic_path(self.path) as tmp, h5py.File(tmp, "w") as h5:
+            h5.attrs["schema"] = CHAIN_SCHEMA
+            h5.attrs["schema_version"] = CHAIN_SCHEMA_VERSION
+            h5.attrs["iteration"] = n
+            h5.attrs["names"] = json.dumps(self.names)
+            h5.attrs["metadata"] = json.dumps(self.metadata, default=str)
+            h5.create_dataset("chain", data=self.chain[:n])
+            h5.create_dataset("log_prob", data=self.log_prob[:n])
+            h5.create_dataset("accepted", data=self.accepted)
+            g = h5.create_group("random_state")
+            if self.random_state is not None:
+                name, key, pos, has_gauss, cached = self.random_state
+                g.attrs["name"] = name
+                g.create_dataset("key", data=np.asarray(key))
+                g.attrs["pos"] = int(pos)
+                g.attrs["has_gauss"] = int(has_gauss)
+                g.attrs["cached_gaussian"] = float(cached)
         self._since_flush = 0

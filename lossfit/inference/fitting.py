@@ -1,6 +1,6 @@
 """``lossfit.fit``: posterior Efimov parameters from loss spectra with emcee."""
 
-__all__ = ["fit"]
+__all__ = ["fit", "prepare", "make_result", "auto_burn", "Posterior"]
 
 import math
 import sys
@@ -101,9 +101,50 @@ def _start(posterior, space, walkers, rng, initial):
     return p0
 
 
+def prepare(data, *, species, free, model=None, priors=None, fixed=None, tie=None,
+            density_sigma=None, rtol=1e-7):
+    """Validate a fit's inputs and build its pieces: (space, likelihood, posterior).
+
+    Shared by :func:`fit` and by code that rebuilds results from stored chains.
+    """
+    spectra = [data] if isinstance(data, LossSpectrum) else list(data)
+    if not spectra or not all(isinstance(s, LossSpectrum) for s in spectra):
+        raise LossfitValueError("data", "must be one or more LossSpectrum objects")
+    sp = _species(species)
+    mdl = get_model(DEFAULT_MODEL if model is None else model)
+    free = [free] if isinstance(free, str) else list(free)
+    if "density_scale" in free and density_sigma is not None:
+        if not (isinstance(density_sigma, (int, float)) and math.isfinite(density_sigma) and density_sigma > 0):
+            raise LossfitValueError("density_sigma", f"must be a positive number, got {density_sigma!r}")
+    user_priors = _coerce_priors(priors)
+    all_priors = default_priors([n for n in free if n not in user_priors], spectra, density_sigma)
+    all_priors.update(user_priors)
+    space = ParameterSpace(free, all_priors, fixed=fixed, tie=tie)
+    _check_constrained(space, spectra)
+    likelihood = SpectrumLikelihood(spectra, sp, mdl, rtol=rtol)
+    return space, likelihood, Posterior(space, likelihood)
+
+
+def auto_burn(chain):
+    """Default burn-in: max(3 tau_max, steps/5), at most steps/2."""
+    tau = np.atleast_1d(emcee.autocorr.integrated_time(chain, c=5, tol=0, quiet=True))
+    return int(min(max(3 * np.nanmax(tau), chain.shape[0] / 5), chain.shape[0] / 2))
+
+
+def make_result(space, likelihood, chain, log_prob, acceptance, *, burn=None, thin=1, settings=None):
+    """A :class:`FitResult` from a chain (steps, walkers, ndim) in sampling coordinates."""
+    if burn is None:
+        burn = auto_burn(chain)
+    elif not isinstance(burn, (int, np.integer)) or not (0 <= burn < chain.shape[0] - 1):
+        raise LossfitValueError("burn", f"must be an integer in [0, {chain.shape[0] - 2}], got {burn!r}")
+    return FitResult(space=space, chain=chain, log_prob=log_prob, acceptance=acceptance, burn=burn,
+                     thin=thin, likelihood=likelihood, species=likelihood.species,
+                     model=likelihood.model, settings=settings or {})
+
+
 def fit(data, *, species, free, model=None, priors=None, walkers=32, steps=3000, burn=None, thin=1,
         seed=None, backend=None, pool=None, fixed=None, tie=None, density_sigma=None,
-        progress=None, initial=None, rtol=1e-7):
+        progress=None, initial=None, rtol=1e-7, checkpoint_every=100, log_every=None, metadata=None):
     """Sample the posterior of Efimov parameters given loss spectra.
 
     Parameters
@@ -145,36 +186,26 @@ def fit(data, *, species, free, model=None, priors=None, walkers=32, steps=3000,
         Start point (physical units) instead of the automatic search.
     rtol : float
         Thermal quadrature tolerance inside the likelihood.
+    checkpoint_every : int
+        Steps between checkpoints when ``backend`` is a file.
+    log_every : int, optional
+        Print a progress line every so many steps (batch jobs without a terminal).
+    metadata : dict, optional
+        Provenance stored in the chain file.
 
     Returns
     -------
     FitResult
     """
-    spectra = [data] if isinstance(data, LossSpectrum) else list(data)
-    if not spectra or not all(isinstance(s, LossSpectrum) for s in spectra):
-        raise LossfitValueError("data", "must be one or more LossSpectrum objects")
-    sp = _species(species)
-    mdl = get_model(DEFAULT_MODEL if model is None else model)
-    if isinstance(free, str):
-        free = [free]
-    free = list(free)
     for name, value, lo in (("walkers", walkers, 2), ("steps", steps, 2), ("thin", thin, 1)):
-        if not isinstance(value, (int, np.integer)) or value < lo:
+        if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < lo:
             raise LossfitValueError(name, f"must be an integer >= {lo}, got {value!r}")
-    if walkers < 2 * len(free):
+    n_free = 1 if isinstance(free, str) else len(list(free))
+    if walkers < 2 * n_free:
         raise LossfitValueError("walkers", f"must be at least twice the number of free parameters "
-                                f"({2 * len(free)}), got {walkers}")
-    if "density_scale" in free and density_sigma is not None:
-        if not (isinstance(density_sigma, (int, float)) and math.isfinite(density_sigma) and density_sigma > 0):
-            raise LossfitValueError("density_sigma", f"must be a positive number, got {density_sigma!r}")
-    user_priors = _coerce_priors(priors)
-    all_priors = default_priors([n for n in free if n not in user_priors], spectra, density_sigma)
-    all_priors.update(user_priors)
-    space = ParameterSpace(free, all_priors, fixed=fixed, tie=tie)
-    _check_constrained(space, spectra)
-    likelihood = SpectrumLikelihood(spectra, sp, mdl, rtol=rtol)
-    posterior = Posterior(space, likelihood)
-
+                                f"({2 * n_free}), got {walkers}")
+    space, likelihood, posterior = prepare(data, species=species, free=free, model=model, priors=priors,
+                                           fixed=fixed, tie=tie, density_sigma=density_sigma, rtol=rtol)
     rng = np.random.default_rng(seed)
     probe = space.theta([p.sample(rng, 1)[0] for p in space.priors])
     try:
@@ -182,18 +213,15 @@ def fit(data, *, species, free, model=None, priors=None, walkers=32, steps=3000,
     except LossfitValueError as err:
         raise LossfitValueError("fixed", f"the data need a parameter that is neither free nor fixed: {err}") from None
 
-    store, done = open_backend(backend, walkers, space.ndim)
+    store, done = open_backend(backend, walkers, space.ndim, every=checkpoint_every,
+                               names=space.names, metadata=metadata)
     show = _interactive() if progress is None else bool(progress)
     p0 = _start(posterior, space, walkers, rng, initial) if done == 0 else np.zeros((walkers, space.ndim))
-    run = sample(posterior, p0, steps, backend=store, pool=pool,
-                 seed=int(rng.integers(2 ** 31)), progress=show)
-    chain, log_prob = run.chain, run.log_prob
-    if burn is None:
-        tau = np.atleast_1d(emcee.autocorr.integrated_time(chain, c=5, tol=0, quiet=True))
-        burn = int(min(max(3 * np.nanmax(tau), chain.shape[0] / 5), chain.shape[0] / 2))
-    elif not isinstance(burn, (int, np.integer)) or not (0 <= burn < chain.shape[0] - 1):
-        raise LossfitValueError("burn", f"must be an integer in [0, {chain.shape[0] - 2}], got {burn!r}")
-    settings = {"walkers": walkers, "steps": int(chain.shape[0]), "seed": seed, "model": mdl.name,
-                "free": ",".join(free), "tie": tie or "", "density_sigma": density_sigma}
-    return FitResult(space=space, chain=chain, log_prob=log_prob, acceptance=run.acceptance,
-                     burn=burn, thin=thin, likelihood=likelihood, species=sp, model=mdl, settings=settings)
+    run = sample(posterior, p0, steps, backend=store, pool=pool, seed=int(rng.integers(2 ** 31)),
+                 progress=show, log_every=log_every, checkpoint_every=checkpoint_every,
+                 names=space.names, metadata=metadata)
+    settings = {"walkers": walkers, "steps": int(run.chain.shape[0]), "seed": seed,
+                "model": likelihood.model.name, "free": ",".join(space.names), "tie": tie or "",
+                "density_sigma": density_sigma}
+    return make_result(space, likelihood, run.chain, run.log_prob, run.acceptance, burn=burn, thin=thin,
+                       settings=settings)

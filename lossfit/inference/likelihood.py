@@ -45,6 +45,18 @@ class _Block:
         self.inv_error = 1.0 / np.concatenate([s.error for s in spectra])
         self.out = np.empty(self.a.size)
         self.err = np.empty(self.a.size)
+        self._kernels = (model.three_body_kernel, model.three_body_features) if self.kind == "l3" else \
+            (model.atom_dimer_kernel, model.atom_dimer_features)
+
+    def __getstate__(self):
+        # The compiled closure is rebuilt where the block is unpickled (pool workers).
+        state = dict(self.__dict__)
+        del state["run"]
+        return state
+
+    def __setstate__(self, state):
+        self.__dict__.update(state)
+        self.run = averager(*self._kernels)
 
     def predict(self, efimov, rtol):
         params = self.rows(self.a, efimov, self.q)

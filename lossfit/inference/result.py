@@ -5,12 +5,11 @@ __all__ = ["FitResult"]
 import html
 import json
 import math
-import os
-import tempfile
 import warnings
 
 import numpy as np
 
+from .._io import atomic_path
 from ..constants import (KAPPA_A_MINUS, KAPPA_A_PLUS, UNIVERSAL_A_STAR_OVER_A_MINUS,
                          VDW_A_MINUS_OVER_RVDW)
 from ..errors import ConvergenceWarning
@@ -230,11 +229,5 @@ class FitResult:
 
     def write_json(self, path, *, overwrite=False):
         """Write :meth:`to_dict` atomically (temporary file, then rename)."""
-        path = os.fspath(path)
-        if os.path.exists(path) and not overwrite:
-            from ..errors import LossfitValueError
-            raise LossfitValueError("path", f"{path!r} exists; pass overwrite=True to replace it")
-        fd, tmp = tempfile.mkstemp(suffix=".json.tmp", dir=os.path.dirname(os.path.abspath(path)))
-        with os.fdopen(fd, "w") as fh:
-            json.dump(self.to_dict(), fh, indent=2)
-        os.replace(tmp, path)
+        with atomic_path(path, overwrite=overwrite) as tmp, open(tmp, "w") as fh:
+            json.dump(self.to_dict(), fh, indent=2, default=str)

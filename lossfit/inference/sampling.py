@@ -60,6 +60,10 @@ def open_backend(backend, walkers, ndim, *, every=100, names=None, metadata=None
     else:
         backend = CheckpointBackend(backend, every=every, names=names, metadata=metadata)
         done = int(backend.iteration) if backend.initialized else 0
+    stored_names = getattr(backend, "stored_names", None)
+    if done and names and stored_names and list(stored_names) != list(names):
+        raise LossfitValueError("backend", f"stored chains are for parameters {stored_names}; this run "
+                                f"samples {list(names)}")
     if done and tuple(backend.shape) != (walkers, ndim):
         raise LossfitValueError("backend", f"stored chains have shape {tuple(backend.shape)}; this run "
                                 f"needs (walkers, ndim) = {(walkers, ndim)}")

@@ -46,7 +46,7 @@ import numpy as np
 
 from ..constants import (HBAR, KAPPA_A_MINUS, KAPPA_A_PLUS, KAPPA_A_STAR, S0,
                          SCALING_FACTOR)
-from ..errors import LossfitValueError, check_finite, check_nonzero
+from ..errors import LossfitValueError, check_finite, check_nonzero, is_real
 from ..species import species as _species
 from ..units import A0, CM3_PER_S, CM6_PER_S
 
@@ -87,7 +87,7 @@ def convert_l3(value, from_convention, to_convention="atoms-thermal"):
 def _check_eta(name, value):
     if value is None:
         return None
-    if not (isinstance(value, (int, float, np.floating)) and math.isfinite(value) and value > 0):
+    if not (is_real(value) and math.isfinite(value) and value > 0):
         raise LossfitValueError(name, f"must be a positive finite number, got {value!r}")
     return float(value)
 
@@ -95,7 +95,7 @@ def _check_eta(name, value):
 def _check_length(name, value, sign):
     if value is None:
         return None
-    if not (isinstance(value, (int, float, np.floating)) and math.isfinite(value)) or value * sign <= 0:
+    if not (is_real(value) and math.isfinite(value)) or value * sign <= 0:
         want = "negative" if sign < 0 else "positive"
         raise LossfitValueError(name, f"must be a {want} finite scattering length in a0, got {value!r}")
     return float(value)
@@ -231,8 +231,8 @@ def _beta_coefficients(a, a_star, eta_star):
 def l3_coefficient_unchecked(a, efimov):
     """As :func:`l3_coefficient` for a validated 1-D float array ``a`` (fast path)."""
     nan = math.nan
-    has_neg = a.min() < 0.0
-    has_pos = a.max() > 0.0
+    has_neg = a.size > 0 and a.min() < 0.0
+    has_pos = a.size > 0 and a.max() > 0.0
     a_minus, eta_minus = efimov.require("a_minus", "eta_minus") if has_neg else (nan, nan)
     a_plus, eta_plus = efimov.require("a_plus", "eta_plus") if has_pos else (nan, nan)
     return _l3_coefficients(a, a_minus, eta_minus, a_plus, eta_plus, BH_TO_L3)

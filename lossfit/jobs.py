@@ -1,0 +1,245 @@
+"""Job files (TOML) for batch runs: schema, validation and loading.
+
+Schema (every key is checked; an unknown key, a missing file or a bad value is an
+error that names the key)::
+
+    [data]
+    species = "133Cs"                      # name known to lossfit.species
+    spectra = ["data.h5"]                  # lossfit.spectra HDF5 files (paths relative
+                                           # to the job file)
+    csv = [{ path = "run1.csv", kind = "l3", label = "run 1" }]   # optional CSV tables
+
+    [model]
+    name = "capped"                        # see lossfit.available_models()
+    tie = "none"                           # "none" or "universal"
+
+    [free]                                 # one entry per sampled parameter
+    a_minus = { prior = "log-uniform", lo = -3500.0, hi = -450.0 }
+    eta_minus = { prior = "default" }      # library default prior
+    density_scale = { prior = "log-normal", median = 1.0, sigma = 0.2 }
+    # other priors: { prior = "uniform", lo = ..., hi = ... },
+    #               { prior = "normal", mu = ..., sigma = ... }
+
+    [fixed]                                # optional: Efimov parameters held fixed
+    eta_plus = 0.1
+
+    [sampler]
+    walkers = 32
+    steps = 5000
+    seed = 1
+    burn = "auto"                          # or an integer number of steps
+    thin = 1
+    checkpoint_every = 100                 # steps between chain checkpoints
+    log_every = 250                        # steps between log lines in batch mode
+
+Units follow the library: lengths in a0, temperatures in nK.
+"""
+
+__all__ = ["Job", "load_job", "parse_job", "JobError"]
+
+import dataclasses
+import math
+import os
+
+from .errors import LossfitValueError
+
+try:
+    import tomllib
+except ModuleNotFoundError:        # Python 3.10
+    import tomli as tomllib
+
+
+class JobError(LossfitValueError):
+    """A job file is malformed; ``argument`` is the offending key."""
+
+
+_SECTIONS = {"data": {"species", "spectra", "csv"}, "model": {"name", "tie"}, "free": None,
+             "fixed": None, "sampler": {"walkers", "steps", "seed", "burn", "thin", "checkpoint_every",
+                                        "log_every"}}
+_PRIOR_KEYS = {"log-uniform": {"lo", "hi"}, "uniform": {"lo", "hi"}, "log-normal": {"median", "sigma"},
+               "normal": {"mu", "sigma"}, "default": set()}
+_SAMPLER_DEFAULTS = {"walkers": 32, "steps": 5000, "seed": 0, "burn": "auto", "thin": 1,
+                     "checkpoint_every": 100, "log_every": 250}
+
+
+def _number(key, value):
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
+        raise JobError(key, f"must be a finite number, got {value!r}")
+    return float(value)
+
+
+def _integer(key, value, lo):
+    if isinstance(value, bool) or not isinstance(value, int) or value < lo:
+        raise JobError(key, f"must be an integer >= {lo}, got {value!r}")
+    return value
+
+
+@dataclasses.dataclass
+class Job:
+    """A validated job. ``text`` is the file's exact content (stored with results)."""
+
+    path: str
+    text: str
+    species: str
+    spectra: list
+    csv: list
+    model: str
+    tie: object
+    free: list
+    priors: dict
+    fixed: dict
+    sampler: dict
+
+    @property
+    def base_dir(self):
+        return os.path.dirname(os.path.abspath(self.path))
+
+    def data_paths(self):
+        """Absolute paths of every data file."""
+        return [os.path.join(self.base_dir, p) for p in self.spectra] + \
+               [os.path.join(self.base_dir, c["path"]) for c in self.csv]
+
+    def load_data(self):
+        """The job's spectra (list of LossSpectrum)."""
+        from .data import read_csv, read_spectra
+        out = []
+        for p in self.spectra:
+            out.extend(read_spectra(os.path.join(self.base_dir, p)))
+        for c in self.csv:
+            out.append(read_csv(os.path.join(self.base_dir, c["path"]), kind=c.get("kind", "l3"),
+                                label=c.get("label"), species=self.species))
+        return out
+
+    def fit_kwargs(self, steps=None):
+        """Keyword arguments of :func:`lossfit.fit` for this job."""
+        s = self.sampler
+        return dict(species=self.species, free=self.free, model=self.model, priors=self.priors,
+                    walkers=s["walkers"], steps=steps or s["steps"],
+                    burn=None if s["burn"] == "auto" else s["burn"], thin=s["thin"], seed=s["seed"],
+                    fixed=self.fixed, tie=self.tie)
+
+
+def _prior(key, spec):
+    from .inference.priors import LogNormal, LogUniform, Normal, Uniform
+    if not isinstance(spec, dict) or "prior" not in spec:
+        raise JobError(key, f"must be a table with a 'prior' key, got {spec!r}")
+    kind = spec["prior"]
+    if kind not in _PRIOR_KEYS:
+        raise JobError(f"{key}.prior", f"must be one of {sorted(_PRIOR_KEYS)}, got {kind!r}")
+    given = set(spec) - {"prior"}
+    if given != _PRIOR_KEYS[kind]:
+        extra, missing = given - _PRIOR_KEYS[kind], _PRIOR_KEYS[kind] - given
+        bad = sorted(extra)[0] if extra else sorted(missing)[0]
+        raise JobError(f"{key}.{bad}", f"prior {kind!r} takes exactly {sorted(_PRIOR_KEYS[kind])}")
+    vals = {k: _number(f"{key}.{k}", v) for k, v in spec.items() if k != "prior"}
+    try:
+        if kind == "log-uniform":
+            return LogUniform(vals["lo"], vals["hi"])
+        if kind == "uniform":
+            return Uniform(vals["lo"], vals["hi"])
+        if kind == "log-normal":
+            return LogNormal(vals["median"], vals["sigma"])
+        if kind == "normal":
+            return Normal(vals["mu"], vals["sigma"])
+    except LossfitValueError as err:
+        raise JobError(key, str(err)) from None
+    return None
+
+
+def load_job(path):
+    """Read and validate a job file; every problem raises :class:`JobError`."""
+    path = os.fspath(path)
+    if not os.path.isfile(path):
+        raise JobError("job", f"no such job file {path!r}")
+    with open(path, "rb") as fh:
+        raw = fh.read()
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError as err:
+        raise JobError("job", f"{path!r} is not UTF-8 text ({err})") from None
+    return parse_job(text, path)
+
+
+def parse_job(text, path):
+    """Validate job ``text``; relative data paths are taken from the folder of ``path``."""
+    from .inference.parameters import EFIMOV_NAMES, NUISANCE_NAMES
+    from .species import species as _species
+    from .universal.models import available_models
+    try:
+        doc = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as err:
+        raise JobError("job", f"{path!r} is not valid TOML ({err})") from None
+    for section in doc:
+        if section not in _SECTIONS:
+            raise JobError(section, f"unknown section; known: {sorted(_SECTIONS)}")
+        if not isinstance(doc[section], dict):
+            raise JobError(section, "must be a table")
+        allowed = _SECTIONS[section]
+        for key in doc[section]:
+            if allowed is not None and key not in allowed:
+                raise JobError(f"{section}.{key}", f"unknown key; known: {sorted(allowed)}")
+    for section in ("data", "free"):
+        if section not in doc:
+            raise JobError(section, "missing section")
+    data = doc["data"]
+    if "species" not in data:
+        raise JobError("data.species", "missing")
+    try:
+        sp = _species(data["species"]).name
+    except LossfitValueError as err:
+        raise JobError("data.species", str(err)) from None
+    spectra = data.get("spectra", [])
+    if not isinstance(spectra, list) or not all(isinstance(p, str) for p in spectra):
+        raise JobError("data.spectra", f"must be a list of file names, got {spectra!r}")
+    csv = data.get("csv", [])
+    if not isinstance(csv, list):
+        raise JobError("data.csv", "must be a list of tables")
+    for i, c in enumerate(csv):
+        if not isinstance(c, dict) or "path" not in c or set(c) - {"path", "kind", "label"}:
+            raise JobError(f"data.csv[{i}]", f"must be a table with 'path' and optional 'kind', 'label'; got {c!r}")
+        if c.get("kind", "l3") not in ("l3", "beta"):
+            raise JobError(f"data.csv[{i}].kind", f"must be 'l3' or 'beta', got {c['kind']!r}")
+    if not spectra and not csv:
+        raise JobError("data.spectra", "the job names no data file")
+    base = os.path.dirname(os.path.abspath(path))
+    for key, p in [(f"data.spectra[{i}]", p) for i, p in enumerate(spectra)] + \
+                  [(f"data.csv[{i}].path", c["path"]) for i, c in enumerate(csv)]:
+        if not os.path.isfile(os.path.join(base, p)):
+            raise JobError(key, f"no such file {os.path.join(base, p)!r}")
+    model = doc.get("model", {})
+    name = model.get("name", "capped")
+    if name not in available_models():
+        raise JobError("model.name", f"unknown model {name!r}; available: {available_models()}")
+    tie = model.get("tie", "none")
+    if tie not in ("none", "universal"):
+        raise JobError("model.tie", f"must be 'none' or 'universal', got {tie!r}")
+    allowed_free = set(EFIMOV_NAMES) | {"eta"} | set(NUISANCE_NAMES)
+    free, priors = [], {}
+    if not doc["free"]:
+        raise JobError("free", "name at least one parameter")
+    for key, spec in doc["free"].items():
+        if key not in allowed_free:
+            raise JobError(f"free.{key}", f"unknown parameter; known: {sorted(allowed_free)}")
+        prior = _prior(f"free.{key}", spec)
+        free.append(key)
+        if prior is not None:
+            priors[key] = prior
+    fixed = {}
+    for key, value in doc.get("fixed", {}).items():
+        if key not in EFIMOV_NAMES:
+            raise JobError(f"fixed.{key}", f"unknown Efimov parameter; known: {list(EFIMOV_NAMES)}")
+        fixed[key] = _number(f"fixed.{key}", value)
+    sampler = dict(_SAMPLER_DEFAULTS)
+    for key, value in doc.get("sampler", {}).items():
+        if key == "burn":
+            if value != "auto":
+                _integer("sampler.burn", value, 0)
+        elif key in ("walkers", "steps", "thin", "checkpoint_every", "log_every"):
+            _integer(f"sampler.{key}", value, {"walkers": 2, "steps": 2}.get(key, 1))
+        elif key == "seed":
+            _integer("sampler.seed", value, 0)
+        sampler[key] = value
+    if "density_scale" in free and "density_scale" not in priors:
+        raise JobError("free.density_scale", "needs an explicit prior (e.g. log-normal, sigma = 0.2)")
+    return Job(path=path, text=text, species=sp, spectra=spectra, csv=csv, model=name,
+               tie=None if tie == "none" else tie, free=free, priors=priors, fixed=fixed, sampler=sampler)

@@ -1,0 +1,213 @@
+"""Batch runs of job files: output folders, locking, resume, reports.
+
+Output folder of ``lossfit run JOB --out DIR``:
+
+* ``chains.h5`` — the chain (schema ``lossfit.chains``), checkpointed atomically, with
+  the job text and provenance in its metadata;
+* ``summary.json`` — posterior summary, diagnostics and provenance (written atomically
+  at the end);
+* ``corner.png``, ``spectrum.png`` — figures;
+* ``.lossfit.lock`` — present while a process works on the folder.
+
+Rules: a second process on the same folder refuses (lock; a lock left by a dead
+process on the same host is taken over, with a message); an existing folder holding
+the *same* job is resumed; one holding a different job, or finished results, is never
+overwritten without ``overwrite=True``.
+"""
+
+__all__ = ["run_job", "report", "EXIT_OK", "EXIT_BAD_INPUT", "EXIT_CONFLICT", "EXIT_INTERRUPTED"]
+
+import json
+import os
+import socket
+import sys
+import time
+import warnings
+
+from ._io import atomic_path
+from .errors import LossfitError, LossfitValueError, ValidityWarning
+
+EXIT_OK = 0
+EXIT_BAD_INPUT = 2
+EXIT_CONFLICT = 3
+EXIT_INTERRUPTED = 75     # EX_TEMPFAIL of sysexits.h: the chain is saved, run again to resume
+
+OUTPUTS = ("chains.h5", "summary.json", "corner.png", "spectrum.png")
+LOCK = ".lossfit.lock"
+
+
+class OutputConflict(LossfitError):
+    """The output folder is locked or holds results that must not be overwritten."""
+
+
+def _pid_alive(pid):
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:
+        return True
+    return True
+
+
+class FolderLock:
+    """Exclusive lock on an output folder (a file created with O_EXCL)."""
+
+    def __init__(self, folder):
+        self.path = os.path.join(folder, LOCK)
+        self.held = False
+
+    def acquire(self):
+        me = {"pid": os.getpid(), "host": socket.gethostname(), "time": time.time()}
+        for _ in range(2):
+            try:
+                fd = os.open(self.path, os.O_CREAT | os.O_EXCL | os.O_WRONLY, 0o644)
+            except FileExistsError:
+                try:
+                    with open(self.path) as fh:
+                        other = json.load(fh)
+                except (OSError, ValueError):
+                    other = {}
+                if other.get("host") == me["host"] and isinstance(other.get("pid"), int) \
+                        and not _pid_alive(other["pid"]):
+                    print(f"lossfit: taking over the lock left by dead process {other['pid']}",
+                          file=sys.stderr)
+                    os.remove(self.path)
+                    continue
+                raise OutputConflict(f"{os.path.dirname(self.path)!r} is in use by process "
+                                     f"{other.get('pid', '?')} on {other.get('host', '?')} (lock "
+                                     f"{self.path}); if that process is gone, remove the lock file")
+            with os.fdopen(fd, "w") as fh:
+                json.dump(me, fh)
+            self.held = True
+            return self
+        raise OutputConflict(f"could not lock {self.path}")
+
+    def release(self):
+        if self.held and os.path.exists(self.path):
+            os.remove(self.path)
+        self.held = False
+
+    def __enter__(self):
+        return self.acquire()
+
+    def __exit__(self, *exc):
+        self.release()
+        return False
+
+
+def _atomic_write_text(path, text):
+    with atomic_path(path) as tmp, open(tmp, "w") as fh:
+        fh.write(text)
+
+
+def _atomic_savefig(fig, path):
+    with atomic_path(path) as tmp:
+        fig.savefig(tmp, dpi=150)
+
+
+def write_outputs(result, out_dir, provenance_info, *, truths=None):
+    """summary.json, corner.png and spectrum.png (each written atomically)."""
+    import matplotlib
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+    from .plotting import corner_plot, spectrum_plot
+    summary = result.to_dict()
+    summary["provenance"] = provenance_info
+    _atomic_write_text(os.path.join(out_dir, "summary.json"), json.dumps(summary, indent=2, default=str))
+    fig = corner_plot(result, truths=truths)
+    _atomic_savefig(fig, os.path.join(out_dir, "corner.png"))
+    plt.close(fig)
+    fig = spectrum_plot(result)
+    _atomic_savefig(fig, os.path.join(out_dir, "spectrum.png"))
+    plt.close(fig)
+
+
+def run_job(job_path, out_dir, *, pool="serial", workers=None, steps=None, overwrite=False,
+            progress=None, truths=None, stream=None):
+    """Run (or resume) a job file into ``out_dir``; returns the FitResult (None on MPI workers).
+
+    Raises :class:`OutputConflict` for a locked folder or results that would be
+    overwritten, :class:`lossfit.inference.sampling.Interrupted` on SIGTERM/SIGINT
+    after the chain is saved, and :class:`lossfit.errors.LossfitValueError` for bad input.
+    """
+    from .inference.backends import read_chain_file
+    from .inference.fitting import fit
+    from .inference.pools import make_pool
+    from .jobs import load_job
+    from .provenance import now_utc, provenance
+    stream = stream or sys.stdout
+    job = load_job(job_path)
+    if steps is not None and (isinstance(steps, bool) or not isinstance(steps, int) or steps < 2):
+        raise LossfitValueError("steps", f"must be an integer >= 2, got {steps!r}")
+    pool_obj = make_pool(pool, workers)
+    if pool == "mpi" and not pool_obj.is_master():
+        pool_obj.wait()
+        return None
+    try:
+        out_dir = os.fspath(out_dir)
+        os.makedirs(out_dir, exist_ok=True)
+        with FolderLock(out_dir):
+            chains = os.path.join(out_dir, "chains.h5")
+            want_steps = steps or job.sampler["steps"]
+            if os.path.exists(chains) and not overwrite:
+                stored = read_chain_file(chains)
+                if stored["metadata"].get("job_text") != job.text:
+                    raise OutputConflict(f"{out_dir!r} holds results of a different job; choose another "
+                                         "folder or pass --overwrite")
+                if stored["iteration"] >= want_steps and os.path.exists(os.path.join(out_dir, "summary.json")):
+                    print(f"lossfit: {out_dir} already holds the finished run ({stored['iteration']} steps); "
+                          "nothing to do (lossfit report re-creates figures)", file=stream)
+                    return None
+                print(f"lossfit: resuming {chains} at step {stored['iteration']}", file=stream)
+            elif overwrite:
+                for name in OUTPUTS:
+                    if os.path.exists(os.path.join(out_dir, name)):
+                        os.remove(os.path.join(out_dir, name))
+            info = provenance(job_text=job.text, job_path=os.path.abspath(job.path),
+                              data_paths=job.data_paths(), seed=job.sampler["seed"], pool=pool,
+                              workers=getattr(pool_obj, "size", workers), started_utc=now_utc())
+            interactive = sys.stderr.isatty() if progress is None else progress
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore", ValidityWarning)
+                result = fit(job.load_data(), **job.fit_kwargs(steps=want_steps), backend=chains,
+                             pool=None if pool == "serial" else pool_obj, progress=interactive,
+                             log_every=None if interactive else job.sampler["log_every"],
+                             checkpoint_every=job.sampler["checkpoint_every"], metadata=info)
+            info["finished_utc"] = now_utc()
+            write_outputs(result, out_dir, info, truths=truths)
+            print(result.table(), file=stream)
+            return result
+    finally:
+        if hasattr(pool_obj, "close"):
+            pool_obj.close()
+        if hasattr(pool_obj, "join"):
+            pool_obj.join()
+
+
+def report(out_dir, *, overwrite=False, stream=None):
+    """Re-create summary.json, corner.png and spectrum.png from the stored chain."""
+    from .inference.backends import read_chain_file
+    from .inference.fitting import make_result, prepare
+    from .jobs import parse_job
+    stream = stream or sys.stdout
+    out_dir = os.fspath(out_dir)
+    chains = os.path.join(out_dir, "chains.h5")
+    stored = read_chain_file(chains)
+    present = [n for n in OUTPUTS[1:] if os.path.exists(os.path.join(out_dir, n))]
+    if present and not overwrite:
+        raise OutputConflict(f"{out_dir!r} already holds {present}; pass --overwrite to re-create them")
+    meta = stored["metadata"]
+    job = parse_job(meta["job_text"], meta["job_path"])
+    with FolderLock(out_dir), warnings.catch_warnings():
+        warnings.simplefilter("ignore", ValidityWarning)
+        space, likelihood, _ = prepare(job.load_data(), species=job.species, free=job.free, model=job.model,
+                                       priors=job.priors, fixed=job.fixed, tie=job.tie)
+        kw = job.fit_kwargs()
+        result = make_result(space, likelihood, stored["chain"], stored["log_prob"],
+                             stored["accepted"] / max(stored["iteration"], 1), burn=kw["burn"],
+                             thin=kw["thin"], settings={"walkers": kw["walkers"], "seed": kw["seed"],
+                                                        "steps": stored["iteration"]})
+        write_outputs(result, out_dir, meta)
+    print(result.table(), file=stream)
+    return result
