@@ -1,0 +1,205 @@
+"""Batch runs: job files, MPI, checkpoint/resume after kill -9 and SIGTERM, locks,
+refusal to overwrite, damaged files, and a table of malformed job files."""
+
+import json
+import os
+import shutil
+import signal
+import socket
+import subprocess
+import sys
+import time
+
+import numpy as np
+import pytest
+
+from lossfit.data import write_spectra
+from lossfit.demo import demo_job_text, demo_spectra
+from lossfit.inference.backends import read_chain_file
+from lossfit.jobs import JobError, load_job
+from lossfit.runner import EXIT_CONFLICT, EXIT_INTERRUPTED
+
+
+@pytest.fixture(scope="module")
+def campaign(tmp_path_factory):
+    """Invented demo data and a short job file (8 walkers, 2500 steps)."""
+    d = tmp_path_factory.mktemp("campaign")
+    spectra, _ = demo_spectra()
+    write_spectra(d / "data.h5", spectra)
+    text = demo_job_text(walkers=10, steps=2500, seed=5).replace("checkpoint_every = 250",
+                                                                "checkpoint_every = 50")
+    (d / "job.toml").write_text(text)
+    return d
+
+
+def _cmd(*args):
+    return [sys.executable, "-m", "lossfit.cli", *map(str, args)]
+
+
+def _run(*args, **kw):
+    env = dict(os.environ, MPLBACKEND="Agg")
+    return subprocess.run(_cmd(*args), capture_output=True, text=True, env=env, **kw)
+
+
+def _wait_for_steps(path, steps, timeout=120):
+    t0 = time.time()
+    while time.time() - t0 < timeout:
+        if path.exists():
+            try:
+                if read_chain_file(path)["iteration"] >= steps:
+                    return
+            except Exception:     # mid-rename on a slow disk
+                pass
+        time.sleep(0.05)
+    raise AssertionError(f"{path} never reached {steps} steps")
+
+
+@pytest.fixture(scope="module")
+def uninterrupted(campaign):
+    out = campaign / "whole"
+    proc = _run("run", campaign / "job.toml", "--out", out, "--quiet")
+    assert proc.returncode == 0, proc.stderr
+    return read_chain_file(out / "chains.h5")
+
+
+@pytest.mark.slow
+def test_kill_9_then_resume_gives_the_uninterrupted_chain(campaign, uninterrupted):
+    out = campaign / "killed"
+    env = dict(os.environ, MPLBACKEND="Agg")
+    proc = subprocess.Popen(_cmd("run", campaign / "job.toml", "--out", out, "--quiet"), env=env,
+                            stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    _wait_for_steps(out / "chains.h5", 300)
+    proc.kill()
+    proc.wait()
+    partial = read_chain_file(out / "chains.h5")
+    assert 0 < partial["iteration"] < 2500          # killed mid-run, file still complete
+    assert (out / ".lossfit.lock").exists()          # stale lock of the dead process
+    again = _run("run", campaign / "job.toml", "--out", out, "--quiet")
+    assert again.returncode == 0, again.stderr
+    assert "resuming" in again.stdout and "dead process" in again.stderr
+    final = read_chain_file(out / "chains.h5")
+    assert np.array_equal(final["chain"], uninterrupted["chain"])
+    assert np.array_equal(final["log_prob"], uninterrupted["log_prob"])
+
+
+@pytest.mark.slow
+def test_sigterm_checkpoints_and_exits_with_documented_code(campaign, uninterrupted):
+    out = campaign / "termed"
+    env = dict(os.environ, MPLBACKEND="Agg")
+    proc = subprocess.Popen(_cmd("run", campaign / "job.toml", "--out", out, "--quiet"), env=env,
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    _wait_for_steps(out / "chains.h5", 100)
+    proc.send_signal(signal.SIGTERM)
+    _, err = proc.communicate(timeout=60)
+    assert proc.returncode == EXIT_INTERRUPTED, err
+    saved = read_chain_file(out / "chains.h5")
+    assert 100 <= saved["iteration"] < 2500 and f"step {saved['iteration']}" in err
+    assert not (out / ".lossfit.lock").exists() and not (out / "summary.json").exists()
+    again = _run("run", campaign / "job.toml", "--out", out, "--quiet")
+    assert again.returncode == 0, again.stderr
+    assert np.array_equal(read_chain_file(out / "chains.h5")["chain"], uninterrupted["chain"])
+
+
+@pytest.mark.slow
+def test_mpiexec_two_ranks_end_to_end(campaign, uninterrupted):
+    mpiexec = shutil.which("mpiexec")
+    assert mpiexec, "mpiexec (from the mpich wheel, extra 'test') is not on PATH"
+    out = campaign / "mpi"
+    env = dict(os.environ, MPLBACKEND="Agg")
+    proc = subprocess.run([mpiexec, "-n", "2", *_cmd("run", campaign / "job.toml", "--out", out,
+                                                     "--pool", "mpi", "--quiet")],
+                          capture_output=True, text=True, env=env, timeout=600)
+    assert proc.returncode == 0, proc.stderr
+    stored = read_chain_file(out / "chains.h5")
+    assert stored["metadata"]["workers"] == 2 and stored["metadata"]["pool"] == "mpi"
+    assert np.array_equal(stored["chain"], uninterrupted["chain"])     # same seed, same chain
+    assert json.loads((out / "summary.json").read_text())["steps"] == 2500
+
+
+def test_finished_results_are_never_overwritten(campaign, uninterrupted):
+    out = campaign / "whole"
+    before = {n: (out / n).read_bytes() for n in ("chains.h5", "summary.json")}
+    same = _run("run", campaign / "job.toml", "--out", out, "--quiet")
+    assert same.returncode == 0 and "nothing to do" in same.stdout
+    other = campaign / "other.toml"
+    other.write_text((campaign / "job.toml").read_text().replace("seed = 5", "seed = 6"))
+    diff = _run("run", other, "--out", out, "--quiet")
+    assert diff.returncode == EXIT_CONFLICT and "different job" in diff.stderr
+    rep = _run("report", out)
+    assert rep.returncode == EXIT_CONFLICT and "--overwrite" in rep.stderr
+    assert {n: (out / n).read_bytes() for n in before} == before
+    rep = _run("report", out, "--overwrite")
+    assert rep.returncode == 0, rep.stderr
+    assert (out / "chains.h5").read_bytes() == before["chains.h5"]
+
+
+def test_a_second_process_on_the_same_folder_refuses(campaign):
+    out = campaign / "locked"
+    out.mkdir()
+    lock = out / ".lossfit.lock"
+    lock.write_text(json.dumps({"pid": os.getpid(), "host": socket.gethostname()}))   # alive
+    proc = _run("run", campaign / "job.toml", "--out", out, "--quiet")
+    assert proc.returncode == EXIT_CONFLICT and "in use by process" in proc.stderr
+    assert lock.exists() and not (out / "chains.h5").exists()
+
+
+def test_truncated_chain_file_is_detected(campaign, uninterrupted, tmp_path):
+    out = tmp_path / "trunc"
+    out.mkdir()
+    data = (campaign / "whole" / "chains.h5").read_bytes()
+    (out / "chains.h5").write_bytes(data[: len(data) // 3])
+    proc = _run("run", campaign / "job.toml", "--out", out, "--quiet")
+    assert proc.returncode == 2 and "truncated" in proc.stderr
+    assert (out / "chains.h5").stat().st_size == len(data) // 3       # left as it was
+
+
+GOOD = """[data]
+species = "133Cs"
+spectra = ["data.h5"]
+[model]
+name = "capped"
+[free]
+a_minus = { prior = "log-uniform", lo = -3500.0, hi = -450.0 }
+[sampler]
+walkers = 8
+steps = 100
+"""
+
+
+@pytest.mark.parametrize("edit, key", [
+    (lambda t: t + "[extra]\nx = 1\n", "extra"),
+    (lambda t: t.replace("walkers = 8", "walker = 8"), "sampler.walker"),
+    (lambda t: t.replace("walkers = 8", "walkers = 1"), "sampler.walkers"),
+    (lambda t: t.replace("walkers = 8", "walkers = 8.5"), "sampler.walkers"),
+    (lambda t: t.replace("steps = 100", 'steps = "many"'), "sampler.steps"),
+    (lambda t: t.replace('"data.h5"', '"missing.h5"'), "data.spectra[0]"),
+    (lambda t: t.replace('species = "133Cs"\n', ""), "data.species"),
+    (lambda t: t.replace('"133Cs"', '"134Xx"'), "data.species"),
+    (lambda t: t.replace('"capped"', '"exact-ish"'), "model.name"),
+    (lambda t: t.replace('name = "capped"', 'name = "capped"\ntie = "loose"'), "model.tie"),
+    (lambda t: t.replace("log-uniform", "log-uniformish"), "free.a_minus.prior"),
+    (lambda t: t.replace("lo = -3500.0, ", ""), "free.a_minus.lo"),
+    (lambda t: t.replace("hi = -450.0", "hi = 450.0"), "free.a_minus"),
+    (lambda t: t.replace("a_minus = {", "a_zero = {"), "free.a_zero"),
+    (lambda t: t + "[fixed]\neta_plus = \"small\"\n", "fixed.eta_plus"),
+    (lambda t: t + "[fixed]\nkappa = 0.1\n", "fixed.kappa"),
+    (lambda t: t.replace("[free]\n", "[free]\ndensity_scale = { prior = \"default\" }\n"),
+     "free.density_scale"),
+    (lambda t: t.replace("[data]", "[data\n"), "job"),
+    (lambda t: t.replace('spectra = ["data.h5"]', 'spectra = "data.h5"'), "data.spectra"),
+])
+def test_malformed_job_files_name_the_key(campaign, tmp_path, edit, key):
+    shutil.copy(campaign / "data.h5", tmp_path / "data.h5")
+    path = tmp_path / "job.toml"
+    path.write_text(GOOD)
+    load_job(path)                     # the unedited file is valid
+    path.write_text(edit(GOOD))
+    with pytest.raises(JobError) as info:
+        load_job(path)
+    assert info.value.argument == key
+
+
+def test_bad_job_on_the_command_line_exits_2(tmp_path):
+    (tmp_path / "job.toml").write_text("[data]\nspecies = 'Cs'\n")
+    proc = _run("run", tmp_path / "job.toml", "--out", tmp_path / "out")
+    assert proc.returncode == 2 and "lossfit: error:" in proc.stderr
