@@ -59,6 +59,8 @@ def uninterrupted(campaign):
     out = campaign / "whole"
     proc = _run("run", campaign / "job.toml", "--out", out, "--quiet")
     assert proc.returncode == 0, proc.stderr
+    # no terminal: periodic log lines with step, acceptance, autocorrelation and ETA
+    assert "[lossfit] step 500/2500  acceptance" in proc.stderr and "ETA" in proc.stderr
     return read_chain_file(out / "chains.h5")
 
 
