@@ -45,18 +45,20 @@ class _Block:
         self.inv_error = 1.0 / np.concatenate([s.error for s in spectra])
         self.out = np.empty(self.a.size)
         self.err = np.empty(self.a.size)
-        self._kernels = (model.three_body_kernel, model.three_body_features) if self.kind == "l3" else \
-            (model.atom_dimer_kernel, model.atom_dimer_features)
+        self.model = model
 
     def __getstate__(self):
         # The compiled closure is rebuilt where the block is unpickled (pool workers).
         state = dict(self.__dict__)
-        del state["run"]
+        del state["run"], state["rows"]
         return state
 
     def __setstate__(self, state):
         self.__dict__.update(state)
-        self.run = averager(*self._kernels)
+        m = self.model
+        self.rows = m.three_body_rows if self.kind == "l3" else m.atom_dimer_rows
+        self.run = averager(*((m.three_body_kernel, m.three_body_features) if self.kind == "l3"
+                              else (m.atom_dimer_kernel, m.atom_dimer_features)))
 
     def predict(self, efimov, rtol):
         params = self.rows(self.a, efimov, self.q)

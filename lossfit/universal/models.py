@@ -34,7 +34,7 @@ bounded by sigma <= pi/k^2, so beta(E) <= v pi/k^2 = pi hbar/(mu k) with mu = 2m
 and E = hbar^2 k^2/(2 mu); in natural units beta <= (3 sqrt(3) pi / 4) / sqrt(x).
 """
 
-__all__ = ["EnergyModel", "ThresholdModel", "CappedModel", "get_model", "register_model",
+__all__ = ["EnergyModel", "ThresholdModel", "CappedModel", "ZeroRangeModel", "get_model", "register_model",
            "available_models", "UNITARITY_THREE_BODY", "UNITARITY_ATOM_DIMER"]
 
 import math
@@ -42,12 +42,15 @@ import math
 import numba
 import numpy as np
 
-from ..constants import HBAR
+from scipy.special import loggamma
+
+from ..constants import HBAR, S0
 from ..errors import LossfitValueError
-from ..thermal import feature_points, rate_kernel
+from ..thermal import FEATURES_SIGNATURE, KERNEL_SIGNATURE, feature_points, rate_kernel
 from ..units import A0
 from .threshold import beta_coefficient_unchecked, l3_coefficient_unchecked
 
+_ARG_GAMMA = float(np.imag(loggamma(1 + 1j * S0)))
 UNITARITY_THREE_BODY = 72.0 * math.sqrt(3.0) * math.pi ** 2
 UNITARITY_ATOM_DIMER = 3.0 * math.sqrt(3.0) * math.pi / 4.0
 
@@ -175,6 +178,92 @@ class CappedModel(ThresholdModel):
     atom_dimer_features = staticmethod(_capped_atom_dimer_features)
 
 
+class ZeroRangeModel(EnergyModel):
+    """Exact zero-range theory from the project's solver tables (a < 0, J = 0).
+
+    K3(E) = 72 sqrt(3) pi^2 hbar/(m k^4) (1 - |s11|^2)(1 - e^{-4 eta})
+            / |1 + s11 exp(2 i Phi - 2 eta)|^2,
+    Phi = s0 ln(kappa* |a| / sqrt 2) - arg Gamma(1 + i s0), x = k|a|, E = hbar^2 k^2/m,
+    with s11(k|a|) interpolated from the shipped table (:mod:`lossfit.universal.tables`)
+    and kappa* = (kappa* a_-)/a_- using the table's own kappa* a_- so that the threshold
+    peak sits at a = a_-. Tables for a > 0 (shallow-dimer recombination, atom-dimer
+    relaxation) are not shipped yet: those requests raise instead of falling back to an
+    approximation.
+    """
+
+    name = "zero-range"
+    description = "exact zero-range universal functions (a < 0, J = 0)"
+    approximate = False
+
+    def __init__(self):
+        self._kernel = None
+        self._features = None
+
+    def __getstate__(self):
+        return {}                      # rebuilt lazily where unpickled
+
+    def __setstate__(self, state):
+        self._kernel = None
+        self._features = None
+
+    @property
+    def three_body_features(self):
+        self.three_body_kernel
+        return self._features
+
+    @property
+    def table(self):
+        from .tables import load_s11_table
+        return load_s11_table()
+
+    @property
+    def three_body_kernel(self):
+        # Compiled on first use and not cached on disk: the table is baked into the
+        # machine code, and a cache would not notice a regenerated table.
+        if self._kernel is None:
+            from .tables import grid_limits, s11_eval
+            packed = self.table.packed
+            pref = self.table.k3_prefactor
+
+            @numba.njit(KERNEL_SIGNATURE)
+            def kernel(x, p):
+                # p = [q, 2 Phi, exp(-2 eta), 1 - exp(-4 eta)]
+                t, ph = s11_eval(packed, p[0] * math.sqrt(x))
+                mod = math.sqrt(max(1.0 - t, 0.0)) * p[2]
+                den = 1.0 + 2.0 * mod * math.cos(ph + p[1]) + mod * mod
+                return pref * t * p[3] / (den * x * x)
+
+            lo, hi = grid_limits(packed)
+
+            @numba.njit(FEATURES_SIGNATURE)
+            def features(p, out):
+                # the ends of the table grid, where the interpolant meets its limits
+                out[0] = (lo / p[0]) ** 2
+                out[1] = (hi / p[0]) ** 2
+                return 2
+            self._features = features
+            self._kernel = kernel
+        return self._kernel
+
+    def three_body_rows(self, a, efimov, q):
+        a = np.asarray(a, dtype=float)
+        if (a > 0).any():
+            raise LossfitValueError("model", "the zero-range tables for a > 0 are not shipped yet; "
+                                    "use model='capped' (an approximation) for a > 0")
+        a_minus, eta = efimov.require("a_minus", "eta_minus")
+        kappa = self.table.kappa_star_a_minus / a_minus          # 1/a0
+        rows = np.empty((a.size, 4))
+        rows[:, 0] = np.abs(q).ravel()
+        rows[:, 1] = 2.0 * (S0 * np.log(kappa * np.abs(a.ravel()) / math.sqrt(2.0)) - _ARG_GAMMA)
+        rows[:, 2] = math.exp(-2.0 * eta)
+        rows[:, 3] = -math.expm1(-4.0 * eta)
+        return rows
+
+    def atom_dimer_rows(self, a, efimov, q):
+        raise LossfitValueError("model", "zero-range atom-dimer tables are not shipped yet; use "
+                                "model='capped' (an approximation) for beta")
+
+
 _MODELS = {}
 
 
@@ -202,6 +291,7 @@ def available_models():
 
 register_model(ThresholdModel())
 register_model(CappedModel())
+register_model(ZeroRangeModel())
 
 #: Model used when ``model`` is not given. "zero-range" replaces it once its tables ship.
 DEFAULT_MODEL = "capped"

@@ -1,0 +1,135 @@
+"""model="zero-range" at run time: table interpolation, thermal averages, limits.
+
+The universal function s11(k|a|) comes from the project's solver (tests/test_solver.py
+checks the solver itself); these tests check what the runtime library does with it.
+"""
+
+import math
+import warnings
+
+import numpy as np
+import pytest
+import scipy.constants as sc
+from scipy.integrate import quad
+
+import lossfit as lf
+from lossfit.errors import LossfitValueError
+from lossfit.universal.tables import load_s11_table
+
+CS = lf.species("133Cs")
+S0 = lf.S0
+LAMBDA = lf.SCALING_FACTOR
+
+
+@pytest.fixture(autouse=True)
+def _quiet():
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", lf.errors.ValidityWarning)
+        yield
+
+
+def test_interpolation_meets_the_tabulated_nodes_and_both_limits():
+    tab = load_s11_table()
+    with np.load(lf.universal.tables.table_path()) as d:
+        nodes = d["s11"]
+    np.testing.assert_allclose(tab.s11(tab.x), nodes, rtol=0, atol=1e-12)
+    # unitarity, exact: |s11| = exp(-pi s0) (derivation in docs/solver.md)
+    assert abs(tab.s11(1e9)) == pytest.approx(math.exp(-math.pi * S0), rel=1e-6)   # tail decays like 1/x
+    # threshold: 1 - |s11|^2 -> c4 x^4
+    from lossfit.universal.tables import s11_eval
+    x = 1e-5
+    assert s11_eval(tab.packed, x)[0] / x ** 4 == pytest.approx(tab.c4, rel=1e-4)
+    assert s11_eval(tab.packed, x)[1] == pytest.approx(tab.delta0, abs=1e-5)
+
+
+def test_low_temperature_limit_is_the_solvers_threshold_law():
+    # K3 -> (72 sqrt3 pi^2 c4 / 2) sinh(2 eta)/(sin^2[s0 ln(a/a_-)] + sinh^2 eta) hbar a^4/m
+    # (small-k limit of the three-body S-matrix form, docs/solver.md sec. 4).
+    tab = load_s11_table()
+    eta = 0.05
+    ef = lf.Efimov(a_minus=-1000.0, eta_minus=eta)
+    a = -np.geomspace(200.0, 5000.0, 13)
+    c = 72 * math.sqrt(3) * math.pi ** 2 * tab.c4 / 2 * math.sinh(2 * eta) / (
+        np.sin(S0 * np.log(a / -1000.0)) ** 2 + math.sinh(eta) ** 2)
+    expected = c * sc.hbar * (a * sc.physical_constants["Bohr radius"][0]) ** 4 / CS.mass * 1e12
+    got = lf.l3(a, 0.001, species=CS, efimov=ef, model="zero-range")
+    np.testing.assert_allclose(got, expected, rtol=2e-4)
+    # beside Braaten & Hammer's 4590 in the events convention: 1.8 % apart (reported in
+    # docs/solver.md; the issue's 1 % target is not met).
+    ratio = got / lf.l3_threshold(a, species=CS, efimov=ef)
+    assert np.all(np.abs(ratio - 1.018) < 0.003)
+
+
+def test_discrete_scaling_of_k3():
+    # K3(lambda a, E/lambda^2) = lambda^4 K3(a, E) (Braaten & Hammer 2006, discrete scale invariance)
+    ef = lf.Efimov(a_minus=-900.0, eta_minus=0.1)
+    a = -np.geomspace(300.0, 4000.0, 7)
+    e = 37.0
+    k = lf.k3(a, e, species=CS, efimov=ef, model="zero-range")
+    k_scaled = lf.k3(LAMBDA * a, e / LAMBDA ** 2, species=CS, efimov=ef, model="zero-range")
+    np.testing.assert_allclose(k_scaled, LAMBDA ** 4 * k, rtol=1e-6)
+
+
+def test_loss_vanishes_linearly_as_eta_goes_to_zero():
+    # K3 is proportional to (1 - exp(-4 eta)) times a function that is smooth at eta = 0.
+    a = -np.geomspace(300.0, 4000.0, 5)
+    v1 = lf.l3(a, 50.0, species=CS, efimov=lf.Efimov(a_minus=-1000.0, eta_minus=1e-7), model="zero-range")
+    v2 = lf.l3(a, 50.0, species=CS, efimov=lf.Efimov(a_minus=-1000.0, eta_minus=2e-7), model="zero-range")
+    np.testing.assert_allclose(v2 / v1, 2.0, rtol=1e-5)
+
+
+def test_unitarity_limit_follows_inverse_square_temperature():
+    # |a| -> infinity: L3 = lambda3 / T^2 with
+    # lambda3 = 36 sqrt3 pi^2 hbar^5/(m^3 k_B^2) (1 - e^{-2 pi s0})(1 - e^{-4 eta})
+    #           / |1 + e^{-pi s0 - 2 eta} e^{i psi(T)}|^2   (Rem et al., PRL 110, 163202 (2013)),
+    # so L3 T^2 lies between the two extremes of the log-periodic modulation.
+    eta = 0.2
+    ef = lf.Efimov(a_minus=-1000.0, eta_minus=eta)
+    t = np.geomspace(20.0, 20.0 * LAMBDA ** 2, 40)          # one full period in T
+    lam = lf.l3(-1e9, t, species=CS, efimov=ef, model="zero-range") * 1e-12 * (t * 1e-9) ** 2
+    base = 36 * math.sqrt(3) * math.pi ** 2 * sc.hbar ** 5 / (CS.mass ** 3 * sc.k ** 2)
+    amp = math.exp(-math.pi * S0 - 2 * eta)
+    core = base * (1 - math.exp(-2 * math.pi * S0)) * (1 - math.exp(-4 * eta))
+    assert np.all(lam <= core / (1 - amp) ** 2 * 1.001) and np.all(lam >= core / (1 + amp) ** 2 * 0.999)
+    modulation = (lam.max() - lam.min()) / (lam.max() + lam.min())
+    assert 0.5 * 2 * amp < modulation < 1.2 * 2 * amp      # thermal averaging washes out a little
+    # the same T^-2 law one period up in T
+    np.testing.assert_allclose(lf.l3(-1e9, t * LAMBDA ** 2, species=CS, efimov=ef, model="zero-range")
+                               * (t * LAMBDA ** 2) ** 2,
+                               lam / 1e-12 / 1e-18, rtol=1e-5)
+
+
+def test_thermal_average_against_quad():
+    m = lf.universal.models.get_model("zero-range")
+    from lossfit.rates import three_body_rows
+    for eta in (0.005, 0.1, 1.0):
+        ef = lf.Efimov(a_minus=-1000.0, eta_minus=eta)
+        for t in (1.0, 100.0, 3000.0):
+            a = -np.geomspace(5 * CS.r_vdw, 1e6, 6)
+            _, params, unit, _ = three_body_rows(a, np.full(a.size, t), CS, ef, "zero-range")
+            got = lf.l3(a, t, species=CS, efimov=ef, model="zero-range") / unit
+            k = m.three_body_kernel
+            for p, g in zip(params, got):
+                pts = sorted(x for x in ((1e-3 / p[0]) ** 2, (1e3 / p[0]) ** 2) if x < 60)
+                ref = quad(lambda x: k(x, p) * x * x * math.exp(-x) / 2, 0, 60, points=pts or None,
+                           epsabs=0, epsrel=1e-12, limit=1000)[0]
+                assert g == pytest.approx(ref, rel=1e-6), (eta, t, p)
+
+
+def test_peak_moves_to_smaller_abs_a_as_temperature_rises():
+    # Fact of the trade (common practice, no source): thermal broadening moves the a < 0
+    # loss peak to smaller |a|. 133Cs, a_- = -1000 a0, eta = 0.05 (issue 3).
+    ef = lf.Efimov(a_minus=-1000.0, eta_minus=0.05)
+    a = -np.geomspace(500.0, 2000.0, 600)
+    peaks = [abs(a[np.argmax(lf.l3(a, t, species=CS, efimov=ef, model="zero-range"))])
+             for t in (10.0, 50.0, 200.0, 400.0)]
+    assert all(p1 > p2 for p1, p2 in zip(peaks, peaks[1:]))
+    assert peaks[0] == pytest.approx(985.0, abs=5.0)     # measured with this table, 2026-12-02
+
+
+def test_unavailable_sides_raise_instead_of_approximating():
+    ef = lf.Efimov.universal(-1000.0, 0.05)
+    with pytest.raises(LossfitValueError, match="a > 0"):
+        lf.l3(500.0, 50.0, species=CS, efimov=ef, model="zero-range")
+    with pytest.raises(LossfitValueError, match="atom-dimer"):
+        lf.beta(500.0, 50.0, species=CS, efimov=ef, model="zero-range")
