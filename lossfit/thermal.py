@@ -53,6 +53,12 @@ _WGK = np.array([0.022935322010529224963732008058970, 0.063092092629978553290700
 _WG = np.array([0.129484966168869693270611432679082, 0.279705391489276667901467771423780,
                 0.381830050505118944950369775488975, 0.417959183673469387755102040816327])
 
+# the 15 nodes in increasing order with their Kronrod and Gauss weights
+_NODES15 = np.concatenate([-_XGK[:7], [0.0], _XGK[6::-1]])
+_WK15 = np.concatenate([_WGK[:7], [_WGK[7]], _WGK[6::-1]])
+_WG15 = np.zeros(15)
+_WG15[1:14:2] = np.concatenate([_WG[:3], [_WG[3]], _WG[2::-1]])
+
 _BASE_EDGES = np.array([0.0, 1.0, 1.75, 2.5, 3.5, 4.75, 6.5])   # in u = sqrt(E/k_BT)
 _U_MAX = 6.5
 _MAX_INTERVALS = 600
@@ -89,61 +95,80 @@ def feature_points(func):
     return numba.njit(FEATURES_SIGNATURE, cache=True)(func)
 
 
+@numba.njit(cache=True)
+def _quadpack_error(resk, resg, resasc, resabs, half):
+    # QUADPACK's error estimate for qk15 (Piessens et al. 1983): |K15 - G7| is the error
+    # of the 7-point rule; scaling it as (200 |K-G| / resasc)^1.5 estimates the far
+    # smaller error of K15 itself for smooth integrands, with a round-off floor.
+    err = abs((resk - resg) * half)
+    resasc *= abs(half)
+    if resasc != 0.0 and err != 0.0:
+        err = resasc * min(1.0, (200.0 * err / resasc) ** 1.5)
+    floor = 50.0 * 2.22e-16 * resabs * abs(half)
+    return max(err, floor)
+
+
 @numba.njit
-def _gk15(kernel, p, weight, a, b):
+def _gk15(kernel, p, weight, a, b, f):
     centre = 0.5 * (a + b)
     half = 0.5 * (b - a)
-    fc = kernel(centre * centre, p) * boltzmann_weight(centre, weight)
-    resk = fc * _WGK[7]
-    resg = fc * _WG[3]
+    f[7] = kernel(centre * centre, p) * boltzmann_weight(centre, weight)
     for j in range(7):
         du = half * _XGK[j]
         u1 = centre - du
         u2 = centre + du
-        f1 = kernel(u1 * u1, p) * boltzmann_weight(u1, weight)
-        f2 = kernel(u2 * u2, p) * boltzmann_weight(u2, weight)
-        resk += _WGK[j] * (f1 + f2)
-        if j % 2 == 1:
-            resg += _WG[j // 2] * (f1 + f2)
-    return resk * half, abs((resk - resg) * half)
+        f[j] = kernel(u1 * u1, p) * boltzmann_weight(u1, weight)
+        f[14 - j] = kernel(u2 * u2, p) * boltzmann_weight(u2, weight)
+    resk = 0.0
+    resg = 0.0
+    resabs = 0.0
+    for j in range(15):
+        resk += _WK15[j] * f[j]
+        resg += _WG15[j] * f[j]
+        resabs += _WK15[j] * abs(f[j])
+    mean = 0.5 * resk
+    resasc = 0.0
+    for j in range(15):
+        resasc += _WK15[j] * abs(f[j] - mean)
+    return resk * half, _quadpack_error(resk, resg, resasc, resabs, half)
 
 
 def _base_panel_tables():
-    # Kronrod nodes (x = u^2) and weight-times-Boltzmann factors of the fixed panels,
-    # so that a panel without features costs one kernel call per node and no exp().
-    nodes = np.concatenate([-_XGK[:7], [0.0], _XGK[6::-1]])
-    wk = np.concatenate([_WGK[:7], [_WGK[7]], _WGK[6::-1]])
-    wg = np.zeros(15)
-    wg[1:14:2] = np.concatenate([_WG[:3], [_WG[3]], _WG[2::-1]])
+    # Kronrod nodes (x = u^2) and Boltzmann factors of the fixed panels, so that a
+    # panel without features costs one kernel call per node and no exp().
     n_panels = _BASE_EDGES.size - 1
     x = np.empty((n_panels, 15))
-    fk = np.empty((2, n_panels, 15))
-    fg = np.empty((2, n_panels, 15))
+    bw = np.empty((2, n_panels, 15))
     for i in range(n_panels):
         a, b = _BASE_EDGES[i], _BASE_EDGES[i + 1]
-        u = 0.5 * (a + b) + 0.5 * (b - a) * nodes
+        u = 0.5 * (a + b) + 0.5 * (b - a) * _NODES15
         x[i] = u * u
         for w in (THREE_BODY, ATOM_DIMER):
-            bw = np.array([boltzmann_weight(v, w) for v in u]) * 0.5 * (b - a)
-            fk[w, i] = wk * bw
-            fg[w, i] = wg * bw
-    return x, fk, fg
+            bw[w, i] = np.array([boltzmann_weight(v, w) for v in u])
+    return x, bw
 
 
-_PANEL_X, _PANEL_WK, _PANEL_WG = _base_panel_tables()
+_PANEL_X, _PANEL_BW = _base_panel_tables()
 _GRADING = 4.0          # ratio of successive edges when grading towards a feature cluster
 _MAX_EDGES = 256
 
 
 @numba.njit
-def _base_panel(kernel, p, weight, i):
+def _base_panel(kernel, p, weight, i, f):
+    half = 0.5 * (_BASE_EDGES[i + 1] - _BASE_EDGES[i])
     resk = 0.0
     resg = 0.0
+    resabs = 0.0
     for j in range(15):
-        f = kernel(_PANEL_X[i, j], p)
-        resk += _PANEL_WK[weight, i, j] * f
-        resg += _PANEL_WG[weight, i, j] * f
-    return resk, abs(resk - resg)
+        f[j] = kernel(_PANEL_X[i, j], p) * _PANEL_BW[weight, i, j]
+        resk += _WK15[j] * f[j]
+        resg += _WG15[j] * f[j]
+        resabs += _WK15[j] * abs(f[j])
+    mean = 0.5 * resk
+    resasc = 0.0
+    for j in range(15):
+        resasc += _WK15[j] * abs(f[j] - mean)
+    return resk * half, _quadpack_error(resk, resg, resasc, resabs, half)
 
 
 @numba.njit(cache=True)
@@ -205,7 +230,7 @@ def _feature_edges(feat, n_feat, edges, n_edges):
 
 
 @numba.njit
-def _average_one(kernel, features, p, weight, rtol, edges, feat, lo, hi, val, err):
+def _average_one(kernel, features, p, weight, rtol, edges, feat, lo, hi, val, err, f):
     n_edges = _BASE_EDGES.size
     for i in range(n_edges):
         edges[i] = _BASE_EDGES[i]
@@ -222,9 +247,9 @@ def _average_one(kernel, features, p, weight, rtol, edges, feat, lo, hi, val, er
         while base < _BASE_EDGES.size - 1 and _BASE_EDGES[base + 1] <= lo[n]:
             base += 1
         if lo[n] == _BASE_EDGES[base] and hi[n] == _BASE_EDGES[base + 1]:
-            val[n], err[n] = _base_panel(kernel, p, weight, base)
+            val[n], err[n] = _base_panel(kernel, p, weight, base, f)
         else:
-            val[n], err[n] = _gk15(kernel, p, weight, lo[n], hi[n])
+            val[n], err[n] = _gk15(kernel, p, weight, lo[n], hi[n], f)
         total += val[n]
         total_err += err[n]
         n += 1
@@ -241,8 +266,8 @@ def _average_one(kernel, features, p, weight, rtol, edges, feat, lo, hi, val, er
         lo[n] = mid
         hi[n] = hi[worst]
         hi[worst] = mid
-        val[worst], err[worst] = _gk15(kernel, p, weight, lo[worst], hi[worst])
-        val[n], err[n] = _gk15(kernel, p, weight, lo[n], hi[n])
+        val[worst], err[worst] = _gk15(kernel, p, weight, lo[worst], hi[worst], f)
+        val[n], err[n] = _gk15(kernel, p, weight, lo[n], hi[n], f)
         total += val[worst] + val[n]
         total_err += err[worst] + err[n]
         n += 1
@@ -261,9 +286,10 @@ def _average_rows(kernel, features, params, weight, rtol, out, out_err):
     hi = np.empty(_MAX_INTERVALS)
     val = np.empty(_MAX_INTERVALS)
     err = np.empty(_MAX_INTERVALS)
+    scratch = np.empty(15)
     for i in range(params.shape[0]):
         out[i], out_err[i] = _average_one(kernel, features, params[i], weight, rtol,
-                                          edges, feat, lo, hi, val, err)
+                                          edges, feat, lo, hi, val, err, scratch)
 
 
 _AVERAGERS = {}

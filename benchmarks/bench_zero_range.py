@@ -1,0 +1,64 @@
+"""model="zero-range": per-point thermal L3 against a scipy.integrate.quad average of the
+same kernel (same run), table load time and size on disk.
+
+Run: python benchmarks/bench_zero_range.py
+Targets (issue 3): <= 2 us per point and >= 1000x quad, <= 1e-6 relative difference.
+"""
+
+import math
+import os
+import subprocess
+import sys
+import time
+import warnings
+
+import numpy as np
+from scipy.integrate import quad
+
+import lossfit as lf
+from lossfit.rates import three_body_rows
+from lossfit.universal.models import get_model
+from lossfit.universal.tables import table_path
+
+warnings.simplefilter("ignore", lf.errors.ValidityWarning)
+CS = lf.species("133Cs")
+EF = lf.Efimov(a_minus=-1000.0, eta_minus=0.05)
+
+
+def main():
+    size = os.path.getsize(table_path())
+    code = ("import time; t=time.perf_counter(); from lossfit.universal.tables import load_s11_table; "
+            "load_s11_table(); print(time.perf_counter()-t)")
+    load = min(float(subprocess.run([sys.executable, "-c", code], capture_output=True, text=True).stdout)
+               for _ in range(3))
+    print(f"table {os.path.basename(table_path())}: {size / 1024:.1f} KiB on disk; load {load * 1e3:.1f} ms "
+          "(import of lossfit.universal.tables included)")
+    a = -np.geomspace(5 * CS.r_vdw, 1e5, 4000)
+    model = get_model("zero-range")
+    kernel = model.three_body_kernel
+    for t in (10.0, 300.0):
+        for rtol in (1e-7, 1e-9):
+            lf.l3(a[:4], t, species=CS, efimov=EF, model="zero-range", rtol=rtol)
+            best = min(_timed(lambda: lf.l3(a, t, species=CS, efimov=EF, model="zero-range", rtol=rtol))
+                       for _ in range(3)) / a.size
+            sub = a[::200]
+            _, params, unit, _ = three_body_rows(sub, np.full(sub.size, t), CS, EF, "zero-range")
+            t0 = time.perf_counter()
+            ref = np.array([quad(lambda x: kernel(x, p) * x * x * math.exp(-x) / 2, 0, 60,
+                                 points=[v for v in ((1e-3 / p[0]) ** 2, (1e3 / p[0]) ** 2) if v < 60] or None,
+                                 epsabs=0, epsrel=1e-10, limit=500)[0] for p in params])
+            per_quad = (time.perf_counter() - t0) / sub.size
+            got = lf.l3(sub, t, species=CS, efimov=EF, model="zero-range", rtol=rtol) / unit
+            err = np.max(np.abs(got / ref - 1))
+            print(f"T={t:5.0f} nK rtol={rtol:.0e}: lossfit {best * 1e6:6.2f} us/point, quad {per_quad * 1e6:8.1f} "
+                  f"us/point, ratio {per_quad / best:6.0f}x, max rel diff {err:.1e}")
+
+
+def _timed(f):
+    t0 = time.perf_counter()
+    f()
+    return time.perf_counter() - t0
+
+
+if __name__ == "__main__":
+    main()
