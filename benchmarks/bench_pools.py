@@ -16,10 +16,12 @@ import numpy as np
 
 import lossfit as lf
 from lossfit.inference.fitting import Posterior, prepare
-from lossfit.inference.pools import make_pool
+from lossfit.inference.pools import find_mpiexec, make_pool
 from lossfit.inference.sampling import sample
 
 WALKERS, STEPS = 16, 25
+
+
 
 
 def heavy_posterior():
@@ -71,7 +73,7 @@ if __name__ == "__main__":
     with make_pool("processes", 2) as pool:
         procs = min(timed_run(pool) for _ in range(2))
     print(f"processes pool (2):     {procs:6.2f} s   speed-up {serial / procs:.2f}x (target >= 1.8x)")
-    mpiexec = shutil.which("mpiexec")
+    mpiexec = find_mpiexec()
     if mpiexec is None:
         print("mpiexec not found: install the 'mpi' extra for the MPI measurement")
     else:

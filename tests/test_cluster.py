@@ -16,6 +16,7 @@ import pytest
 from lossfit.data import write_spectra
 from lossfit.demo import demo_job_text, demo_spectra
 from lossfit.inference.backends import read_chain_file
+from lossfit.inference.pools import find_mpiexec
 from lossfit.jobs import JobError, load_job
 from lossfit.runner import EXIT_CONFLICT, EXIT_INTERRUPTED
 
@@ -30,6 +31,8 @@ def campaign(tmp_path_factory):
                                                                 "checkpoint_every = 50")
     (d / "job.toml").write_text(text)
     return d
+
+
 
 
 def _cmd(*args):
@@ -104,7 +107,7 @@ def test_sigterm_checkpoints_and_exits_with_documented_code(campaign, uninterrup
 
 @pytest.mark.slow
 def test_mpiexec_two_ranks_end_to_end(campaign, uninterrupted):
-    mpiexec = shutil.which("mpiexec")
+    mpiexec = find_mpiexec()
     assert mpiexec, "mpiexec (from the mpich wheel, extra 'test') is not on PATH"
     out = campaign / "mpi"
     env = dict(os.environ, MPLBACKEND="Agg")

@@ -5,9 +5,12 @@ work per call is (walkers / 2) likelihoods; parallelism pays once one likelihood
 costs well above the messaging overhead (about 0.1 ms for MPI on one node).
 """
 
-__all__ = ["SerialPool", "MPIPool", "make_pool"]
+__all__ = ["SerialPool", "MPIPool", "make_pool", "find_mpiexec"]
 
 import multiprocessing
+import os
+import shutil
+import sys
 
 from ..errors import LossfitValueError
 
@@ -95,3 +98,10 @@ def make_pool(kind, workers=None):
     if kind == "mpi":
         return MPIPool()
     raise LossfitValueError("pool", f"must be 'serial', 'processes' or 'mpi', got {kind!r}")
+
+
+def find_mpiexec():
+    """Path of ``mpiexec``: the one pip installed beside this interpreter (the mpich
+    wheel of the ``mpi`` extra), else the first on PATH, else None."""
+    beside = os.path.join(os.path.dirname(sys.executable), "mpiexec")
+    return beside if os.path.exists(beside) else shutil.which("mpiexec")
