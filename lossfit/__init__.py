@@ -11,9 +11,13 @@ from . import errors
 from .constants import S0, SCALING_FACTOR
 from .errors import LossfitError, LossfitValueError
 from .data import LossSpectrum, read_csv, read_spectra, write_spectra
+from .decay import TabulatedRate, simulate_decay
+from .feshbach import (FeshbachResonance, OverlappingResonances, ScatteringLengthTable,
+                       average_over_field_noise, calibrate_from_binding_energies)
 from .inference import FitResult, LogNormal, LogUniform, Normal, Uniform, fit
 from .rates import beta, beta_energy, k3, l3
 from .species import Species, known_species, register_species, species
+from .trap import HarmonicTrap
 from .universal.models import EnergyModel, available_models, register_model
 from .universal.threshold import Efimov, beta_threshold, convert_l3, l3_threshold
 
@@ -23,4 +27,7 @@ __all__ = ["__version__", "errors", "S0", "SCALING_FACTOR", "LossfitError", "Los
            "EnergyModel", "available_models", "register_model",
            "k3", "beta_energy", "l3", "beta",
            "LossSpectrum", "read_spectra", "write_spectra", "read_csv",
-           "fit", "FitResult", "LogUniform", "Uniform", "LogNormal", "Normal"]
+           "fit", "FitResult", "LogUniform", "Uniform", "LogNormal", "Normal",
+           "HarmonicTrap", "simulate_decay", "TabulatedRate", "FeshbachResonance",
+           "OverlappingResonances", "ScatteringLengthTable", "average_over_field_noise",
+           "calibrate_from_binding_energies"]
