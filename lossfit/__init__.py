@@ -14,7 +14,6 @@ from .data import LossSpectrum, read_csv, read_spectra, write_spectra
 from .decay import TabulatedRate, simulate_decay
 from .feshbach import (FeshbachResonance, OverlappingResonances, ScatteringLengthTable,
                        average_over_field_noise, calibrate_from_binding_energies)
-from .inference import FitResult, LogNormal, LogUniform, Normal, Uniform, fit
 from .rates import beta, beta_energy, k3, l3
 from .species import Species, known_species, register_species, species
 from .trap import HarmonicTrap
@@ -31,3 +30,15 @@ __all__ = ["__version__", "errors", "S0", "SCALING_FACTOR", "LossfitError", "Los
            "HarmonicTrap", "simulate_decay", "TabulatedRate", "FeshbachResonance",
            "OverlappingResonances", "ScatteringLengthTable", "average_over_field_noise",
            "calibrate_from_binding_energies"]
+
+# The inference layer imports emcee and scipy.stats (about a second); load it on first use
+# so that computing rates starts fast.
+_LAZY = {name: "lossfit.inference" for name in
+         ("fit", "FitResult", "LogUniform", "Uniform", "LogNormal", "Normal")}
+
+
+def __getattr__(name):
+    if name in _LAZY:
+        import importlib
+        return getattr(importlib.import_module(_LAZY[name]), name)
+    raise AttributeError(f"module 'lossfit' has no attribute {name!r}")
