@@ -26,19 +26,14 @@ import time
 import warnings
 
 import numpy as np
-import scipy.constants as sc
 from scipy.integrate import quad
-from scipy.optimize import brentq
 
 sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), ".."))
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 
 import lossfit as lf  # noqa: E402
 
-HBAR, KB = sc.hbar, sc.k
-A0 = sc.physical_constants["Bohr radius"][0]
-SQRT_PI = math.sqrt(math.pi)
-S0 = brentq(lambda s: s * math.cosh(math.pi * s / 2) - 8 / math.sqrt(3) * math.sinh(math.pi * s / 6),
-            0.9, 1.1, xtol=1e-16)
+from _reference import A0, HBAR, KB, S0, SQRT_PI  # noqa: E402,F401
 
 
 def k3_threshold(a, ef, m):

@@ -27,12 +27,11 @@ import sys
 import time
 
 import numpy as np
-import scipy.constants as sc
 from scipy.integrate import quad
-from scipy.optimize import brentq
 from scipy.special import gammainc, roots_genlaguerre
 
 sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), ".."))
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 
 import numba  # noqa: E402
 
@@ -40,14 +39,7 @@ import lossfit as lf  # noqa: E402
 from lossfit.thermal import ATOM_DIMER, THREE_BODY, thermal_average  # noqa: E402
 from lossfit.universal.models import get_model  # noqa: E402
 
-HBAR, KB = sc.hbar, sc.k
-A0 = sc.physical_constants["Bohr radius"][0]
-SQRT_PI = math.sqrt(math.pi)
-S0 = brentq(lambda s: s * math.cosh(math.pi * s / 2) - 8 / math.sqrt(3) * math.sinh(math.pi * s / 6),
-            0.9, 1.1, xtol=1e-16)
-LAMBDA = math.exp(math.pi / S0)
-U3 = 72 * math.sqrt(3) * math.pi ** 2
-U2 = 3 * math.sqrt(3) * math.pi / 4
+from _reference import A0, HBAR, KB, LAMBDA, S0, SQRT_PI, U2, U3  # noqa: E402,F401
 ETAS = [0.005, 0.05, 0.5, 2.0]
 KW = dict(epsabs=0.0, epsrel=1e-12, limit=500)
 

@@ -1,0 +1,124 @@
+"""Coverage of the global decay-curve fit and of the two-stage route (too slow for CI).
+
+Invented scenario (``lossfit.curves.INVENTED_CAMPAIGN``, not measured data): for each
+of ``--campaigns`` synthetic campaigns the Efimov truth is fixed (a_- = -900 a0,
+eta_- = 0.08) and the calibration truths are drawn from the priors the fits use
+(density scale ~ LogNormal(1, 0.2), temperature scale ~ LogNormal(1, 0.05)); the
+curves scatter with their stated errors. Two analyses per campaign:
+
+* global: :func:`lossfit.inference.global_fit.fit_curves` with both calibration
+  nuisances sampled and the per-curve nuisances eliminated inside the likelihood;
+* two-stage: per-curve constant-L3 fits (:func:`lossfit.curvefit.spectrum_from_curves`),
+  then :func:`lossfit.fit` on the derived spectrum with the density-scale nuisance (the
+  two-stage route has no handle on the thermometry scale, as in common practice).
+
+A 68 % (95 %) interval should contain the truth in 68 % (95 %) of campaigns; the
+binomial standard error of a fraction p over n campaigns is sqrt(p (1-p) / n).
+
+Usage: python benchmarks/coverage_study.py --campaigns 24 --out coverage.json
+"""
+
+import argparse
+import json
+import math
+import os
+import sys
+import time
+import warnings
+
+import numpy as np
+
+import lossfit as lf
+from lossfit._io import atomic_path
+from lossfit.curvefit import fit_curves_individually, spectrum_from_curves
+from lossfit.curves import INVENTED_CAMPAIGN, invented_campaign
+from lossfit.errors import ConvergenceWarning, ValidityWarning
+from lossfit.inference.global_fit import fit_curves
+
+PARAMS = ("a_minus", "eta_minus", "density_scale")
+DENSITY_SIGMA = 0.2
+TEMPERATURE_SIGMA = 0.05
+
+
+def one_campaign(seed, *, n_fields, walkers, steps, inner_steps, model="capped"):
+    rng = np.random.default_rng(seed)
+    truth = dict(INVENTED_CAMPAIGN["truth"])
+    truth["density_scale"] = float(np.exp(DENSITY_SIGMA * rng.standard_normal()))
+    truth["temperature_scale"] = float(np.exp(TEMPERATURE_SIGMA * rng.standard_normal()))
+    curves, res, truth = invented_campaign(seed, n_fields=n_fields, truth=truth, model=model)
+    out = {"seed": seed, "truth": truth}
+    t0 = time.perf_counter()
+    glob = fit_curves(curves, species="133Cs", free=["a_minus", "eta_minus"], resonance=res, model=model,
+                      systematics={"density_scale": DENSITY_SIGMA, "temperature_scale": TEMPERATURE_SIGMA},
+                      walkers=walkers, steps=steps, seed=seed, progress=False, inner_steps=inner_steps)
+    out["global_seconds"] = time.perf_counter() - t0
+    t0 = time.perf_counter()
+    fits = fit_curves_individually(curves, species="133Cs", resonance=res)
+    spectra = spectrum_from_curves(curves, species="133Cs", resonance=res, fits=fits)
+    two = lf.fit(spectra, species="133Cs", free=["a_minus", "eta_minus", "density_scale"], model=model,
+                 density_sigma=DENSITY_SIGMA, walkers=walkers, steps=steps, seed=seed, progress=False)
+    out["two_stage_seconds"] = time.perf_counter() - t0
+    for route, result in (("global", glob), ("two_stage", two)):
+        rows = {r["name"]: r for r in result.summary()}
+        out[route] = {p: {k: float(rows[p][k]) for k in ("median", "lo68", "hi68", "lo95", "hi95")}
+                      for p in PARAMS}
+        out[route + "_warnings"] = list(result.warnings)
+    return out
+
+
+def _coverage(runs, route):
+    table = {}
+    for p in PARAMS:
+        hit68 = [r[route][p]["lo68"] <= r["truth"][p] <= r[route][p]["hi68"] for r in runs]
+        hit95 = [r[route][p]["lo95"] <= r["truth"][p] <= r[route][p]["hi95"] for r in runs]
+        pulls = [(r[route][p]["median"] - r["truth"][p]) / (0.5 * (r[route][p]["hi68"] - r[route][p]["lo68"]))
+                 for r in runs]
+        table[p] = {"coverage68": float(np.mean(hit68)), "coverage95": float(np.mean(hit95)),
+                    "mean_pull": float(np.mean(pulls)), "rms_pull": float(np.sqrt(np.mean(np.square(pulls))))}
+    return table
+
+
+def main(argv=None):
+    ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
+    ap.add_argument("--campaigns", type=int, default=24)
+    ap.add_argument("--fields", type=int, default=20, help="fields per campaign (2 temperatures each)")
+    ap.add_argument("--walkers", type=int, default=24)
+    ap.add_argument("--steps", type=int, default=1500)
+    ap.add_argument("--inner-steps", type=int, default=1)
+    ap.add_argument("--first-seed", type=int, default=5000)
+    ap.add_argument("--out", required=True, help="JSON file for the results (not overwritten)")
+    args = ap.parse_args(argv)
+    if os.path.exists(args.out):
+        sys.exit(f"{args.out} exists; choose another --out (results are never overwritten)")
+    runs, failures = [], []
+    t0 = time.perf_counter()
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ValidityWarning)
+        warnings.simplefilter("ignore", ConvergenceWarning)
+        for i in range(args.campaigns):
+            try:
+                r = one_campaign(args.first_seed + i, n_fields=args.fields, walkers=args.walkers,
+                                 steps=args.steps, inner_steps=args.inner_steps)
+            except lf.LossfitError as err:       # record, do not hide: a failed campaign is a result
+                failures.append({"seed": args.first_seed + i, "error": str(err)})
+                print(f"campaign {i + 1}/{args.campaigns}: FAILED {err}", flush=True)
+                continue
+            runs.append(r)
+            print(f"campaign {i + 1}/{args.campaigns}: global {r['global_seconds']:.1f} s, "
+                  f"two-stage {r['two_stage_seconds']:.1f} s", flush=True)
+            summary = {"settings": vars(args), "scenario": INVENTED_CAMPAIGN["description"],
+                       "n": len(runs), "binomial_se68": math.sqrt(0.68 * 0.32 / len(runs)),
+                       "global": _coverage(runs, "global"), "two_stage": _coverage(runs, "two_stage"),
+                       "wall_seconds": time.perf_counter() - t0, "failures": failures, "runs": runs}
+            with atomic_path(args.out) as tmp, open(tmp, "w") as fh:      # checkpoint as we go
+                json.dump(summary, fh, indent=1)
+    for route in ("global", "two_stage"):
+        print(f"{route}:")
+        for p, row in summary[route].items():
+            print(f"  {p:<14} 68%: {row['coverage68']:.2f}  95%: {row['coverage95']:.2f}  "
+                  f"pull mean {row['mean_pull']:+.2f} rms {row['rms_pull']:.2f}")
+    print(f"n = {len(runs)} campaigns; binomial s.e. of a 68 % coverage: {summary['binomial_se68']:.2f}")
+
+
+if __name__ == "__main__":
+    main()
