@@ -134,3 +134,21 @@ def test_unavailable_sides_raise_instead_of_approximating():
         lf.l3(500.0, 50.0, species=CS, efimov=ef, model="zero-range")
     with pytest.raises(LossfitValueError, match="atom-dimer"):
         lf.beta(500.0, 50.0, species=CS, efimov=ef, model="zero-range")
+
+
+def test_fit_with_the_exact_model_recovers_a_minus():
+    # Invented spectra generated with the zero-range model itself, then fitted with it.
+    ef = lf.Efimov(a_minus=-950.0, eta_minus=0.06)
+    rng = np.random.default_rng(3)
+    a = -np.geomspace(500.0, 3000.0, 14)
+    spectra = []
+    for t in (20.0, 150.0):
+        m = lf.l3(a, t, species=CS, efimov=ef, model="zero-range")
+        spectra.append(lf.LossSpectrum(a, t, m * (1 + 0.1 * rng.standard_normal(a.size)), 0.1 * m))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", lf.errors.ConvergenceWarning)
+        res = lf.fit(spectra, species=CS, free=["a_minus", "eta_minus"], model="zero-range",
+                     walkers=12, steps=600, seed=1, progress=False)
+    row = {r["name"]: r for r in res.summary()}["a_minus"]
+    assert row["lo95"] <= -950.0 <= row["hi95"]
+    assert "approximation" not in res.model.label
