@@ -1,0 +1,586 @@
+"""Raw decay curves, the measurement-campaign HDF5 schema and CSV import.
+
+A :class:`DecayCurve` is what a laboratory records at one field: atom (or Feshbach
+dimer) numbers after hold times t, optionally the cloud temperature, and the trap.
+
+HDF5 schema ``lossfit.campaign``, version 1
+------------------------------------------
+File attributes: ``schema = "lossfit.campaign"``, ``schema_version = 1``,
+``lossfit_version``, ``species`` (may be empty), ``metadata`` (JSON object).
+Optional group ``/resonance`` with scalar datasets ``b0`` (``units = "G"``), ``width``
+(``"G"``), ``a_bg`` (``"a0"``) and optionally ``covariance`` (3 x 3, units
+``"G,G,a0"`` for (b0, width, a_bg)). One group per curve under ``/curves/<nnn>`` with
+attributes ``kind`` (``"atoms"`` or ``"dimers"``) and ``label``, and datasets ``t``
+(``"s"``), ``atoms`` and ``atoms_err`` (``"count"``), ``temperature`` and
+``temperature_err`` (``"nK"``; scalar for a single initial-temperature measurement, or
+one value per time), ``trap_hz`` and ``dimer_trap_hz`` (3 values, ``"Hz"``), exactly one
+of ``field`` (``"G"``) or ``a`` (``"a0"``), and for dimer curves ``partner_atoms``
+(``"count"``; scalar initial atom number or one value per time) with
+``partner_atoms_err`` when it is an array. Readers refuse files with another schema, a
+newer version, or missing datasets.
+
+CSV import (:func:`read_curves_csv`): a header line naming the columns; ``#`` starts a
+comment line. Required: ``t``, ``atoms``, ``atoms_err``, ``temperature``,
+``temperature_err`` and one of ``field`` or ``a``. Optional: ``curve`` (rows with the
+same value form one curve, in file order; default: one curve), ``kind``,
+``partner_atoms``, ``partner_atoms_err``, ``trap_x_hz``, ``trap_y_hz``, ``trap_z_hz``.
+Units as in :class:`DecayCurve`.
+"""
+
+__all__ = ["DecayCurve", "Campaign", "write_campaign", "read_campaign", "read_curves_csv", "simulate_curve",
+           "invented_campaign", "INVENTED_CAMPAIGN",
+           "CAMPAIGN_SCHEMA", "CAMPAIGN_SCHEMA_VERSION"]
+
+import csv
+import json
+import os
+from dataclasses import dataclass, field as _dc_field
+
+import numpy as np
+
+from ._io import atomic_path
+from .errors import LossfitValueError, check_finite, check_positive
+from .feshbach import FeshbachResonance
+from .trap import HarmonicTrap, as_trap
+
+CAMPAIGN_SCHEMA = "lossfit.campaign"
+CAMPAIGN_SCHEMA_VERSION = 1
+KINDS = ("atoms", "dimers")
+
+
+def _series(name, value, n, *, allow_scalar=False):
+    """A non-negative float array of length n (or a scalar if allowed)."""
+    arr = check_positive(name, value, allow_zero=True)
+    if allow_scalar and arr.ndim == 0:
+        return arr.astype(float)
+    if arr.ndim != 1 or arr.size != n:
+        raise LossfitValueError(name, f"has shape {arr.shape} but t has {n} entries")
+    return arr.astype(float)
+
+
+def _readonly(*arrays):
+    for arr in arrays:
+        if arr is not None:
+            arr.setflags(write=False)
+
+
+class DecayCurve:
+    """One decay measurement at a fixed field: N(t) (and T(t)) after a jump to B.
+
+    Parameters
+    ----------
+    t : array_like, shape (n,)
+        Hold times in s, strictly increasing, >= 0. The fit's initial state is at t = 0.
+    atoms : array_like, shape (n,)
+        Measured numbers (>= 0): atoms for ``kind="atoms"``, dimers for ``kind="dimers"``.
+    atoms_err : array_like, shape (n,)
+        One-standard-deviation uncertainties of ``atoms`` (> 0).
+    temperature : float or array_like, shape (n,)
+        Cloud temperature in nK (> 0): one value per time, or a scalar meaning a single
+        measurement of the initial temperature. Required (the density depends on it).
+    temperature_err : float or array_like
+        Uncertainty of ``temperature`` in nK (> 0), same shape.
+    field : float, optional
+        Magnetic field in G; converting it to a scattering length needs a resonance at
+        fit time. Exactly one of ``field`` and ``a``.
+    a : float, optional
+        Scattering length in a0 (non-zero; > 0 for dimer curves).
+    trap_hz : HarmonicTrap or sequence of 3 floats
+        Atomic trap frequencies in Hz (a HarmonicTrap also carries dimer frequencies).
+    kind : {"atoms", "dimers"}
+        ``"dimers"``: an atom-dimer mixture whose dimer number is in ``atoms``.
+    partner_atoms : float or array_like, optional
+        Dimer curves only: atom number of the mixture, a scalar (initial number) or one
+        value per time.
+    partner_atoms_err : float or array_like, optional
+        Uncertainty of ``partner_atoms`` (required when it is an array; for a scalar it
+        is the uncertainty of the initial atom number).
+    label : str, optional
+    """
+
+    def __init__(self, *, t, atoms, atoms_err, temperature=None, temperature_err=None, field=None,
+                 a=None, trap_hz=None, kind="atoms", partner_atoms=None, partner_atoms_err=None,
+                 label=None):
+        from .decay import _times      # the integrator's own time validation
+        if kind not in KINDS:
+            raise LossfitValueError("kind", f"must be 'atoms' or 'dimers', got {kind!r}")
+        self.t = _times(t).astype(float)
+        n = self.t.size
+        self.atoms = _series("atoms", atoms, n)
+        self.atoms_err = _series("atoms_err", atoms_err, n)
+        if np.any(self.atoms_err <= 0):
+            raise LossfitValueError("atoms_err", "must be positive (a zero error gives infinite weight)")
+        if temperature is None:
+            raise LossfitValueError("temperature", "is required: the density, hence L3, depends on it; "
+                                    "give T(t) in nK per point or the initial temperature as a scalar")
+        self.temperature = np.asarray(check_positive("temperature", temperature), dtype=float)
+        if self.temperature.ndim not in (0, 1) or (self.temperature.ndim == 1 and self.temperature.size != n):
+            raise LossfitValueError("temperature", f"must be a scalar or have {n} entries like t, got "
+                                    f"shape {self.temperature.shape}")
+        if temperature_err is None:
+            raise LossfitValueError("temperature_err", "is required with temperature (nK, > 0)")
+        terr = np.asarray(check_positive("temperature_err", temperature_err), dtype=float)
+        if terr.shape != self.temperature.shape:
+            raise LossfitValueError("temperature_err", f"has shape {terr.shape}, temperature has "
+                                    f"{self.temperature.shape}")
+        self.temperature_err = terr
+        if (field is None) == (a is None):
+            raise LossfitValueError("field", "give exactly one of field= (G) and a= (a0)")
+        self.field = None if field is None else float(check_finite("field", field))
+        self.a = None if a is None else float(check_finite("a", a))
+        if self.a == 0.0:
+            raise LossfitValueError("a", "must be non-zero (the zero-range theory needs |a| > 0)")
+        if kind == "dimers" and self.a is not None and self.a <= 0:
+            raise LossfitValueError("a", f"dimer curves need a > 0 (a shallow Feshbach dimer), got {self.a:g} a0")
+        self.trap = as_trap(trap_hz, "trap_hz")
+        self.kind = kind
+        if kind == "atoms":
+            if partner_atoms is not None or partner_atoms_err is not None:
+                raise LossfitValueError("partner_atoms", "only dimer curves have partner atoms")
+            self.partner_atoms = self.partner_atoms_err = None
+        else:
+            if partner_atoms is None:
+                raise LossfitValueError("partner_atoms", "dimer curves need the atom number of the mixture "
+                                        "(scalar initial number or one value per time)")
+            self.partner_atoms = _series("partner_atoms", partner_atoms, n, allow_scalar=True)
+            if partner_atoms_err is None:
+                if self.partner_atoms.ndim == 1:
+                    raise LossfitValueError("partner_atoms_err", "is required when partner_atoms is an array")
+                self.partner_atoms_err = None
+            else:
+                self.partner_atoms_err = np.asarray(check_positive("partner_atoms_err", partner_atoms_err),
+                                                    dtype=float)
+                if self.partner_atoms_err.shape != self.partner_atoms.shape:
+                    raise LossfitValueError("partner_atoms_err", f"has shape {self.partner_atoms_err.shape}, "
+                                            f"partner_atoms has {self.partner_atoms.shape}")
+        self.label = label or (f"{kind} at {self.field:g} G" if self.field is not None
+                               else f"{kind} at a = {self.a:g} a0")
+        _readonly(self.t, self.atoms, self.atoms_err, self.temperature, self.temperature_err,
+                  self.partner_atoms, self.partner_atoms_err)
+
+    # -- derived ---------------------------------------------------------------------
+    def __len__(self):
+        return self.t.size
+
+    def __repr__(self):
+        where = f"B={self.field:g} G" if self.field is not None else f"a={self.a:g} a0"
+        return (f"DecayCurve({self.label!r}, kind={self.kind!r}, {len(self)} points, {where}, "
+                f"t={self.t[0]:g}..{self.t[-1]:g} s)")
+
+    @property
+    def temperature_series(self):
+        """True if ``temperature`` has one value per time (not a single initial value)."""
+        return self.temperature.ndim == 1
+
+    @property
+    def initial_temperature(self):
+        """Best guess of the initial temperature in nK (first measured value)."""
+        return float(self.temperature if self.temperature.ndim == 0 else self.temperature[0])
+
+    def scattering_length(self, resonance=None):
+        """Scattering length of the curve in a0.
+
+        Parameters
+        ----------
+        resonance : object with ``.a(B)``, optional
+            Needed when the curve was given by its field.
+
+        Returns
+        -------
+        float
+        """
+        if self.a is not None:
+            return self.a
+        if resonance is None or not hasattr(resonance, "a"):
+            raise LossfitValueError("resonance", f"curve {self.label!r} is given by its field "
+                                    f"({self.field:g} G); pass a resonance (e.g. lf.FeshbachResonance) "
+                                    "to convert it to a scattering length")
+        a = float(resonance.a(self.field))
+        if self.kind == "dimers" and a <= 0:
+            raise LossfitValueError("field", f"curve {self.label!r}: at {self.field:g} G the resonance gives "
+                                    f"a = {a:g} a0 <= 0, where no Feshbach dimer exists (field on the "
+                                    "wrong side of the resonance for beta)")
+        if a == 0.0:
+            raise LossfitValueError("field", f"curve {self.label!r}: a({self.field:g} G) = 0")
+        return a
+
+
+def check_curves(curves, name="curves"):
+    """Return ``curves`` as a non-empty list of DecayCurve (a single curve is accepted)."""
+    curves = [curves] if isinstance(curves, DecayCurve) else list(curves)
+    if not curves or not all(isinstance(c, DecayCurve) for c in curves):
+        raise LossfitValueError(name, "must be one or more lossfit DecayCurve objects")
+    return curves
+
+
+@dataclass
+class Campaign:
+    """A measurement campaign read from (or to be written to) a ``lossfit.campaign`` file.
+
+    Attributes
+    ----------
+    curves : list of DecayCurve
+    species : str or None
+    resonance : FeshbachResonance or None
+    metadata : dict
+    """
+
+    curves: list
+    species: str | None = None
+    resonance: FeshbachResonance | None = None
+    metadata: dict = _dc_field(default_factory=dict)
+
+
+def _dataset(g, name, value, units):
+    g.create_dataset(name, data=np.asarray(value, dtype=float)).attrs["units"] = units
+
+
+def write_campaign(path, curves, *, species=None, resonance=None, metadata=None, overwrite=False):
+    """Write a campaign to HDF5 in the ``lossfit.campaign`` schema (module docstring).
+
+    The file is written to a temporary file and renamed into place, so an existing file
+    is never left half-written; without ``overwrite=True`` an existing file is an error.
+
+    Parameters
+    ----------
+    path : str or path-like
+    curves : DecayCurve or sequence of DecayCurve
+    species : str or Species, optional
+        Recorded by name.
+    resonance : FeshbachResonance, optional
+        Recorded with its covariance, if any.
+    metadata : dict, optional
+        JSON-serialisable notes (apparatus, date, scenario, ...).
+    overwrite : bool
+    """
+    from . import __version__
+    curves = check_curves(curves)
+    if resonance is not None and not isinstance(resonance, FeshbachResonance):
+        raise LossfitValueError("resonance", "the campaign schema stores a single FeshbachResonance; "
+                                f"got {type(resonance).__name__}")
+    sp_name = "" if species is None else getattr(species, "name", str(species))
+    try:
+        meta = json.dumps(metadata or {})
+    except TypeError as err:
+        raise LossfitValueError("metadata", f"must be JSON-serialisable ({err})") from None
+    import h5py
+    with atomic_path(path, overwrite=overwrite) as tmp, h5py.File(tmp, "w") as h5:
+        h5.attrs["schema"] = CAMPAIGN_SCHEMA
+        h5.attrs["schema_version"] = CAMPAIGN_SCHEMA_VERSION
+        h5.attrs["lossfit_version"] = __version__
+        h5.attrs["species"] = sp_name
+        h5.attrs["metadata"] = meta
+        if resonance is not None:
+            r = h5.create_group("resonance")
+            _dataset(r, "b0", resonance.b0, "G")
+            _dataset(r, "width", resonance.width, "G")
+            _dataset(r, "a_bg", resonance.a_bg, "a0")
+            if resonance.covariance is not None:
+                _dataset(r, "covariance", resonance.covariance, "G,G,a0")
+        root = h5.create_group("curves")
+        for i, c in enumerate(curves):
+            g = root.create_group(f"{i:03d}")
+            g.attrs["kind"] = c.kind
+            g.attrs["label"] = c.label
+            _dataset(g, "t", c.t, "s")
+            _dataset(g, "atoms", c.atoms, "count")
+            _dataset(g, "atoms_err", c.atoms_err, "count")
+            _dataset(g, "temperature", c.temperature, "nK")
+            _dataset(g, "temperature_err", c.temperature_err, "nK")
+            _dataset(g, "trap_hz", c.trap.frequencies_hz, "Hz")
+            _dataset(g, "dimer_trap_hz", c.trap.dimer_frequencies_hz, "Hz")
+            if c.field is not None:
+                _dataset(g, "field", c.field, "G")
+            else:
+                _dataset(g, "a", c.a, "a0")
+            if c.partner_atoms is not None:
+                _dataset(g, "partner_atoms", c.partner_atoms, "count")
+                if c.partner_atoms_err is not None:
+                    _dataset(g, "partner_atoms_err", c.partner_atoms_err, "count")
+
+
+_UNITS = {"t": "s", "atoms": "count", "atoms_err": "count", "temperature": "nK",
+          "temperature_err": "nK", "trap_hz": "Hz", "dimer_trap_hz": "Hz", "field": "G", "a": "a0",
+          "partner_atoms": "count", "partner_atoms_err": "count", "b0": "G", "width": "G", "a_bg": "a0",
+          "covariance": "G,G,a0"}
+
+
+def _get(g, name, path, where, optional=False):
+    if name not in g:
+        if optional:
+            return None
+        raise LossfitValueError("path", f"{path!r}: {where}/{name} is missing (truncated or foreign file?)")
+    units = g[name].attrs.get("units")
+    if units != _UNITS[name]:
+        raise LossfitValueError("path", f"{path!r}: {where}/{name} has units {units!r}, "
+                                f"expected {_UNITS[name]!r}")
+    return g[name][()]
+
+
+def read_campaign(path):
+    """Read a ``lossfit.campaign`` HDF5 file.
+
+    Parameters
+    ----------
+    path : str or path-like
+
+    Returns
+    -------
+    Campaign
+    """
+    import h5py
+    path = os.fspath(path)
+    if not os.path.exists(path):
+        raise LossfitValueError("path", f"no such file {path!r}")
+    try:
+        h5 = h5py.File(path, "r")
+    except OSError as err:
+        raise LossfitValueError("path", f"{path!r} is truncated or not an HDF5 file ({err})") from None
+    with h5:
+        schema = h5.attrs.get("schema")
+        if schema != CAMPAIGN_SCHEMA:
+            raise LossfitValueError("path", f"{path!r} has schema {schema!r}, expected {CAMPAIGN_SCHEMA!r}")
+        version = int(h5.attrs.get("schema_version", -1))
+        if not 1 <= version <= CAMPAIGN_SCHEMA_VERSION:
+            raise LossfitValueError("path", f"{path!r} has campaign schema version {version}; this lossfit "
+                                    f"reads versions 1..{CAMPAIGN_SCHEMA_VERSION}")
+        try:
+            metadata = json.loads(h5.attrs.get("metadata", "{}"))
+            resonance = None
+            if "resonance" in h5:
+                r = h5["resonance"]
+                resonance = FeshbachResonance(
+                    _get(r, "b0", path, "resonance"), _get(r, "width", path, "resonance"),
+                    _get(r, "a_bg", path, "resonance"),
+                    covariance=_get(r, "covariance", path, "resonance", optional=True))
+            if "curves" not in h5:
+                raise LossfitValueError("path", f"{path!r} has no /curves group (truncated file?)")
+            curves = []
+            for key in sorted(h5["curves"]):
+                g = h5["curves"][key]
+                where = f"curves/{key}"
+                kw = {name: _get(g, name, path, where) for name in
+                      ("t", "atoms", "atoms_err", "temperature", "temperature_err")}
+                for name in ("field", "a", "partner_atoms", "partner_atoms_err"):
+                    value = _get(g, name, path, where, optional=True)
+                    if value is not None:
+                        kw[name] = float(value) if np.ndim(value) == 0 and name in ("field", "a") else value
+                trap = HarmonicTrap(_get(g, "trap_hz", path, where), _get(g, "dimer_trap_hz", path, where))
+                curves.append(DecayCurve(trap_hz=trap, kind=str(g.attrs["kind"]),
+                                         label=str(g.attrs["label"]), **kw))
+        except (KeyError, OSError) as err:
+            raise LossfitValueError("path", f"{path!r} is damaged ({err})") from None
+        species = str(h5.attrs.get("species", "")) or None
+    if not curves:
+        raise LossfitValueError("path", f"{path!r} holds no curves")
+    return Campaign(curves=curves, species=species, resonance=resonance, metadata=metadata)
+
+
+_CSV_REQUIRED = ("t", "atoms", "atoms_err", "temperature", "temperature_err")
+_CSV_PER_CURVE = ("field", "a", "kind", "trap_x_hz", "trap_y_hz", "trap_z_hz")
+
+
+def read_curves_csv(path, *, trap_hz=None, kind=None):
+    """Import decay curves from a CSV file (columns in the module docstring).
+
+    Parameters
+    ----------
+    path : str or path-like
+    trap_hz : HarmonicTrap or 3 floats in Hz, optional
+        Trap of every curve; required unless the file has trap_x_hz, trap_y_hz, trap_z_hz.
+    kind : {"atoms", "dimers"}, optional
+        Kind of every curve, unless the file has a ``kind`` column (default "atoms").
+
+    Returns
+    -------
+    list of DecayCurve
+    """
+    path = os.fspath(path)
+    if not os.path.exists(path):
+        raise LossfitValueError("path", f"no such file {path!r}")
+    with open(path, newline="") as fh:
+        lines = [ln for ln in fh if ln.strip() and not ln.lstrip().startswith("#")]
+    reader = csv.DictReader(lines, skipinitialspace=True)
+    rows = [{(k or "").strip(): (v or "").strip() for k, v in r.items()} for r in reader]
+    columns = [c.strip() for c in (reader.fieldnames or [])]
+    missing = [c for c in _CSV_REQUIRED if c not in columns]
+    if missing:
+        raise LossfitValueError("path", f"{path!r} lacks column(s) {missing}; header is {columns}")
+    if ("field" in columns) == ("a" in columns):
+        raise LossfitValueError("path", f"{path!r} needs exactly one of the columns 'field' (G) and 'a' (a0)")
+    has_trap = all(c in columns for c in ("trap_x_hz", "trap_y_hz", "trap_z_hz"))
+    if not has_trap and trap_hz is None:
+        raise LossfitValueError("trap_hz", "trap frequencies are required: pass trap_hz=(f_x, f_y, f_z) in Hz "
+                                "or add trap_x_hz, trap_y_hz, trap_z_hz columns")
+    if not rows:
+        raise LossfitValueError("path", f"{path!r} has no data rows")
+    groups = {}
+    for i, r in enumerate(rows):
+        groups.setdefault(r.get("curve", ""), []).append((i, r))
+
+    def num(i, r, c):
+        try:
+            return float(r[c])
+        except (TypeError, ValueError):
+            raise LossfitValueError("path", f"{path!r} data row {i + 1}: column {c!r} is not a number "
+                                    f"({r[c]!r})") from None
+
+    curves = []
+    for name, members in groups.items():
+        per_curve = {}
+        for c in _CSV_PER_CURVE:
+            if c in columns:
+                values = {r[c] for _, r in members}
+                if len(values) > 1:
+                    raise LossfitValueError("path", f"{path!r}: column {c!r} must be constant within curve "
+                                            f"{name!r}, got {sorted(values)}")
+                per_curve[c] = values.pop()
+        kw = {c: [num(i, r, c) for i, r in members] for c in _CSV_REQUIRED}
+        for c in ("partner_atoms", "partner_atoms_err"):
+            if c in columns:
+                kw[c] = [num(i, r, c) for i, r in members]
+        where = "field" if "field" in columns else "a"
+        kw[where] = num(members[0][0], members[0][1], where)
+        trap = ([num(members[0][0], members[0][1], c) for c in ("trap_x_hz", "trap_y_hz", "trap_z_hz")]
+                if has_trap else trap_hz)
+        curves.append(DecayCurve(trap_hz=trap, kind=per_curve.get("kind") or kind or "atoms",
+                                 label=name or None, **kw))
+    return curves
+
+
+def simulate_curve(t, *, species, trap_hz, efimov, n0, t0_nK, a=None, field=None, resonance=None,
+                   model=None, gamma=0.0, recombination_heating_nK=0.0, density_scale=1.0,
+                   temperature_scale=1.0, atoms_rel_err=0.04, atoms_abs_err=0.0, temperature_rel_err=0.03,
+                   rng=None, label=None):
+    """A synthetic atom-loss curve from the forward model (for invented scenarios and tests).
+
+    The true cloud (``n0`` atoms at ``t0_nK``) evolves under the theory L3 at the
+    instantaneous temperature (:func:`lossfit.decay.simulate_decay`); the "measured"
+    numbers are ``density_scale`` x N(t) and temperatures ``temperature_scale`` x T(t),
+    scattered normally with the stated errors (relative to the measured model value,
+    plus ``atoms_abs_err`` in quadrature).
+
+    Parameters
+    ----------
+    t : array_like
+        Hold times in s.
+    species, trap_hz, efimov, model, gamma, recombination_heating_nK
+        As in :func:`lossfit.decay.simulate_decay` (gamma in 1/s, T_h in nK).
+    n0 : float
+        True initial atom number.
+    t0_nK : float
+        True initial temperature in nK.
+    a : float, optional
+        Scattering length in a0; or ``field`` (G) with ``resonance``.
+    density_scale, temperature_scale : float
+        Calibration factors of the invented apparatus (measured / true).
+    atoms_rel_err, atoms_abs_err, temperature_rel_err : float
+        Noise model.
+    rng : numpy Generator
+    label : str, optional
+
+    Returns
+    -------
+    DecayCurve
+    """
+    from .decay import simulate_decay
+    if rng is None:
+        raise LossfitValueError("rng", "pass a numpy Generator (np.random.default_rng(seed))")
+    if (a is None) == (field is None):
+        raise LossfitValueError("field", "give exactly one of field= (with resonance=) and a=")
+    a_true = a if a is not None else float(resonance.a(field))
+    sol = simulate_decay(t, species=species, trap_hz=trap_hz, n0=n0, t0_nK=t0_nK, efimov=efimov, a=a_true,
+                         model=model, gamma=gamma, recombination_heating_nK=recombination_heating_nK)
+    n_model = density_scale * sol.atoms
+    t_model = temperature_scale * sol.temperature
+    n_err = np.sqrt((atoms_rel_err * n_model) ** 2 + atoms_abs_err ** 2)
+    t_err = temperature_rel_err * t_model
+    n_meas = np.clip(n_model + n_err * rng.standard_normal(n_model.size), 0.0, None)
+    t_meas = t_model + t_err * rng.standard_normal(t_model.size)
+    return DecayCurve(t=sol.t, atoms=n_meas, atoms_err=n_err, temperature=t_meas, temperature_err=t_err,
+                      field=field, a=a if field is None else None, trap_hz=trap_hz, label=label)
+
+
+# --- an invented scenario (not measured data) ---------------------------------------------
+
+#: The invented campaign used by the notebook, the benchmarks and the tests: a Cs-133 gas
+#: (atomic data real, everything else chosen by us) near an invented resonance, atom-loss
+#: curves at fields on the a < 0 side for two temperatures.
+INVENTED_CAMPAIGN = {
+    "description": "invented scenario (not measured data): Cs-133, invented resonance "
+                   "b0 = 550 G, width = 10 G, a_bg = 200 a0; atom-loss curves on the a < 0 side",
+    "species": "133Cs",
+    "resonance": {"b0": 550.0, "width": 10.0, "a_bg": 200.0},
+    "truth": {"a_minus": -900.0, "eta_minus": 0.08, "density_scale": 1.1, "temperature_scale": 1.0},
+    "a_range_a0": (-3500.0, -450.0),
+    "temperatures_nK": (80.0, 250.0),
+    "trap_hz": (40.0, 40.0, 8.0),
+    "n0": 1.0e5,
+    "gamma": 0.02,
+    "points": 15,
+    "lost_fraction": 0.55,       # hold times chosen so that about this fraction is lost
+    "max_hold_s": 8.0,
+    "atoms_rel_err": 0.04,
+    "atoms_abs_err": 500.0,
+    "temperature_rel_err": 0.03,
+}
+
+
+def invented_campaign(seed, *, n_fields=20, scenario=None, model=None, truth=None):
+    """Synthetic decay curves of :data:`INVENTED_CAMPAIGN` (an invented scenario).
+
+    Each field gets one curve per temperature; initial numbers and temperatures vary
+    by 10 % and 5 % from curve to curve, as they would in a laboratory. Hold times are
+    spaced evenly up to the time at which about ``lost_fraction`` of the atoms are gone
+    (estimated from the initial loss rate).
+
+    Parameters
+    ----------
+    seed : int
+    n_fields : int
+        Number of fields (curves = n_fields x number of temperatures).
+    scenario : dict, optional
+        Overrides of :data:`INVENTED_CAMPAIGN` entries.
+    model : str, optional
+        Theory model of the simulation.
+    truth : dict, optional
+        Overrides of the scenario's truth.
+
+    Returns
+    -------
+    curves : list of DecayCurve
+    resonance : FeshbachResonance
+    truth : dict
+    """
+    from .rates import l3
+    from .species import species as _lookup
+    from .universal.threshold import Efimov
+    sc = dict(INVENTED_CAMPAIGN, **(scenario or {}))
+    tr = dict(sc["truth"], **(truth or {}))
+    rng = np.random.default_rng(seed)
+    sp = _lookup(sc["species"])
+    res = FeshbachResonance(**sc["resonance"])
+    ef = Efimov(**{k: v for k, v in tr.items() if k in ("a_minus", "eta_minus", "a_star", "eta_star",
+                                                       "a_plus", "eta_plus")})
+    lo, hi = sc["a_range_a0"]
+    a_values = -np.geomspace(abs(hi), abs(lo), n_fields)
+    fields = res.field(a_values)
+    trap = as_trap(sc["trap_hz"])
+    c3 = trap.n2_coefficient(sp)
+    curves = []
+    for temp in sc["temperatures_nK"]:
+        for b, a in zip(fields, a_values):
+            n0 = sc["n0"] * (1.0 + 0.1 * rng.standard_normal())
+            t0 = temp * (1.0 + 0.05 * rng.standard_normal())
+            rate = float(l3(a, t0, species=sp, efimov=ef, model=model)) * c3 * n0 ** 2 / t0 ** 3
+            # N = N0 / sqrt(1 + 2 K N0^2 t): lost fraction f at t = (1/(1-f)^2 - 1) / (2 rate)
+            f = sc["lost_fraction"]
+            t_end = min(sc["max_hold_s"], (1.0 / (1.0 - f) ** 2 - 1.0) / (2.0 * rate))
+            t = np.linspace(0.0, t_end, sc["points"])
+            curves.append(simulate_curve(
+                t, species=sp, trap_hz=trap, efimov=ef, n0=n0, t0_nK=t0, field=float(b), resonance=res,
+                model=model, gamma=sc["gamma"], density_scale=tr.get("density_scale", 1.0),
+                temperature_scale=tr.get("temperature_scale", 1.0), atoms_rel_err=sc["atoms_rel_err"],
+                atoms_abs_err=sc["atoms_abs_err"], temperature_rel_err=sc["temperature_rel_err"], rng=rng,
+                label=f"{b:.3f} G, {temp:g} nK"))
+    return curves, res, tr

@@ -1,0 +1,165 @@
+"""Figures for decay-curve fits: each curve with its fit and residuals; the derived spectrum."""
+
+__all__ = ["curves_plot", "derived_spectrum_plot"]
+
+import math
+
+import numpy as np
+
+from .curves import check_curves
+from .decay import simulate_decay
+from .errors import LossfitValueError
+from .plotting import _tidy_log_axis, spectrum_plot
+
+
+def _global_models(result, t_fine):
+    """Median-posterior model of every curve from a global FitResult: (fine, at data)."""
+    lik = result.likelihood
+    if not hasattr(lik, "nuisances"):
+        raise LossfitValueError("result", "needs a FitResult of lossfit.inference.global_fit.fit_curves")
+    values = result.median_values()
+    nuis = lik.nuisances(result.efimov(), values)
+    out = []
+    for j, (c, p) in enumerate(zip(lik.curves, nuis)):
+        s_t = p["temperature_scale"]
+        kw = dict(species=lik.species, trap_hz=c.trap, t0_nK=p["t0_nK"] / s_t,
+                  recombination_heating_nK=float(lik.recombination_heating[j]))
+        if c.kind == "dimers":
+            kw.update(n0=p["n_atoms0"], n_dimers0=p["n0"], l3=0.0, beta=p["table"], gamma_dimer=p["gamma"])
+        else:
+            kw.update(n0=p["n0"], l3=p["table"], gamma=p["gamma"])
+        fine = simulate_decay(t_fine[j], **kw)
+        data = simulate_decay(c.t, **kw)
+        pick = (lambda s: s.dimers) if c.kind == "dimers" else (lambda s: s.atoms)
+        out.append((pick(fine), pick(data)))
+    return out
+
+
+def _curve_models(fits, t_fine, species):
+    """Models of per-curve fits (constant L3 or beta): (fine, at data) per curve."""
+    out = []
+    for f, tf in zip(fits, t_fine):
+        c, p = f.curve, f.params
+        kw = dict(species=species, trap_hz=c.trap, t0_nK=p["t0_nK"],
+                  recombination_heating_nK=f.recombination_heating_nK)
+        if c.kind == "dimers":
+            kw.update(n0=p["n_atoms0"], n_dimers0=p["n0"], l3=0.0, beta=p["value"], gamma_dimer=p["gamma"])
+            fine = simulate_decay(tf, **kw).dimers
+        else:
+            kw.update(n0=p["n0"], l3=p["value"], gamma=p["gamma"])
+            fine = simulate_decay(tf, **kw).atoms
+        out.append((fine, f.model_atoms))
+    return out
+
+
+def curves_plot(curves=None, *, fits=None, result=None, species=None, ncols=5, max_curves=None, fig=None):
+    """Each curve's data with its fitted model (top) and normalised residuals (bottom).
+
+    Parameters
+    ----------
+    curves : sequence of DecayCurve, optional
+        Default: the curves of ``fits`` or ``result``.
+    fits : list of CurveFit, optional
+        Per-curve least-squares fits (:func:`lossfit.curvefit.fit_curve`): dashed lines.
+    result : FitResult, optional
+        A global fit (:func:`lossfit.inference.global_fit.fit_curves`): solid lines at the
+        posterior medians, nuisances re-solved there.
+    species : str or Species, optional
+        Needed with ``fits`` only (the global result knows its species).
+    ncols : int
+        Panels per row.
+    max_curves : int, optional
+        Plot only the first so many curves.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    import matplotlib.pyplot as plt
+    if fits is None and result is None:
+        raise LossfitValueError("fits", "give per-curve fits, a global result, or both")
+    if curves is None:
+        curves = [f.curve for f in fits] if fits is not None else result.likelihood.curves
+    curves = check_curves(curves)
+    if fits is not None:
+        if len(fits) != len(curves):
+            raise LossfitValueError("fits", f"has {len(fits)} entries for {len(curves)} curves")
+        if species is None:
+            raise LossfitValueError("species", "is needed to draw the per-curve fits")
+    if result is not None and len(result.likelihood.curves) != len(curves):
+        raise LossfitValueError("result", "was fitted to a different number of curves")
+    n = len(curves) if max_curves is None else min(int(max_curves), len(curves))
+    t_fine = [np.linspace(0.0, c.t[-1], 120) for c in curves]
+    glob = _global_models(result, t_fine) if result is not None else None
+    per = _curve_models(fits, t_fine, species) if fits is not None else None
+    ncols = max(1, min(int(ncols), n))
+    nrows = math.ceil(n / ncols)
+    if fig is None:
+        fig = plt.figure(figsize=(2.9 * ncols, 3.2 * nrows), layout="constrained")
+    outer = fig.add_gridspec(nrows, ncols)
+    for j in range(n):
+        c = curves[j]
+        inner = outer[j // ncols, j % ncols].subgridspec(2, 1, height_ratios=(3, 1), hspace=0.05)
+        ax = fig.add_subplot(inner[0])
+        axr = fig.add_subplot(inner[1], sharex=ax)
+        ax.errorbar(c.t, c.atoms, yerr=c.atoms_err, fmt="o", ms=3, color="k", elinewidth=0.7, capsize=1.5)
+        for models, style, name in ((glob, "-", "global"), (per, "--", "per curve")):
+            if models is None:
+                continue
+            fine, at_data = models[j]
+            line, = ax.plot(t_fine[j], fine, style, lw=1.3, label=name)
+            axr.plot(c.t, (c.atoms - at_data) / c.atoms_err, "o", ms=2.5, color=line.get_color())
+        axr.axhline(0.0, color="0.5", lw=0.7)
+        axr.set_ylim(-4, 4)
+        ax.set_title(c.label, fontsize=7)
+        ax.tick_params(labelsize=6, labelbottom=False)
+        axr.tick_params(labelsize=6)
+        if j % ncols == 0:
+            ax.set_ylabel("dimers" if c.kind == "dimers" else "atoms", fontsize=7)
+            axr.set_ylabel("resid. (σ)", fontsize=7)
+        if j // ncols == nrows - 1 or j + ncols >= n:
+            axr.set_xlabel("hold time (s)", fontsize=7)
+        if j == 0:
+            ax.legend(fontsize=6)
+    return fig
+
+
+def derived_spectrum_plot(spectra=None, *, result=None, fig=None, **kwargs):
+    """The loss spectrum derived from per-curve fits (the two-stage route).
+
+    With ``result`` (a global fit) this is :func:`lossfit.plotting.spectrum_plot` over
+    the per-curve points grouped by temperature, with the global posterior's median
+    and 68/95 % bands. Without it, the points of ``spectra`` alone.
+
+    Parameters
+    ----------
+    spectra : list of LossSpectrum, optional
+        From :func:`lossfit.curvefit.spectrum_from_curves`.
+    result : FitResult, optional
+    **kwargs
+        Passed to :func:`lossfit.plotting.spectrum_plot`.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    import matplotlib.pyplot as plt
+    if result is not None:
+        return spectrum_plot(result, fig=fig, **kwargs)
+    if not spectra:
+        raise LossfitValueError("spectra", "give the derived spectra or a global result")
+    if fig is None:
+        fig = plt.figure(figsize=(5.2 * len(spectra), 4.2), layout="constrained")
+    axes = fig.subplots(1, len(spectra), squeeze=False)[0]
+    for ax, s in zip(axes, spectra):
+        sc = ax.scatter(np.abs(s.a), s.value, c=s.temperature, s=14, cmap="viridis", zorder=3)
+        ax.errorbar(np.abs(s.a), s.value, yerr=s.error, fmt="none", ecolor="0.4", elinewidth=0.7, zorder=2)
+        ax.set_xscale("log")
+        ax.set_yscale("log")
+        _tidy_log_axis(ax.xaxis)
+        side = "a < 0" if (s.a < 0).all() else "a > 0" if (s.a > 0).all() else "both sides"
+        ax.set_xlabel(r"$|a|$ ($a_0$), " + side)
+        ax.set_ylabel(r"$L_3$ (cm$^6$/s)" if s.kind == "l3" else r"$\beta$ (cm$^3$/s)")
+        ax.set_title(s.label, fontsize=9)
+        fig.colorbar(sc, ax=ax, label="temperature (nK)")
+    return fig
