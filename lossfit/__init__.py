@@ -10,6 +10,8 @@ __version__ = "0.1.0"
 from . import errors
 from .constants import S0, SCALING_FACTOR
 from .errors import LossfitError, LossfitValueError
+from .curvefit import fit_curve, spectrum_from_curves
+from .curves import DecayCurve, read_campaign, read_curves_csv, write_campaign
 from .data import LossSpectrum, read_csv, read_spectra, write_spectra
 from .decay import TabulatedRate, simulate_decay
 from .feshbach import (FeshbachResonance, OverlappingResonances, ScatteringLengthTable,
@@ -29,7 +31,8 @@ __all__ = ["__version__", "errors", "S0", "SCALING_FACTOR", "LossfitError", "Los
            "fit", "FitResult", "LogUniform", "Uniform", "LogNormal", "Normal",
            "HarmonicTrap", "simulate_decay", "TabulatedRate", "FeshbachResonance",
            "OverlappingResonances", "ScatteringLengthTable", "average_over_field_noise",
-           "calibrate_from_binding_energies"]
+           "calibrate_from_binding_energies", "DecayCurve", "write_campaign", "read_campaign",
+           "read_curves_csv", "fit_curve", "spectrum_from_curves"]
 
 # The inference layer imports emcee and scipy.stats (about a second); load it on first use
 # so that computing rates starts fast.

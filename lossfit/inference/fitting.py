@@ -144,13 +144,17 @@ def make_result(space, likelihood, chain, log_prob, acceptance, *, burn=None, th
 
 def fit(data, *, species, free, model=None, priors=None, walkers=32, steps=3000, burn=None, thin=1,
         seed=None, backend=None, pool=None, fixed=None, tie=None, density_sigma=None,
-        progress=None, initial=None, rtol=1e-7, checkpoint_every=100, log_every=None, metadata=None):
+        progress=None, initial=None, rtol=1e-7, checkpoint_every=100, log_every=None, metadata=None,
+        **curve_options):
     """Sample the posterior of Efimov parameters given loss spectra.
 
     Parameters
     ----------
-    data : LossSpectrum or sequence of LossSpectrum
-        Any mix of L3 (either side, any temperatures) and beta spectra.
+    data : LossSpectrum, DecayCurve, or a sequence of either
+        Any mix of L3 (either side, any temperatures) and beta spectra; or raw decay
+        curves, which are fitted globally by
+        :func:`lossfit.inference.global_fit.fit_curves` (its extra options, such as
+        ``resonance`` and ``systematics``, pass through ``**curve_options``).
     species : Species or str
     free : sequence of str
         Parameters to sample: any of ``a_minus, eta_minus, a_star, eta_star, a_plus,
@@ -197,6 +201,19 @@ def fit(data, *, species, free, model=None, priors=None, walkers=32, steps=3000,
     -------
     FitResult
     """
+    from ..curves import DecayCurve
+    items = [data] if isinstance(data, (LossSpectrum, DecayCurve)) else list(data)
+    if items and all(isinstance(d, DecayCurve) for d in items):
+        from .global_fit import fit_curves
+        return fit_curves(items, species=species, free=free, model=model, priors=priors, walkers=walkers,
+                          steps=steps, burn=burn, thin=thin, seed=seed, backend=backend, pool=pool,
+                          fixed=fixed, tie=tie, density_sigma=density_sigma, progress=progress,
+                          initial=initial, rtol=rtol, checkpoint_every=checkpoint_every,
+                          log_every=log_every, metadata=metadata, **curve_options)
+    if curve_options:
+        raise LossfitValueError(sorted(curve_options)[0], "is an option of decay-curve fits only")
+    if any(isinstance(d, DecayCurve) for d in items):
+        raise LossfitValueError("data", "mixes decay curves and spectra; fit one kind at a time")
     for name, value, lo in (("walkers", walkers, 2), ("steps", steps, 2), ("thin", thin, 1)):
         if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < lo:
             raise LossfitValueError(name, f"must be an integer >= {lo}, got {value!r}")
