@@ -71,6 +71,14 @@ def _check_constrained(space, spectra):
             raise LossfitValueError("free", f"{name} is free but there is no {what} to constrain it")
 
 
+def _negative_finite(posterior):
+    # Nelder-Mead needs finite values: outside the prior support return a huge one.
+    def objective(theta):
+        lp = posterior(theta)
+        return -lp if np.isfinite(lp) else 1e300
+    return objective
+
+
 def _start(posterior, space, walkers, rng, initial):
     ndim = space.ndim
     if initial is not None:
@@ -85,8 +93,7 @@ def _start(posterior, space, walkers, rng, initial):
             raise LossfitValueError("priors", "no prior draw gives a finite posterior; check data and priors")
         best = None
         for i in np.argsort(-lps)[:6]:
-            res = minimize(lambda t: -posterior(t) if np.isfinite(posterior(t)) else 1e300,
-                           thetas[i], method="Nelder-Mead",
+            res = minimize(_negative_finite(posterior), thetas[i], method="Nelder-Mead",
                            options={"maxiter": 400 * ndim, "xatol": 1e-6, "fatol": 1e-8})
             if best is None or res.fun < best.fun:
                 best = res
