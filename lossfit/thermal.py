@@ -96,10 +96,28 @@ def feature_points(func):
 
 
 @numba.njit(cache=True)
+def _gk15_rule(f, half):
+    """K15 value and QUADPACK error estimate from the 15 integrand values ``f`` of an
+    interval of half-length ``half`` (Piessens et al., QUADPACK (1983), qk15)."""
+    resk = 0.0
+    resg = 0.0
+    resabs = 0.0
+    for j in range(15):
+        resk += _WK15[j] * f[j]
+        resg += _WG15[j] * f[j]
+        resabs += _WK15[j] * abs(f[j])
+    mean = 0.5 * resk
+    resasc = 0.0
+    for j in range(15):
+        resasc += _WK15[j] * abs(f[j] - mean)
+    return resk * half, _quadpack_error(resk, resg, resasc, resabs, half)
+
+
+@numba.njit(cache=True)
 def _quadpack_error(resk, resg, resasc, resabs, half):
-    # QUADPACK's error estimate for qk15 (Piessens et al. 1983): |K15 - G7| is the error
-    # of the 7-point rule; scaling it as (200 |K-G| / resasc)^1.5 estimates the far
-    # smaller error of K15 itself for smooth integrands, with a round-off floor.
+    # |K15 - G7| is the error of the 7-point rule; scaling it as
+    # (200 |K-G| / resasc)^1.5 estimates the far smaller error of K15 itself for smooth
+    # integrands, with a round-off floor.
     err = abs((resk - resg) * half)
     resasc *= abs(half)
     if resasc != 0.0 and err != 0.0:
@@ -119,18 +137,7 @@ def _gk15(kernel, p, weight, a, b, f):
         u2 = centre + du
         f[j] = kernel(u1 * u1, p) * boltzmann_weight(u1, weight)
         f[14 - j] = kernel(u2 * u2, p) * boltzmann_weight(u2, weight)
-    resk = 0.0
-    resg = 0.0
-    resabs = 0.0
-    for j in range(15):
-        resk += _WK15[j] * f[j]
-        resg += _WG15[j] * f[j]
-        resabs += _WK15[j] * abs(f[j])
-    mean = 0.5 * resk
-    resasc = 0.0
-    for j in range(15):
-        resasc += _WK15[j] * abs(f[j] - mean)
-    return resk * half, _quadpack_error(resk, resg, resasc, resabs, half)
+    return _gk15_rule(f, half)
 
 
 def _base_panel_tables():
@@ -155,20 +162,9 @@ _MAX_EDGES = 256
 
 @numba.njit
 def _base_panel(kernel, p, weight, i, f):
-    half = 0.5 * (_BASE_EDGES[i + 1] - _BASE_EDGES[i])
-    resk = 0.0
-    resg = 0.0
-    resabs = 0.0
     for j in range(15):
         f[j] = kernel(_PANEL_X[i, j], p) * _PANEL_BW[weight, i, j]
-        resk += _WK15[j] * f[j]
-        resg += _WG15[j] * f[j]
-        resabs += _WK15[j] * abs(f[j])
-    mean = 0.5 * resk
-    resasc = 0.0
-    for j in range(15):
-        resasc += _WK15[j] * abs(f[j] - mean)
-    return resk * half, _quadpack_error(resk, resg, resasc, resabs, half)
+    return _gk15_rule(f, 0.5 * (_BASE_EDGES[i + 1] - _BASE_EDGES[i]))
 
 
 @numba.njit(cache=True)
