@@ -189,7 +189,7 @@ def main():
 
     kap_grid = np.geomspace(100.0, 1e-3, 12 if args.quick else 60)
     tr_inv, tr_kk = trimer_branch_negative_a(kap_grid, nchan=nchan)
-    kap_pos = 1.0 + np.geomspace(99.0, 0.01, 8 if args.quick else 40)
+    kap_pos = 1.0 + np.geomspace(99.0, 0.01, 8 if args.quick else 24)
     tp_inv, tp_kk = trimer_branch_positive_a(kap_pos, nchan=16 if args.quick else 48, rm=16.0)
     print(f"[{time.time() - t0:7.1f} s] trimer branches done", flush=True)
 
