@@ -99,7 +99,7 @@ def main(argv=None):
             try:
                 r = one_campaign(args.first_seed + i, n_fields=args.fields, walkers=args.walkers,
                                  steps=args.steps, inner_steps=args.inner_steps)
-            except lf.LossfitError as err:       # record, do not hide: a failed campaign is a result
+            except lf.LossfitValueError as err:  # record, do not hide: a failed campaign is a result
                 failures.append({"seed": args.first_seed + i, "error": str(err)})
                 print(f"campaign {i + 1}/{args.campaigns}: FAILED {err}", flush=True)
                 continue

@@ -1,7 +1,8 @@
 """Command line for interactive and batch use.
 
-``lossfit demo --out DIR``
+``lossfit demo --out DIR [--from-curves]``
     Fit the built-in invented scenario; writes data, job file, chain, summary, figures.
+    ``--from-curves`` starts from invented raw decay curves (global fit).
 ``lossfit run JOB.toml --out DIR [--pool serial|processes|mpi] [--workers N] [--steps N]``
     Run or resume a job (schema: :mod:`lossfit.jobs`); under MPI start it as
     ``mpiexec -n N lossfit run JOB.toml --out DIR --pool mpi``.
@@ -22,9 +23,14 @@ from .errors import LossfitValueError
 
 
 def _cmd_demo(args):
-    from .demo import run_demo
-    run_demo(args.out, walkers=args.walkers, steps=args.steps, seed=args.seed,
-             overwrite=args.overwrite, progress=None if not args.quiet else False)
+    from .demo import run_curves_demo, run_demo
+    progress = None if not args.quiet else False
+    if args.from_curves:
+        run_curves_demo(args.out, walkers=args.walkers or 16, steps=args.steps or 1500, seed=args.seed,
+                        overwrite=args.overwrite, progress=progress)
+    else:
+        run_demo(args.out, walkers=args.walkers or 32, steps=args.steps or 5000, seed=args.seed,
+                 overwrite=args.overwrite, progress=progress)
     return 0
 
 
@@ -49,8 +55,10 @@ def build_parser():
     sub = parser.add_subparsers(dest="command", required=True)
     demo = sub.add_parser("demo", help="fit the built-in invented demo scenario and write all outputs")
     demo.add_argument("--out", required=True, help="output folder (created; existing results are kept)")
-    demo.add_argument("--walkers", type=int, default=32)
-    demo.add_argument("--steps", type=int, default=5000)
+    demo.add_argument("--from-curves", action="store_true",
+                      help="start from invented raw decay curves (global fit) instead of spectra")
+    demo.add_argument("--walkers", type=int, default=None, help="default 32 (16 with --from-curves)")
+    demo.add_argument("--steps", type=int, default=None, help="default 5000 (1500 with --from-curves)")
     demo.add_argument("--seed", type=int, default=1)
     demo.add_argument("--overwrite", action="store_true", help="replace results already in --out")
     demo.add_argument("--quiet", action="store_true", help="no progress bar")

@@ -11,7 +11,8 @@ from .inference.parameters import UNITS
 
 _LABELS = {"a_minus": r"$a_-$", "a_star": r"$a_*$", "a_plus": r"$a_+$", "eta_minus": r"$\eta_-$",
            "eta_star": r"$\eta_*$", "eta_plus": r"$\eta_+$", "eta": r"$\eta$",
-           "density_scale": r"density scale"}
+           "density_scale": r"density scale", "temperature_scale": r"temperature scale",
+           "b0": r"$B_0$", "width": r"$\Delta$", "a_bg": r"$a_\mathrm{bg}$", "sigma_B": r"$\sigma_B$"}
 
 
 def _label(name):

@@ -51,3 +51,16 @@ def test_demo_writes_all_outputs_and_refuses_to_overwrite(tmp_path):
     again = _lossfit("demo", "--out", str(out), "--steps", "600", "--quiet")
     assert again.returncode == 3 and "--overwrite" in again.stderr     # documented exit code
     assert (out / "summary.json").read_bytes() == before
+
+
+@pytest.mark.slow
+def test_demo_from_raw_curves(tmp_path):
+    out = tmp_path / "curves-demo"
+    proc = _lossfit("demo", "--from-curves", "--out", str(out), "--steps", "300", "--walkers", "12", "--quiet")
+    assert proc.returncode == 0, proc.stderr
+    for name in ("campaign.h5", "chains.h5", "summary.json", "curves.png", "spectrum.png", "corner.png"):
+        assert (out / name).stat().st_size > 0
+    summary = json.loads((out / "summary.json").read_text())
+    assert "invented" in summary["provenance"]["scenario"]
+    assert {r["name"] for r in summary["summary"]} >= {"a_minus", "eta_minus", "density_scale",
+                                                       "temperature_scale"}

@@ -38,8 +38,18 @@ start from the previous call would make it depend on the walker's history and br
 detailed balance). Measured accuracy (tests/test_global_fit.py against
 ``least_squares`` over all nuisances): exact at the reference, and within 2 % of
 Delta chi2 for points up to Delta chi2 ~ 20 away from it. Cost: (inner_steps + 1)
-batched integrations per call. The effect on coverage is measured in
-``benchmarks/coverage_study.py``.
+batched integrations per call. Measured (``benchmarks/bench_global.py``, invented
+scenario, 40 curves x 15 points, 2-core machine): 1.4 ms per log-likelihood when idle,
+of which about 0.25 ms builds the rate tables and 0.45 ms is each batched integration;
+over 30 posterior draws the chord chi2 exceeds the exact profile by a median of 0.01
+(max 0.05), far below the posterior's chi2 spread. Coverage
+(``benchmarks/coverage_study.py``, 30 invented campaigns, calibration truths drawn from
+the priors): the 68 % intervals held the truth in 73 % (a_-), 60 % (eta_-) and 53 %
+(density scale) of campaigns, 95 % intervals in 97 %, 97 % and 90 % (binomial
+s.e. 0.09 and 0.04); the two-stage route gave 80 %, 37 %, 17 % and 97 %, 73 %, 27 %.
+Repeating 24 of those campaigns with ``inner_steps=2`` changed 1 of 72 containments and
+moved medians by 0.07 sigma rms (sampling noise): the chord approximation does not
+limit coverage.
 
 L3(T) and beta(T) at each curve's scattering length enter the rate equations only
 through a table of the theory on a small, fixed grid of true temperatures per curve
@@ -69,7 +79,7 @@ from ..errors import LossfitValueError, ValidityWarning
 from ..feshbach import FeshbachResonance
 from ..species import species as _lookup_species
 from ..universal.models import DEFAULT_MODEL, get_model
-from .fitting import _coerce_priors, _interactive, _start, make_result
+from .fitting import _coerce_priors, _interactive, make_result
 from .likelihood import _Block
 from .parameters import ParameterSpace, default_priors
 from .priors import LogNormal, Normal, Prior
@@ -135,7 +145,7 @@ class _FastTable(TabulatedRate):
     """A TabulatedRate built from precomputed spline coefficients (no re-validation:
     the likelihood produces them from finite, positive theory values)."""
 
-    def __init__(self, knots, coefs, temps, values):  # noqa: D107 - see class docstring
+    def __init__(self, knots, coefs, temps, values):
         self._knots = knots
         self._coefs = coefs
         self.temperature_nK = temps
@@ -499,9 +509,8 @@ class CurvesLikelihood:
         jac[self.res_index == self.n_res] = 0.0
         return jac
 
-    def refresh(self, efimov, values):
-        """Solve every curve's nuisances exactly at (efimov, values) and make that the
-        reference point, with fresh Jacobians frozen there.
+    def _solve_inner(self, efimov, values):
+        """Exact per-curve nuisances at (efimov, values): (x, chi2_min, tables, s_t).
 
         One :func:`scipy.optimize.least_squares` problem over all curves' nuisances with
         the block-diagonal Jacobian sparsity declared, so that its finite differences
@@ -510,7 +519,7 @@ class CurvesLikelihood:
         """
         tables = self.tables(efimov, values)
         if tables is None:
-            raise LossfitValueError("initial", "the reference point has zero likelihood")
+            raise LossfitValueError("values", "zero likelihood at these parameters")
         s_t = values.get("temperature_scale", 1.0)
         act = self.active
         base = self.x_ref.copy()
@@ -535,6 +544,19 @@ class CurvesLikelihood:
                             xtol=1e-10, ftol=1e-10, gtol=1e-10, max_nfev=200)
         x = base.copy()
         x[act] = sol.x
+        return x, 2.0 * float(sol.cost), tables, s_t
+
+    def profile_chi2(self, efimov, values):
+        """Exact minimum over every curve's nuisances of chi2 (what the chord step approximates)."""
+        return self._solve_inner(efimov, values)[1]
+
+    def refresh(self, efimov, values):
+        """Solve every curve's nuisances exactly at (efimov, values) and make that the
+        reference point, with fresh Jacobians frozen there."""
+        try:
+            x, _, tables, s_t = self._solve_inner(efimov, values)
+        except LossfitValueError:
+            raise LossfitValueError("initial", "the reference point has zero likelihood") from None
         self._set_reference(x, self.jacobian(x, tables, s_t))
 
     def nuisances(self, efimov, values):
@@ -712,7 +734,7 @@ def fit_curves(curves, *, species, free, model=None, priors=None, resonance=None
                                metadata=metadata)
     if done == 0:
         centre = _find_centre(posterior, space, likelihood, rng, initial)
-        p0 = _start(posterior, space, walkers, rng, space.values(centre))
+        p0 = _ball(posterior, space, walkers, rng, centre)
     else:
         centre = store.get_last_sample().coords[int(np.argmax(store.get_last_sample().log_prob))]
         vals = space.values(centre)
@@ -732,6 +754,9 @@ def fit_curves(curves, *, species, free, model=None, priors=None, resonance=None
 def _find_centre(posterior, space, likelihood, rng, initial, draws=48):
     """Posterior mode: best prior draw, Nelder-Mead, refresh the nuisance reference there, polish."""
     if initial is not None:
+        missing = [n for n in space.names if n not in initial]
+        if missing:
+            raise LossfitValueError("initial", f"needs values for {missing}")
         theta = space.theta([initial[n] for n in space.names])
     else:
         pri = np.column_stack([p.sample(rng, draws) for p in space.priors])
@@ -740,10 +765,43 @@ def _find_centre(posterior, space, likelihood, rng, initial, draws=48):
         if not np.isfinite(lps).any():
             raise LossfitValueError("priors", "no prior draw gives a finite posterior; check data and priors")
         theta = thetas[int(np.argmax(lps))]
+
+    def objective(t):
+        lp = posterior(t)
+        return -lp if np.isfinite(lp) else 1e300
+
     for _ in range(2):
-        res = minimize(lambda t: -posterior(t) if np.isfinite(posterior(t)) else 1e300, theta,
-                       method="Nelder-Mead", options={"maxiter": 150 * space.ndim, "xatol": 1e-4, "fatol": 1e-3})
+        # simplex edges of 30 x the walker ball: 3 % in ln|value|, less for tight priors
+        simplex = theta + np.vstack([np.zeros(space.ndim), np.diag(30.0 * _scales(space))])
+        res = minimize(objective, theta, method="Nelder-Mead",
+                       options={"maxiter": 150 * space.ndim, "xatol": 1e-5, "fatol": 1e-3,
+                                "initial_simplex": simplex})
         theta = res.x
         vals = space.values(theta)
         likelihood.refresh(space.efimov(vals), vals)
     return theta
+
+
+def _scales(space):
+    """Per-coordinate start scale in theta: 1e-3, at most a tenth of a Normal prior's
+    relative width (a resonance known to 5 mG at 550 G has width 1e-5 in ln b0)."""
+    scale = np.full(space.ndim, 1e-3)
+    for i, p in enumerate(space.priors):
+        if isinstance(p, Normal):
+            scale[i] = min(scale[i], 0.1 * p.sigma / abs(p.mu))
+    return scale
+
+
+def _ball(posterior, space, walkers, rng, centre):
+    """Walkers in a small ball around the mode, each coordinate scaled by :func:`_scales`."""
+    scale = _scales(space)
+    p0 = np.empty((walkers, space.ndim))
+    for w in range(walkers):
+        for _ in range(1000):
+            trial = centre + scale * rng.standard_normal(space.ndim)
+            if np.isfinite(posterior(trial)):
+                break
+        else:
+            raise LossfitValueError("initial", "no finite posterior near the mode")
+        p0[w] = trial
+    return p0

@@ -23,7 +23,8 @@ from .priors import LogNormal, LogUniform, Prior
 EFIMOV_NAMES = ("a_minus", "eta_minus", "a_star", "eta_star", "a_plus", "eta_plus")
 NUISANCE_NAMES = ("density_scale",)
 UNITS = {"a_minus": "a0", "a_star": "a0", "a_plus": "a0", "eta_minus": "", "eta_star": "",
-         "eta_plus": "", "eta": "", "density_scale": ""}
+         "eta_plus": "", "eta": "", "density_scale": "", "temperature_scale": "", "b0": "G",
+         "width": "G", "a_bg": "a0", "sigma_B": "G"}
 SIGNS = {"a_minus": -1.0}
 DEFAULT_ETA_PRIOR = (0.005, 2.0)
 

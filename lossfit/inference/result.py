@@ -27,6 +27,16 @@ REFERENCES = {
 }
 
 
+def _digits(row):
+    # Enough significant digits that the 68 % interval is resolved (a field of 550.0 G
+    # known to 0.01 G needs six), at least four.
+    width = abs(row["hi68"] - row["lo68"])
+    scale = max(abs(row["median"]), abs(row["lo95"]), abs(row["hi95"]))
+    if width == 0 or scale == 0 or not math.isfinite(width / scale):
+        return 4
+    return int(min(10, max(4, math.ceil(math.log10(scale / width)) + 2)))
+
+
 def _quantiles(x):
     q = np.percentile(x, [2.5, 16.0, 50.0, 84.0, 97.5])
     return {"median": q[2], "lo68": q[1], "hi68": q[3], "lo95": q[0], "hi95": q[4],
@@ -165,25 +175,28 @@ class FitResult:
 
     def table(self):
         """Plain-text summary table."""
-        head = (f"{'parameter':<16}{'median':>12}{'68% interval':>26}{'95% interval':>26}"
+        rows = self.summary()
+        w = max([16] + [len(r["name"]) + len(r["units"]) + 4 for r in rows])
+        head = (f"{'parameter':<{w}}{'median':>12}{'68% interval':>26}{'95% interval':>26}"
                 f"{'tau':>8}{'ESS':>9}{'R-hat':>7}")
         lines = [f"lossfit posterior — model: {self.model.label}; species {self.species.name}; "
                  f"{self.chain.shape[1]} walkers x {self.chain.shape[0]} steps, burn-in {self.burn}, "
                  f"acceptance {self.acceptance_fraction:.2f}", head, "-" * len(head)]
-        for r in self.summary():
-            ci68 = f"[{r['lo68']:.4g}, {r['hi68']:.4g}]"
-            ci95 = f"[{r['lo95']:.4g}, {r['hi95']:.4g}]"
+        for r in rows:
+            d = _digits(r)
+            ci68 = f"[{r['lo68']:.{d}g}, {r['hi68']:.{d}g}]"
+            ci95 = f"[{r['lo95']:.{d}g}, {r['hi95']:.{d}g}]"
             name = r["name"] + (f" ({r['units']})" if r["units"] else "")
             if "tau" in r:
-                lines.append(f"{name:<16}{r['median']:>12.5g}{ci68:>26}{ci95:>26}"
+                lines.append(f"{name:<{w}}{r['median']:>12.{d + 1}g}{ci68:>26}{ci95:>26}"
                              f"{r['tau']:>8.1f}{r['ess']:>9.0f}{r['rhat']:>7.3f}")
             else:
-                lines.append(f"{name:<16}{r['median']:>12.5g}{ci68:>26}{ci95:>26}"
+                lines.append(f"{name:<{w}}{r['median']:>12.{d + 1}g}{ci68:>26}{ci95:>26}"
                              f"   reference {r['reference']:.4g}: {r['reference_source']}")
         if len(self.names) > 1:
             lines.append("correlation matrix (" + ", ".join(self.names) + "):")
             for n, row in zip(self.names, self.correlation()):
-                lines.append(f"  {n:<14}" + " ".join(f"{v:+.2f}" for v in row))
+                lines.append(f"  {n:<{w - 2}}" + " ".join(f"{v:+.2f}" for v in row))
         for w in self.warnings:
             lines.append(f"WARNING: {w}")
         return "\n".join(lines)
