@@ -121,7 +121,8 @@ def _quadpack_error(resk, resg, resasc, resabs, half):
     err = abs((resk - resg) * half)
     resasc *= abs(half)
     if resasc != 0.0 and err != 0.0:
-        err = resasc * min(1.0, (200.0 * err / resasc) ** 1.5)
+        r = 200.0 * err / resasc
+        err = resasc * min(1.0, r * math.sqrt(r))
     floor = 50.0 * 2.22e-16 * resabs * abs(half)
     return max(err, floor)
 
