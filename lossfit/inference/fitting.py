@@ -32,7 +32,7 @@ class Posterior:
         if lp == -math.inf:
             return -math.inf
         values = self.space.values(theta)
-        return lp + self.likelihood(self.space.efimov(values), self.space.density_scale(values))
+        return lp + self.likelihood.given_values(self.space.efimov(values), values)
 
 
 def _interactive():

@@ -79,7 +79,7 @@ from ..errors import LossfitValueError, ValidityWarning
 from ..feshbach import FeshbachResonance
 from ..species import species as _lookup_species
 from ..universal.models import DEFAULT_MODEL, get_model
-from .fitting import _coerce_priors, _interactive, make_result
+from .fitting import Posterior, _coerce_priors, _interactive, make_result
 from .likelihood import _Block
 from .parameters import ParameterSpace, default_priors
 from .priors import LogNormal, Normal, Prior
@@ -126,19 +126,9 @@ class CampaignSpace(ParameterSpace):
         return out
 
 
-class CampaignPosterior:
-    """log posterior of the global fit in sampling coordinates (picklable for pools)."""
-
-    def __init__(self, space, likelihood):
-        self.space = space
-        self.likelihood = likelihood
-
-    def __call__(self, theta):
-        lp = self.space.log_prior(theta)
-        if lp == -math.inf:
-            return -math.inf
-        values = self.space.values(theta)
-        return lp + self.likelihood(self.space.efimov(values), values)
+#: The global fit's posterior is the library's: its likelihood reads every nuisance
+#: from the values dict (:meth:`CurvesLikelihood.given_values`).
+CampaignPosterior = Posterior
 
 
 class _FastTable(TabulatedRate):
@@ -460,6 +450,10 @@ class CurvesLikelihood:
             fixed[:, 3] = 0.0
             new[low] = fixed
         return new
+
+    def given_values(self, efimov, values):
+        """log L for the Efimov set and a dict of every parameter value (nuisances)."""
+        return self(efimov, values)
 
     def __call__(self, efimov, values):
         tables = self.tables(efimov, values)

@@ -98,6 +98,10 @@ class SpectrumLikelihood:
         counters = {kind: iter(arrs) for kind, arrs in per_kind.items()}
         return [next(counters[s.kind]) for s in self.spectra]
 
+    def given_values(self, efimov, values):
+        """log L for the Efimov set and a dict of every parameter value (nuisances)."""
+        return self(efimov, values.get("density_scale", 1.0))
+
     def __call__(self, efimov, density_scale=1.0):
         total = 0.0
         for b in self.blocks:
