@@ -34,3 +34,32 @@ def atomic_path(path, *, overwrite=True, argument="path"):
         if os.path.exists(tmp):
             os.remove(tmp)
         raise
+
+
+def open_checked_h5(path, schema, max_version, *, argument="path"):
+    """Open a lossfit HDF5 file for reading after checking its schema and version.
+
+    Missing, truncated or foreign files and newer versions raise
+    :class:`lossfit.errors.LossfitValueError` naming ``argument``; the caller closes the
+    returned :class:`h5py.File` (use it in a ``with`` block).
+    """
+    import h5py
+    from .errors import LossfitValueError
+    path = os.fspath(path)
+    if not os.path.exists(path):
+        raise LossfitValueError(argument, f"no such file {path!r}")
+    try:
+        h5 = h5py.File(path, "r")
+    except OSError as err:
+        raise LossfitValueError(argument, f"{path!r} is truncated or not an HDF5 file that can be "
+                                f"read ({err})") from None
+    found = h5.attrs.get("schema")
+    version = int(h5.attrs.get("schema_version", -1))
+    if found != schema:
+        h5.close()
+        raise LossfitValueError(argument, f"{path!r} has schema {found!r}, expected {schema!r}")
+    if not 1 <= version <= max_version:
+        h5.close()
+        raise LossfitValueError(argument, f"{path!r} has {schema} schema version {version}; this "
+                                f"lossfit reads versions 1..{max_version}")
+    return h5

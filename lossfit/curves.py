@@ -38,7 +38,7 @@ from dataclasses import dataclass, field as _dc_field
 
 import numpy as np
 
-from ._io import atomic_path
+from ._io import atomic_path, open_checked_h5
 from .errors import LossfitValueError, check_finite, check_positive
 from .feshbach import FeshbachResonance
 from .trap import HarmonicTrap, as_trap
@@ -328,22 +328,8 @@ def read_campaign(path):
     -------
     Campaign
     """
-    import h5py
     path = os.fspath(path)
-    if not os.path.exists(path):
-        raise LossfitValueError("path", f"no such file {path!r}")
-    try:
-        h5 = h5py.File(path, "r")
-    except OSError as err:
-        raise LossfitValueError("path", f"{path!r} is truncated or not an HDF5 file ({err})") from None
-    with h5:
-        schema = h5.attrs.get("schema")
-        if schema != CAMPAIGN_SCHEMA:
-            raise LossfitValueError("path", f"{path!r} has schema {schema!r}, expected {CAMPAIGN_SCHEMA!r}")
-        version = int(h5.attrs.get("schema_version", -1))
-        if not 1 <= version <= CAMPAIGN_SCHEMA_VERSION:
-            raise LossfitValueError("path", f"{path!r} has campaign schema version {version}; this lossfit "
-                                    f"reads versions 1..{CAMPAIGN_SCHEMA_VERSION}")
+    with open_checked_h5(path, CAMPAIGN_SCHEMA, CAMPAIGN_SCHEMA_VERSION) as h5:
         try:
             metadata = json.loads(h5.attrs.get("metadata", "{}"))
             resonance = None

@@ -20,7 +20,7 @@ import os
 
 import numpy as np
 
-from ._io import atomic_path
+from ._io import atomic_path, open_checked_h5
 from .errors import LossfitValueError, check_finite, check_nonzero, check_positive
 
 SCHEMA = "lossfit.spectra"
@@ -141,22 +141,8 @@ def read_spectra(path):
     -------
     list of LossSpectrum
     """
-    import h5py
     path = os.fspath(path)
-    if not os.path.exists(path):
-        raise LossfitValueError("path", f"no such file {path!r}")
-    try:
-        h5 = h5py.File(path, "r")
-    except OSError as err:
-        raise LossfitValueError("path", f"{path!r} is not a readable HDF5 file ({err})") from None
-    with h5:
-        schema = h5.attrs.get("schema")
-        version = int(h5.attrs.get("schema_version", -1))
-        if schema != SCHEMA:
-            raise LossfitValueError("path", f"{path!r} has schema {schema!r}, expected {SCHEMA!r}")
-        if version > SCHEMA_VERSION or version < 1:
-            raise LossfitValueError("path", f"{path!r} has schema version {version}; this lossfit "
-                                    f"reads versions 1..{SCHEMA_VERSION}")
+    with open_checked_h5(path, SCHEMA, SCHEMA_VERSION) as h5:
         out = []
         for key in sorted(h5["spectra"]):
             g = h5["spectra"][key]

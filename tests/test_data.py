@@ -91,7 +91,7 @@ def test_reader_rejects_foreign_truncated_and_newer_files(tmp_path):
     lf.write_spectra(good, _spec())
     truncated = tmp_path / "truncated.h5"
     truncated.write_bytes(good.read_bytes()[:500])
-    with pytest.raises(LossfitValueError, match="not a readable HDF5"):
+    with pytest.raises(LossfitValueError, match="truncated or not an HDF5"):
         lf.read_spectra(truncated)
     with h5py.File(good, "a") as h5:
         h5.attrs["schema_version"] = 99
