@@ -8,6 +8,10 @@ error that names the key)::
     spectra = ["data.h5"]                  # lossfit.spectra HDF5 files (paths relative
                                            # to the job file)
     csv = [{ path = "run1.csv", kind = "l3", label = "run 1" }]   # optional CSV tables
+    # or, instead of spectra: raw decay curves fitted globally (lossfit.curves schema;
+    # its resonance is the nominal a(B)), with the campaign systematics density_scale,
+    # temperature_scale, b0, width, a_bg, sigma_B allowed in [free]
+    # campaign = "campaign.h5"
 
     [model]
     name = "capped"                        # see lossfit.available_models()
@@ -53,7 +57,7 @@ class JobError(LossfitValueError):
     """A job file is malformed; ``argument`` is the offending key."""
 
 
-_SECTIONS = {"data": {"species", "spectra", "csv"}, "model": {"name", "tie"}, "free": None,
+_SECTIONS = {"data": {"species", "spectra", "csv", "campaign"}, "model": {"name", "tie"}, "free": None,
              "fixed": None, "sampler": {"walkers", "steps", "seed", "burn", "thin", "checkpoint_every",
                                         "log_every"}}
 _PRIOR_KEYS = {"log-uniform": {"lo", "hi"}, "uniform": {"lo", "hi"}, "log-normal": {"median", "sigma"},
@@ -83,6 +87,7 @@ class Job:
     species: str
     spectra: list
     csv: list
+    campaign: object
     model: str
     tie: object
     free: list
@@ -97,11 +102,17 @@ class Job:
     def data_paths(self):
         """Absolute paths of every data file."""
         return [os.path.join(self.base_dir, p) for p in self.spectra] + \
-               [os.path.join(self.base_dir, c["path"]) for c in self.csv]
+               [os.path.join(self.base_dir, c["path"]) for c in self.csv] + \
+               ([os.path.join(self.base_dir, self.campaign)] if self.campaign else [])
 
     def load_data(self):
-        """The job's spectra (list of LossSpectrum)."""
+        """The job's spectra (list of LossSpectrum) or decay curves (list of DecayCurve)."""
         from .data import read_csv, read_spectra
+        if self.campaign:
+            from .curves import read_campaign
+            camp = read_campaign(os.path.join(self.base_dir, self.campaign))
+            self._resonance = camp.resonance
+            return list(camp.curves)
         out = []
         for p in self.spectra:
             out.extend(read_spectra(os.path.join(self.base_dir, p)))
@@ -113,10 +124,17 @@ class Job:
     def fit_kwargs(self, steps=None):
         """Keyword arguments of :func:`lossfit.fit` for this job."""
         s = self.sampler
-        return dict(species=self.species, free=self.free, model=self.model, priors=self.priors,
-                    walkers=s["walkers"], steps=steps or s["steps"],
-                    burn=None if s["burn"] == "auto" else s["burn"], thin=s["thin"], seed=s["seed"],
-                    fixed=self.fixed, tie=self.tie)
+        kw = dict(species=self.species, free=self.free, model=self.model, priors=self.priors,
+                  walkers=s["walkers"], steps=steps or s["steps"],
+                  burn=None if s["burn"] == "auto" else s["burn"], thin=s["thin"], seed=s["seed"],
+                  fixed=self.fixed, tie=self.tie)
+        if self.campaign:
+            from .inference.global_fit import SYSTEMATIC_NAMES
+            kw["systematics"] = {n: p for n, p in self.priors.items() if n in SYSTEMATIC_NAMES}
+            kw["priors"] = {n: p for n, p in self.priors.items() if n not in SYSTEMATIC_NAMES}
+            kw["free"] = [n for n in self.free if n not in SYSTEMATIC_NAMES]
+            kw["resonance"] = getattr(self, "_resonance", None)
+        return kw
 
 
 def _prior(key, spec):
@@ -199,8 +217,13 @@ def parse_job(text, path):
             raise JobError(f"data.csv[{i}]", f"must be a table with 'path' and optional 'kind', 'label'; got {c!r}")
         if c.get("kind", "l3") not in ("l3", "beta"):
             raise JobError(f"data.csv[{i}].kind", f"must be 'l3' or 'beta', got {c['kind']!r}")
-    if not spectra and not csv:
+    campaign = data.get("campaign")
+    if campaign is not None and (not isinstance(campaign, str) or spectra or csv):
+        raise JobError("data.campaign", "must be one file name, and spectra/csv must then be absent")
+    if not spectra and not csv and campaign is None:
         raise JobError("data.spectra", "the job names no data file")
+    if campaign is not None and not os.path.isfile(os.path.join(os.path.dirname(os.path.abspath(path)), campaign)):
+        raise JobError("data.campaign", f"no such file {campaign!r}")
     base = os.path.dirname(os.path.abspath(path))
     for key, p in [(f"data.spectra[{i}]", p) for i, p in enumerate(spectra)] + \
                   [(f"data.csv[{i}].path", c["path"]) for i, c in enumerate(csv)]:
@@ -214,6 +237,9 @@ def parse_job(text, path):
     if tie not in ("none", "universal"):
         raise JobError("model.tie", f"must be 'none' or 'universal', got {tie!r}")
     allowed_free = set(EFIMOV_NAMES) | {"eta"} | set(NUISANCE_NAMES)
+    if campaign is not None:
+        from .inference.global_fit import SYSTEMATIC_NAMES
+        allowed_free |= set(SYSTEMATIC_NAMES)
     free, priors = [], {}
     if not doc["free"]:
         raise JobError("free", "name at least one parameter")
@@ -239,7 +265,9 @@ def parse_job(text, path):
         elif key == "seed":
             _integer("sampler.seed", value, 0)
         sampler[key] = value
-    if "density_scale" in free and "density_scale" not in priors:
-        raise JobError("free.density_scale", "needs an explicit prior (e.g. log-normal, sigma = 0.2)")
-    return Job(path=path, text=text, species=sp, spectra=spectra, csv=csv, model=name,
+    for par in free:
+        if par in ("density_scale", "temperature_scale", "b0", "width", "a_bg", "sigma_B") \
+                and par not in priors:
+            raise JobError(f"free.{par}", "needs an explicit prior (e.g. log-normal, sigma = 0.2)")
+    return Job(path=path, text=text, species=sp, spectra=spectra, csv=csv, campaign=campaign, model=name,
                tie=None if tie == "none" else tie, free=free, priors=priors, fixed=fixed, sampler=sampler)

@@ -199,6 +199,9 @@ def report(out_dir, *, overwrite=False, stream=None):
         raise OutputConflict(f"{out_dir!r} already holds {present}; pass --overwrite to re-create them")
     meta = stored["metadata"]
     job = parse_job(meta["job_text"], meta["job_path"])
+    if job.campaign:
+        raise LossfitValueError("dir", "report does not rebuild decay-curve campaign runs yet; their "
+                                "summary and figures are written by lossfit run")
     with FolderLock(out_dir), warnings.catch_warnings():
         warnings.simplefilter("ignore", ValidityWarning)
         space, likelihood, _ = prepare(job.load_data(), species=job.species, free=job.free, model=job.model,

@@ -208,3 +208,30 @@ def test_bad_job_on_the_command_line_exits_2(tmp_path):
     (tmp_path / "job.toml").write_text("[data]\nspecies = 'Cs'\n")
     proc = _run("run", tmp_path / "job.toml", "--out", tmp_path / "out")
     assert proc.returncode == 2 and "lossfit: error:" in proc.stderr
+
+
+@pytest.mark.slow
+def test_campaign_job_runs_the_global_fit(tmp_path):
+    from lossfit.curves import invented_campaign, write_campaign
+    curves, resonance, truth = invented_campaign(seed=3, n_fields=4)
+    write_campaign(tmp_path / "campaign.h5", curves, species="133Cs", resonance=resonance)
+    (tmp_path / "job.toml").write_text("""[data]
+species = "133Cs"
+campaign = "campaign.h5"
+[model]
+name = "capped"
+[free]
+a_minus = { prior = "default" }
+eta_minus = { prior = "default" }
+density_scale = { prior = "log-normal", median = 1.0, sigma = 0.2 }
+[sampler]
+walkers = 8
+steps = 60
+seed = 2
+checkpoint_every = 20
+""")
+    proc = _run("run", tmp_path / "job.toml", "--out", tmp_path / "out", "--quiet")
+    assert proc.returncode == 0, proc.stderr
+    summary = json.loads((tmp_path / "out" / "summary.json").read_text())
+    assert {r["name"] for r in summary["summary"]} >= {"a_minus", "eta_minus", "density_scale"}
+    assert read_chain_file(tmp_path / "out" / "chains.h5")["iteration"] == 60
