@@ -16,8 +16,10 @@ NOTEBOOKS = sorted((ROOT / "notebooks").glob("*.ipynb"))
 
 @pytest.mark.slow
 @pytest.mark.parametrize("path", NOTEBOOKS, ids=[p.name for p in NOTEBOOKS])
-def test_notebook_executes(path, tmp_path):
+def test_notebook_executes(path, tmp_path, monkeypatch):
     nb = nbformat.read(path, as_version=4)
+    # the kernel runs in a scratch folder; make it import this checkout's lossfit
+    monkeypatch.setenv("PYTHONPATH", os.pathsep.join(filter(None, [str(ROOT), os.environ.get("PYTHONPATH")])))
     NotebookClient(nb, timeout=600, kernel_name="python3",
                    resources={"metadata": {"path": str(tmp_path)}}).execute()
     errors = [o for c in nb.cells if c.cell_type == "code" for o in c.get("outputs", [])
