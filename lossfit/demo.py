@@ -68,6 +68,19 @@ def demo_spectra(scenario=SCENARIO):
     return out, dict(truth)
 
 
+def _fresh_folder(out_dir, names, overwrite):
+    """Create ``out_dir``; refuse (OutputConflict) if it holds any of ``names`` unless
+    ``overwrite``, in which case those files are removed first."""
+    from .runner import OutputConflict
+    existing = [n for n in names if os.path.exists(os.path.join(out_dir, n))]
+    if existing and not overwrite:
+        raise OutputConflict(f"{out_dir!r} already holds {existing}; choose another folder or pass "
+                             "--overwrite")
+    os.makedirs(out_dir, exist_ok=True)
+    for n in existing:
+        os.remove(os.path.join(out_dir, n))
+
+
 def demo_job_text(walkers=32, steps=5000, seed=1):
     """The job file the demo runs (TOML; see :mod:`lossfit.jobs`)."""
     return f"""# lossfit demo job: {SCENARIO['description']}
@@ -104,16 +117,10 @@ def run_demo(out_dir, *, walkers=32, steps=5000, seed=1, overwrite=False, progre
     --out OTHER`` reproduces the run), ``chains.h5``, ``summary.json``, ``corner.png``
     and ``spectrum.png``; returns the FitResult.
     """
-    from .runner import OUTPUTS, OutputConflict, run_job
+    from .runner import OUTPUTS, run_job
     out_dir = os.fspath(out_dir)
     names = ["data.h5", "job.toml", *OUTPUTS]
-    existing = [n for n in names if os.path.exists(os.path.join(out_dir, n))]
-    if existing and not overwrite:
-        raise OutputConflict(f"{out_dir!r} already holds {existing}; choose another folder or pass "
-                             "--overwrite")
-    os.makedirs(out_dir, exist_ok=True)
-    for n in existing:
-        os.remove(os.path.join(out_dir, n))
+    _fresh_folder(out_dir, names, overwrite)
     spectra, truth = demo_spectra()
     write_spectra(os.path.join(out_dir, "data.h5"), spectra)
     with open(os.path.join(out_dir, "job.toml"), "w") as fh:
@@ -148,16 +155,9 @@ def run_curves_demo(out_dir, *, walkers=16, steps=1500, seed=1, n_fields=10, ove
     from .plotting import corner_plot, save_figure
     from .plotting_curves import curves_plot, derived_spectrum_plot
     from .provenance import provenance
-    from .runner import OutputConflict
     out_dir = os.fspath(out_dir)
     names = ["campaign.h5", "chains.h5", "summary.json", "curves.png", "spectrum.png", "corner.png"]
-    existing = [n for n in names if os.path.exists(os.path.join(out_dir, n))]
-    if existing and not overwrite:
-        raise OutputConflict(f"{out_dir!r} already holds {existing}; choose another folder or pass "
-                             "--overwrite")
-    os.makedirs(out_dir, exist_ok=True)
-    for n in existing:
-        os.remove(os.path.join(out_dir, n))
+    _fresh_folder(out_dir, names, overwrite)
     print(f"lossfit demo from raw decay curves — {INVENTED_CAMPAIGN['description']}")
     t0 = time.perf_counter()
     with warnings.catch_warnings():

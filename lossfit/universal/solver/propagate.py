@@ -163,6 +163,26 @@ def kv_logder(nu, z):
 
 
 @numba.njit(cache=True)
+def _sector_elements(lam_row, hj, y1, y2):
+    """Diagonal (y1) and off-diagonal (y2) log-derivative elements of one sector of
+    width hj with constant reference potential lam_row (one entry per channel); shared
+    by the inward and outward sweeps."""
+    for i in range(lam_row.size):
+        kap = cmath.sqrt(complex(lam_row[i]))
+        x = kap * hj
+        if abs(x) < 1e-6:
+            y1[i] = 1.0 / hj + lam_row[i] * hj / 3.0
+            y2[i] = 1.0 / hj - lam_row[i] * hj / 6.0
+        elif x.real > 40.0:
+            e2 = cmath.exp(-2.0 * x)
+            y1[i] = kap * (1.0 + e2) / (1.0 - e2)
+            y2[i] = kap * 2.0 * cmath.exp(-x) / (1.0 - e2)
+        else:
+            y1[i] = kap / cmath.tanh(x)
+            y2[i] = kap / cmath.sinh(x)
+
+
+@numba.njit(cache=True)
 def _sector_inward(lam, widths, rot, y_out):
     m, n = lam.shape
     y = y_out.copy()
@@ -170,19 +190,7 @@ def _sector_inward(lam, widths, rot, y_out):
     y2 = np.empty(n, dtype=np.complex128)
     for j in range(m - 1, -1, -1):
         hj = widths[j]
-        for i in range(n):
-            kap = cmath.sqrt(complex(lam[j, i]))
-            x = kap * hj
-            if abs(x) < 1e-6:
-                y1[i] = 1.0 / hj + lam[j, i] * hj / 3.0
-                y2[i] = 1.0 / hj - lam[j, i] * hj / 6.0
-            elif x.real > 40.0:
-                e2 = cmath.exp(-2.0 * x)
-                y1[i] = kap * (1.0 + e2) / (1.0 - e2)
-                y2[i] = kap * 2.0 * cmath.exp(-x) / (1.0 - e2)
-            else:
-                y1[i] = kap / cmath.tanh(x)
-                y2[i] = kap / cmath.sinh(x)
+        _sector_elements(lam[j], hj, y1, y2)
         a = -y
         for i in range(n):
             a[i, i] += y1[i]
@@ -305,19 +313,7 @@ def _sector_outward(lam, widths, rot, y_in):
     y2 = np.empty(n, dtype=np.complex128)
     for j in range(m):
         hj = widths[j]
-        for i in range(n):
-            kap = cmath.sqrt(complex(lam[j, i]))
-            x = kap * hj
-            if abs(x) < 1e-6:
-                y1[i] = 1.0 / hj + lam[j, i] * hj / 3.0
-                y2[i] = 1.0 / hj - lam[j, i] * hj / 6.0
-            elif x.real > 40.0:
-                e2 = cmath.exp(-2.0 * x)
-                y1[i] = kap * (1.0 + e2) / (1.0 - e2)
-                y2[i] = kap * 2.0 * cmath.exp(-x) / (1.0 - e2)
-            else:
-                y1[i] = kap / cmath.tanh(x)
-                y2[i] = kap / cmath.sinh(x)
+        _sector_elements(lam[j], hj, y1, y2)
         a = y.copy()
         for i in range(n):
             a[i, i] += y1[i]
