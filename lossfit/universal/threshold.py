@@ -184,11 +184,18 @@ class Efimov:
 # Dimensionless laws, shared by the public functions and the energy-resolved kernels.
 
 @numba.njit(cache=True)
+def _resonant(amplitude, ratio, eta):
+    # amplitude sinh(2 eta) / (sin^2[s0 ln ratio] + sinh^2 eta): the shape shared by the
+    # three-atom and atom-dimer resonance laws
+    s = math.sin(S0 * math.log(ratio))
+    sh = math.sinh(eta)
+    return amplitude * math.sinh(2.0 * eta) / (s * s + sh * sh)
+
+
+@numba.njit(cache=True)
 def c_negative(a_over_a_minus, eta):
     """Braaten-Hammer C(a) for a < 0 at ratio a/a_- > 0 (dimensionless)."""
-    s = math.sin(S0 * math.log(a_over_a_minus))
-    sh = math.sinh(eta)
-    return C_NEGATIVE * math.sinh(2.0 * eta) / (s * s + sh * sh)
+    return _resonant(C_NEGATIVE, a_over_a_minus, eta)
 
 
 @numba.njit(cache=True)
@@ -203,9 +210,7 @@ def c_positive(a_over_a_plus, eta):
 @numba.njit(cache=True)
 def c_atom_dimer(a_over_a_star, eta):
     """Braaten-Hammer C_beta(a) for atom-dimer relaxation, ratio a/a* > 0."""
-    s = math.sin(S0 * math.log(a_over_a_star))
-    sh = math.sinh(eta)
-    return C_ATOM_DIMER * math.sinh(2.0 * eta) / (s * s + sh * sh)
+    return _resonant(C_ATOM_DIMER, a_over_a_star, eta)
 
 
 @numba.njit(cache=True)
