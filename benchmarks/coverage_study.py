@@ -35,7 +35,7 @@ from lossfit.curves import INVENTED_CAMPAIGN, invented_campaign
 from lossfit.errors import ConvergenceWarning, ValidityWarning
 from lossfit.inference.global_fit import fit_curves
 
-PARAMS = ("a_minus", "eta_minus", "density_scale")
+PARAMS = ("a_minus", "eta_minus", "density_scale", "temperature_scale")
 DENSITY_SIGMA = 0.2
 TEMPERATURE_SIGMA = 0.05
 
@@ -61,14 +61,14 @@ def one_campaign(seed, *, n_fields, walkers, steps, inner_steps, model="capped")
     for route, result in (("global", glob), ("two_stage", two)):
         rows = {r["name"]: r for r in result.summary()}
         out[route] = {p: {k: float(rows[p][k]) for k in ("median", "lo68", "hi68", "lo95", "hi95")}
-                      for p in PARAMS}
+                      for p in PARAMS if p in rows}      # the two-stage route has no temperature scale
         out[route + "_warnings"] = list(result.warnings)
     return out
 
 
 def _coverage(runs, route):
     table = {}
-    for p in PARAMS:
+    for p in [p for p in PARAMS if all(p in r[route] for r in runs)]:
         hit68 = [r[route][p]["lo68"] <= r["truth"][p] <= r[route][p]["hi68"] for r in runs]
         hit95 = [r[route][p]["lo95"] <= r["truth"][p] <= r[route][p]["hi95"] for r in runs]
         pulls = [(r[route][p]["median"] - r["truth"][p]) / (0.5 * (r[route][p]["hi68"] - r[route][p]["lo68"]))

@@ -22,6 +22,14 @@ Dimer curves: the atom-dimer mixture loses dimers by relaxation (beta) and one-b
 decay (Gamma_D); the partner atoms are lost by relaxation only (their own three-body
 loss and one-body loss are neglected -- state this when it matters: atoms in a
 mixture are usually far less dense than needed for L3 to compete).
+
+Optional sampling (``fit_curve(..., mcmc=True)``): the same residuals define a
+Gaussian likelihood, with flat priors in the fit coordinates (loss coefficient >= 0,
+ln N0, ln T0, Gamma >= 0); emcee's ensemble (Foreman-Mackey et al., PASP 125, 306
+(2013)) starts in a small ball around the least-squares optimum. The reported value
+and error are then the posterior median and half the central 68 % interval -- the
+honest error bar for a curve whose loss is barely detected (the posterior piles up
+against L3 = 0, where the linearised covariance is meaningless).
 """
 
 __all__ = ["CurveFit", "fit_curve", "fit_curves_individually", "spectrum_from_curves"]
@@ -51,14 +59,16 @@ class CurveFit:
         Scattering length in a0 (from the curve, or its field and the resonance).
     kind : {"l3", "beta"}
     value, error : float
-        Fitted L3 (cm^6/s) or beta (cm^3/s) and its one-sigma uncertainty.
+        Fitted L3 (cm^6/s) or beta (cm^3/s) and its one-sigma uncertainty (with ``mcmc``:
+        posterior median and half the central 68 % interval).
     temperature : float
         Time-averaged fitted temperature in nK (the temperature of the derived point).
     params : dict
         Best-fit values: ``value``, ``n0`` (atoms or dimers), ``t0_nK``, ``gamma`` (1/s),
         and ``n_atoms0`` for dimer curves.
     errors : dict
-        One-sigma uncertainties of ``params`` (linearised).
+        One-sigma uncertainties of ``params`` (linearised; with ``mcmc``: half the central
+        68 % posterior interval).
     covariance : ndarray
         Covariance of the fitted coordinates ``coords`` (value / its first guess, ln n0,
         [ln n_atoms0], ln t0, gamma * t_max).
@@ -75,6 +85,12 @@ class CurveFit:
         d residuals / d coords at the optimum.
     recombination_heating_nK : float
         T_h used in the model, nK.
+    method : {"least_squares", "mcmc"}
+        How ``value``, ``error`` and ``errors`` were obtained.
+    samples : dict or None
+        With ``mcmc``: posterior samples of ``params`` after burn-in (same units).
+    tau : ndarray or None
+        With ``mcmc``: integrated autocorrelation times of the fit coordinates (steps).
     """
 
     curve: DecayCurve
@@ -95,6 +111,9 @@ class CurveFit:
     residuals: np.ndarray
     jacobian: np.ndarray
     recombination_heating_nK: float = 0.0
+    method: str = "least_squares"
+    samples: dict | None = None
+    tau: np.ndarray | None = None
 
 
 class _CurveModel:
@@ -190,8 +209,64 @@ def _initial_guess(curve, model, trap, sp):
     return np.array(x)
 
 
+_MCMC_DEFAULTS = {"walkers": 16, "steps": 1500, "seed": None}
+
+
+def _mcmc_settings(mcmc):
+    if mcmc is None or mcmc is False:
+        return None
+    if mcmc is True:
+        return dict(_MCMC_DEFAULTS)
+    if not isinstance(mcmc, dict):
+        raise LossfitValueError("mcmc", f"must be True, False or a dict of walkers/steps/seed, got {mcmc!r}")
+    unknown = sorted(set(mcmc) - set(_MCMC_DEFAULTS))
+    if unknown:
+        raise LossfitValueError("mcmc", f"unknown settings {unknown}; allowed: walkers, steps, seed")
+    out = dict(_MCMC_DEFAULTS, **mcmc)
+    for name, lo in (("walkers", 4), ("steps", 50)):
+        v = out[name]
+        if isinstance(v, bool) or not isinstance(v, (int, np.integer)) or v < lo:
+            raise LossfitValueError("mcmc", f"{name} must be an integer >= {lo}, got {v!r}")
+    return out
+
+
+class _CurveLogProb:
+    """Gaussian log-likelihood of one curve with flat priors in the fit coordinates."""
+
+    def __init__(self, model, lower):
+        self.model = model
+        self.lower = lower
+
+    def __call__(self, x):
+        if np.any(x < self.lower):
+            return -math.inf
+        r = self.model(x)
+        return -0.5 * float(r @ r)
+
+
+def _sample_curve(model, x_best, cov, lower, settings):
+    """Posterior chain of one curve's coordinates (after burn-in) and its tau."""
+    from .inference.fitting import auto_burn        # emcee is only needed here
+    from .inference.sampling import sample
+    rng = np.random.default_rng(settings["seed"])
+    ndim = x_best.size
+    # start inside the posterior: a ball of 1e-2 of the linearised widths, kept in bounds
+    sd = np.sqrt(np.clip(np.diag(cov), 1e-30, None))
+    p0 = x_best + 1e-2 * sd * rng.standard_normal((settings["walkers"], ndim))
+    p0 = np.maximum(p0, lower + 1e-12 * np.maximum(sd, 1.0))
+    walkers = settings["walkers"]
+    if walkers < 2 * ndim:
+        raise LossfitValueError("mcmc", f"walkers must be at least {2 * ndim} for {ndim} parameters")
+    run = sample(_CurveLogProb(model, lower), p0, settings["steps"], seed=int(rng.integers(2 ** 31)))
+    chain = run.chain
+    burn = auto_burn(chain)
+    import emcee
+    tau = np.atleast_1d(emcee.autocorr.integrated_time(chain[burn:], c=5, tol=0, quiet=True))
+    return chain[burn:].reshape(-1, ndim), tau, chain.shape[0] - burn
+
+
 def fit_curve(curve, *, species, resonance=None, heating=True, recombination_heating_nK=0.0,
-              gamma=None, rtol=1e-8):
+              gamma=None, rtol=1e-8, mcmc=None):
     """Least-squares fit of one decay curve with a constant loss coefficient.
 
     Parameters
@@ -209,11 +284,15 @@ def fit_curve(curve, *, species, resonance=None, heating=True, recombination_hea
         None fits it (bounded below by 0).
     rtol : float
         Integrator tolerance (tight: the Jacobian is taken by finite differences).
+    mcmc : bool or dict, optional
+        Also sample the curve's posterior (module docstring): ``True`` or a dict with
+        ``walkers`` (default 16), ``steps`` (1500) and ``seed``. About 1-3 s per curve.
 
     Returns
     -------
     CurveFit
     """
+    settings = _mcmc_settings(mcmc)
     if not isinstance(curve, DecayCurve):
         raise LossfitValueError("curve", f"must be a DecayCurve, got {type(curve).__name__}")
     sp = _lookup_species(species)
@@ -255,12 +334,29 @@ def fit_curve(curve, *, species, resonance=None, heating=True, recombination_hea
     errors["t0_nK"] = p["t0_nK"] * sd[i]
     errors["gamma"] = sd[i + 1] / model.t_max if gamma is None else 0.0
     main, temp, partner = model.solve(p)
-    return CurveFit(curve=curve, a=a, kind="beta" if model.dimers else "l3", value=p["value"],
-                    error=errors["value"], temperature=float(np.mean(temp)), params=p, errors=errors,
+    extra = {}
+    value, error = p["value"], errors["value"]
+    if settings is not None:
+        flat, tau, kept = _sample_curve(model, fit.x, cov, lb, settings)
+        draws = [model.unpack(x) for x in flat]
+        samples = {k: np.array([d[k] for d in draws]) for k in p}
+        errors = {}
+        for k, v in samples.items():
+            lo, med, hi = np.percentile(v, [15.865, 50.0, 84.135])
+            errors[k] = 0.5 * (hi - lo)
+        value, error = float(np.median(samples["value"])), errors["value"]
+        if kept < 50 * float(np.max(tau)):
+            warnings.warn(f"curve {curve.label!r}: {kept} kept steps are fewer than 50 autocorrelation "
+                          f"times (tau = {np.max(tau):.0f}); increase mcmc steps", ConvergenceWarning,
+                          stacklevel=2)
+        extra = {"method": "mcmc", "samples": samples, "tau": tau}
+        cov = np.cov(flat.T)
+    return CurveFit(curve=curve, a=a, kind="beta" if model.dimers else "l3", value=value,
+                    error=error, temperature=float(np.mean(temp)), params=p, errors=errors,
                     covariance=cov, coords=model.coords, chi2=float(fit.fun @ fit.fun), dof=dof,
                     model_atoms=main, model_temperature=temp, model_partner=partner,
                     residuals=fit.fun.copy(), jacobian=fit.jac.copy(),
-                    recombination_heating_nK=float(recombination_heating_nK))
+                    recombination_heating_nK=float(recombination_heating_nK), **extra)
 
 
 def fit_curves_individually(curves, *, species, resonance=None, **kwargs):

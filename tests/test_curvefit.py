@@ -144,3 +144,49 @@ def test_spectrum_from_curves_and_errors():
                        temperature_err=2.0, a=-900.0, trap_hz=TRAP)
     with pytest.raises(LossfitValueError, match="more points"):
         fit_curve(short, species=SP)
+
+
+def test_mcmc_agrees_with_least_squares_where_the_model_is_nearly_linear():
+    # A well-measured curve: the posterior is close to Gaussian, so its median and 68 %
+    # half-width must equal the least-squares value and (J^T J)^-1 error (Laplace's
+    # approximation is exact for a linear model; common practice, no source)
+    rng = np.random.default_rng(3)
+    n, temp = _heated(TIMES, N0, T0, L3, GAMMA, 0.0)
+    sn, st = 0.02 * n, 0.02 * temp
+    curve = DecayCurve(t=TIMES, atoms=n + sn * rng.standard_normal(15), atoms_err=sn,
+                       temperature=temp + st * rng.standard_normal(15), temperature_err=st,
+                       a=-1000.0, trap_hz=TRAP)
+    lsq = fit_curve(curve, species=SP)
+    post = fit_curve(curve, species=SP, mcmc={"walkers": 16, "steps": 1200, "seed": 2})
+    assert lsq.method == "least_squares" and lsq.samples is None
+    assert post.method == "mcmc" and post.samples["value"].size > 5000
+    assert post.value == pytest.approx(lsq.value, abs=0.15 * lsq.error)
+    assert post.error == pytest.approx(lsq.error, rel=0.15)
+    assert post.errors["n0"] == pytest.approx(lsq.errors["n0"], rel=0.15)
+    assert np.all(post.samples["value"] >= 0) and np.all(post.samples["gamma"] >= 0)
+
+
+@pytest.mark.filterwarnings("ignore::lossfit.errors.ConvergenceWarning")
+def test_mcmc_error_bar_of_an_undetected_loss_respects_the_bound():
+    # no three-body loss at all: the posterior of L3 piles up against 0 and its 68 %
+    # interval lies in [0, ...) -- a linearised error bar would extend below zero
+    rng = np.random.default_rng(5)
+    n = N0 * np.exp(-GAMMA * TIMES)
+    sn = 0.03 * n
+    curve = DecayCurve(t=TIMES, atoms=n + sn * rng.standard_normal(15), atoms_err=sn,
+                       temperature=np.full(15, T0), temperature_err=np.full(15, 3.0), a=-1000.0,
+                       trap_hz=TRAP)
+    post = fit_curve(curve, species=SP, heating=False, mcmc={"walkers": 16, "steps": 800, "seed": 1})
+    v = post.samples["value"]
+    assert v.min() >= 0.0
+    # the median sits above zero by a fraction of the spread (one-sided posterior)
+    assert 0.0 < np.median(v) < 2.0 * post.error
+
+
+@pytest.mark.parametrize("mcmc", ["yes", {"steps": 10}, {"walkers": 2}, {"burn": 5}])
+def test_bad_mcmc_settings_are_named(mcmc):
+    curve = DecayCurve(t=TIMES, atoms=N0 * np.exp(-GAMMA * TIMES), atoms_err=np.full(15, 1e3),
+                       temperature=np.full(15, T0), temperature_err=np.full(15, 3.0), a=-1000.0,
+                       trap_hz=TRAP)
+    with pytest.raises(LossfitValueError, match="mcmc"):
+        fit_curve(curve, species=SP, mcmc=mcmc)

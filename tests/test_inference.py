@@ -167,3 +167,13 @@ def test_likelihood_speed_path_matches_public_rates():
         func, power = (lf.l3, 2) if s.kind == "l3" else (lf.beta, 1)
         ref = func(s.a, s.temperature, species=CS, efimov=ef, model="capped") / 1.1 ** power
         np.testing.assert_allclose(pred, ref, rtol=1e-8)
+
+
+def test_burn_in_of_a_chain_too_short_for_any_tau():
+    # emcee returns NaN autocorrelation times for a 3-step chain; the default burn-in
+    # must still be an integer (steps/5 rule, common practice, no source)
+    from lossfit.inference.fitting import auto_burn
+    chain = np.zeros((3, 8, 2))
+    assert auto_burn(chain) == 0
+    chain = np.random.default_rng(1).standard_normal((50, 8, 2))
+    assert 10 <= auto_burn(chain) <= 25

@@ -135,7 +135,9 @@ def prepare(data, *, species, free, model=None, priors=None, fixed=None, tie=Non
 def auto_burn(chain):
     """Default burn-in: max(3 tau_max, steps/5), at most steps/2."""
     tau = np.atleast_1d(emcee.autocorr.integrated_time(chain, c=5, tol=0, quiet=True))
-    return int(min(max(3 * np.nanmax(tau), chain.shape[0] / 5), chain.shape[0] / 2))
+    # a very short chain can give no finite tau at all: fall back on steps/5
+    tau_max = float(np.max(tau[np.isfinite(tau)])) if np.isfinite(tau).any() else 0.0
+    return int(min(max(3 * tau_max, chain.shape[0] / 5), chain.shape[0] / 2))
 
 
 def make_result(space, likelihood, chain, log_prob, acceptance, *, burn=None, thin=1, settings=None):
