@@ -15,6 +15,10 @@ curves scatter with their stated errors. Two analyses per campaign:
 A 68 % (95 %) interval should contain the truth in 68 % (95 %) of campaigns; the
 binomial standard error of a fraction p over n campaigns is sqrt(p (1-p) / n).
 
+With ``--dimer-fields N`` each campaign also has atom-dimer mixture curves at N fields
+on the a > 0 side (a* and eta* tied to a_- by the universal relations in the truth, fitted
+freely), so that both kinds of curve enter one fit.
+
 Usage: python benchmarks/coverage_study.py --campaigns 24 --out coverage.json
 """
 
@@ -35,27 +39,29 @@ from lossfit.curves import INVENTED_CAMPAIGN, invented_campaign
 from lossfit.errors import ConvergenceWarning, ValidityWarning
 from lossfit.inference.global_fit import fit_curves
 
-PARAMS = ("a_minus", "eta_minus", "density_scale", "temperature_scale")
+PARAMS = ("a_minus", "eta_minus", "a_star", "eta_star", "density_scale", "temperature_scale")
 DENSITY_SIGMA = 0.2
 TEMPERATURE_SIGMA = 0.05
 
 
-def one_campaign(seed, *, n_fields, walkers, steps, inner_steps, model="capped"):
+def one_campaign(seed, *, n_fields, walkers, steps, inner_steps, model="capped", dimer_fields=0):
     rng = np.random.default_rng(seed)
     truth = dict(INVENTED_CAMPAIGN["truth"])
     truth["density_scale"] = float(np.exp(DENSITY_SIGMA * rng.standard_normal()))
     truth["temperature_scale"] = float(np.exp(TEMPERATURE_SIGMA * rng.standard_normal()))
-    curves, res, truth = invented_campaign(seed, n_fields=n_fields, truth=truth, model=model)
+    curves, res, truth = invented_campaign(seed, n_fields=n_fields, truth=truth, model=model,
+                                           dimer_fields=dimer_fields)
+    efimov_free = ["a_minus", "eta_minus"] + (["a_star", "eta_star"] if dimer_fields else [])
     out = {"seed": seed, "truth": truth}
     t0 = time.perf_counter()
-    glob = fit_curves(curves, species="133Cs", free=["a_minus", "eta_minus"], resonance=res, model=model,
+    glob = fit_curves(curves, species="133Cs", free=efimov_free, resonance=res, model=model,
                       systematics={"density_scale": DENSITY_SIGMA, "temperature_scale": TEMPERATURE_SIGMA},
                       walkers=walkers, steps=steps, seed=seed, progress=False, inner_steps=inner_steps)
     out["global_seconds"] = time.perf_counter() - t0
     t0 = time.perf_counter()
     fits = fit_curves_individually(curves, species="133Cs", resonance=res)
     spectra = spectrum_from_curves(curves, species="133Cs", resonance=res, fits=fits)
-    two = lf.fit(spectra, species="133Cs", free=["a_minus", "eta_minus", "density_scale"], model=model,
+    two = lf.fit(spectra, species="133Cs", free=efimov_free + ["density_scale"], model=model,
                  density_sigma=DENSITY_SIGMA, walkers=walkers, steps=steps, seed=seed, progress=False)
     out["two_stage_seconds"] = time.perf_counter() - t0
     for route, result in (("global", glob), ("two_stage", two)):
@@ -85,6 +91,8 @@ def main(argv=None):
     ap.add_argument("--walkers", type=int, default=24)
     ap.add_argument("--steps", type=int, default=1500)
     ap.add_argument("--inner-steps", type=int, default=1)
+    ap.add_argument("--dimer-fields", type=int, default=0,
+                    help="fields on the a > 0 side with atom-dimer mixture curves (a*, eta* also fitted)")
     ap.add_argument("--first-seed", type=int, default=5000)
     ap.add_argument("--out", required=True, help="JSON file for the results (not overwritten)")
     args = ap.parse_args(argv)
@@ -98,7 +106,8 @@ def main(argv=None):
         for i in range(args.campaigns):
             try:
                 r = one_campaign(args.first_seed + i, n_fields=args.fields, walkers=args.walkers,
-                                 steps=args.steps, inner_steps=args.inner_steps)
+                                 steps=args.steps, inner_steps=args.inner_steps,
+                                 dimer_fields=args.dimer_fields)
             except lf.LossfitValueError as err:  # record, do not hide: a failed campaign is a result
                 failures.append({"seed": args.first_seed + i, "error": str(err)})
                 print(f"campaign {i + 1}/{args.campaigns}: FAILED {err}", flush=True)

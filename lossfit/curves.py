@@ -33,6 +33,7 @@ __all__ = ["DecayCurve", "Campaign", "write_campaign", "read_campaign", "read_cu
 
 import csv
 import json
+import math
 import os
 from dataclasses import dataclass, field as _dc_field
 
@@ -437,14 +438,17 @@ def read_curves_csv(path, *, trap_hz=None, kind=None):
 def simulate_curve(t, *, species, trap_hz, efimov, n0, t0_nK, a=None, field=None, resonance=None,
                    model=None, gamma=0.0, recombination_heating_nK=0.0, density_scale=1.0,
                    temperature_scale=1.0, atoms_rel_err=0.04, atoms_abs_err=0.0, temperature_rel_err=0.03,
-                   rng=None, label=None):
-    """A synthetic atom-loss curve from the forward model (for invented scenarios and tests).
+                   rng=None, label=None, kind="atoms", n_dimers0=0.0, gamma_dimer=0.0):
+    """A synthetic loss curve from the forward model (for invented scenarios and tests).
 
     The true cloud (``n0`` atoms at ``t0_nK``) evolves under the theory L3 at the
     instantaneous temperature (:func:`lossfit.decay.simulate_decay`); the "measured"
     numbers are ``density_scale`` x N(t) and temperatures ``temperature_scale`` x T(t),
     scattered normally with the stated errors (relative to the measured model value,
-    plus ``atoms_abs_err`` in quadrature).
+    plus ``atoms_abs_err`` in quadrature). With ``kind="dimers"`` the mixture of
+    ``n_dimers0`` dimers and ``n0`` atoms evolves under the theory beta (and L3 of the
+    atoms); the curve holds the dimer numbers, the partner-atom numbers as a series
+    and the temperatures, all with the same noise model.
 
     Parameters
     ----------
@@ -464,6 +468,9 @@ def simulate_curve(t, *, species, trap_hz, efimov, n0, t0_nK, a=None, field=None
         Noise model.
     rng : numpy Generator
     label : str, optional
+    kind : {"atoms", "dimers"}
+    n_dimers0, gamma_dimer : float
+        True initial dimer number and dimer one-body decay rate (1/s), for dimer curves.
 
     Returns
     -------
@@ -474,24 +481,37 @@ def simulate_curve(t, *, species, trap_hz, efimov, n0, t0_nK, a=None, field=None
         raise LossfitValueError("rng", "pass a numpy Generator (np.random.default_rng(seed))")
     if (a is None) == (field is None):
         raise LossfitValueError("field", "give exactly one of field= (with resonance=) and a=")
+    if kind not in KINDS:
+        raise LossfitValueError("kind", f"must be 'atoms' or 'dimers', got {kind!r}")
+    dimers = kind == "dimers"
+    if dimers and not n_dimers0 > 0:
+        raise LossfitValueError("n_dimers0", f"dimer curves need n_dimers0 > 0, got {n_dimers0!r}")
     a_true = a if a is not None else float(resonance.a(field))
     sol = simulate_decay(t, species=species, trap_hz=trap_hz, n0=n0, t0_nK=t0_nK, efimov=efimov, a=a_true,
-                         model=model, gamma=gamma, recombination_heating_nK=recombination_heating_nK)
-    n_model = density_scale * sol.atoms
-    t_model = temperature_scale * sol.temperature
-    n_err = np.sqrt((atoms_rel_err * n_model) ** 2 + atoms_abs_err ** 2)
-    t_err = temperature_rel_err * t_model
-    n_meas = np.clip(n_model + n_err * rng.standard_normal(n_model.size), 0.0, None)
-    t_meas = t_model + t_err * rng.standard_normal(t_model.size)
-    return DecayCurve(t=sol.t, atoms=n_meas, atoms_err=n_err, temperature=t_meas, temperature_err=t_err,
-                      field=field, a=a if field is None else None, trap_hz=trap_hz, label=label)
+                         model=model, gamma=gamma, recombination_heating_nK=recombination_heating_nK,
+                         **({"n_dimers0": n_dimers0, "gamma_dimer": gamma_dimer} if dimers else {}))
+
+    def measured(true_values, scale, rel_err, abs_err=0.0):
+        model_values = scale * true_values
+        err = np.sqrt((rel_err * model_values) ** 2 + abs_err ** 2)
+        return np.clip(model_values + err * rng.standard_normal(model_values.size), 0.0, None), err
+
+    main, main_err = measured(sol.dimers if dimers else sol.atoms, density_scale, atoms_rel_err, atoms_abs_err)
+    t_meas, t_err = measured(sol.temperature, temperature_scale, temperature_rel_err)
+    partner = measured(sol.atoms, density_scale, atoms_rel_err, atoms_abs_err) if dimers else (None, None)
+    return DecayCurve(t=sol.t, atoms=main, atoms_err=main_err, temperature=t_meas, temperature_err=t_err,
+                      field=field, a=a if field is None else None, trap_hz=trap_hz, label=label, kind=kind,
+                      partner_atoms=partner[0], partner_atoms_err=partner[1])
 
 
 # --- an invented scenario (not measured data) ---------------------------------------------
 
 #: The invented campaign used by the notebook, the benchmarks and the tests: a Cs-133 gas
 #: (atomic data real, everything else chosen by us) near an invented resonance, atom-loss
-#: curves at fields on the a < 0 side for two temperatures.
+#: curves at fields on the a < 0 side for two temperatures and, on request
+#: (``dimer_fields``), atom-dimer mixture curves on the a > 0 side. The a > 0 truth
+#: follows the universal tie (a* = 1.0652 |a_-|, a_+, one eta; ``Efimov.universal``); the
+#: simulated mixtures include the atoms' own three-body loss, which the fits neglect.
 INVENTED_CAMPAIGN = {
     "description": "invented scenario (not measured data): Cs-133, invented resonance "
                    "b0 = 550 G, width = 10 G, a_bg = 200 a0; atom-loss curves on the a < 0 side",
@@ -509,10 +529,16 @@ INVENTED_CAMPAIGN = {
     "atoms_rel_err": 0.04,
     "atoms_abs_err": 500.0,
     "temperature_rel_err": 0.03,
+    "dimer_a_range_a0": (550.0, 4000.0),
+    "dimer_n0": 2.0e4,
+    "dimer_partner_atoms": 4.0e4,
+    "dimer_gamma": 0.5,
+    "dimer_lost_fraction": 0.6,
+    "dimer_max_hold_s": 0.5,
 }
 
 
-def invented_campaign(seed, *, n_fields=20, scenario=None, model=None, truth=None):
+def invented_campaign(seed, *, n_fields=20, scenario=None, model=None, truth=None, dimer_fields=0):
     """Synthetic decay curves of :data:`INVENTED_CAMPAIGN` (an invented scenario).
 
     Each field gets one curve per temperature; initial numbers and temperatures vary
@@ -531,6 +557,9 @@ def invented_campaign(seed, *, n_fields=20, scenario=None, model=None, truth=Non
         Theory model of the simulation.
     truth : dict, optional
         Overrides of the scenario's truth.
+    dimer_fields : int
+        Number of fields on the a > 0 side with an atom-dimer mixture curve per
+        temperature (default none).
 
     Returns
     -------
@@ -548,6 +577,12 @@ def invented_campaign(seed, *, n_fields=20, scenario=None, model=None, truth=Non
     res = FeshbachResonance(**sc["resonance"])
     ef = Efimov(**{k: v for k, v in tr.items() if k in ("a_minus", "eta_minus", "a_star", "eta_star",
                                                        "a_plus", "eta_plus")})
+    if dimer_fields and ef.a_star is None:
+        # the a > 0 side of the invented truth: the universal tie to a_- and eta_-
+        uni = Efimov.universal(ef.a_minus, ef.eta_minus)
+        for name in ("a_star", "eta_star", "a_plus", "eta_plus"):
+            tr.setdefault(name, getattr(uni, name))
+        ef = ef.replace(**{n: tr[n] for n in ("a_star", "eta_star", "a_plus", "eta_plus")})
     lo, hi = sc["a_range_a0"]
     a_values = -np.geomspace(abs(hi), abs(lo), n_fields)
     fields = res.field(a_values)
@@ -569,4 +604,27 @@ def invented_campaign(seed, *, n_fields=20, scenario=None, model=None, truth=Non
                 temperature_scale=tr.get("temperature_scale", 1.0), atoms_rel_err=sc["atoms_rel_err"],
                 atoms_abs_err=sc["atoms_abs_err"], temperature_rel_err=sc["temperature_rel_err"], rng=rng,
                 label=f"{b:.3f} G, {temp:g} nK"))
+    if dimer_fields:
+        from .rates import beta
+        lo, hi = sc["dimer_a_range_a0"]
+        a_values = np.geomspace(lo, hi, int(dimer_fields))
+        cad = trap.overlap_coefficient(sp)
+        for temp in sc["temperatures_nK"]:
+            for b, a in zip(res.field(a_values), a_values):
+                nd0 = sc["dimer_n0"] * (1.0 + 0.1 * rng.standard_normal())
+                na0 = sc["dimer_partner_atoms"] * (1.0 + 0.1 * rng.standard_normal())
+                t0 = temp * (1.0 + 0.05 * rng.standard_normal())
+                # dN_D/dt = -(beta c_AD N_A / T^1.5 + Gamma_D) N_D at first: hold until the
+                # requested fraction of dimers is gone
+                rate = float(beta(a, t0, species=sp, efimov=ef, model=model)) * cad * na0 / t0 ** 1.5
+                rate += sc["dimer_gamma"]
+                t_end = min(sc["dimer_max_hold_s"], -math.log(1.0 - sc["dimer_lost_fraction"]) / rate)
+                t = np.linspace(0.0, t_end, sc["points"])
+                curves.append(simulate_curve(
+                    t, species=sp, trap_hz=trap, efimov=ef, n0=na0, t0_nK=t0, field=float(b), resonance=res,
+                    model=model, gamma=0.0, density_scale=tr.get("density_scale", 1.0),
+                    temperature_scale=tr.get("temperature_scale", 1.0), atoms_rel_err=sc["atoms_rel_err"],
+                    atoms_abs_err=sc["atoms_abs_err"], temperature_rel_err=sc["temperature_rel_err"], rng=rng,
+                    label=f"dimers {b:.3f} G, {temp:g} nK", kind="dimers", n_dimers0=nd0,
+                    gamma_dimer=sc["dimer_gamma"]))
     return curves, res, tr

@@ -6,10 +6,13 @@ building foreign/damaged files, and the a(B) formula of Chin et al., RMP 82, 122
 """
 
 
+import math
+
 import h5py
 import numpy as np
 import pytest
 
+import lossfit as lf
 from lossfit.curves import (DecayCurve, invented_campaign, read_campaign, read_curves_csv,
                             write_campaign)
 from lossfit.data import LossSpectrum, write_spectra
@@ -200,3 +203,33 @@ def test_invented_campaign_is_on_the_requested_side():
     assert len(curves) == 8
     a = np.array([c.scattering_length(res) for c in curves])
     assert np.all(a < 0) and a.min() == pytest.approx(-3500.0, rel=1e-9)
+
+
+def test_invented_campaign_with_atom_dimer_mixtures():
+    import warnings
+
+    from lossfit.curvefit import fit_curve
+    from lossfit.errors import ValidityWarning
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ValidityWarning)
+        curves, res, truth = invented_campaign(3, n_fields=2, dimer_fields=3)
+    dimers = [c for c in curves if c.kind == "dimers"]
+    assert len(curves) == 10 and len(dimers) == 6
+    a = np.array([c.scattering_length(res) for c in dimers])
+    assert np.all(a > 0) and a.max() == pytest.approx(4000.0, rel=1e-9)
+    # the a > 0 truth is tied to a_- = -900 a0: a* = (0.0707645 x 22.694 / 1.50763) |a_-|
+    # (Gogolin, Mora & Egger, PRL 100, 140404 (2008); Braaten & Hammer, Phys. Rep. 428, 259 (2006))
+    assert truth["a_star"] == pytest.approx(900.0 * 0.0707645 * 22.6944 / 1.50763, rel=1e-4)
+    for c in dimers:
+        assert c.partner_atoms.shape == c.t.shape
+        assert c.atoms[-1] < 0.7 * c.atoms[0]                  # the dimers really decay
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", ValidityWarning)
+            fit = fit_curve(c, species="133Cs", resonance=res)
+        # the constant-beta model describes a mixture curve to within noise
+        assert fit.chi2 < fit.dof + 4 * math.sqrt(2 * fit.dof)
+    with pytest.raises(LossfitValueError, match="n_dimers0"):
+        from lossfit.curves import simulate_curve
+        simulate_curve(np.linspace(0, 0.1, 5), species="133Cs", trap_hz=TRAP, efimov=lf.Efimov(a_star=900.0,
+                       eta_star=0.1), n0=1e4, t0_nK=100.0, a=1000.0, rng=np.random.default_rng(0),
+                       kind="dimers")
