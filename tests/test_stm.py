@@ -186,3 +186,19 @@ def test_negative_a_coefficient_matches_project_solver():
                                    convention="events", negative_a=True)
         c = k * (math.sin(th) ** 2 + math.sinh(eta) ** 2) / math.sinh(2 * eta)
         assert c == pytest.approx(4672, rel=1e-3)
+
+
+def test_beta_energy_dependence_matches_hyperspherical():
+    # Cross-check of two independent routes below breakup (docs/solver.md 5b gives
+    # beta = 3 pi P/(2 k_AD) with P from s_AD and Phi): measured agreement 7e-6 at
+    # k_AD a = 0.6 (N = 64 channels), kappa* a = 0.15, eta = 0.2.
+    from lossfit.universal.solver import atom_dimer
+    from lossfit.universal.solver.scattering import phase_phi
+
+    ka, eta, kad = 0.15, 0.2, 0.6
+    t, ph = atom_dimer.s_ad_components(kad, nchan=64)
+    s = math.sqrt(1 - t) * np.exp(1j * ph)
+    p = t * (1 - math.exp(-4 * eta)) / abs(1 + s * np.exp(2j * float(phase_phi(ka))
+                                                      - 2 * eta)) ** 2
+    b_hyp = 3 * math.pi * p / (2 * kad)
+    assert stm.relaxation_beta(ka, eta, kad=kad, cutoff=CUT) == pytest.approx(b_hyp, rel=1e-4)
