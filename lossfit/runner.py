@@ -188,6 +188,8 @@ def run_job(job_path, out_dir, *, pool="serial", workers=None, steps=None, overw
 def report(out_dir, *, overwrite=False, stream=None):
     """Re-create summary.json, corner.png and spectrum.png from the stored chain."""
     from .inference.backends import read_chain_file
+    import numpy as np
+
     from .inference.fitting import make_result, prepare
     from .jobs import parse_job
     stream = stream or sys.stdout
@@ -199,14 +201,22 @@ def report(out_dir, *, overwrite=False, stream=None):
         raise OutputConflict(f"{out_dir!r} already holds {present}; pass --overwrite to re-create them")
     meta = stored["metadata"]
     job = parse_job(meta["job_text"], meta["job_path"])
-    if job.campaign:
-        raise LossfitValueError("dir", "report does not rebuild decay-curve campaign runs yet; their "
-                                "summary and figures are written by lossfit run")
     with FolderLock(out_dir), warnings.catch_warnings():
         warnings.simplefilter("ignore", ValidityWarning)
-        space, likelihood, _ = prepare(job.load_data(), species=job.species, free=job.free, model=job.model,
-                                       priors=job.priors, fixed=job.fixed, tie=job.tie)
+        data = job.load_data()
         kw = job.fit_kwargs()
+        common = {k: kw[k] for k in ("species", "free", "model", "priors", "fixed", "tie")}
+        if job.campaign:
+            from .inference.global_fit import prepare_curves
+            space, likelihood, _ = prepare_curves(data, resonance=kw["resonance"],
+                                                  systematics=kw["systematics"], **common)
+            # the chord reference of the nuisances sits at the best stored sample, as on resume
+            chain, log_prob = stored["chain"], stored["log_prob"]
+            best = chain.reshape(-1, chain.shape[-1])[int(np.argmax(log_prob.ravel()))]
+            vals = space.values(best)
+            likelihood.refresh(space.efimov(vals), vals)
+        else:
+            space, likelihood, _ = prepare(data, **common)
         result = make_result(space, likelihood, stored["chain"], stored["log_prob"],
                              stored["accepted"] / max(stored["iteration"], 1), burn=kw["burn"],
                              thin=kw["thin"], settings={"walkers": kw["walkers"], "seed": kw["seed"],

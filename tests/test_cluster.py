@@ -235,3 +235,14 @@ checkpoint_every = 20
     summary = json.loads((tmp_path / "out" / "summary.json").read_text())
     assert {r["name"] for r in summary["summary"]} >= {"a_minus", "eta_minus", "density_scale"}
     assert read_chain_file(tmp_path / "out" / "chains.h5")["iteration"] == 60
+    # lossfit report rebuilds the same summary from the stored chain (refusing to
+    # overwrite without --overwrite); the medians depend only on the chain
+    proc = _run("report", tmp_path / "out")
+    assert proc.returncode == 3, proc.stderr
+    proc = _run("report", tmp_path / "out", "--overwrite")
+    assert proc.returncode == 0, proc.stderr
+    again = json.loads((tmp_path / "out" / "summary.json").read_text())
+    before = {r["name"]: r["median"] for r in summary["summary"]}
+    after = {r["name"]: r["median"] for r in again["summary"]}
+    assert after == pytest.approx(before, rel=1e-12)
+    assert (tmp_path / "out" / "spectrum.png").stat().st_size > 0

@@ -62,7 +62,8 @@ field noise, the rate is averaged over sigma_B by Gauss-Hermite quadrature in B
 the rate rather than the curves, which is exact to first order in the loss.
 """
 
-__all__ = ["CurvesLikelihood", "CampaignSpace", "CampaignPosterior", "fit_curves", "SYSTEMATIC_NAMES"]
+__all__ = ["CurvesLikelihood", "CampaignSpace", "CampaignPosterior", "fit_curves", "prepare_curves",
+           "SYSTEMATIC_NAMES"]
 
 import math
 import warnings
@@ -611,6 +612,75 @@ def _systematic_priors(systematics, resonance):
     return out
 
 
+def prepare_curves(curves, *, species, free, model=None, priors=None, resonance=None, systematics=None,
+                   fixed=None, tie=None, heating=True, recombination_heating_nK=0.0, inner_steps=1,
+                   field_noise_nodes=7, rtol=1e-7, density_sigma=None):
+    """Parameter space, likelihood and posterior of a global fit, without sampling.
+
+    Arguments as in :func:`fit_curves`. The per-curve least-squares fits made here give
+    the nuisance reference (refresh it at the posterior mode with
+    :meth:`CurvesLikelihood.refresh` before sampling) and the default prior ranges.
+
+    Returns
+    -------
+    space : CampaignSpace
+    likelihood : CurvesLikelihood
+    posterior : CampaignPosterior
+    """
+    curves = check_curves(curves)
+    if resonance is not None and not isinstance(resonance, FeshbachResonance):
+        raise LossfitValueError("resonance", "must be a lossfit.FeshbachResonance (its b0, width, a_bg "
+                                "are the systematics)")
+    sp = _lookup_species(species)
+    mdl = get_model(DEFAULT_MODEL if model is None else model)
+    free = [free] if isinstance(free, str) else list(free)
+    if "density_scale" in free:
+        # lossfit.fit's spelling of the density nuisance
+        free.remove("density_scale")
+        if systematics and "density_scale" in systematics:
+            raise LossfitValueError("density_sigma", "density_scale is both in free and in systematics")
+        if density_sigma is None and not (priors and "density_scale" in priors):
+            raise LossfitValueError("density_sigma", "give the width of the density-scale prior "
+                                    "(e.g. density_sigma=0.2) or priors['density_scale']")
+        systematics = dict(systematics or {})
+        systematics["density_scale"] = (priors or {}).get("density_scale", density_sigma)
+    bad = [n for n in free if n in EXTRA_NAMES]
+    if bad:
+        raise LossfitValueError("free", f"give systematics {bad} through systematics=")
+    sys_priors = _systematic_priors(systematics, resonance)
+    fixed = dict(fixed or {})
+    for n in sys_priors:
+        if n in fixed:
+            raise LossfitValueError("fixed", f"{n!r} is both a sampled systematic and fixed")
+    field_noise = "sigma_B" in sys_priors or fixed.get("sigma_B", 0.0) > 0
+    if field_noise and resonance is None:
+        raise LossfitValueError("resonance", "field noise sigma_B needs the resonance a(B)")
+
+    # stage 1: per-curve fits give the reference nuisances and the default prior ranges
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ValidityWarning)
+        th = np.broadcast_to(np.asarray(recombination_heating_nK, dtype=float), (len(curves),))
+        fits = [fit_curve(c, species=sp, resonance=resonance, heating=heating,
+                          recombination_heating_nK=float(th[j])) for j, c in enumerate(curves)]
+    s_range = (1.0, 1.0)
+    if "temperature_scale" in sys_priors:
+        draws = sys_priors["temperature_scale"].sample(np.random.default_rng(0), 4000)
+        s_range = (float(draws.min()), float(draws.max()))
+    elif "temperature_scale" in fixed:
+        s_range = (float(fixed["temperature_scale"]),) * 2
+    likelihood = CurvesLikelihood(curves, sp, mdl, resonance=resonance, reference_fits=fits, heating=heating,
+                                  recombination_heating_nK=recombination_heating_nK,
+                                  temperature_scale_range=s_range, field_noise=field_noise,
+                                  field_noise_nodes=field_noise_nodes, inner_steps=inner_steps, rtol=rtol)
+    user_priors = _coerce_priors(priors)
+    all_priors = default_priors([n for n in free if n not in user_priors], likelihood.two_stage_spectra)
+    all_priors.update(user_priors)
+    all_priors.update(sys_priors)
+    space = CampaignSpace(free + [n for n in SYSTEMATIC_NAMES if n in sys_priors], all_priors,
+                          fixed=fixed, tie=tie)
+    return space, likelihood, CampaignPosterior(space, likelihood)
+
+
 def fit_curves(curves, *, species, free, model=None, priors=None, resonance=None, systematics=None,
                fixed=None, tie=None, walkers=32, steps=2000, burn=None, thin=1, seed=None, backend=None,
                pool=None, progress=None, heating=True, recombination_heating_nK=0.0, inner_steps=1,
@@ -664,64 +734,18 @@ def fit_curves(curves, *, species, free, model=None, priors=None, resonance=None
         Its ``likelihood`` is a :class:`CurvesLikelihood` (``.spectra``: the two-stage
         spectra grouped by temperature, for the spectrum plot).
     """
-    curves = check_curves(curves)
     for name, value, lo in (("walkers", walkers, 2), ("steps", steps, 2), ("thin", thin, 1)):
         if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < lo:
             raise LossfitValueError(name, f"must be an integer >= {lo}, got {value!r}")
-    if resonance is not None and not isinstance(resonance, FeshbachResonance):
-        raise LossfitValueError("resonance", "must be a lossfit.FeshbachResonance (its b0, width, a_bg "
-                                "are the systematics)")
-    sp = _lookup_species(species)
-    mdl = get_model(DEFAULT_MODEL if model is None else model)
-    free = [free] if isinstance(free, str) else list(free)
-    if "density_scale" in free:
-        # lossfit.fit's spelling of the density nuisance
-        free.remove("density_scale")
-        if systematics and "density_scale" in systematics:
-            raise LossfitValueError("density_sigma", "density_scale is both in free and in systematics")
-        if density_sigma is None and not (priors and "density_scale" in priors):
-            raise LossfitValueError("density_sigma", "give the width of the density-scale prior "
-                                    "(e.g. density_sigma=0.2) or priors['density_scale']")
-        systematics = dict(systematics or {})
-        systematics["density_scale"] = (priors or {}).get("density_scale", density_sigma)
-    bad = [n for n in free if n in EXTRA_NAMES]
-    if bad:
-        raise LossfitValueError("free", f"give systematics {bad} through systematics=")
-    sys_priors = _systematic_priors(systematics, resonance)
-    fixed = dict(fixed or {})
-    for n in sys_priors:
-        if n in fixed:
-            raise LossfitValueError("fixed", f"{n!r} is both a sampled systematic and fixed")
-    field_noise = "sigma_B" in sys_priors or fixed.get("sigma_B", 0.0) > 0
-    if field_noise and resonance is None:
-        raise LossfitValueError("resonance", "field noise sigma_B needs the resonance a(B)")
-
-    # stage 1: per-curve fits give the reference nuisances and the default prior ranges
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", ValidityWarning)
-        th = np.broadcast_to(np.asarray(recombination_heating_nK, dtype=float), (len(curves),))
-        fits = [fit_curve(c, species=sp, resonance=resonance, heating=heating,
-                          recombination_heating_nK=float(th[j])) for j, c in enumerate(curves)]
-    s_range = (1.0, 1.0)
-    if "temperature_scale" in sys_priors:
-        draws = sys_priors["temperature_scale"].sample(np.random.default_rng(0), 4000)
-        s_range = (float(draws.min()), float(draws.max()))
-    elif "temperature_scale" in fixed:
-        s_range = (float(fixed["temperature_scale"]),) * 2
-    likelihood = CurvesLikelihood(curves, sp, mdl, resonance=resonance, reference_fits=fits, heating=heating,
-                                  recombination_heating_nK=recombination_heating_nK,
-                                  temperature_scale_range=s_range, field_noise=field_noise,
-                                  field_noise_nodes=field_noise_nodes, inner_steps=inner_steps, rtol=rtol)
-    user_priors = _coerce_priors(priors)
-    all_priors = default_priors([n for n in free if n not in user_priors], likelihood.two_stage_spectra)
-    all_priors.update(user_priors)
-    all_priors.update(sys_priors)
-    space = CampaignSpace(free + [n for n in SYSTEMATIC_NAMES if n in sys_priors], all_priors,
-                          fixed=fixed, tie=tie)
+    space, likelihood, posterior = prepare_curves(
+        curves, species=species, free=free, model=model, priors=priors, resonance=resonance,
+        systematics=systematics, fixed=fixed, tie=tie, heating=heating,
+        recombination_heating_nK=recombination_heating_nK, inner_steps=inner_steps,
+        field_noise_nodes=field_noise_nodes, rtol=rtol, density_sigma=density_sigma)
     if walkers < 2 * space.ndim:
         raise LossfitValueError("walkers", f"must be at least twice the number of sampled parameters "
                                 f"({2 * space.ndim}), got {walkers}")
-    posterior = CampaignPosterior(space, likelihood)
+    mdl = likelihood.model
     rng = np.random.default_rng(seed)
 
     store, done = open_backend(backend, walkers, space.ndim, every=checkpoint_every, names=space.names,
@@ -739,7 +763,7 @@ def fit_curves(curves, *, species, free, model=None, priors=None, resonance=None
                  progress=show, log_every=log_every, checkpoint_every=checkpoint_every, names=space.names,
                  metadata=metadata)
     settings = {"walkers": walkers, "steps": int(run.chain.shape[0]), "seed": seed, "model": mdl.name,
-                "free": ",".join(space.names), "tie": tie or "", "curves": len(curves),
+                "free": ",".join(space.names), "tie": tie or "", "curves": likelihood.n_curves,
                 "inner_steps": inner_steps, "route": "global fit of decay curves"}
     return make_result(space, likelihood, run.chain, run.log_prob, run.acceptance, burn=burn, thin=thin,
                        settings=settings)
