@@ -247,3 +247,29 @@ def test_dimer_curves_profile_and_recovery():
     rows = {r["name"]: r for r in result.summary()}
     assert rows["a_star"]["lo95"] <= 950.0 <= rows["a_star"]["hi95"]
     assert rows["eta_star"]["lo95"] <= 0.1 <= rows["eta_star"]["hi95"]
+
+
+def test_correlated_resonance_prior_is_the_joint_normal():
+    # the joint prior of (b0, width, a_bg) against scipy's multivariate normal, with the
+    # Jacobian of the ln|value| sampling coordinates (d x = |x| d theta)
+    from scipy.stats import multivariate_normal
+
+    from lossfit.feshbach import FeshbachResonance
+    from lossfit.inference.global_fit import CampaignSpace, _systematic_priors
+    from lossfit.inference.priors import LogUniform
+    cov = np.array([[4e-4, 3e-4, -0.05], [3e-4, 9e-4, -0.02], [-0.05, -0.02, 25.0]])
+    res = FeshbachResonance(b0=550.0, width=10.0, a_bg=200.0, covariance=cov)
+    priors, corr = _systematic_priors({"resonance": True}, res)
+    space = CampaignSpace(["a_minus", "b0", "width", "a_bg"], {"a_minus": LogUniform(-1e4, -100.0), **priors},
+                          correlated=corr)
+    mvn = multivariate_normal(mean=[550.0, 10.0, 200.0], cov=cov)
+    points = [[-900.0, 550.0, 10.0, 200.0], [-900.0, 550.03, 10.05, 196.0], [-900.0, 549.97, 9.98, 207.0]]
+    lp = [space.log_prior(space.theta(p)) for p in points]
+    ref = [mvn.logpdf(p[1:]) + np.sum(np.log(np.abs(p[1:]))) for p in points]
+    assert np.diff(lp) == pytest.approx(np.diff(ref), abs=1e-9)
+    with pytest.raises(LossfitValueError) as info:
+        _systematic_priors({"resonance": True}, FeshbachResonance(b0=550.0, width=10.0, a_bg=200.0))
+    assert info.value.argument == "systematics['resonance']"
+    with pytest.raises(LossfitValueError) as info:
+        _systematic_priors({"resonance": True, "b0": 0.01}, res)
+    assert info.value.argument == "systematics['resonance']"

@@ -102,7 +102,7 @@ class CampaignSpace(ParameterSpace):
     prior's support and is sampled in ln|value| like every other parameter.
     """
 
-    def __init__(self, free, priors, fixed=None, tie=None):
+    def __init__(self, free, priors, fixed=None, tie=None, correlated=None):
         free = list(free)
         fixed = dict(fixed or {})
         extra = [n for n in free if n in EXTRA_NAMES]
@@ -115,6 +115,23 @@ class CampaignSpace(ParameterSpace):
         self.priors = self.priors + [priors[n] for n in extra]
         self.ndim = len(self.names)
         self._signs = np.array([-1.0 if n == "a_minus" else p.sign for n, p in zip(self.names, self.priors)])
+        self._correlated = None
+        if correlated is not None:
+            names, mean, cov = correlated
+            idx = np.array([self.names.index(n) for n in names])
+            sd = np.sqrt(np.diag(cov))
+            # the joint Normal replaces the product of its Normal marginals: add
+            # log N(x; mean, cov) - sum_i log N(x_i; mean_i, sd_i)
+            const = -0.5 * np.linalg.slogdet(cov)[1] + float(np.sum(np.log(sd)))
+            self._correlated = (idx, np.asarray(mean, dtype=float), np.linalg.inv(cov), sd, const)
+
+    def log_prior(self, theta):
+        lp = super().log_prior(theta)
+        if self._correlated is None or lp == -math.inf:
+            return lp
+        idx, mean, inv, sd, const = self._correlated
+        d = self._signs[idx] * np.exp(np.asarray(theta, dtype=float)[idx]) - mean
+        return lp - 0.5 * float(d @ inv @ d) + 0.5 * float(np.sum((d / sd) ** 2)) + const
 
     def physical(self, theta):
         return self._signs * np.exp(np.asarray(theta, dtype=float))
@@ -587,9 +604,38 @@ _ZERO = _zero_table()
 
 
 def _systematic_priors(systematics, resonance):
-    """Turn the ``systematics`` shorthand into Priors (module docstring of fit_curves)."""
+    """Turn the ``systematics`` shorthand into Priors (docstring of fit_curves).
+
+    Returns the priors and the correlated resonance block (names, mean, covariance) or None.
+    """
     out = {}
-    for name, spec in (systematics or {}).items():
+    systematics = dict(systematics or {})
+    correlated = None
+    if "resonance" in systematics:
+        spec = systematics.pop("resonance")
+        clash = [n for n in _RESONANCE_NAMES if n in systematics]
+        if clash:
+            raise LossfitValueError("systematics['resonance']", f"samples b0, width and a_bg jointly; "
+                                    f"do not also give {clash}")
+        if resonance is None:
+            raise LossfitValueError("resonance", "systematics['resonance'] needs the nominal resonance=")
+        if spec is True:
+            if resonance.covariance is None:
+                raise LossfitValueError("systematics['resonance']", "the resonance carries no covariance; "
+                                        "pass a 3x3 covariance of (b0, width, a_bg) instead of True")
+            cov = resonance.covariance
+        else:
+            from ..feshbach import _covariance
+            cov = _covariance(spec)
+        cov = np.array(cov, dtype=float)
+        if np.any(np.diag(cov) <= 0) or np.linalg.eigvalsh(cov).min() <= 1e-12 * np.max(np.diag(cov)):
+            raise LossfitValueError("systematics['resonance']", "the covariance must be positive definite "
+                                    "(every resonance parameter uncertain)")
+        mean = np.array([getattr(resonance, n) for n in _RESONANCE_NAMES])
+        for n, mu, var in zip(_RESONANCE_NAMES, mean, np.diag(cov)):
+            out[n] = Normal(float(mu), math.sqrt(var))
+        correlated = (_RESONANCE_NAMES, mean, cov)
+    for name, spec in systematics.items():
         if name not in SYSTEMATIC_NAMES:
             raise LossfitValueError("systematics", f"unknown systematic {name!r}; known: {list(SYSTEMATIC_NAMES)}")
         if isinstance(spec, Prior):
@@ -608,8 +654,7 @@ def _systematic_priors(systematics, resonance):
             if resonance is None:
                 raise LossfitValueError("resonance", f"systematic {name!r} needs the nominal resonance=")
             out[name] = Normal(getattr(resonance, name), float(spec))
-    # independent priors: a covariance carried by the resonance is not used (yet)
-    return out
+    return out, correlated
 
 
 def prepare_curves(curves, *, species, free, model=None, priors=None, resonance=None, systematics=None,
@@ -647,7 +692,7 @@ def prepare_curves(curves, *, species, free, model=None, priors=None, resonance=
     bad = [n for n in free if n in EXTRA_NAMES]
     if bad:
         raise LossfitValueError("free", f"give systematics {bad} through systematics=")
-    sys_priors = _systematic_priors(systematics, resonance)
+    sys_priors, correlated = _systematic_priors(systematics, resonance)
     fixed = dict(fixed or {})
     for n in sys_priors:
         if n in fixed:
@@ -677,7 +722,7 @@ def prepare_curves(curves, *, species, free, model=None, priors=None, resonance=
     all_priors.update(user_priors)
     all_priors.update(sys_priors)
     space = CampaignSpace(free + [n for n in SYSTEMATIC_NAMES if n in sys_priors], all_priors,
-                          fixed=fixed, tie=tie)
+                          fixed=fixed, tie=tie, correlated=correlated)
     return space, likelihood, CampaignPosterior(space, likelihood)
 
 
@@ -707,6 +752,9 @@ def fit_curves(curves, *, species, free, model=None, priors=None, resonance=None
         Campaign systematics to sample, name -> Prior or shorthand:
         ``density_scale`` / ``temperature_scale``: a width sigma meaning LogNormal(1, sigma);
         ``b0``, ``width``, ``a_bg``: a width meaning Normal(nominal, width) (G, G, a0);
+        ``resonance``: ``True`` (the resonance's own ``covariance``, e.g. from
+        :func:`lossfit.feshbach.calibrate_from_binding_energies`) or a 3x3 covariance of
+        (b0, width, a_bg) -- the three sampled with one correlated Normal prior;
         ``sigma_B``: a (lo, hi) range in G meaning LogUniform.
     fixed : dict, optional
         Fixed Efimov parameters, and fixed systematics (e.g. ``{"sigma_B": 0.005}``).
