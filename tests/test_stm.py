@@ -202,3 +202,35 @@ def test_beta_energy_dependence_matches_hyperspherical():
                                                       - 2 * eta)) ** 2
     b_hyp = 3 * math.pi * p / (2 * kad)
     assert stm.relaxation_beta(ka, eta, kad=kad, cutoff=CUT) == pytest.approx(b_hyp, rel=1e-4)
+
+
+# --- above breakup (deformed contour) -------------------------------------------------
+
+def test_contour_matches_real_axis_below_breakup():
+    # The deformed-contour solver must reproduce the real-axis (pole subtraction)
+    # amplitude where both apply; measured 1e-6 at k_AD a = 0.6.
+    ka, eta, kad = 0.15, 0.2, 0.6
+    r = stm.above_breakup(-1 + 0.75 * kad ** 2, ka, eta)
+    f = stm.atom_dimer_amplitude(kad, ka, eta, CUT)
+    assert abs(r["f"] / f - 1) < 1e-5
+    assert abs(r["p_breakup"]) < 1e-9          # no breakup below E = 0
+
+
+def test_contour_angle_independence_and_unitarity():
+    # E = a^-2 (above breakup): results independent of the ray angle; eta = 0 gives
+    # no deep-dimer loss and 0 < 1 - |S|^2 = breakup probability < 1.
+    r1 = stm.above_breakup(1.0, 0.15, 0.2, phi=0.2)
+    r2 = stm.above_breakup(1.0, 0.15, 0.2, phi=0.45)
+    assert abs(r1["f"] / r2["f"] - 1) < 1e-6
+    r0 = stm.above_breakup(1.0, 0.15, 0.0)
+    assert r0["p_deep"] == 0.0 and 0.0 < r0["p_breakup"] < 1.0
+
+
+def test_detailed_balance_threshold():
+    # Time reversal: K3_shallow(E) = 24 sqrt(3) pi^2 P_breakup(E) hbar/(m k^4) (the
+    # flux normalisation of docs/solver.md 4, events) must tend to the E = 0 value
+    # from the independent recombination calculation.  Measured -1 = 5.7e-4 at
+    # E = 3e-4 hbar^2/(m a^2), 1.7e-4 at 3e-5 (eta = 0, kappa* a = 0.15).
+    r = stm.above_breakup(3e-4, 0.15, 0.0, per_decade=64)
+    k0 = stm.recombination_shallow(0.15, cutoff=CUT, convention="events")
+    assert r["k3_shallow_events"] == pytest.approx(k0, rel=1e-3)

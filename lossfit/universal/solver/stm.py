@@ -40,7 +40,7 @@ edge (M. I. Haftel & F. Tabakin, Nucl. Phys. A 158, 1 (1970)).
 
 __all__ = ["kernel_log", "momentum_grid", "three_body_force", "atom_dimer_length",
            "atom_dimer_amplitude", "relaxation_beta", "recombination_shallow",
-           "recombination_deep", "kappa_a_minus",
+           "recombination_deep", "kappa_a_minus", "above_breakup",
            "fit_atom_dimer_universal", "S0"]
 
 import math
@@ -403,3 +403,102 @@ def fit_atom_dimer_universal(cutoff=1e5, npoints=15, **grid):
     return {"kappa_a_star": ks, "A": float(a_), "B": float(b_),
             "C_beta": 3.0 * math.pi * float(b_),
             "max_residual": float(np.abs(x @ [a_, b_] - y).max())}
+
+
+# ---------------------------------------------------------------------------
+# Above the breakup threshold (E > 0): deformed contour
+# ---------------------------------------------------------------------------
+
+def _contour(cutoff, phi, big_q, per_decade=48, narc=32, qmin=1e-6, order=8):
+    """Nodes/weights in path order: ray q = y e^{-i phi} (0 <= y <= Q), arc |q| = Q back
+    to the real axis, real tail [Q, Lambda]."""
+    y, wy = momentum_grid(big_q, qmin=qmin, per_decade=per_decade, order=order)
+    rot = np.exp(-1j * phi)
+    x, w = np.polynomial.legendre.leggauss(narc)
+    al = (0.5 * phi * (x + 1.0))[::-1]
+    wa = (0.5 * phi * w)[::-1]
+    qa = big_q * np.exp(-1j * al)
+    wqa = 1j * qa * wa                                   # dq = i Q e^{-i alpha} d alpha
+    yt, wt = momentum_grid(cutoff, qmin=big_q, per_decade=per_decade, order=order)
+    keep = yt > big_q
+    return (np.concatenate([y * rot, qa, yt[keep] + 0j]),
+            np.concatenate([wy * rot, wqa, wt[keep] + 0j]))
+
+
+def _kernel_contour(p, q, energy):
+    """kernel_log for p, q on the deformed contour (principal log of the ratio)."""
+    p = np.asarray(p)[:, None]
+    q = np.asarray(q)[None, :]
+    pq = p * q
+    return np.log1p(2.0 * pq / (p * p - pq + q * q - energy)) / (2.0 * pq)
+
+
+def _kernel_onshell(k0, q, energy):
+    """M(k0, q) for real k0 and q along the contour, with each logarithm continued
+    along the path from q -> 0 (where both arguments are k0^2 - E > 0)."""
+    zp = k0 * k0 + k0 * q + q * q - energy
+    zm = k0 * k0 - k0 * q + q * q - energy
+    lp = np.log(np.abs(zp)) + 1j * np.unwrap(np.angle(zp))
+    lm = np.log(np.abs(zm)) + 1j * np.unwrap(np.angle(zm))
+    return (lp - lm) / (2.0 * k0 * q)
+
+
+def above_breakup(energy, kappa_a, eta=0.0, cutoff=1e6, phi=None, per_decade=48, narc=32,
+                  q_factor=20.0):
+    """Atom-dimer scattering at -1/a^2 < E (in particular above breakup, E > 0), J = 0.
+
+    The integral runs along a deformed contour: the ray q = y e^{-i phi} up to
+    Q = q_factor max(k_AD, 1/a), the arc |q| = Q back to the real axis, and the real
+    axis from Q to Lambda, so the regulator (and h from :func:`three_body_force`) is the
+    real-axis one.  The contour passes below the dimer pole and the breakup branch point
+    (both at +i0) and above the singularity k_AD/2 - i/a of the on-shell kernel
+    (tan phi < 2/(k_AD a)); the on-shell amplitude follows from one more quadrature at
+    p = k_AD (contour methods as in E. Braaten, H.-W. Hammer, D. Kang & L. Platter,
+    PRA 78, 043605 (2008), who rotate the whole ray).
+
+    Parameters
+    ----------
+    energy : float
+        E m a^2 / hbar^2 (> -1).
+    kappa_a, eta, cutoff
+        As in :func:`atom_dimer_length`.
+    phi : float, optional
+        Ray angle; default min(0.5, 0.6 atan(2/(k_AD a))).
+    per_decade, narc, q_factor
+        Discretisation (nodes per decade on ray and tail; arc nodes; Q/max(k_AD, 1)).
+
+    Returns
+    -------
+    dict
+        k_ad, f (units a), S, p_total = 1 - |S|^2, p_deep (from the unitarity identity
+        4k (3a/16) Im h |Omega|^2, docs/stm.md), p_breakup = p_total - p_deep,
+        beta_deep and beta_breakup = 3 pi p/(2 k_AD) (hbar a/m, per atom-dimer pair),
+        k3_shallow_events = 24 sqrt(3) pi^2 p_breakup / E^2 (E > 0; detailed balance,
+        hbar a^4/m, events convention; 3 x for atoms lost).
+    """
+    if energy <= -1.0:
+        raise ValueError("need E > E_D = -1/a^2")
+    k0 = math.sqrt(4.0 * (energy + 1.0) / 3.0)
+    if phi is None:
+        phi = min(0.5, 0.6 * math.atan(2.0 / k0))
+    if not 0.0 < phi < math.atan(2.0 / k0):
+        raise ValueError("need 0 < phi < atan(2/(k_AD a))")
+    h = three_body_force(_kappa(kappa_a, eta), cutoff, per_decade=per_decade)
+    q, w = _contour(cutoff, phi, q_factor * max(k0, 1.0), per_decade, narc)
+    cw = (4.0 / math.pi) * w * q * q / (-1.0 + np.sqrt(3.0 * q * q / 4.0 - energy))
+    kmat = (_kernel_contour(q, q, energy) + h) * cw[None, :]
+    mv = _kernel_onshell(k0, q, energy)
+    amp = np.linalg.solve(np.eye(len(q)) - kmat, (16.0 / 3.0) * (mv + h))
+    mkk = math.log((3.0 * k0 * k0 - energy) / (k0 * k0 - energy)) / (2.0 * k0 * k0)
+    f = complex((16.0 / 3.0) * (mkk + h) + np.sum((mv + h) * cw * amp))
+    omega = (16.0 / 3.0) + np.sum(cw * amp)
+    s = 1.0 + 2j * k0 * f
+    p_tot = 1.0 - abs(s) ** 2
+    p_deep = float(0.75 * k0 * np.imag(h) * abs(omega) ** 2)
+    p_br = p_tot - p_deep
+    out = {"k_ad": k0, "f": f, "S": s, "p_total": p_tot, "p_deep": p_deep,
+           "p_breakup": p_br, "beta_deep": 3.0 * math.pi * p_deep / (2.0 * k0),
+           "beta_breakup": 3.0 * math.pi * p_br / (2.0 * k0)}
+    if energy > 0:
+        out["k3_shallow_events"] = 24.0 * math.sqrt(3.0) * math.pi ** 2 * p_br / energy ** 2
+    return out
