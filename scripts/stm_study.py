@@ -72,9 +72,33 @@ def beta_energy(kappa_a=0.15, eta=0.2, cut=1e6, nchans=(64, 128)):
               + f" | {row[-1] / b_stm - 1:+.2e} |", flush=True)
 
 
+def energy_table(kappa_a=0.15, eta=0.2):
+    print(f"\nEnergy dependence, kappa* a = {kappa_a}, eta = {eta} (and eta = 0 for K3)")
+    print("| E m a^2/hbar^2 | k_AD a | Re delta (rad) | 1 - abs(S)^2 | beta_deep | beta_breakup |"
+          " K3_shallow events, eta | K3_shallow events, eta = 0 |")
+    print("|---|---|---|---|---|---|---|---|")
+    for e in (-0.99, -0.9, -0.5, -0.1, 1e-3, 0.01, 0.1, 0.3, 1.0, 3.0, 10.0):
+        r = stm.above_breakup(e, kappa_a, eta)
+        delta = np.angle(r["S"]) / 2
+        k3 = r.get("k3_shallow_events", float("nan"))
+        k30 = (stm.above_breakup(e, kappa_a, 0.0)["k3_shallow_events"] if e > 0
+               else float("nan"))
+        print(f"| {e} | {r['k_ad']:.5f} | {delta:+.5f} | {r['p_total']:.6e} | "
+              f"{r['beta_deep']:.5f} | {r['beta_breakup']:.5e} | {k3:.5f} | {k30:.5f} |",
+              flush=True)
+    print("\nabove_breakup discretisation (E = 1, 10): per_decade / narc / phi")
+    for e in (1.0, 10.0):
+        for pd, na, phi in ((48, 32, None), (64, 48, None), (48, 32, 0.15)):
+            r = stm.above_breakup(e, kappa_a, eta, per_decade=pd, narc=na, phi=phi)
+            print(f"E = {e}: pd {pd} narc {na} phi {phi}: p_total {r['p_total']:.9f} "
+                  f"p_breakup {r['p_breakup']:.9f}", flush=True)
+
+
 if __name__ == "__main__":
-    what = sys.argv[1:] or ["convergence", "beta"]
+    what = sys.argv[1:] or ["convergence", "beta", "energy"]
     if "convergence" in what:
         convergence()
     if "beta" in what:
         beta_energy()
+    if "energy" in what:
+        energy_table()
