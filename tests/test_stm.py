@@ -234,3 +234,15 @@ def test_detailed_balance_threshold():
     r = stm.above_breakup(3e-4, 0.15, 0.0, per_decade=64)
     k0 = stm.recombination_shallow(0.15, cutoff=CUT, convention="events")
     assert r["k3_shallow_events"] == pytest.approx(k0, rel=1e-3)
+
+
+def test_born_terms():
+    # One-atom exchange alone: a_AD = -A_Born(0,0) = -lam 16 a/3, i.e. +8a/3 for the
+    # fermion quartet (the Born value, quoted from memory) and -16a/3 for bosons
+    # (exchange factor -2 relative to fermions, docs/stm.md 1).
+    m00 = stm.kernel_log([0.0], [0.0], -1.0)[0, 0]
+    assert m00 == 1.0
+    def a_born(lam):
+        return -lam * 16 / 3 * m00
+    assert a_born(-0.5) == pytest.approx(8 / 3)
+    assert a_born(1.0) == pytest.approx(-16 / 3)

@@ -5,8 +5,17 @@ bosons of mass m, next to the hyperspherical solver (docs/solver.md); see docs/s
 for the derivation of every factor used here.
 
 Units: hbar = m = 1 and lengths in units of the scattering length a > 0 (so the
-dimer energy is E_D = -1/a^2 = -1, momenta are in units of 1/a).  Results are returned
-as dimensionless ratios: a_AD / a, beta m / (hbar a), K3 m / (hbar a^4).
+dimer energy is E_D = -1/a^2 = -1, momenta are in units of 1/a; ``negative_a`` in
+:func:`recombination_deep` uses |a|).  Results are returned as dimensionless ratios:
+a_AD / a, beta m / (hbar a), K3 m / (hbar a^4).
+
+Contents: threshold atom-dimer length and relaxation (:func:`atom_dimer_length`,
+:func:`relaxation_beta`), the on-shell amplitude below breakup
+(:func:`atom_dimer_amplitude`), threshold recombination into the shallow and deep
+dimers (:func:`recombination_shallow`, :func:`recombination_deep`, the latter also for
+a < 0), kappa* a_- as a check (:func:`kappa_a_minus`), and atom-dimer scattering above
+breakup on a deformed contour with the breakup / deep-dimer split and K3_shallow(E) by
+detailed balance (:func:`above_breakup`).
 
 Equation (G. V. Skorniakov & K. A. Ter-Martirosian, Sov. Phys. JETP 4, 648 (1957);
 the form and notation of E. Braaten & H.-W. Hammer, Phys. Rep. 428, 259 (2006); the
@@ -41,7 +50,7 @@ edge (M. I. Haftel & F. Tabakin, Nucl. Phys. A 158, 1 (1970)).
 __all__ = ["kernel_log", "momentum_grid", "three_body_force", "atom_dimer_length",
            "atom_dimer_amplitude", "relaxation_beta", "recombination_shallow",
            "recombination_deep", "kappa_a_minus", "above_breakup",
-           "fit_atom_dimer_universal", "S0"]
+           "fit_atom_dimer_universal"]
 
 import math
 
@@ -200,7 +209,7 @@ def _solve(energy, h, lam, cutoff, drive_k, pole, inv_a=1.0, **grid):
     return amp, (amp[-1] if pole else None), interp, omega
 
 
-def atom_dimer_length(kappa_a, eta=0.0, cutoff=1e5, statistics="boson", **grid):
+def atom_dimer_length(kappa_a, eta=0.0, cutoff=1e6, statistics="boson", **grid):
     """Complex atom-dimer scattering length a_AD / a at threshold (J = 0).
 
     Parameters
@@ -227,7 +236,7 @@ def atom_dimer_length(kappa_a, eta=0.0, cutoff=1e5, statistics="boson", **grid):
     return -complex(interp([0.0])[0])
 
 
-def atom_dimer_amplitude(kad, kappa_a, eta=0.0, cutoff=1e5, statistics="boson", **grid):
+def atom_dimer_amplitude(kad, kappa_a, eta=0.0, cutoff=1e6, statistics="boson", **grid):
     """On-shell atom-dimer s-wave amplitude f = A(k, k; E) below breakup.
 
     Parameters
@@ -251,7 +260,7 @@ def atom_dimer_amplitude(kad, kappa_a, eta=0.0, cutoff=1e5, statistics="boson", 
     return complex(a0)
 
 
-def relaxation_beta(kappa_a, eta, kad=None, cutoff=1e5, **grid):
+def relaxation_beta(kappa_a, eta, kad=None, cutoff=1e6, **grid):
     """Atom-dimer relaxation coefficient beta m / (hbar a) (dimers lost, J = 0).
 
     dn_D/dt = -beta n_A n_D.  At threshold (``kad`` None) beta = -6 pi hbar Im(a_AD)/m
@@ -287,7 +296,7 @@ def _threshold_recombination(kappa_a, eta, cutoff, inv_a, **grid):
     return a0, om, h
 
 
-def recombination_shallow(kappa_a, eta=0.0, cutoff=1e5, convention="atoms", **grid):
+def recombination_shallow(kappa_a, eta=0.0, cutoff=1e6, convention="atoms", **grid):
     """Threshold recombination into the shallow dimer, K3 m / (hbar a^4), a > 0, J = 0.
 
     Three atoms at rest (E = 0) -> atom + shallow dimer with k_AD = 2/(sqrt(3) a):
@@ -310,7 +319,7 @@ def recombination_shallow(kappa_a, eta=0.0, cutoff=1e5, convention="atoms", **gr
     return _convention(24.0 * math.sqrt(3.0) * math.pi ** 2 * abs(a0) ** 2, convention)
 
 
-def recombination_deep(kappa_a, eta, cutoff=1e5, convention="atoms", negative_a=False,
+def recombination_deep(kappa_a, eta, cutoff=1e6, convention="atoms", negative_a=False,
                        **grid):
     """Threshold recombination into deep dimers, K3 m / (hbar a^4), J = 0.
 
@@ -376,7 +385,7 @@ def kappa_a_minus(cutoff=1e6, **grid):
     raise RuntimeError("no a_- root in kappa*|a_-| in (1.2, 1.9)")
 
 
-def fit_atom_dimer_universal(cutoff=1e5, npoints=15, **grid):
+def fit_atom_dimer_universal(cutoff=1e6, npoints=15, **grid):
     """Locate a* and fit a_AD/a = A + B cot[s0 ln(a/a*)] over one log period (eta = 0).
 
     a* is the pole of a_AD (root of 1/a_AD in ln kappa* a near the published
