@@ -72,6 +72,9 @@ def one_campaign(seed, *, n_fields, walkers, steps, inner_steps, model="capped",
     return out
 
 
+BIN_EXPECTED = (0.025, 0.135, 0.34, 0.34, 0.135, 0.025)
+
+
 def _coverage(runs, route):
     table = {}
     for p in [p for p in PARAMS if all(p in r[route] for r in runs)]:
@@ -79,8 +82,17 @@ def _coverage(runs, route):
         hit95 = [r[route][p]["lo95"] <= r["truth"][p] <= r[route][p]["hi95"] for r in runs]
         pulls = [(r[route][p]["median"] - r["truth"][p]) / (0.5 * (r[route][p]["hi68"] - r[route][p]["lo68"]))
                  for r in runs]
+        # where the truth falls among the posterior quantiles 2.5, 16, 50, 84, 97.5 %: for a
+        # calibrated posterior the six bins fill as BIN_EXPECTED (a coarse rank histogram,
+        # Talts et al., arXiv:1804.06788 (2018))
+        bins = np.zeros(6, dtype=int)
+        for r in runs:
+            q = r[route][p]
+            edges = [q["lo95"], q["lo68"], q["median"], q["hi68"], q["hi95"]]
+            bins[int(np.searchsorted(edges, r["truth"][p]))] += 1
         table[p] = {"coverage68": float(np.mean(hit68)), "coverage95": float(np.mean(hit95)),
-                    "mean_pull": float(np.mean(pulls)), "rms_pull": float(np.sqrt(np.mean(np.square(pulls))))}
+                    "mean_pull": float(np.mean(pulls)), "rms_pull": float(np.sqrt(np.mean(np.square(pulls)))),
+                    "quantile_bins": bins.tolist()}
     return table
 
 
@@ -125,7 +137,8 @@ def main(argv=None):
         print(f"{route}:")
         for p, row in summary[route].items():
             print(f"  {p:<14} 68%: {row['coverage68']:.2f}  95%: {row['coverage95']:.2f}  "
-                  f"pull mean {row['mean_pull']:+.2f} rms {row['rms_pull']:.2f}")
+                  f"pull mean {row['mean_pull']:+.2f} rms {row['rms_pull']:.2f}  "
+                  f"truth in quantile bins {row['quantile_bins']}")
     print(f"n = {len(runs)} campaigns; binomial s.e. of a 68 % coverage: {summary['binomial_se68']:.2f}")
 
 
