@@ -100,5 +100,6 @@ if __name__ == "__main__":
         convergence()
     if "beta" in what:
         beta_energy()
+        beta_energy(kappa_a=1.5, eta=0.05)
     if "energy" in what:
         energy_table()
