@@ -154,7 +154,7 @@ def test_threshold_coefficient_convention_factor():
     assert abs(c / 4590 / 3 - 1) < 0.025
 
 
-@pytest.mark.xfail(strict=True, reason="measured 3*4590 ratio 1.018: outside the 1 % target")
+@pytest.mark.xfail(strict=True, reason="measured 3*4590 ratio 1.018 (STM route: same value): outside the 1 % target")
 def test_threshold_coefficient_within_one_percent():
     # Braaten & Hammer 4590 x 3 (events -> atoms lost) within 1 %: NOT met (1.8 %).
     tt, _ = s11_components(3e-3, -1, nchan=16)
@@ -208,7 +208,7 @@ def test_atom_dimer_relaxation_threshold():
     assert abs(c_beta / 20.3 - 1) < 0.05
 
 
-@pytest.mark.xfail(strict=True, reason="measured C_beta = 19.50 vs 20.3 (-3.9 %): outside 1 %")
+@pytest.mark.xfail(strict=True, reason="measured C_beta = 19.50 vs 20.3 (-3.9 %; STM route 19.49): outside 1 %")
 def test_atom_dimer_relaxation_within_one_percent():
     t, _ = s_ad_components(1e-3, nchan=32, rm=16.0)
     assert abs(3 * math.pi * (t / 1e-3) / 4 / 20.3 - 1) < 0.01
