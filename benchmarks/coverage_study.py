@@ -20,6 +20,12 @@ on the a > 0 side (a* and eta* tied to a_- by the universal relations in the tru
 freely), so that both kinds of curve enter one fit.
 
 Usage: python benchmarks/coverage_study.py --campaigns 24 --out coverage.json
+
+Measured on 2026-12-02 (2-core machine, ~50 s per campaign): ``--campaigns 30
+--walkers 20 --steps 1200`` (seeds 5000-5029) plus ``--first-seed 5030 --campaigns 40``;
+the pooled 70 campaigns are summarised in lossfit/inference/global_fit.py (global
+68 % coverage 0.74 / 0.70 / 0.63 for a_-, eta_-, density scale; two-stage 0.80 / 0.31 /
+0.11).
 """
 
 import argparse
