@@ -15,7 +15,10 @@ Contents: threshold atom-dimer length and relaxation (:func:`atom_dimer_length`,
 dimers (:func:`recombination_shallow`, :func:`recombination_deep`, the latter also for
 a < 0), kappa* a_- as a check (:func:`kappa_a_minus`), and atom-dimer scattering above
 breakup on a deformed contour with the breakup / deep-dimer split and K3_shallow(E) by
-detailed balance (:func:`above_breakup`).
+detailed balance (:func:`above_breakup`); the universal function s_AD(k_AD a) of the
+Efimov channel with the atom-dimer transmission T_AD and the breakup coefficients A, B,
+C (:func:`s_ad_from_stm`, :func:`s_ad_fit`, :class:`AtomDimerRankOne`; tabulated by
+scripts/make_atom_dimer_table.py).
 
 Equation (G. V. Skorniakov & K. A. Ter-Martirosian, Sov. Phys. JETP 4, 648 (1957);
 the form and notation of E. Braaten & H.-W. Hammer, Phys. Rep. 428, 259 (2006); the
@@ -50,7 +53,9 @@ edge (M. I. Haftel & F. Tabakin, Nucl. Phys. A 158, 1 (1970)).
 __all__ = ["kernel_log", "momentum_grid", "three_body_force", "atom_dimer_length",
            "atom_dimer_amplitude", "relaxation_beta", "recombination_shallow",
            "recombination_deep", "kappa_a_minus", "above_breakup",
-           "fit_atom_dimer_universal"]
+           "fit_atom_dimer_universal", "AtomDimerRankOne", "s_ad_from_stm", "s_ad_fit",
+           "relaxation_probability_general",
+           "breakup_probability"]
 
 import math
 
@@ -511,3 +516,229 @@ def above_breakup(energy, kappa_a, eta=0.0, cutoff=1e6, phi=None, per_decade=48,
     if energy > 0:
         out["k3_shallow_events"] = 24.0 * math.sqrt(3.0) * math.pi ** 2 * p_br / energy ** 2
     return out
+
+
+# ---------------------------------------------------------------------------
+# The universal function s_AD(k_AD a) of the Efimov channel (a > 0, J = 0)
+# ---------------------------------------------------------------------------
+
+def _ray_edges(big_q, qmin, per_decade, order, dense_hi, dmax):
+    """Panel edges on [0, big_q]: geometric from qmin, with every panel below
+    ``dense_hi`` split so that no panel there is wider than ``dmax``."""
+    npan = max(1, int(math.ceil(math.log10(big_q / qmin) * per_decade / order)))
+    e = np.geomspace(qmin, big_q, npan + 1)
+    out = [0.0]
+    for lo, hi in zip(e[:-1], e[1:]):
+        nsub = 1
+        if dmax is not None and lo < dense_hi:
+            nsub = max(1, int(math.ceil((hi - lo) / dmax)))
+        out.extend(np.linspace(lo, hi, nsub + 1)[1:])
+    return np.array(out)
+
+
+def _contour_dense(cutoff, phi, big_q, per_decade, narc, qmin, order, dense_hi, dmax):
+    """As :func:`_contour`, with panels of width <= dmax on the ray below dense_hi
+    (needed at k_AD a >> 1, where the kernel varies on the scale 1/a near q ~ k_AD)."""
+    x, w = np.polynomial.legendre.leggauss(order)
+    e = _ray_edges(big_q, qmin, per_decade, order, dense_hi, dmax)
+    lo, hi = e[:-1, None], e[1:, None]
+    y = (0.5 * (hi - lo) * x + 0.5 * (hi + lo)).ravel()
+    wy = (0.5 * (hi - lo) * w).ravel()
+    rot = np.exp(-1j * phi)
+    xa, wa_ = np.polynomial.legendre.leggauss(narc)
+    al = (0.5 * phi * (xa + 1.0))[::-1]
+    wa = (0.5 * phi * wa_)[::-1]
+    qa = big_q * np.exp(-1j * al)
+    wqa = 1j * qa * wa
+    yt, wt = momentum_grid(cutoff, qmin=big_q, per_decade=per_decade, order=order)
+    keep = yt > big_q
+    return (np.concatenate([y * rot, qa, yt[keep] + 0j]),
+            np.concatenate([wy * rot, wqa, wt[keep] + 0j]))
+
+
+class AtomDimerRankOne:
+    """Atom-dimer scattering at one k_AD a for every three-body force h at once.
+
+    h enters the STM kernel as a rank-one term, so after one LU solve of the h = 0
+    equation on the deformed contour of :func:`above_breakup` (two right-hand sides),
+    the on-shell amplitude f(h), S(h) and the deep-dimer probability
+    P_deep(h) = (3 k a/4) Im h |Omega(h)|^2 (docs/stm.md, unitarity identity) follow in
+    closed form (Sherman--Morrison).  Valid below and above breakup (E > -1/a^2).
+
+    Parameters
+    ----------
+    kad : float
+        k_AD a; E = (-1 + 3 k_AD^2 a^2/4) hbar^2/(m a^2).
+    cutoff : float
+        Lambda a (the same value must be used for h, :func:`three_body_force`).
+    phi : float, optional
+        Ray angle; default min(0.5, 0.6 atan(2/(k_AD a))).
+    per_decade, narc, q_factor, order, qmin
+        Discretisation as in :func:`above_breakup`.
+    dmax : float, optional
+        Maximum panel width (units 1/a) on the ray below 1.5 max(k_AD a, 1); default
+        0.4 (k_AD a)·tan(phi) when k_AD a > 4, else no limit.
+    """
+
+    def __init__(self, kad, cutoff=1e7, phi=None, per_decade=48, narc=32, q_factor=20.0,
+                 order=8, qmin=1e-6, dmax="auto"):
+        k0 = float(kad)
+        self.kad = k0
+        self.energy = energy = -1.0 + 0.75 * k0 * k0
+        if phi is None:
+            phi = min(0.5, 0.6 * math.atan(2.0 / k0))
+        if not 0.0 < phi < math.atan(2.0 / k0):
+            raise ValueError("need 0 < phi < atan(2/(k_AD a))")
+        if dmax == "auto":
+            dmax = 0.4 * k0 * math.tan(phi) if k0 > 4.0 else None
+        self.phi, self.dmax = phi, dmax
+        q, w = _contour_dense(cutoff, phi, q_factor * max(k0, 1.0), per_decade, narc, qmin,
+                              order, 1.5 * max(k0, 1.0), dmax)
+        self.nodes = q.size
+        cw = (4.0 / math.pi) * w * q * q / (-1.0 + np.sqrt(3.0 * q * q / 4.0 - energy))
+        # 1 - K0 built in row blocks (memory), factorised in place as the Fortran-ordered
+        # transpose (scipy getrf without a copy), solved with trans=1.
+        from scipy.linalg import lu_factor, lu_solve
+
+        n = q.size
+        kmt = np.empty((n, n), dtype=complex)
+        for i0 in range(0, n, 1024):
+            i1 = min(n, i0 + 1024)
+            blk = -_kernel_contour(q[i0:i1], q, energy) * cw[None, :]
+            blk[np.arange(i1 - i0), np.arange(i0, i1)] += 1.0
+            kmt[i0:i1] = blk
+        mv = _kernel_onshell(k0, q, energy)
+        lu = lu_factor(kmt.T, overwrite_a=True, check_finite=False)
+        xy = lu_solve(lu, np.stack([mv, np.ones_like(mv)], axis=1), trans=1,
+                      check_finite=False)
+        del kmt, lu
+        x, y = xy[:, 0], xy[:, 1]
+        self._cx = np.sum(cw * x)
+        self._cy = np.sum(cw * y)
+        self._mx = np.sum(mv * cw * x)
+        self._my = np.sum(mv * cw * y)
+        self._mkk = math.log((3.0 * k0 * k0 - energy) / (k0 * k0 - energy)) / (2.0 * k0 * k0)
+
+    def amplitude(self, h):
+        """(f, S, P_deep) for three-body force(s) h (array_like complex)."""
+        h = np.asarray(h, dtype=complex)
+        g = 16.0 / 3.0
+        sig = g * (self._cx + h * self._cy) / (1.0 - h * self._cy)
+        f = g * (self._mkk + h) + g * (self._mx + h * self._my) + h * sig * self._my + h * sig
+        omega = g + sig
+        s = 1.0 + 2j * self.kad * f
+        p_deep = 0.75 * self.kad * h.imag * np.abs(omega) ** 2
+        return f, s, p_deep
+
+
+def _h_values(kappa_a, eta, cutoff, h_grid=None):
+    return np.array([three_body_force(_kappa(kv, ev), cutoff, **(h_grid or {}))
+                     for kv, ev in zip(np.ravel(kappa_a), np.ravel(eta))])
+
+
+def s_ad_fit(solver, etas=(0.1, 0.4), nphi=6, kappa0=0.15, cutoff=1e7, h_grid=None):
+    """Extract s_AD and the atom-dimer transmission T_AD from P_deep at ``nphi`` values
+    of Phi over one period, for each eta in ``etas``.
+
+    With w = e^{2 i Phi - 2 eta}, P_deep = T_AD (1 - e^{-4 eta}) / |1 + s_AD w|^2, where
+    T_AD is the flux fraction an incoming atom-dimer wave sends to short distance in the
+    Efimov channel.  Below breakup T_AD = 1 - |s_AD|^2 (one open channel); above breakup
+    1 - |s_AD|^2 = T_AD + T_breakup (the Efimov-channel flux also goes out as three
+    atoms).  Linear least squares:
+
+        (1 - e^{-4 eta})/P = a0 + a1 e^{-4 eta} + e^{-2 eta}(a2 cos 2Phi + a3 sin 2Phi),
+        a0 = 1/T_AD, a1 = |s|^2/T_AD, a2 = 2 Re s/T_AD, a3 = -2 Im s/T_AD,
+
+    and |s|^2 = a1 T_AD is an independent check of s = T_AD (a2 - i a3)/2.
+
+    Returns
+    -------
+    dict
+        s_ad, t_ad (T_AD), one_minus_abs_s2 (1 - |s_AD|^2), modulus_check
+        (a1 T_AD - |s|^2), max_rel_residual of the linear fit, coef (a0..a3).
+    """
+    from .scattering import phase_phi
+
+    kap = kappa0 * np.exp(np.arange(nphi) * math.pi / (nphi * S0))
+    kk = np.tile(kap, len(etas))
+    ee = np.repeat(np.asarray(etas, dtype=float), nphi)
+    hs = _h_values(kk, ee, cutoff, h_grid)
+    _, _, p = solver.amplitude(hs)
+    ph2 = 2.0 * np.asarray(phase_phi(kk), dtype=float)
+    lhs = (1.0 - np.exp(-4.0 * ee)) / p
+    xm = np.c_[np.ones_like(ee), np.exp(-4.0 * ee), np.exp(-2.0 * ee) * np.cos(ph2),
+               np.exp(-2.0 * ee) * np.sin(ph2)]
+    coef, *_ = np.linalg.lstsq(xm, lhs, rcond=None)
+    a0, a1, a2, a3 = coef
+    t = 1.0 / a0
+    s = t * complex(a2, -a3) / 2.0
+    out = {"s_ad": s, "t_ad": t, "one_minus_abs_s2": 1.0 - abs(s) ** 2,
+           "modulus_check": a1 * t - abs(s) ** 2,
+           "max_rel_residual": float(np.max(np.abs(xm @ coef - lhs) / np.abs(lhs))),
+           "coef": coef}
+    if solver.energy > 0:
+        # breakup: P_break |1 + s w|^2 = A + 2 Re(B w) + C |w|^2 (S is a Moebius map of w)
+        f, smat, _ = solver.amplitude(hs)
+        w = np.exp(1j * ph2 - 2.0 * ee)
+        pb = 1.0 - np.abs(smat) ** 2 - p
+        yb = pb * np.abs(1.0 + s * w) ** 2
+        xb = np.c_[np.ones_like(ee), 2.0 * w.real, -2.0 * w.imag, np.abs(w) ** 2]
+        cb, *_ = np.linalg.lstsq(xb, yb, rcond=None)
+        out.update(breakup_A=float(cb[0]), breakup_B=complex(cb[1], cb[2]),
+                   breakup_C=float(cb[3]),
+                   breakup_max_abs_residual=float(np.max(np.abs(xb @ cb - yb))))
+    return out
+
+
+def breakup_probability(s_ad, a_, b_, c_, kappa_a, eta):
+    """P_break = (A + 2 Re(B w) + C |w|^2)/|1 + s_AD w|^2, w = e^{2 i Phi - 2 eta}."""
+    from .scattering import phase_phi
+
+    w = np.exp(2j * np.asarray(phase_phi(kappa_a), dtype=float) - 2.0 * eta)
+    return (a_ + 2.0 * np.real(b_ * w) + c_ * np.abs(w) ** 2) / np.abs(1.0 + s_ad * w) ** 2
+
+
+def relaxation_probability_general(s_ad, t_ad, kappa_a, eta):
+    """P_deep = T_AD (1 - e^{-4 eta}) / |1 + s_AD e^{2 i Phi - 2 eta}|^2 (above and below
+    breakup; T_AD = 1 - |s_AD|^2 below)."""
+    from .scattering import phase_phi
+
+    w = np.exp(2j * np.asarray(phase_phi(kappa_a), dtype=float) - 2.0 * eta)
+    return t_ad * (1.0 - math.exp(-4.0 * eta)) / np.abs(1.0 + s_ad * w) ** 2
+
+
+def s_ad_from_stm(kad, etas=(0.1, 0.4), nphi=6, kappa0=0.15, cutoff=None, full=False, **num):
+    """Complex s_AD(k_AD a) of the Efimov channel from STM solves (a > 0, J = 0).
+
+    s_AD is the long-distance reflection amplitude of docs/solver.md 5b: with
+    w = e^{2 i Phi - 2 eta}, the deep-dimer (relaxation) probability of an incoming
+    atom-dimer s wave is P = T_AD (1 - e^{-4 eta})/|1 + s_AD w|^2, T_AD = 1 - |s_AD|^2
+    below breakup.  Above breakup the breakup channels are more outgoing channels: the
+    denominator keeps its form, but the Efimov-channel flux 1 - |s_AD|^2 is shared
+    between atom + dimer and three atoms, so T_AD < 1 - |s_AD|^2 is a second function.
+    Both are extracted from P_deep at ``nphi`` values of kappa* a (one period of Phi)
+    and two values of eta by linear least squares in 1/P (:func:`s_ad_fit`); one LU
+    solve serves all kappa* (:class:`AtomDimerRankOne`).
+
+    Parameters
+    ----------
+    kad : float
+        k_AD a > 0.
+    etas, nphi, kappa0
+        Extraction parameters (two or more eta > 0; see :func:`s_ad_fit`).
+    cutoff : float, optional
+        Lambda a; default 1e7 max(1, k_AD a).
+    **num
+        Passed to :class:`AtomDimerRankOne` (phi, per_decade, narc, q_factor, dmax).
+    full : bool
+        Return the whole :func:`s_ad_fit` dict (with T_AD) instead of s_AD.
+
+    Returns
+    -------
+    complex
+    """
+    if cutoff is None:
+        cutoff = 1e7 * max(1.0, kad)
+    sol = AtomDimerRankOne(kad, cutoff=cutoff, **num)
+    r = s_ad_fit(sol, etas, nphi, kappa0, cutoff)
+    return r if full else r["s_ad"]
