@@ -1,5 +1,5 @@
-"""model="zero-range": per-point thermal L3 against a scipy.integrate.quad average of the
-same kernel (same run), table load time and size on disk.
+"""model="zero-range": per-point thermal L3 (a < 0) and beta (a > 0) against a
+scipy.integrate.quad average of the same kernel (same run), table load times and sizes.
 
 Run: python benchmarks/bench_zero_range.py
 Targets (issue 3): <= 2 us per point and >= 1000x quad, <= 1e-6 relative difference.
@@ -16,7 +16,7 @@ import numpy as np
 from scipy.integrate import quad
 
 import lossfit as lf
-from lossfit.rates import three_body_rows
+from lossfit.rates import atom_dimer_rows, three_body_rows
 from lossfit.universal.models import get_model
 from lossfit.universal.tables import table_path
 
@@ -26,13 +26,14 @@ EF = lf.Efimov(a_minus=-1000.0, eta_minus=0.05)
 
 
 def main():
-    size = os.path.getsize(table_path())
-    code = ("import time; t=time.perf_counter(); from lossfit.universal.tables import load_s11_table; "
-            "load_s11_table(); print(time.perf_counter()-t)")
-    load = min(float(subprocess.run([sys.executable, "-c", code], capture_output=True, text=True).stdout)
-               for _ in range(3))
-    print(f"table {os.path.basename(table_path())}: {size / 1024:.1f} KiB on disk; load {load * 1e3:.1f} ms "
-          "(import of lossfit.universal.tables included)")
+    for name, loader in (("s11_negative_a.npz", "load_s11_table"), ("s_ad_positive_a.npz", "load_atom_dimer_table")):
+        size = os.path.getsize(table_path(name))
+        code = (f"import time; t=time.perf_counter(); from lossfit.universal.tables import {loader}; "
+                f"{loader}(); print(time.perf_counter()-t)")
+        load = min(float(subprocess.run([sys.executable, "-c", code], capture_output=True, text=True).stdout)
+                   for _ in range(3))
+        print(f"table {name}: {size / 1024:.1f} KiB on disk; load {load * 1e3:.1f} ms "
+              "(import of lossfit.universal.tables included)")
     a = -np.geomspace(5 * CS.r_vdw, 1e5, 4000)
     model = get_model("zero-range")
     kernel = model.three_body_kernel
@@ -52,6 +53,28 @@ def main():
             err = np.max(np.abs(got / ref - 1))
             print(f"T={t:5.0f} nK rtol={rtol:.0e}: lossfit {best * 1e6:6.2f} us/point, quad {per_quad * 1e6:8.1f} "
                   f"us/point, ratio {per_quad / best:6.0f}x, max rel diff {err:.1e}")
+
+    # a > 0: atom-dimer relaxation (STM table), weight P2(x) = (2/sqrt pi) sqrt(x) e^-x
+    ef = lf.Efimov(a_star=1000.0, eta_star=0.05)
+    a = np.geomspace(5 * CS.r_vdw, 2e4, 4000)
+    kernel = model.atom_dimer_kernel
+    for t in (10.0, 300.0):
+        for rtol in (1e-7, 1e-9):
+            lf.beta(a[:4], t, species=CS, efimov=ef, model="zero-range", rtol=rtol)
+            best = min(_timed(lambda: lf.beta(a, t, species=CS, efimov=ef, model="zero-range", rtol=rtol))
+                       for _ in range(3)) / a.size
+            sub = a[::200]
+            _, params, unit, _ = atom_dimer_rows(sub, np.full(sub.size, t), CS, ef, "zero-range")
+            t0 = time.perf_counter()
+            ref = np.array([quad(lambda x: kernel(x, p) * 2 / math.sqrt(math.pi) * math.sqrt(x) * math.exp(-x), 0, 60,
+                                 points=[v for v in ((1e-3 / p[0]) ** 2, (2 / math.sqrt(3) / p[0]) ** 2)
+                                         if v < 60] or None,
+                                 epsabs=0, epsrel=1e-10, limit=500)[0] for p in params])
+            per_quad = (time.perf_counter() - t0) / sub.size
+            got = lf.beta(sub, t, species=CS, efimov=ef, model="zero-range", rtol=rtol) / unit
+            err = np.max(np.abs(got / ref - 1))
+            print(f"beta T={t:5.0f} nK rtol={rtol:.0e}: lossfit {best * 1e6:6.2f} us/point, quad "
+                  f"{per_quad * 1e6:8.1f} us/point, ratio {per_quad / best:6.0f}x, max rel diff {err:.1e}")
 
 
 def _timed(f):

@@ -28,7 +28,7 @@ compiled with the signatures :data:`KERNEL_SIGNATURE` and :data:`FEATURES_SIGNAT
 (decorators :func:`rate_kernel` and :func:`feature_points`).
 """
 
-__all__ = ["THREE_BODY", "ATOM_DIMER", "thermal_average", "averager", "rate_kernel",
+__all__ = ["THREE_BODY", "ATOM_DIMER", "U_MAX", "thermal_average", "averager", "rate_kernel",
            "feature_points", "KERNEL_SIGNATURE", "FEATURES_SIGNATURE", "boltzmann_weight"]
 
 import math
@@ -61,6 +61,8 @@ _WG15[1:14:2] = np.concatenate([_WG[:3], [_WG[3]], _WG[2::-1]])
 
 _BASE_EDGES = np.array([0.0, 1.0, 1.75, 2.5, 3.5, 4.75, 6.5])   # in u = sqrt(E/k_BT)
 _U_MAX = 6.5
+#: Upper end of every thermal integral in u = sqrt(E/k_BT) (the Boltzmann weights beyond are below 1e-15).
+U_MAX = _U_MAX
 _MAX_INTERVALS = 600
 _MAX_FEATURES = 32
 

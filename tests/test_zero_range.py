@@ -128,12 +128,94 @@ def test_peak_moves_to_smaller_abs_a_as_temperature_rises():
     assert peaks[0] == pytest.approx(985.0, abs=5.0)     # measured with this table, 2026-12-02
 
 
-def test_unavailable_sides_raise_instead_of_approximating():
+def test_unavailable_side_raises_instead_of_approximating():
     ef = lf.Efimov.universal(-1000.0, 0.05)
     with pytest.raises(LossfitValueError, match="a > 0"):
         lf.l3(500.0, 50.0, species=CS, efimov=ef, model="zero-range")
-    with pytest.raises(LossfitValueError, match="atom-dimer"):
-        lf.beta(500.0, 50.0, species=CS, efimov=ef, model="zero-range")
+    # the atom-dimer table is not extrapolated beyond its last point
+    with pytest.raises(LossfitValueError, match="beyond the zero-range atom-dimer table") as info:
+        lf.beta(1e7, 3000.0, species=CS, efimov=ef, model="zero-range")
+    assert info.value.argument == "a"
+
+
+# --- a > 0: atom-dimer relaxation from the STM table -------------------------------------
+
+def _beta_unit(a):
+    return sc.hbar * a * sc.physical_constants["Bohr radius"][0] / CS.mass * 1e6      # hbar a/m in cm^3/s
+
+
+def _collision_nK(a, kad):
+    # E - E_D = 3 hbar^2 k_AD^2 / (4 m), in nK
+    a_m = a * sc.physical_constants["Bohr radius"][0]
+    return 0.75 * kad ** 2 * sc.hbar ** 2 / (CS.mass * a_m ** 2 * sc.k) * 1e9
+
+
+def test_atom_dimer_rate_matches_direct_stm_solves():
+    # runtime beta(E) (table, spline, unit conversion) against fresh STM solves of the
+    # solver (docs/stm.md), below and above the breakup threshold k_AD a = 2/sqrt 3
+    from lossfit.universal.solver.stm import above_breakup
+    from lossfit.universal.tables import load_atom_dimer_table
+    tab = load_atom_dimer_table()
+    eta, a_star = 0.1, 1000.0
+    ef = lf.Efimov(a_star=a_star, eta_star=eta)
+    for a in (700.0, 2500.0):
+        kappa_a = tab.kappa_star_a_star * a / a_star
+        for kad in (0.3, 1.5, 4.0):
+            ref = above_breakup(0.75 * kad ** 2 - 1.0, kappa_a, eta)["beta_deep"] * _beta_unit(a)
+            got = lf.beta_energy(a, _collision_nK(a, kad), species=CS, efimov=ef, model="zero-range")
+            assert got == pytest.approx(ref, rel=2e-4), (a, kad)
+
+
+def test_atom_dimer_threshold_law_and_peak_at_a_star():
+    # beta -> C_beta sinh(2 eta)/(sin^2[s0 ln(a/a*)] + sinh^2 eta) hbar a/m as T -> 0
+    # (Braaten & Hammer, Phys. Rep. 428, 259 (2006), form; C_beta = 19.4935 from both of
+    # our solvers, docs/stm.md -- their 20.3 is 3.9 % higher)
+    from lossfit.universal.tables import load_atom_dimer_table
+    tab = load_atom_dimer_table()
+    assert tab.c_beta == pytest.approx(19.4935, rel=2e-4)
+    eta = 0.05
+    ef = lf.Efimov(a_star=1000.0, eta_star=eta)
+    a = np.geomspace(600.0, 1800.0, 11)
+    expected = tab.c_beta * math.sinh(2 * eta) / (np.sin(S0 * np.log(a / 1000.0)) ** 2 + math.sinh(eta) ** 2)
+    # the approach is linear in k_AD a, i.e. like sqrt(T): measured 3e-3 at the peak at
+    # 1e-6 nK and 3e-5 at 1e-10 nK (a narrow peak magnifies the phase's linear term)
+    got = lf.beta(a, 1e-10, species=CS, efimov=ef, model="zero-range") / _beta_unit(a)
+    np.testing.assert_allclose(got, expected, rtol=1e-4)
+    near = lf.beta(a, 1e-6, species=CS, efimov=ef, model="zero-range") / _beta_unit(a)
+    dev_ratio = (near / expected - 1)[5] / (got / expected - 1)[5]
+    assert 50 < dev_ratio < 200                                 # sqrt(1e4) = 100
+    fine = np.geomspace(900.0, 1100.0, 401)
+    peak = fine[np.argmax(lf.beta(fine, 1e-10, species=CS, efimov=ef, model="zero-range"))]
+    assert peak == pytest.approx(1000.0, rel=1e-3)
+
+
+def test_discrete_scaling_of_beta():
+    # beta(lambda a, T/lambda^2) = lambda beta(a, T) (discrete scale invariance, Braaten & Hammer 2006)
+    ef = lf.Efimov(a_star=900.0, eta_star=0.1)
+    a = np.geomspace(600.0, 8000.0, 6)
+    b = lf.beta(a, 80.0, species=CS, efimov=ef, model="zero-range")
+    b_scaled = lf.beta(LAMBDA * a, 80.0 / LAMBDA ** 2, species=CS, efimov=ef, model="zero-range")
+    np.testing.assert_allclose(b_scaled, LAMBDA * b, rtol=1e-6)
+
+
+def test_thermal_beta_against_quad_and_the_unitarity_bound():
+    from lossfit.rates import atom_dimer_rows
+    m = lf.universal.models.get_model("zero-range")
+    k = m.atom_dimer_kernel
+    for eta in (0.01, 0.2, 1.0):
+        ef = lf.Efimov(a_star=1000.0, eta_star=eta)
+        for t in (1.0, 100.0, 2000.0):
+            a = np.geomspace(5 * CS.r_vdw, 1e5, 5)
+            _, params, unit, _ = atom_dimer_rows(a, np.full(a.size, t), CS, ef, "zero-range")
+            got = lf.beta(a, t, species=CS, efimov=ef, model="zero-range") / unit
+            # |S| <= 1: beta(E) <= 3 pi hbar/(2 m k_AD), so the average is <= (3 sqrt3 pi/4)(2/sqrt pi)
+            assert np.all(got <= 3 * math.sqrt(3) * math.pi / 4 * 2 / math.sqrt(math.pi) * (1 + 1e-9))
+            for p, g in zip(params, got):
+                kinks = [(c / p[0]) ** 2 for c in (1e-3, 2 / math.sqrt(3), 1e3)]
+                pts = sorted(x for x in kinks if x < 60) or None
+                ref = quad(lambda x: k(x, p) * 2 / math.sqrt(math.pi) * math.sqrt(x) * math.exp(-x), 0, 60,
+                           points=pts, epsabs=0, epsrel=1e-12, limit=1000)[0]
+                assert g == pytest.approx(ref, rel=1e-6), (eta, t, p)
 
 
 def test_fit_with_the_exact_model_recovers_a_minus():

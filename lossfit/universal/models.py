@@ -46,7 +46,7 @@ from scipy.special import loggamma
 
 from ..constants import HBAR, S0
 from ..errors import LossfitValueError
-from ..thermal import FEATURES_SIGNATURE, KERNEL_SIGNATURE, feature_points, rate_kernel
+from ..thermal import FEATURES_SIGNATURE, KERNEL_SIGNATURE, U_MAX, feature_points, rate_kernel
 from ..units import A0
 from .threshold import beta_coefficient_unchecked, l3_coefficient_unchecked
 
@@ -179,32 +179,42 @@ class CappedModel(ThresholdModel):
 
 
 class ZeroRangeModel(EnergyModel):
-    """Exact zero-range theory from the project's solver tables (a < 0, J = 0).
+    """Exact zero-range theory from the project's solver tables (J = 0).
 
-    K3(E) = 72 sqrt(3) pi^2 hbar/(m k^4) (1 - |s11|^2)(1 - e^{-4 eta})
-            / |1 + s11 exp(2 i Phi - 2 eta)|^2,
-    Phi = s0 ln(kappa* |a| / sqrt 2) - arg Gamma(1 + i s0), x = k|a|, E = hbar^2 k^2/m,
-    with s11(k|a|) interpolated from the shipped table (:mod:`lossfit.universal.tables`)
-    and kappa* = (kappa* a_-)/a_- using the table's own kappa* a_- so that the threshold
-    peak sits at a = a_-. Tables for a > 0 (shallow-dimer recombination, atom-dimer
-    relaxation) are not shipped yet: those requests raise instead of falling back to an
-    approximation.
+    Three-body loss, a < 0 (table s11 from the hyperspherical solver, docs/solver.md):
+
+        K3(E) = 72 sqrt(3) pi^2 hbar/(m k^4) (1 - |s11|^2)(1 - e^{-4 eta})
+                / |1 + s11 exp(2 i Phi - 2 eta)|^2,   x = k|a|, E = hbar^2 k^2/m,
+
+    Atom-dimer relaxation, a > 0 (table s_AD from the STM solver, docs/stm.md), below and
+    above the breakup threshold; only J = 0 reaches short distance in zero-range theory,
+    so this is the whole relaxation rate:
+
+        beta(E) = 3 pi hbar / (2 m k_AD) (1 - |s_AD|^2)(1 - e^{-4 eta})
+                  / |1 + s_AD exp(2 i Phi - 2 eta)|^2,   E = 3 hbar^2 k_AD^2/(4m),
+
+    with Phi = s0 ln(kappa* |a| / sqrt 2) - arg Gamma(1 + i s0). kappa* comes from a_-
+    (kappa* = (kappa* a_-)/a_-) or a* (kappa* = (kappa* a*)/a*) with each table's own
+    kappa* a_- or kappa* a*, so that the threshold peaks sit at a_- and a*. Three-body
+    loss for a > 0 (shallow- and deep-dimer recombination, J > 0) is not tabulated yet:
+    those requests raise instead of falling back to an approximation.
     """
 
     name = "zero-range"
-    description = "exact zero-range universal functions (a < 0, J = 0)"
+    description = "exact zero-range universal functions (J = 0: K3 for a < 0, beta for a > 0)"
     approximate = False
 
     def __init__(self):
         self._kernel = None
         self._features = None
+        self._ad_kernel = None
+        self._ad_features = None
 
     def __getstate__(self):
         return {}                      # rebuilt lazily where unpickled
 
     def __setstate__(self, state):
-        self._kernel = None
-        self._features = None
+        self.__init__()
 
     @property
     def three_body_features(self):
@@ -259,9 +269,61 @@ class ZeroRangeModel(EnergyModel):
         rows[:, 3] = -math.expm1(-4.0 * eta)
         return rows
 
+    @property
+    def atom_dimer_table(self):
+        from .tables import load_atom_dimer_table
+        return load_atom_dimer_table()
+
+    @property
+    def atom_dimer_features(self):
+        self.atom_dimer_kernel
+        return self._ad_features
+
+    @property
+    def atom_dimer_kernel(self):
+        # as for the three-body kernel: the table is baked in, so no disk cache
+        if self._ad_kernel is None:
+            from .tables import atom_dimer_grid_points, s_ad_eval
+            packed = self.atom_dimer_table.packed
+
+            @numba.njit(KERNEL_SIGNATURE)
+            def kernel(x, p):
+                # p = [k_AD a at E = E_s, 2 Phi, exp(-2 eta), 1 - exp(-4 eta)]; x = E / E_s
+                t_ad, t, ph = s_ad_eval(packed, p[0] * math.sqrt(x))
+                mod = math.sqrt(max(1.0 - t, 0.0)) * p[2]
+                den = 1.0 + 2.0 * mod * math.cos(ph + p[1]) + mod * mod
+                return UNITARITY_ATOM_DIMER * t_ad * p[3] / (den * math.sqrt(x))
+
+            first, breakup, _ = atom_dimer_grid_points(packed)
+
+            @numba.njit(FEATURES_SIGNATURE)
+            def features(p, out):
+                # the start of the grid and the breakup threshold (square-root kink)
+                out[0] = (first / p[0]) ** 2
+                out[1] = (breakup / p[0]) ** 2
+                return 2
+            self._ad_features = features
+            self._ad_kernel = kernel
+        return self._ad_kernel
+
     def atom_dimer_rows(self, a, efimov, q):
-        raise LossfitValueError("model", "zero-range atom-dimer tables are not shipped yet; use "
-                                "model='capped' (an approximation) for beta")
+        a_star, eta = efimov.require("a_star", "eta_star")
+        table = self.atom_dimer_table
+        kappa = table.kappa_star_a_star / a_star          # 1/a0
+        rows = np.empty((a.size, 4))
+        # E = 3 hbar^2 k_AD^2 / (4 m) and x = E / E_s with E_s = hbar^2 k_s^2 / m:
+        # k_AD a = (2/sqrt 3) q sqrt(x)
+        rows[:, 0] = (2.0 / math.sqrt(3.0)) * np.abs(q).ravel()
+        # thermal averages reach x = U_MAX^2 (fixed-energy calls use x = 1): the table is
+        # not extrapolated, so refuse what lies beyond its last point
+        reach = rows[:, 0] * max(U_MAX, 1.0)
+        if np.any(reach > table.kad_max):
+            raise LossfitValueError("a", f"k_AD a up to {reach.max():.3g} is needed, beyond the zero-range "
+                                    f"atom-dimer table (k_AD a <= {table.kad_max:g}); lower |a| or T")
+        rows[:, 1] = 2.0 * (S0 * np.log(kappa * np.asarray(a, dtype=float).ravel() / math.sqrt(2.0)) - _ARG_GAMMA)
+        rows[:, 2] = math.exp(-2.0 * eta)
+        rows[:, 3] = -math.expm1(-4.0 * eta)
+        return rows
 
 
 _MODELS = {}

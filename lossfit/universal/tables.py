@@ -17,7 +17,7 @@ evaluated in numba. Outside the grid the known limits take over:
   table approaches unitarity like 1/x).
 """
 
-__all__ = ["S11Table", "load_s11_table", "table_path"]
+__all__ = ["S11Table", "AtomDimerTable", "load_s11_table", "load_atom_dimer_table", "table_path"]
 
 import json
 import math
@@ -156,4 +156,129 @@ def load_s11_table(path=None):
     path = path or table_path()
     if path not in _CACHE:
         _CACHE[path] = S11Table(path)
+    return _CACHE[path]
+
+
+# --- a > 0: atom-dimer relaxation, J = 0 --------------------------------------------------
+# ``data/s_ad_positive_a.npz`` (written by ``scripts/make_atom_dimer_table.py`` from the STM
+# solver, docs/stm.md) holds, on two log grids of k_AD a that meet at the breakup
+# threshold 2/sqrt 3 (a square-root kink; each side has its own splines):
+#   s_AD   -- the long-distance reflection amplitude of the Efimov channel (atom + dimer
+#             incoming), as ln(1 - |s_AD|^2) and the unwrapped phase;
+#   T_AD   -- the atom-dimer -> Efimov-channel transmission (= 1 - |s_AD|^2 below breakup;
+#             smaller above, where the flux can also leave as three free atoms).
+# Below the grid the functions run linearly in k_AD a from their threshold limits (the
+# extrapolated T_AD/(k_AD a) -> c1 and arg s_AD -> delta0 stored with the table) to the
+# first node: atom-dimer scattering is an s-wave two-cluster problem, so the leading
+# corrections are linear in k_AD a (the phase moves by ~1e-3 rad between 0 and the first
+# node, which matters at a narrow relaxation peak). Above the grid nothing is
+# extrapolated: the rate packers refuse energies beyond it.
+
+_AD_HEADER = 10
+_AD_SPLINES = 3          # ln T_AD, ln(1 - |s_AD|^2), arg s_AD
+
+
+class AtomDimerTable:
+    """Spline coefficients of s_AD(k_AD a) and T_AD(k_AD a) for a > 0, packed for numba.
+
+    Attributes
+    ----------
+    packed : ndarray
+        1-D float array consumed by :func:`s_ad_eval`.
+    kad_max : float
+        Last grid point in k_AD a (no extrapolation beyond).
+    kappa_star_a_star : float
+        kappa* a* implied by the table's threshold phase (relaxation peak at threshold).
+    c_beta : float
+        Threshold coefficient: beta -> C_beta sinh(2 eta)/(sin^2 + sinh^2 eta) hbar a/m.
+    metadata : dict
+    """
+
+    def __init__(self, path):
+        if not os.path.exists(path):
+            raise LossfitError(f"universal-function table {path!r} is missing from the installation")
+        with np.load(path, allow_pickle=False) as d:
+            kad = np.array(d["kad"])
+            columns = [np.array(d["log_transmission"]), np.array(d["log_one_minus_abs_s2"]),
+                       np.array(d["phase"])]
+            j = int(d["junction_index"])
+            c1, delta0 = float(d["threshold_c1"]), float(d["threshold_phase"])
+            self.kappa_star_a_star = float(d["kappa_star_a_star"])
+            self.c_beta = float(d["c_beta"])
+            self.metadata = json.loads(str(d["metadata"]))
+        if not math.isclose(kad[j], 2.0 / math.sqrt(3.0), rel_tol=1e-12):
+            raise LossfitError(f"{path!r}: the grids do not meet at the breakup threshold")
+        parts = []
+        for sl in (slice(0, j + 1), slice(j, None)):
+            lnx = np.log(kad[sl])
+            if not np.allclose(np.diff(lnx), lnx[1] - lnx[0], rtol=1e-9, atol=0):
+                raise LossfitError(f"{path!r}: a k_AD a grid segment is not uniform in ln")
+            parts.append((lnx, [CubicSpline(lnx, col[sl]) for col in columns]))
+        (lnx1, sp1), (lnx2, sp2) = parts
+        # unwrap delta0 onto the branch of the tabulated phase at the first node
+        delta0 += 2.0 * math.pi * round((columns[2][0] - delta0) / (2.0 * math.pi))
+        head = np.array([lnx1.size, lnx1[0], lnx1[1] - lnx1[0], lnx2.size, lnx2[0], lnx2[1] - lnx2[0],
+                         kad[j], kad[-1], c1, delta0])
+        assert head.size == _AD_HEADER
+        self.kad = kad
+        self.kad_max = float(kad[-1])
+        self.packed = np.concatenate([head] + [sp.c.T.ravel() for sp in sp1 + sp2])
+
+    def evaluate(self, kad):
+        """(T_AD, s_AD) at k_AD a (arrays), evaluated as the runtime kernel does."""
+        kad = np.asarray(kad, dtype=float)
+        t_ad = np.empty(kad.size)
+        s = np.empty(kad.size, dtype=complex)
+        for i, v in enumerate(kad.ravel()):
+            t_ad[i], t, ph = s_ad_eval(self.packed, v)
+            s[i] = math.sqrt(max(1.0 - t, 0.0)) * complex(math.cos(ph), math.sin(ph))
+        return t_ad.reshape(kad.shape), s.reshape(kad.shape)
+
+
+@numba.njit(cache=True)
+def atom_dimer_grid_points(packed):
+    """(first grid point, breakup threshold, last grid point) in k_AD a: the kernel's kinks."""
+    return math.exp(packed[1]), packed[6], packed[7]
+
+
+@numba.njit(cache=True)
+def _ad_segment(packed, offset, n, i, dx):
+    stride = 4 * (n - 1)
+    return (math.exp(_spline(packed, offset, i, dx)), math.exp(_spline(packed, offset + stride, i, dx)),
+            _spline(packed, offset + 2 * stride, i, dx))
+
+
+@numba.njit(cache=True)
+def s_ad_eval(packed, kad):
+    """(T_AD, 1 - |s_AD|^2, arg s_AD) at k_AD a (<= the last grid point) from a packed table."""
+    n1 = int(packed[0])
+    lnx0 = packed[1]
+    lnx = math.log(kad)
+    if lnx <= lnx0:
+        # linear from the threshold limits (c1, delta0) to the first node; below breakup
+        # T_AD = 1 - |s_AD|^2, so one interpolation serves both
+        t_ad, t, ph = _ad_segment(packed, _AD_HEADER, n1, 0, 0.0)
+        x0 = math.exp(lnx0)
+        r = kad / x0
+        c1 = packed[8]
+        t_lin = kad * (c1 + (t / x0 - c1) * r)
+        return t_lin, t_lin, packed[9] + (ph - packed[9]) * r
+    if kad < packed[6]:
+        n, base, h, offset = n1, lnx0, packed[2], _AD_HEADER
+    else:
+        n, base, h = int(packed[3]), packed[4], packed[5]
+        offset = _AD_HEADER + _AD_SPLINES * 4 * (n1 - 1)
+    i = int((lnx - base) / h)
+    if i > n - 2:
+        i = n - 2
+    if i < 0:
+        i = 0
+    return _ad_segment(packed, offset, n, i, lnx - (base + i * h))
+
+
+def load_atom_dimer_table(path=None):
+    """The shipped a > 0 atom-dimer table (loaded once per process)."""
+    path = path or table_path("s_ad_positive_a.npz")
+    if path not in _CACHE:
+        _CACHE[path] = AtomDimerTable(path)
     return _CACHE[path]
