@@ -234,3 +234,15 @@ def test_fit_with_the_exact_model_recovers_a_minus():
     row = {r["name"]: r for r in res.summary()}["a_minus"]
     assert row["lo95"] <= -950.0 <= row["hi95"]
     assert "approximation" not in res.model.label
+
+
+def test_atom_dimer_amplitude_near_breakup_against_direct_stm():
+    # just below and above k_AD a = 2/sqrt 3 the runtime s_AD (Re/Im splines) against
+    # fresh STM extractions (docs/stm.md); 1 - |s_AD|^2 is ~1e-6 there, so a spline of
+    # ln(1 - |s_AD|^2) would be off by 1e-4 in s_AD (measured)
+    from lossfit.universal.solver.stm import s_ad_from_stm
+    from lossfit.universal.tables import load_atom_dimer_table
+    tab = load_atom_dimer_table()
+    for kad in (1.114, 1.197):
+        _, s = tab.evaluate(np.array([kad]))
+        assert abs(s[0] - s_ad_from_stm(kad)) < 3e-5, kad

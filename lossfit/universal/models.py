@@ -288,11 +288,11 @@ class ZeroRangeModel(EnergyModel):
 
             @numba.njit(KERNEL_SIGNATURE)
             def kernel(x, p):
-                # p = [k_AD a at E = E_s, 2 Phi, exp(-2 eta), 1 - exp(-4 eta)]; x = E / E_s
-                t_ad, t, ph = s_ad_eval(packed, p[0] * math.sqrt(x))
-                mod = math.sqrt(max(1.0 - t, 0.0)) * p[2]
-                den = 1.0 + 2.0 * mod * math.cos(ph + p[1]) + mod * mod
-                return UNITARITY_ATOM_DIMER * t_ad * p[3] / (den * math.sqrt(x))
+                # p = [k_AD a at E = E_s, cos 2Phi, sin 2Phi, exp(-2 eta), 1 - exp(-4 eta)];
+                # x = E / E_s; den = |1 + s_AD exp(2 i Phi - 2 eta)|^2
+                t_ad, re, im = s_ad_eval(packed, p[0] * math.sqrt(x))
+                den = 1.0 + 2.0 * p[3] * (re * p[1] - im * p[2]) + p[3] * p[3] * (re * re + im * im)
+                return UNITARITY_ATOM_DIMER * t_ad * p[4] / (den * math.sqrt(x))
 
             first, breakup, _ = atom_dimer_grid_points(packed)
 
@@ -310,7 +310,7 @@ class ZeroRangeModel(EnergyModel):
         a_star, eta = efimov.require("a_star", "eta_star")
         table = self.atom_dimer_table
         kappa = table.kappa_star_a_star / a_star          # 1/a0
-        rows = np.empty((a.size, 4))
+        rows = np.empty((a.size, 5))
         # E = 3 hbar^2 k_AD^2 / (4 m) and x = E / E_s with E_s = hbar^2 k_s^2 / m:
         # k_AD a = (2/sqrt 3) q sqrt(x)
         rows[:, 0] = (2.0 / math.sqrt(3.0)) * np.abs(q).ravel()
@@ -320,9 +320,11 @@ class ZeroRangeModel(EnergyModel):
         if np.any(reach > table.kad_max):
             raise LossfitValueError("a", f"k_AD a up to {reach.max():.3g} is needed, beyond the zero-range "
                                     f"atom-dimer table (k_AD a <= {table.kad_max:g}); lower |a| or T")
-        rows[:, 1] = 2.0 * (S0 * np.log(kappa * np.asarray(a, dtype=float).ravel() / math.sqrt(2.0)) - _ARG_GAMMA)
-        rows[:, 2] = math.exp(-2.0 * eta)
-        rows[:, 3] = -math.expm1(-4.0 * eta)
+        two_phi = 2.0 * (S0 * np.log(kappa * np.asarray(a, dtype=float).ravel() / math.sqrt(2.0)) - _ARG_GAMMA)
+        rows[:, 1] = np.cos(two_phi)
+        rows[:, 2] = np.sin(two_phi)
+        rows[:, 3] = math.exp(-2.0 * eta)
+        rows[:, 4] = -math.expm1(-4.0 * eta)
         return rows
 
 

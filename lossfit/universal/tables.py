@@ -164,7 +164,8 @@ def load_s11_table(path=None):
 # solver, docs/stm.md) holds, on two log grids of k_AD a that meet at the breakup
 # threshold 2/sqrt 3 (a square-root kink; each side has its own splines):
 #   s_AD   -- the long-distance reflection amplitude of the Efimov channel (atom + dimer
-#             incoming), as ln(1 - |s_AD|^2) and the unwrapped phase;
+#             incoming), splined as Re and Im (near breakup 1 - |s_AD|^2 is ~1e-6 and
+#             would give |s_AD| ill-conditioned);
 #   T_AD   -- the atom-dimer -> Efimov-channel transmission (= 1 - |s_AD|^2 below breakup;
 #             smaller above, where the flux can also leave as three free atoms).
 # Below the grid the functions run linearly in k_AD a from their threshold limits (the
@@ -175,7 +176,7 @@ def load_s11_table(path=None):
 # extrapolated: the rate packers refuse energies beyond it.
 
 _AD_HEADER = 10
-_AD_SPLINES = 3          # ln T_AD, ln(1 - |s_AD|^2), arg s_AD
+_AD_SPLINES = 3          # ln T_AD, Re s_AD, Im s_AD
 
 
 class AtomDimerTable:
@@ -199,8 +200,9 @@ class AtomDimerTable:
             raise LossfitError(f"universal-function table {path!r} is missing from the installation")
         with np.load(path, allow_pickle=False) as d:
             kad = np.array(d["kad"])
-            columns = [np.array(d["log_transmission"]), np.array(d["log_one_minus_abs_s2"]),
-                       np.array(d["phase"])]
+            s_ad = np.array(d["s_ad"])
+            columns = [np.array(d["log_transmission"]), s_ad.real.copy(), s_ad.imag.copy()]
+            phase0 = float(np.array(d["phase"])[0])
             j = int(d["junction_index"])
             c1, delta0 = float(d["threshold_c1"]), float(d["threshold_phase"])
             self.kappa_star_a_star = float(d["kappa_star_a_star"])
@@ -216,7 +218,7 @@ class AtomDimerTable:
             parts.append((lnx, [CubicSpline(lnx, col[sl]) for col in columns]))
         (lnx1, sp1), (lnx2, sp2) = parts
         # unwrap delta0 onto the branch of the tabulated phase at the first node
-        delta0 += 2.0 * math.pi * round((columns[2][0] - delta0) / (2.0 * math.pi))
+        delta0 += 2.0 * math.pi * round((phase0 - delta0) / (2.0 * math.pi))
         head = np.array([lnx1.size, lnx1[0], lnx1[1] - lnx1[0], lnx2.size, lnx2[0], lnx2[1] - lnx2[0],
                          kad[j], kad[-1], c1, delta0])
         assert head.size == _AD_HEADER
@@ -230,8 +232,8 @@ class AtomDimerTable:
         t_ad = np.empty(kad.size)
         s = np.empty(kad.size, dtype=complex)
         for i, v in enumerate(kad.ravel()):
-            t_ad[i], t, ph = s_ad_eval(self.packed, v)
-            s[i] = math.sqrt(max(1.0 - t, 0.0)) * complex(math.cos(ph), math.sin(ph))
+            t_ad[i], re, im = s_ad_eval(self.packed, v)
+            s[i] = complex(re, im)
         return t_ad.reshape(kad.shape), s.reshape(kad.shape)
 
 
@@ -244,25 +246,29 @@ def atom_dimer_grid_points(packed):
 @numba.njit(cache=True)
 def _ad_segment(packed, offset, n, i, dx):
     stride = 4 * (n - 1)
-    return (math.exp(_spline(packed, offset, i, dx)), math.exp(_spline(packed, offset + stride, i, dx)),
+    return (math.exp(_spline(packed, offset, i, dx)), _spline(packed, offset + stride, i, dx),
             _spline(packed, offset + 2 * stride, i, dx))
 
 
 @numba.njit(cache=True)
 def s_ad_eval(packed, kad):
-    """(T_AD, 1 - |s_AD|^2, arg s_AD) at k_AD a (<= the last grid point) from a packed table."""
+    """(T_AD, Re s_AD, Im s_AD) at k_AD a (<= the last grid point) from a packed table."""
     n1 = int(packed[0])
     lnx0 = packed[1]
     lnx = math.log(kad)
     if lnx <= lnx0:
-        # linear from the threshold limits (c1, delta0) to the first node; below breakup
-        # T_AD = 1 - |s_AD|^2, so one interpolation serves both
-        t_ad, t, ph = _ad_segment(packed, _AD_HEADER, n1, 0, 0.0)
+        # T_AD and arg s_AD linear from their threshold limits (c1, delta0) to the first
+        # node; below breakup |s_AD|^2 = 1 - T_AD
+        t_ad, re, im = _ad_segment(packed, _AD_HEADER, n1, 0, 0.0)
         x0 = math.exp(lnx0)
         r = kad / x0
         c1 = packed[8]
-        t_lin = kad * (c1 + (t / x0 - c1) * r)
-        return t_lin, t_lin, packed[9] + (ph - packed[9]) * r
+        t_lin = kad * (c1 + (t_ad / x0 - c1) * r)
+        ph0 = math.atan2(im, re)
+        ph0 += 2.0 * math.pi * round((packed[9] - ph0) / (2.0 * math.pi))
+        ph = packed[9] + (ph0 - packed[9]) * r
+        mod = math.sqrt(1.0 - t_lin)
+        return t_lin, mod * math.cos(ph), mod * math.sin(ph)
     if kad < packed[6]:
         n, base, h, offset = n1, lnx0, packed[2], _AD_HEADER
     else:
