@@ -38,7 +38,9 @@ KAPPA_A_MINUS = -1.50763
 #: kappa* a*_0 for the atom-dimer threshold of the same Efimov branch (same sources).
 KAPPA_A_STAR = 0.0707645
 #: kappa* a_+ for the recombination minimum (quoted from memory from Braaten & Hammer,
-#: Ann. Phys. 322, 120 (2007); the project's solver is to confirm it).
+#: Ann. Phys. 322, 120 (2007)). The project's STM solver (docs/stm.md) finds 0.316472,
+#: 1.5e-3 lower, while it reproduces kappa* a*_0 and kappa* a_- to 1e-6; only one of our
+#: routes computes a_+, so the quoted value stays here, with the disagreement on record.
 KAPPA_A_PLUS = 0.316943
 #: a*/|a_-| when the atom-dimer resonance of the next (deeper) branch is paired with a_-:
 #: (KAPPA_A_STAR * SCALING_FACTOR) / |KAPPA_A_MINUS| = 1.0652 (DESIGN §5).
