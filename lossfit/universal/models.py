@@ -190,8 +190,11 @@ class ZeroRangeModel(EnergyModel):
     above the breakup threshold; only J = 0 reaches short distance in zero-range theory,
     so this is the whole relaxation rate:
 
-        beta(E) = 3 pi hbar / (2 m k_AD) (1 - |s_AD|^2)(1 - e^{-4 eta})
+        beta(E) = 3 pi hbar / (2 m k_AD) T_AD (1 - e^{-4 eta})
                   / |1 + s_AD exp(2 i Phi - 2 eta)|^2,   E = 3 hbar^2 k_AD^2/(4m),
+
+    T_AD being the atom-dimer -> Efimov-channel transmission (1 - |s_AD|^2 below breakup,
+    less above it, where flux also leaves as three free atoms),
 
     with Phi = s0 ln(kappa* |a| / sqrt 2) - arg Gamma(1 + i s0). kappa* comes from a_-
     (kappa* = (kappa* a_-)/a_-) or a* (kappa* = (kappa* a*)/a*) with each table's own
