@@ -246,7 +246,8 @@ class _CurveLogProb:
 
 def _sample_curve(model, x_best, cov, lower, settings):
     """Posterior chain of one curve's coordinates (after burn-in) and its tau."""
-    from .inference.fitting import auto_burn        # emcee is only needed here
+    from .inference.diagnostics import autocorrelation_times    # emcee is only needed here
+    from .inference.fitting import auto_burn
     from .inference.sampling import sample
     rng = np.random.default_rng(settings["seed"])
     ndim = x_best.size
@@ -260,8 +261,7 @@ def _sample_curve(model, x_best, cov, lower, settings):
     run = sample(_CurveLogProb(model, lower), p0, settings["steps"], seed=int(rng.integers(2 ** 31)))
     chain = run.chain
     burn = auto_burn(chain)
-    import emcee
-    tau = np.atleast_1d(emcee.autocorr.integrated_time(chain[burn:], c=5, tol=0, quiet=True))
+    tau = autocorrelation_times(chain[burn:])
     return chain[burn:].reshape(-1, ndim), tau, chain.shape[0] - burn
 
 
@@ -342,7 +342,7 @@ def fit_curve(curve, *, species, resonance=None, heating=True, recombination_hea
         samples = {k: np.array([d[k] for d in draws]) for k in p}
         errors = {}
         for k, v in samples.items():
-            lo, med, hi = np.percentile(v, [15.865, 50.0, 84.135])
+            lo, hi = np.percentile(v, [15.865, 84.135])
             errors[k] = 0.5 * (hi - lo)
         value, error = float(np.median(samples["value"])), errors["value"]
         if kept < 50 * float(np.max(tau)):

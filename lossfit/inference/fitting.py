@@ -5,7 +5,6 @@ __all__ = ["fit", "prepare", "make_result", "auto_burn", "Posterior"]
 import math
 import sys
 
-import emcee
 import numpy as np
 from scipy.optimize import minimize
 
@@ -13,6 +12,7 @@ from ..data import LossSpectrum
 from ..errors import LossfitValueError
 from ..species import species as _species
 from ..universal.models import DEFAULT_MODEL, get_model
+from .diagnostics import autocorrelation_times
 from .likelihood import SpectrumLikelihood
 from .parameters import EFIMOV_NAMES, ParameterSpace, default_priors
 from .priors import LogUniform, Prior
@@ -134,7 +134,7 @@ def prepare(data, *, species, free, model=None, priors=None, fixed=None, tie=Non
 
 def auto_burn(chain):
     """Default burn-in: max(3 tau_max, steps/5), at most steps/2."""
-    tau = np.atleast_1d(emcee.autocorr.integrated_time(chain, c=5, tol=0, quiet=True))
+    tau = autocorrelation_times(chain)
     # a very short chain can give no finite tau at all: fall back on steps/5
     tau_max = float(np.max(tau[np.isfinite(tau)])) if np.isfinite(tau).any() else 0.0
     return int(min(max(3 * tau_max, chain.shape[0] / 5), chain.shape[0] / 2))
