@@ -34,46 +34,33 @@ def main():
                    for _ in range(3))
         print(f"table {name}: {size / 1024:.1f} KiB on disk; load {load * 1e3:.1f} ms "
               "(import of lossfit.universal.tables included)")
-    a = -np.geomspace(5 * CS.r_vdw, 1e5, 4000)
     model = get_model("zero-range")
-    kernel = model.three_body_kernel
-    for t in (10.0, 300.0):
-        for rtol in (1e-7, 1e-9):
-            lf.l3(a[:4], t, species=CS, efimov=EF, model="zero-range", rtol=rtol)
-            best = min(_timed(lambda: lf.l3(a, t, species=CS, efimov=EF, model="zero-range", rtol=rtol))
-                       for _ in range(3)) / a.size
-            sub = a[::200]
-            _, params, unit, _ = three_body_rows(sub, np.full(sub.size, t), CS, EF, "zero-range")
-            t0 = time.perf_counter()
-            ref = np.array([quad(lambda x: kernel(x, p) * x * x * math.exp(-x) / 2, 0, 60,
-                                 points=[v for v in ((1e-3 / p[0]) ** 2, (1e3 / p[0]) ** 2) if v < 60] or None,
-                                 epsabs=0, epsrel=1e-10, limit=500)[0] for p in params])
-            per_quad = (time.perf_counter() - t0) / sub.size
-            got = lf.l3(sub, t, species=CS, efimov=EF, model="zero-range", rtol=rtol) / unit
-            err = np.max(np.abs(got / ref - 1))
-            print(f"T={t:5.0f} nK rtol={rtol:.0e}: lossfit {best * 1e6:6.2f} us/point, quad {per_quad * 1e6:8.1f} "
-                  f"us/point, ratio {per_quad / best:6.0f}x, max rel diff {err:.1e}")
+    # a < 0 three-body loss (hyperspherical table), weight P3(x) = x^2 e^-x / 2
+    _compare("L3", lf.l3, three_body_rows, model.three_body_kernel, lambda x: x * x * math.exp(-x) / 2,
+             (1e-3, 1e3), -np.geomspace(5 * CS.r_vdw, 1e5, 4000), EF)
+    # a > 0 atom-dimer relaxation (STM table), weight P2(x) = (2/sqrt pi) sqrt(x) e^-x
+    _compare("beta", lf.beta, atom_dimer_rows, model.atom_dimer_kernel,
+             lambda x: 2 / math.sqrt(math.pi) * math.sqrt(x) * math.exp(-x), (1e-3, 2 / math.sqrt(3)),
+             np.geomspace(5 * CS.r_vdw, 2e4, 4000), lf.Efimov(a_star=1000.0, eta_star=0.05))
 
-    # a > 0: atom-dimer relaxation (STM table), weight P2(x) = (2/sqrt pi) sqrt(x) e^-x
-    ef = lf.Efimov(a_star=1000.0, eta_star=0.05)
-    a = np.geomspace(5 * CS.r_vdw, 2e4, 4000)
-    kernel = model.atom_dimer_kernel
+
+def _compare(label, rate, rows, kernel, weight, kinks, a, ef):
+    """Per-point time of ``rate`` against quad of the same kernel and weight (same run)."""
     for t in (10.0, 300.0):
         for rtol in (1e-7, 1e-9):
-            lf.beta(a[:4], t, species=CS, efimov=ef, model="zero-range", rtol=rtol)
-            best = min(_timed(lambda: lf.beta(a, t, species=CS, efimov=ef, model="zero-range", rtol=rtol))
+            rate(a[:4], t, species=CS, efimov=ef, model="zero-range", rtol=rtol)
+            best = min(_timed(lambda: rate(a, t, species=CS, efimov=ef, model="zero-range", rtol=rtol))
                        for _ in range(3)) / a.size
             sub = a[::200]
-            _, params, unit, _ = atom_dimer_rows(sub, np.full(sub.size, t), CS, ef, "zero-range")
+            _, params, unit, _ = rows(sub, np.full(sub.size, t), CS, ef, "zero-range")
             t0 = time.perf_counter()
-            ref = np.array([quad(lambda x: kernel(x, p) * 2 / math.sqrt(math.pi) * math.sqrt(x) * math.exp(-x), 0, 60,
-                                 points=[v for v in ((1e-3 / p[0]) ** 2, (2 / math.sqrt(3) / p[0]) ** 2)
-                                         if v < 60] or None,
+            ref = np.array([quad(lambda x: kernel(x, p) * weight(x), 0, 60,
+                                 points=[v for v in ((c / p[0]) ** 2 for c in kinks) if v < 60] or None,
                                  epsabs=0, epsrel=1e-10, limit=500)[0] for p in params])
             per_quad = (time.perf_counter() - t0) / sub.size
-            got = lf.beta(sub, t, species=CS, efimov=ef, model="zero-range", rtol=rtol) / unit
+            got = rate(sub, t, species=CS, efimov=ef, model="zero-range", rtol=rtol) / unit
             err = np.max(np.abs(got / ref - 1))
-            print(f"beta T={t:5.0f} nK rtol={rtol:.0e}: lossfit {best * 1e6:6.2f} us/point, quad "
+            print(f"{label} T={t:5.0f} nK rtol={rtol:.0e}: lossfit {best * 1e6:6.2f} us/point, quad "
                   f"{per_quad * 1e6:8.1f} us/point, ratio {per_quad / best:6.0f}x, max rel diff {err:.1e}")
 
 

@@ -1,6 +1,6 @@
 """Provenance stored with every result: versions, revision, host, times, seed."""
 
-__all__ = ["provenance", "now_utc"]
+__all__ = ["provenance", "now_utc", "git_revision"]
 
 import datetime
 import os
@@ -14,7 +14,8 @@ def now_utc():
     return datetime.datetime.now(datetime.timezone.utc).isoformat(timespec="seconds")
 
 
-def _git_revision():
+def git_revision():
+    """Git revision of this checkout (with -dirty for local changes), or None."""
     here = os.path.dirname(os.path.abspath(__file__))
     try:
         out = subprocess.run(["git", "-C", here, "rev-parse", "HEAD"], capture_output=True, text=True,
@@ -38,7 +39,7 @@ def provenance(**extra):
     import numpy
     import scipy
     from . import __version__
-    info = {"lossfit_version": __version__, "git_revision": _git_revision(),
+    info = {"lossfit_version": __version__, "git_revision": git_revision(),
             "numpy": numpy.__version__, "scipy": scipy.__version__, "numba": numba.__version__,
             "emcee": emcee.__version__, "h5py": h5py.__version__, "python": platform.python_version(),
             "host": socket.gethostname(), "pid": os.getpid(), "time_utc": now_utc()}

@@ -40,7 +40,6 @@ import argparse
 import json
 import math
 import os
-import subprocess
 import sys
 import time
 
@@ -54,6 +53,7 @@ os.environ.setdefault("OMP_NUM_THREADS", "1")
 from scipy.interpolate import CubicSpline  # noqa: E402
 from scipy.special import loggamma  # noqa: E402
 
+from lossfit.provenance import git_revision  # noqa: E402
 from lossfit.constants import S0  # noqa: E402
 from lossfit.universal.solver import stm  # noqa: E402
 from lossfit.universal.solver.scattering import s11_unitarity  # noqa: E402
@@ -70,11 +70,7 @@ COARSE = dict(cut=1e7, dfac=(1.0, 1.6), per_decade=36, narc=24)
 
 
 def git_hash():
-    try:
-        return subprocess.run(["git", "rev-parse", "HEAD"], cwd=ROOT, capture_output=True,
-                              text=True, check=True).stdout.strip()
-    except Exception:   # noqa: BLE001 - metadata only
-        return "unknown"
+    return git_revision() or "unknown"
 
 
 def solve(kad, cut, dfac, per_decade, narc):

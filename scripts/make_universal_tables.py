@@ -37,7 +37,6 @@ import argparse
 import json
 import math
 import os
-import subprocess
 import sys
 import time
 
@@ -47,6 +46,7 @@ HERE = os.path.dirname(os.path.abspath(__file__))
 ROOT = os.path.dirname(HERE)
 sys.path.insert(0, ROOT)
 
+from lossfit.provenance import git_revision  # noqa: E402
 from lossfit.universal.solver.scattering import (DEFAULTS, K3_PREFACTOR, S0,  # noqa: E402
                                                  s11_components)
 from lossfit.universal.solver.boundstates import (kappa_star_from_phase,  # noqa: E402
@@ -55,11 +55,7 @@ from lossfit.universal.solver.boundstates import (kappa_star_from_phase,  # noqa
 
 
 def git_hash():
-    try:
-        return subprocess.run(["git", "rev-parse", "HEAD"], cwd=ROOT, capture_output=True,
-                              text=True, check=True).stdout.strip()
-    except Exception:   # noqa: BLE001 - metadata only
-        return "unknown"
+    return git_revision() or "unknown"
 
 
 def convergence_study(table_path):
