@@ -29,8 +29,7 @@ import math
 
 import numpy as np
 
-from .propagate import (bessel_series_logder, efimov_functions, hankel1_logder, kv_logder,
-                        sector_setup, _sector_inward)
+from .propagate import down_amplitude, hankel1_logder, inward_from_outer, kv_logder, sector_setup
 
 
 def _s_ad_raw(kad, nchan, rm, r0, h, c_osc, refine):
@@ -44,14 +43,7 @@ def _s_ad_raw(kad, nchan, rm, r0, h, c_osc, refine):
     yout[0] = hankel1_logder(0.25, q * rm)
     for n in range(1, nchan):
         yout[n] = kv_logder(st["nu_m"][n], math.sqrt(-k2) * rm)
-    yv = st["o_last"] @ (np.diag(yout) + st["rp_m"]) @ st["o_last"].T
-    yv = _sector_inward(st["lam"], st["widths"], st["rot"], yv.astype(np.complex128))
-    yf0 = st["o_first"] @ yv @ st["o_first"].T - st["rp_0"]
-    yreg = np.array([bessel_series_logder(math.sqrt(max(st["nu_0"][n], 0.0)), k2, r0)[1]
-                     for n in range(1, nchan)])
-    y = yf0[0, 0] + yf0[0, 1:] @ np.linalg.solve(np.diag(yreg) - yf0[1:, 1:], yf0[1:, 0])
-    fp, dfp, fm, dfm = efimov_functions(k2, r0)
-    return -(dfp - y * fp) / (dfm - y * fm)
+    return down_amplitude(inward_from_outer(st, yout, k2, r0), k2, r0)
 
 
 def s_ad_components(kad, nchan=64, rm=16.0, r0=1e-6, h=0.04, c_osc=0.25):

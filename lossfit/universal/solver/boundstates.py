@@ -20,7 +20,7 @@ import math
 
 import numpy as np
 
-from .propagate import S0, efimov_functions, inward_logderivative
+from .propagate import S0, down_amplitude, inward_logderivative
 from .scattering import _ARG_GAMMA, s11_point
 
 
@@ -32,8 +32,7 @@ def kappa_star_from_phase(delta, n=0):
 def _rho(k2, inv_a, nchan, r0, rm, refine, h, c_osc, outer):
     y, _ = inward_logderivative(k2, inv_a, nchan, r0, rm, h=h, c_osc=c_osc,
                                 refine=refine, outer=outer)
-    fp, dfp, fm, dfm = efimov_functions(k2, r0)
-    return -(dfp - y * fp) / (dfm - y * fm)
+    return down_amplitude(y, k2, r0)
 
 
 def bound_phase(kappa_abs_a, inv_a=-1, nchan=16, r0_factor=1e-6, c_out=40.0, h=0.04,
@@ -104,7 +103,7 @@ def trimer_branch_negative_a(kappa_abs_a_values, nchan=12, **kw):
 
 def _positive_a_phase(k2, nchan, rm, r0, h, c_osc, ch0_logder):
     """Richardson-extrapolated rho phase for a > 0, given the channel-0 outer log-derivative."""
-    from .propagate import bessel_series_logder, kv_logder, sector_setup, _sector_inward
+    from .propagate import inward_from_outer, kv_logder, sector_setup
     out = []
     for refine in (1, 2):
         # Every channel decays (or, at threshold, is flat), so sectors need not resolve
@@ -116,14 +115,7 @@ def _positive_a_phase(k2, nchan, rm, r0, h, c_osc, ch0_logder):
         yout[0] = ch0_logder(st["nu_m"][0])
         for n in range(1, nchan):
             yout[n] = kv_logder(st["nu_m"][n], math.sqrt(abs(k2)) * rm)
-        yv = st["o_last"] @ (np.diag(yout) + st["rp_m"]) @ st["o_last"].T
-        yv = _sector_inward(st["lam"], st["widths"], st["rot"], yv.astype(np.complex128))
-        yf0 = st["o_first"] @ yv @ st["o_first"].T - st["rp_0"]
-        yreg = np.array([bessel_series_logder(math.sqrt(max(st["nu_0"][n], 0.0)), k2, r0)[1]
-                         for n in range(1, nchan)])
-        y = yf0[0, 0] + yf0[0, 1:] @ np.linalg.solve(np.diag(yreg) - yf0[1:, 1:], yf0[1:, 0])
-        fp, dfp, fm, dfm = efimov_functions(k2, r0)
-        out.append(-(dfp - y * fp) / (dfm - y * fm))
+        out.append(down_amplitude(inward_from_outer(st, yout, k2, r0), k2, r0))
     r1, r2 = out
     ph = np.angle(r2) + np.angle(r2 / r1) / 3
     return float(np.angle(np.exp(1j * ph))), abs(r2)

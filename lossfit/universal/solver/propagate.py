@@ -21,7 +21,8 @@ is stable through classically forbidden regions.
 """
 
 __all__ = ["S0", "make_t_grid", "bessel_series_logder", "hankel1_logder", "kv_logder",
-           "inward_logderivative", "efimov_functions", "sector_setup", "outward_logderivative"]
+           "inward_logderivative", "inward_from_outer", "down_amplitude", "efimov_functions",
+           "sector_setup", "outward_logderivative"]
 
 import math
 import cmath
@@ -244,51 +245,57 @@ def inward_logderivative(k2, inv_a, nchan, r0, rm, h=0.04, c_osc=0.25, refine=1,
         Roots at R_0 (diagnostic).
     """
     kabs = math.sqrt(abs(k2))
-    t = make_t_grid(math.log(r0), math.log(rm), kabs, h, c_osc, refine)
-    c = 0.5 * (t[1:] + t[:-1])
-    widths = np.diff(t)
-    tgen = np.concatenate([[0.5 * (t[0] + c[0])], 0.5 * (c[1:] + c[:-1]), [0.5 * (c[-1] + t[-1])]])
-    rho_all = np.exp(np.concatenate([c, tgen, [t[0], t[-1]]]))
-    nu_all = adiabatic_nu(rho_all, inv_a, nchan)
-    m = c.size
-    nu_c = nu_all[:m]
-    nu_g = nu_all[m:2 * m + 1]
-    nu_0, nu_m = nu_all[-2], nu_all[-1]
-    rc = np.exp(c)
-    lam = nu_c - k2 * rc[:, None] ** 2
-    if inv_a != 0:
-        rp = coupling_matrix(nu_g, inv_a) * np.exp(tgen)[:, None, None]
-        dts = np.concatenate([[c[0] - t[0]], np.diff(c), [t[-1] - c[-1]]])
-        gens = -rp * dts[:, None, None]
-        rot = _cayley(gens[1:-1])
-        o_first = _cayley(-gens[0])          # W(t0) W(c0)^T = exp(+int R P)
-        o_last = _cayley(-gens[-1])          # W(c_last) W(tM)^T
-        rp_0 = coupling_matrix(nu_0[None], inv_a)[0] * r0
-        rp_m = coupling_matrix(nu_m[None], inv_a)[0] * rm
-    else:
-        rot = np.repeat(np.eye(nchan)[None], max(m - 1, 1), axis=0)
-        o_first = o_last = np.eye(nchan)
-        rp_0 = rp_m = np.zeros((nchan, nchan))
+    st = sector_setup(k2, inv_a, nchan, r0, rm, kabs, h=h, c_osc=c_osc, refine=refine)
     # Outer boundary condition in the adiabatic basis at R_m.
     z = kabs * rm
     yout = np.zeros(nchan, dtype=complex)
     for n in range(nchan):
-        yout[n] = hankel1_logder(nu_m[n], z) if outer == "outgoing" else kv_logder(nu_m[n], z)
-    yf = np.diag(yout)
+        yout[n] = hankel1_logder(st["nu_m"][n], z) if outer == "outgoing" else kv_logder(st["nu_m"][n], z)
     # frame: "adiabatic" = each adiabatic channel outgoing on its own (right when the
     # channel momenta differ by more than the coupling, small k|a|); "diabatic" = the
     # outgoing waves are carried by the rotating basis, F' = (Y - P) F (right when the
     # coupling exceeds the momentum differences, large k|a|).
-    yv = o_last @ (yf + (rp_m if frame == "adiabatic" else 0.0)) @ o_last.T
-    yv = _sector_inward(lam, widths, np.ascontiguousarray(rot), yv.astype(np.complex128))
-    yf0 = o_first @ yv @ o_first.T - rp_0
+    return inward_from_outer(st, yout, k2, r0, outer_coupling=frame == "adiabatic"), st["nu_0"]
+
+
+def inward_from_outer(setup, yout, k2, r0, outer_coupling=True):
+    """Efimov-channel log-derivative at R_0 from a diagonal adiabatic outer condition.
+
+    Parameters
+    ----------
+    setup : dict
+        From :func:`sector_setup`.
+    yout : ndarray, complex
+        d ln f_n / d ln R at R_m in each adiabatic channel.
+    k2, r0 : float
+        K^2 and the inner radius (as for :func:`sector_setup`).
+    outer_coupling : bool
+        Add the residual coupling at R_m to the outer condition (adiabatic frame).
+
+    Returns
+    -------
+    complex
+        d ln f_0 / d ln R at R_0 after eliminating the closed channels with their
+        regular boundary condition f_n ~ R^{s_n}.
+    """
+    st = setup
+    nchan = yout.size
+    yv = st["o_last"] @ (np.diag(yout) + (st["rp_m"] if outer_coupling else 0.0)) @ st["o_last"].T
+    yv = _sector_inward(st["lam"], st["widths"], st["rot"], yv.astype(np.complex128))
+    yf0 = st["o_first"] @ yv @ st["o_first"].T - st["rp_0"]
     if nchan == 1:
-        return complex(yf0[0, 0]), nu_0
-    yreg = np.array([bessel_series_logder(math.sqrt(max(nu_0[n], 0.0)), k2, r0)[1]
+        return complex(yf0[0, 0])
+    yreg = np.array([bessel_series_logder(math.sqrt(max(st["nu_0"][n], 0.0)), k2, r0)[1]
                      for n in range(1, nchan)])
-    acc = np.diag(yreg) - yf0[1:, 1:]
-    y_eff = yf0[0, 0] + yf0[0, 1:] @ np.linalg.solve(acc, yf0[1:, 0])
-    return complex(y_eff), nu_0
+    y_eff = yf0[0, 0] + yf0[0, 1:] @ np.linalg.solve(np.diag(yreg) - yf0[1:, 1:], yf0[1:, 0])
+    return complex(y_eff)
+
+
+def down_amplitude(y, k2, r0):
+    """Amplitude s of f = f_+ + s f_- whose log-derivative at R_0 is ``y``
+    (f_+- from :func:`efimov_functions`): the reflection back to short distance."""
+    fp, dfp, fm, dfm = efimov_functions(k2, r0)
+    return -(dfp - y * fp) / (dfm - y * fm)
 
 
 def efimov_functions(k2, r):
@@ -344,6 +351,12 @@ def sector_setup(k2, inv_a, nchan, r0, rm, kabs, h=0.04, c_osc=0.25, refine=1):
     m = c.size
     nu_c, nu_g, nu_0, nu_m = nu_all[:m], nu_all[m:2 * m + 1], nu_all[-2], nu_all[-1]
     lam = nu_c - k2 * np.exp(c)[:, None] ** 2
+    if inv_a == 0:
+        # unitarity: the channels decouple exactly
+        eye = np.eye(nchan)
+        return dict(lam=lam, widths=widths, rot=np.ascontiguousarray(np.repeat(eye[None], max(m - 1, 1), axis=0)),
+                    o_first=eye, o_last=eye, rp_0=np.zeros((nchan, nchan)), rp_m=np.zeros((nchan, nchan)),
+                    nu_0=nu_0, nu_m=nu_m)
     rp = coupling_matrix(nu_g, inv_a) * np.exp(tgen)[:, None, None]
     dts = np.concatenate([[c[0] - t[0]], np.diff(c), [t[-1] - c[-1]]])
     gens = -rp * dts[:, None, None]

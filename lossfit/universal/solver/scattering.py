@@ -31,7 +31,7 @@ import math
 import numpy as np
 from scipy.special import loggamma
 
-from .propagate import S0, efimov_functions, inward_logderivative
+from .propagate import S0, down_amplitude, inward_logderivative
 
 #: 72 sqrt(3) pi^2: K3 = K3_PREFACTOR * hbar/(m k^4) * (absorption probability).
 K3_PREFACTOR = 72.0 * math.sqrt(3.0) * math.pi ** 2
@@ -59,8 +59,7 @@ def s11_unitarity(k_over_l):
 def _s11_raw(k2, inv_a, nchan, r0, rm, refine, h, c_osc, outer="outgoing"):
     y, _ = inward_logderivative(k2, inv_a, nchan, r0, rm, h=h, c_osc=c_osc,
                                 refine=refine, outer=outer)
-    fp, dfp, fm, dfm = efimov_functions(k2, r0)
-    return -(dfp - y * fp) / (dfm - y * fm)
+    return down_amplitude(y, k2, r0)
 
 
 def s11_components(x, inv_a=-1, nchan=None, r0_factor=None, c_out=None, h=None,
