@@ -1,6 +1,7 @@
 """Atomic file replacement shared by every writer of results."""
 
 import contextlib
+import csv
 import os
 import tempfile
 
@@ -63,3 +64,24 @@ def open_checked_h5(path, schema, max_version, *, argument="path"):
         raise LossfitValueError(argument, f"{path!r} has {schema} schema version {version}; this "
                                 f"lossfit reads versions 1..{max_version}")
     return h5
+
+
+def read_csv_table(path, required):
+    """Rows (dicts of stripped strings) and column names of a CSV file with a header.
+
+    Blank lines and lines starting with ``#`` are skipped. Raises LossfitValueError
+    naming ``path`` for a missing file or missing ``required`` columns.
+    """
+    from .errors import LossfitValueError
+    path = os.fspath(path)
+    if not os.path.exists(path):
+        raise LossfitValueError("path", f"no such file {path!r}")
+    with open(path, newline="") as fh:
+        lines = [ln for ln in fh if ln.strip() and not ln.lstrip().startswith("#")]
+    reader = csv.DictReader(lines, skipinitialspace=True)
+    rows = [{(k or "").strip(): (v or "").strip() for k, v in r.items()} for r in reader]
+    columns = [c.strip() for c in (reader.fieldnames or [])]
+    missing = [c for c in required if c not in columns]
+    if missing:
+        raise LossfitValueError("path", f"{path!r} lacks column(s) {missing}; header is {columns}")
+    return rows, columns

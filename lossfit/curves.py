@@ -31,7 +31,6 @@ __all__ = ["DecayCurve", "Campaign", "write_campaign", "read_campaign", "read_cu
            "invented_campaign", "INVENTED_CAMPAIGN",
            "CAMPAIGN_SCHEMA", "CAMPAIGN_SCHEMA_VERSION"]
 
-import csv
 import json
 import math
 import os
@@ -39,7 +38,7 @@ from dataclasses import dataclass, field as _dc_field
 
 import numpy as np
 
-from ._io import atomic_path, open_checked_h5
+from ._io import atomic_path, open_checked_h5, read_csv_table
 from .errors import LossfitValueError, check_finite, check_positive
 from .feshbach import FeshbachResonance
 from .trap import HarmonicTrap, as_trap
@@ -383,16 +382,7 @@ def read_curves_csv(path, *, trap_hz=None, kind=None):
     list of DecayCurve
     """
     path = os.fspath(path)
-    if not os.path.exists(path):
-        raise LossfitValueError("path", f"no such file {path!r}")
-    with open(path, newline="") as fh:
-        lines = [ln for ln in fh if ln.strip() and not ln.lstrip().startswith("#")]
-    reader = csv.DictReader(lines, skipinitialspace=True)
-    rows = [{(k or "").strip(): (v or "").strip() for k, v in r.items()} for r in reader]
-    columns = [c.strip() for c in (reader.fieldnames or [])]
-    missing = [c for c in _CSV_REQUIRED if c not in columns]
-    if missing:
-        raise LossfitValueError("path", f"{path!r} lacks column(s) {missing}; header is {columns}")
+    rows, columns = read_csv_table(path, _CSV_REQUIRED)
     if ("field" in columns) == ("a" in columns):
         raise LossfitValueError("path", f"{path!r} needs exactly one of the columns 'field' (G) and 'a' (a0)")
     has_trap = all(c in columns for c in ("trap_x_hz", "trap_y_hz", "trap_z_hz"))

@@ -15,12 +15,11 @@ CSV import: a header line naming the columns ``a``, ``temperature``, ``value``,
 
 __all__ = ["LossSpectrum", "write_spectra", "read_spectra", "read_csv", "SCHEMA", "SCHEMA_VERSION"]
 
-import csv
 import os
 
 import numpy as np
 
-from ._io import atomic_path, open_checked_h5
+from ._io import atomic_path, open_checked_h5, read_csv_table
 from .errors import LossfitValueError, check_finite, check_nonzero, check_positive
 
 SCHEMA = "lossfit.spectra"
@@ -162,16 +161,7 @@ def read_csv(path, *, kind="l3", label=None, species=None):
     Units as in :class:`LossSpectrum` (a0, nK, cm^6/s or cm^3/s).
     """
     path = os.fspath(path)
-    if not os.path.exists(path):
-        raise LossfitValueError("path", f"no such file {path!r}")
-    with open(path, newline="") as fh:
-        lines = [ln for ln in fh if ln.strip() and not ln.lstrip().startswith("#")]
-    reader = csv.DictReader(lines, skipinitialspace=True)
-    rows = [{(k or "").strip(): v for k, v in r.items()} for r in reader]
-    columns = [c.strip() for c in (reader.fieldnames or [])]
-    missing = [c for c in ("a", "temperature", "value", "error") if c not in columns]
-    if missing:
-        raise LossfitValueError("path", f"{path!r} lacks column(s) {missing}; header is {columns}")
+    rows, _ = read_csv_table(path, ("a", "temperature", "value", "error"))
     cols = {}
     for c in ("a", "temperature", "value", "error"):
         try:
