@@ -55,7 +55,7 @@ __all__ = ["kernel_log", "momentum_grid", "three_body_force", "atom_dimer_length
            "recombination_deep", "kappa_a_minus", "above_breakup",
            "fit_atom_dimer_universal", "AtomDimerRankOne", "s_ad_from_stm", "s_ad_fit",
            "relaxation_probability_general",
-           "breakup_probability"]
+           "breakup_probability", "threshold_recombination_form"]
 
 import math
 
@@ -742,3 +742,49 @@ def s_ad_from_stm(kad, etas=(0.1, 0.4), nphi=6, kappa0=0.15, cutoff=None, full=F
     sol = AtomDimerRankOne(kad, cutoff=cutoff, **num)
     r = s_ad_fit(sol, etas, nphi, kappa0, cutoff)
     return r if full else r["s_ad"]
+
+
+def threshold_recombination_form(s_threshold, etas=(0.1, 0.4), nphi=6, kappa0=0.15,
+                                 cutoff=1e7, **grid):
+    """E -> 0 limits of the J = 0 three-body quantities in the Efimov-channel form.
+
+    The breakup coefficients and the three-atom -> Efimov-channel transmission
+    T_break = 1 - |s_AD|^2 - T_AD all vanish like E^2 at the breakup threshold, while
+    the recombination rates stay finite: with w = e^{2 i Phi - 2 eta} and s = s_AD at
+    k_AD a = 2/sqrt 3,
+
+        K3_shallow(0) |1 + s w|^2 / (24 sqrt 3 pi^2) = alpha + 2 Re(b w) + c |w|^2,
+        K3_deep(0) |1 + s w|^2 / (24 sqrt 3 pi^2 (1 - e^{-4 eta})) = tau,
+
+    (events convention, units hbar a^4/m), so alpha, b, c and tau are the limits of
+    A/E^2, B/E^2, C/E^2 and T_break/E^2 (E in hbar^2/(m a^2)).  They are fitted by linear
+    least squares to direct threshold solves (:func:`recombination_shallow`,
+    :func:`recombination_deep`) at ``nphi`` values of Phi for each eta; that the deep
+    rate needs a single constant tau is a check of the form (``deep_spread``).
+
+    Returns
+    -------
+    dict
+        alpha, b (complex), c, tau, shallow_max_rel_residual, deep_spread (max relative
+        deviation of the per-point tau from their mean).
+    """
+    from .scattering import phase_phi
+
+    kap = kappa0 * np.exp(np.arange(nphi) * math.pi / (nphi * S0))
+    kk = np.tile(kap, len(etas))
+    ee = np.repeat(np.asarray(etas, dtype=float), nphi)
+    norm = 24.0 * math.sqrt(3.0) * math.pi ** 2
+    shallow = np.array([recombination_shallow(k, e, cutoff, "events", **grid)
+                        for k, e in zip(kk, ee)])
+    deep = np.array([recombination_deep(k, e, cutoff, "events", **grid)
+                     for k, e in zip(kk, ee)])
+    w = np.exp(2j * np.asarray(phase_phi(kk), dtype=float) - 2.0 * ee)
+    den = np.abs(1.0 + s_threshold * w) ** 2
+    y = shallow * den / norm
+    xm = np.c_[np.ones_like(ee), 2.0 * w.real, -2.0 * w.imag, np.abs(w) ** 2]
+    cb, *_ = np.linalg.lstsq(xm, y, rcond=None)
+    taus = deep * den / (norm * -np.expm1(-4.0 * ee))
+    tau = float(np.mean(taus))
+    return {"alpha": float(cb[0]), "b": complex(cb[1], cb[2]), "c": float(cb[3]), "tau": tau,
+            "shallow_max_rel_residual": float(np.max(np.abs(xm @ cb - y) / np.abs(y))),
+            "deep_spread": float(np.max(np.abs(taus / tau - 1.0)))}
