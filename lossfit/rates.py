@@ -55,11 +55,12 @@ def _prepare(a, scale_nk, species, efimov, model, scale_name, process, stackleve
     return sp, mdl, a_b, scale_b, q
 
 
-def three_body_rows(a, scale_nk, species, efimov, model, stacklevel=4, scale_name="temperature"):
+def three_body_rows(a, scale_nk, species, efimov, model, stacklevel=4, scale_name="temperature",
+                    channel="total"):
     """Private helper shared with the likelihood: (model, params, natural unit in cm^6/s)."""
     sp, mdl, a_b, scale_b, q = _prepare(a, scale_nk, species, efimov, model, scale_name,
                                         THREE_BODY, stacklevel)
-    params = mdl.three_body_rows(a_b, efimov, q)
+    params = mdl.three_body_rows(a_b, efimov, q, channel=channel)
     k_s = scale_wavenumber_a0(scale_b * NK, sp.mass).ravel() / A0
     unit = HBAR / (sp.mass * k_s ** 4) / CM6_PER_S
     return mdl, params, unit, a_b.shape
@@ -80,7 +81,7 @@ def _finish(values, shape):
     return out.item() if out.ndim == 0 else out
 
 
-def k3(a, energy, *, species, efimov, model=None):
+def k3(a, energy, *, species, efimov, model=None, channel="total"):
     """Three-body loss rate coefficient at fixed three-body collision energy.
 
     Parameters
@@ -92,14 +93,19 @@ def k3(a, energy, *, species, efimov, model=None):
     species : Species or str
     efimov : Efimov
     model : str, optional
-        ``"threshold"``, ``"capped"`` (an approximation) or a registered model name.
+        ``"zero-range"``, ``"threshold"``, ``"capped"`` (an approximation) or a registered
+        model name.
+    channel : {"total", "shallow", "deep"}
+        Recombination into any dimer, into the shallow dimer (a > 0 only; 0 for a < 0)
+        or into deep dimers. Only ``model="zero-range"`` resolves the two.
 
     Returns
     -------
     float or ndarray
         K3(a, E) in cm^6/s (lossfit convention: atoms lost, thermal gas).
     """
-    mdl, params, unit, shape = three_body_rows(a, energy, species, efimov, model, scale_name="energy")
+    mdl, params, unit, shape = three_body_rows(a, energy, species, efimov, model, scale_name="energy",
+                                               channel=channel)
     out = np.empty(params.shape[0])
     _evaluate_rows(mdl.three_body_kernel, params, 1.0, out)
     return _finish(out * unit, shape)
@@ -129,10 +135,10 @@ def beta_energy(a, energy, *, species, efimov, model=None):
 
 
 def _averaged(rows, kernel_attr, features_attr, weight, a, temperature, species, efimov, model,
-              rtol):
+              rtol, **channel):
     if not (is_real(rtol) and 0 < rtol < 1):
         raise LossfitValueError("rtol", f"must be a number in (0, 1), got {rtol!r}")
-    mdl, params, unit, shape = rows(a, temperature, species, efimov, model, stacklevel=5)
+    mdl, params, unit, shape = rows(a, temperature, species, efimov, model, stacklevel=5, **channel)
     value, err = thermal_average(getattr(mdl, kernel_attr), getattr(mdl, features_attr),
                                  params, weight, rtol=rtol)
     bad = err > max(rtol, 1e-7) * np.abs(value) * 10.0
@@ -142,7 +148,7 @@ def _averaged(rows, kernel_attr, features_attr, weight, a, temperature, species,
     return _finish(value * unit, shape)
 
 
-def l3(a, temperature, *, species, efimov, model=None, rtol=1e-9):
+def l3(a, temperature, *, species, efimov, model=None, rtol=1e-9, channel="total"):
     """Thermally averaged three-body loss coefficient of a non-degenerate gas.
 
     ``L3(a, T) = ∫ K3(a, E) P3(E) dE`` with P3(E) = E^2 exp(-E/k_BT)/(2 (k_BT)^3).
@@ -157,6 +163,8 @@ def l3(a, temperature, *, species, efimov, model=None, rtol=1e-9):
         As for :func:`k3`.
     rtol : float
         Relative accuracy target of the thermal quadrature.
+    channel : {"total", "shallow", "deep"}
+        As for :func:`k3`.
 
     Returns
     -------
@@ -164,7 +172,7 @@ def l3(a, temperature, *, species, efimov, model=None, rtol=1e-9):
         L3 in cm^6/s.
     """
     return _averaged(three_body_rows, "three_body_kernel", "three_body_features", THREE_BODY,
-                     a, temperature, species, efimov, model, rtol)
+                     a, temperature, species, efimov, model, rtol, channel=channel)
 
 
 def beta(a, temperature, *, species, efimov, model=None, rtol=1e-9):

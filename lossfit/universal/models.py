@@ -51,6 +51,8 @@ from ..units import A0
 from .threshold import beta_coefficient_unchecked, l3_coefficient_unchecked
 
 _ARG_GAMMA = float(np.imag(loggamma(1 + 1j * S0)))
+# (shallow-dimer, deep-dimer) weights of the recombination channels; a < 0 has only deep
+_CHANNEL_WEIGHTS = {"total": (1.0, 1.0), "shallow": (1.0, 0.0), "deep": (0.0, 1.0)}
 UNITARITY_THREE_BODY = 72.0 * math.sqrt(3.0) * math.pi ** 2
 UNITARITY_ATOM_DIMER = 3.0 * math.sqrt(3.0) * math.pi / 4.0
 
@@ -76,9 +78,11 @@ class EnergyModel:
     atom_dimer_kernel = None
     atom_dimer_features = None
 
-    def three_body_rows(self, a, efimov, q):
+    def three_body_rows(self, a, efimov, q, channel="total"):
         """Parameter rows for K3: ``a`` in a0 (validated, non-zero), ``q = a k_s``
-        (dimensionless), same shapes; one row per point in C order."""
+        (dimensionless), same shapes; one row per point in C order. ``channel`` is
+        "total", or "shallow" / "deep" (recombination into the shallow dimer / deep
+        dimers) for models that resolve them."""
         raise NotImplementedError
 
     def atom_dimer_rows(self, a, efimov, q):
@@ -160,7 +164,10 @@ class ThresholdModel(EnergyModel):
     atom_dimer_kernel = staticmethod(_threshold_atom_dimer)
     atom_dimer_features = staticmethod(_no_features)
 
-    def three_body_rows(self, a, efimov, q):
+    def three_body_rows(self, a, efimov, q, channel="total"):
+        if channel != "total":
+            raise LossfitValueError("channel", f"model {self.name!r} gives only the total rate; "
+                                    "model='zero-range' resolves 'shallow' and 'deep'")
         return _threshold_rows_three_body(a, efimov, q)
 
     def atom_dimer_rows(self, a, efimov, q):
@@ -230,46 +237,95 @@ class ZeroRangeModel(EnergyModel):
         return load_s11_table()
 
     @property
+    def recombination_table(self):
+        from .tables import load_recombination_table
+        return load_recombination_table()
+
+    @property
     def three_body_kernel(self):
-        # Compiled on first use and not cached on disk: the table is baked into the
+        # Compiled on first use and not cached on disk: the tables are baked into the
         # machine code, and a cache would not notice a regenerated table.
         if self._kernel is None:
-            from .tables import grid_limits, s11_eval
+            from .tables import grid_limits, recombination_eval, recombination_grid_points, s11_eval
             packed = self.table.packed
             pref = self.table.k3_prefactor
+            packed_pos = self.recombination_table.packed
 
             @numba.njit(KERNEL_SIGNATURE)
             def kernel(x, p):
-                # p = [q, 2 Phi, exp(-2 eta), 1 - exp(-4 eta)]
-                t, ph = s11_eval(packed, p[0] * math.sqrt(x))
-                mod = math.sqrt(max(1.0 - t, 0.0)) * p[2]
-                den = 1.0 + 2.0 * mod * math.cos(ph + p[1]) + mod * mod
-                return pref * t * p[3] / (den * x * x)
+                # p = [q = k_s |a|, cos 2Phi, sin 2Phi, exp(-2 eta), 1 - exp(-4 eta),
+                #      shallow weight, deep weight, sign of a]
+                if p[7] < 0.0:
+                    # a < 0: every recombination goes to deep dimers
+                    t, ph = s11_eval(packed, p[0] * math.sqrt(x))
+                    mod = math.sqrt(max(1.0 - t, 0.0)) * p[3]
+                    den = 1.0 + 2.0 * mod * (math.cos(ph) * p[1] - math.sin(ph) * p[2]) + mod * mod
+                    return p[6] * pref * t * p[4] / (den * x * x)
+                # a > 0: E m a^2/hbar^2 = q^2 x; the table holds the E^2-suppressed
+                # numerators over E^2, and K3 x^2 = (that) q^4 in natural units
+                q2 = p[0] * p[0]
+                re, im, ca, cbr, cbi, cc, tb, hj = recombination_eval(packed_pos, q2 * x)
+                wr, wi = p[3] * p[1], p[3] * p[2]
+                w2 = p[3] * p[3]
+                den = 1.0 + 2.0 * (re * wr - im * wi) + (re * re + im * im) * w2
+                shallow = (ca + 2.0 * (cbr * wr - cbi * wi) + cc * w2) / den + hj
+                deep = tb * p[4] / den
+                return pref * q2 * q2 * (p[5] * shallow + p[6] * deep)
 
             lo, hi = grid_limits(packed)
+            e_lo, e_hi = recombination_grid_points(packed_pos)
 
             @numba.njit(FEATURES_SIGNATURE)
             def features(p, out):
-                # the ends of the table grid, where the interpolant meets its limits
-                out[0] = (lo / p[0]) ** 2
-                out[1] = (hi / p[0]) ** 2
+                # the ends of the table grids, where the interpolants meet their limits
+                if p[7] < 0.0:
+                    out[0] = (lo / p[0]) ** 2
+                    out[1] = (hi / p[0]) ** 2
+                else:
+                    out[0] = e_lo / (p[0] * p[0])
+                    out[1] = e_hi / (p[0] * p[0])
                 return 2
             self._features = features
             self._kernel = kernel
         return self._kernel
 
-    def three_body_rows(self, a, efimov, q):
-        a = np.asarray(a, dtype=float)
-        if (a > 0).any():
-            raise LossfitValueError("model", "the zero-range tables for a > 0 are not shipped yet; "
-                                    "use model='capped' (an approximation) for a > 0")
-        a_minus, eta = efimov.require("a_minus", "eta_minus")
-        kappa = self.table.kappa_star_a_minus / a_minus          # 1/a0
-        rows = np.empty((a.size, 4))
-        rows[:, 0] = np.abs(q).ravel()
-        rows[:, 1] = 2.0 * (S0 * np.log(kappa * np.abs(a.ravel()) / math.sqrt(2.0)) - _ARG_GAMMA)
-        rows[:, 2] = math.exp(-2.0 * eta)
-        rows[:, 3] = -math.expm1(-4.0 * eta)
+    def three_body_rows(self, a, efimov, q, channel="total"):
+        weights = _CHANNEL_WEIGHTS.get(channel)
+        if weights is None:
+            raise LossfitValueError("channel", f"must be one of {list(_CHANNEL_WEIGHTS)}, got {channel!r}")
+        a = np.asarray(a, dtype=float).ravel()
+        q = np.abs(np.asarray(q, dtype=float)).ravel()
+        neg = a < 0
+        kappa = np.empty(a.size)
+        eta = np.empty(a.size)
+        if neg.any():
+            a_minus, eta_minus = efimov.require("a_minus", "eta_minus")
+            kappa[neg] = self.table.kappa_star_a_minus / a_minus          # 1/a0
+            eta[neg] = eta_minus
+        if (~neg).any():
+            a_plus, eta_plus = efimov.require("a_plus", "eta_plus")
+            table = self.recombination_table
+            # thermal averages reach x = U_MAX^2 (fixed-energy calls use x = 1); the table
+            # is not extrapolated, so refuse what lies beyond its last point
+            reach = q[~neg] ** 2 * max(U_MAX, 1.0) ** 2
+            if np.any(reach > table.energy_max):
+                raise LossfitValueError(
+                    "a", f"three-atom energies up to {reach.max():.3g} hbar^2/(m a^2) are needed, beyond "
+                    f"the zero-range a > 0 recombination table (E <= {table.energy_max:g} hbar^2/(m a^2), "
+                    f"i.e. k_B T up to about {table.energy_max / max(U_MAX, 1.0) ** 2:.2g} E_b); "
+                    "lower a or T, or use model='capped' (an approximation)")
+            kappa[~neg] = table.kappa_star_a_plus / a_plus
+            eta[~neg] = eta_plus
+        two_phi = 2.0 * (S0 * np.log(kappa * np.abs(a) / math.sqrt(2.0)) - _ARG_GAMMA)
+        rows = np.empty((a.size, 8))
+        rows[:, 0] = q
+        rows[:, 1] = np.cos(two_phi)
+        rows[:, 2] = np.sin(two_phi)
+        rows[:, 3] = np.exp(-2.0 * eta)
+        rows[:, 4] = -np.expm1(-4.0 * eta)
+        rows[:, 5] = np.where(neg, 0.0, weights[0])
+        rows[:, 6] = weights[1]
+        rows[:, 7] = np.where(neg, -1.0, 1.0)
         return rows
 
     @property

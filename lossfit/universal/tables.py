@@ -17,7 +17,8 @@ evaluated in numba. Outside the grid the known limits take over:
   table approaches unitarity like 1/x).
 """
 
-__all__ = ["S11Table", "AtomDimerTable", "load_s11_table", "load_atom_dimer_table", "table_path"]
+__all__ = ["S11Table", "AtomDimerTable", "RecombinationTable", "load_s11_table", "load_atom_dimer_table",
+           "load_recombination_table", "table_path"]
 
 import json
 import math
@@ -287,4 +288,113 @@ def load_atom_dimer_table(path=None):
     path = path or table_path("s_ad_positive_a.npz")
     if path not in _CACHE:
         _CACHE[path] = AtomDimerTable(path)
+    return _CACHE[path]
+
+
+# --- a > 0: three-body recombination (shallow and deep dimers) ---------------------------
+# ``data/recombination_positive_a.npz`` (written by ``scripts/make_recombination_table.py``
+# from the STM solver, docs/stm.md section 7) holds, on a grid uniform in ln E of the
+# three-atom energy E (units hbar^2/(m a^2)), s_AD, the J = 0 breakup coefficients and the
+# three-atom -> Efimov-channel transmission, each divided by E^2 (they vanish like E^2 at
+# the threshold while the rates stay finite), and the J >= 1 sum of (2J + 1) P_J over E^2.
+# Below the grid the J = 0 columns run linearly in k = sqrt(E) to their E -> 0 limits,
+# which the table stores from direct threshold solves (measured: A/E^2 departs from its
+# limit like 0.04 sqrt(E) for E < 1e-2, the breakup branch point sqrt(3q^2/4 - E) of the
+# dimer propagator); the J >= 1 sum runs like E^2 (its measured threshold behaviour,
+# dominated by J = 2). Above the grid nothing is extrapolated.
+
+_RC_HEADER = 12
+_RC_COLUMNS = 8       # Re s, Im s, A/E^2, Re B/E^2, Im B/E^2, C/E^2, T_break/E^2, J>=1 sum/E^2
+
+
+class RecombinationTable:
+    """Spline coefficients of the a > 0 three-body universal functions, packed for numba.
+
+    Attributes
+    ----------
+    packed : ndarray
+        1-D float array consumed by :func:`recombination_eval`.
+    energy_min, energy_max : float
+        Grid ends in E m a^2 / hbar^2 (no extrapolation above ``energy_max``).
+    kappa_star_a_plus : float
+        kappa* a_+ where the eta -> 0 threshold shallow-dimer rate vanishes.
+    metadata : dict
+    """
+
+    def __init__(self, path):
+        if not os.path.exists(path):
+            raise LossfitError(f"universal-function table {path!r} is missing from the installation")
+        with np.load(path, allow_pickle=False) as d:
+            energy = np.array(d["energy"])
+            s_ad = np.array(d["s_ad"])
+            b = np.array(d["breakup_b_over_e2"])
+            columns = [s_ad.real, s_ad.imag, np.array(d["breakup_a_over_e2"]), b.real, b.imag,
+                       np.array(d["breakup_c_over_e2"]), np.array(d["t_break_over_e2"]),
+                       np.array(d["higher_j_over_e2"])]
+            thr_b = complex(d["threshold_b"])
+            thr_s = complex(d["threshold_s_ad"])
+            limits = [thr_s.real, thr_s.imag, float(d["threshold_alpha"]), thr_b.real, thr_b.imag,
+                      float(d["threshold_c"]), float(d["threshold_tau"]), 0.0]
+            self.kappa_star_a_plus = float(d["kappa_star_a_plus"])
+            self.metadata = json.loads(str(d["metadata"]))
+        lnx = np.log(energy)
+        if not np.allclose(np.diff(lnx), lnx[1] - lnx[0], rtol=1e-9, atol=0):
+            raise LossfitError(f"{path!r}: the energy grid is not uniform in ln E")
+        head = np.array([energy.size, lnx[0], lnx[1] - lnx[0], energy[0], energy[-1]] + limits[:7])
+        assert head.size == _RC_HEADER
+        self.energy = energy
+        self.energy_min, self.energy_max = float(energy[0]), float(energy[-1])
+        self.packed = np.concatenate([head] + [CubicSpline(lnx, c).c.T.ravel() for c in columns])
+
+    def evaluate(self, energy):
+        """The eight columns at three-atom energies E m a^2/hbar^2 (array, E <= energy_max),
+        evaluated as the runtime kernel does: shape energy.shape + (8,)."""
+        energy = np.asarray(energy, dtype=float)
+        out = np.empty((energy.size, _RC_COLUMNS))
+        for i, v in enumerate(energy.ravel()):
+            out[i] = recombination_eval(self.packed, v)
+        return out.reshape(energy.shape + (_RC_COLUMNS,))
+
+
+@numba.njit(cache=True)
+def recombination_grid_points(packed):
+    """(first, last) grid energy E m a^2/hbar^2: the kernel's kinks."""
+    return packed[3], packed[4]
+
+
+@numba.njit(cache=True)
+def _rc_column(packed, c, n, below, i, dx, r):
+    base = _RC_HEADER + c * 4 * (n - 1)
+    if not below:
+        return _spline(packed, base, i, dx)
+    # r = sqrt(E / E_first)
+    first = _spline(packed, base, 0, 0.0)
+    if c == _RC_COLUMNS - 1:
+        return first * (r * r) ** 2
+    return packed[5 + c] + (first - packed[5 + c]) * r
+
+
+@numba.njit(cache=True)
+def recombination_eval(packed, energy):
+    """(Re s_AD, Im s_AD, A/E^2, Re B/E^2, Im B/E^2, C/E^2, T_break/E^2, J>=1 sum/E^2)
+    at three-atom energy E m a^2/hbar^2 (0 < E <= the last grid point)."""
+    n = int(packed[0])
+    lnx0, h, e_first = packed[1], packed[2], packed[3]
+    below = energy <= e_first
+    i, dx, r = 0, 0.0, math.sqrt(energy / e_first)
+    if not below:
+        lnx = math.log(energy)
+        i = min(int((lnx - lnx0) / h), n - 2)
+        dx = lnx - (lnx0 + i * h)
+    return (_rc_column(packed, 0, n, below, i, dx, r), _rc_column(packed, 1, n, below, i, dx, r),
+            _rc_column(packed, 2, n, below, i, dx, r), _rc_column(packed, 3, n, below, i, dx, r),
+            _rc_column(packed, 4, n, below, i, dx, r), _rc_column(packed, 5, n, below, i, dx, r),
+            _rc_column(packed, 6, n, below, i, dx, r), _rc_column(packed, 7, n, below, i, dx, r))
+
+
+def load_recombination_table(path=None):
+    """The shipped a > 0 three-body table (loaded once per process)."""
+    path = path or table_path("recombination_positive_a.npz")
+    if path not in _CACHE:
+        _CACHE[path] = RecombinationTable(path)
     return _CACHE[path]
