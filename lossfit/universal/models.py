@@ -254,12 +254,12 @@ class ZeroRangeModel(EnergyModel):
             @numba.njit(KERNEL_SIGNATURE)
             def kernel(x, p):
                 # p = [q = k_s |a|, cos 2Phi, sin 2Phi, exp(-2 eta), 1 - exp(-4 eta),
-                #      shallow weight, deep weight, sign of a]
+                #      shallow weight, deep weight, sign of a, 2 Phi]
                 if p[7] < 0.0:
-                    # a < 0: every recombination goes to deep dimers
+                    # a < 0: every recombination goes to deep dimers (one cosine per call)
                     t, ph = s11_eval(packed, p[0] * math.sqrt(x))
                     mod = math.sqrt(max(1.0 - t, 0.0)) * p[3]
-                    den = 1.0 + 2.0 * mod * (math.cos(ph) * p[1] - math.sin(ph) * p[2]) + mod * mod
+                    den = 1.0 + 2.0 * mod * math.cos(ph + p[8]) + mod * mod
                     return p[6] * pref * t * p[4] / (den * x * x)
                 # a > 0: E m a^2/hbar^2 = q^2 x; the table holds the E^2-suppressed
                 # numerators over E^2, and K3 x^2 = (that) q^4 in natural units
@@ -317,7 +317,7 @@ class ZeroRangeModel(EnergyModel):
             kappa[~neg] = table.kappa_star_a_plus / a_plus
             eta[~neg] = eta_plus
         two_phi = 2.0 * (S0 * np.log(kappa * np.abs(a) / math.sqrt(2.0)) - _ARG_GAMMA)
-        rows = np.empty((a.size, 8))
+        rows = np.empty((a.size, 9))
         rows[:, 0] = q
         rows[:, 1] = np.cos(two_phi)
         rows[:, 2] = np.sin(two_phi)
@@ -326,6 +326,7 @@ class ZeroRangeModel(EnergyModel):
         rows[:, 5] = np.where(neg, 0.0, weights[0])
         rows[:, 6] = weights[1]
         rows[:, 7] = np.where(neg, -1.0, 1.0)
+        rows[:, 8] = two_phi
         return rows
 
     @property
