@@ -519,7 +519,7 @@ INVENTED_CAMPAIGN = {
     "atoms_rel_err": 0.04,
     "atoms_abs_err": 500.0,
     "temperature_rel_err": 0.03,
-    "dimer_a_range_a0": (550.0, 4000.0),
+    "dimer_a_range_a0": (550.0, 3000.0),
     "dimer_n0": 2.0e4,
     "dimer_partner_atoms": 4.0e4,
     "dimer_gamma": 0.5,

@@ -16,7 +16,7 @@ import numpy as np
 from .constants import HBAR
 from .errors import LossfitValueError, ValidityWarning, check_nonzero, check_positive, is_real
 from .species import species as _species
-from .thermal import ATOM_DIMER, KERNEL_SIGNATURE, THREE_BODY, thermal_average
+from .thermal import ATOM_DIMER, KERNEL_SIGNATURE, THREE_BODY, U_MAX, thermal_average
 from .units import A0, CM3_PER_S, CM6_PER_S, NK
 from .universal.models import DEFAULT_MODEL, get_model, scale_wavenumber_a0
 from .universal.threshold import Efimov
@@ -55,22 +55,28 @@ def _prepare(a, scale_nk, species, efimov, model, scale_name, process, stackleve
     return sp, mdl, a_b, scale_b, q
 
 
+def _x_max(scale_name):
+    # fixed-energy calls evaluate the kernel at x = 1; thermal averages reach U_MAX^2
+    return 1.0 if scale_name == "energy" else U_MAX ** 2
+
+
 def three_body_rows(a, scale_nk, species, efimov, model, stacklevel=4, scale_name="temperature",
                     channel="total"):
     """Private helper shared with the likelihood: (model, params, natural unit in cm^6/s)."""
     sp, mdl, a_b, scale_b, q = _prepare(a, scale_nk, species, efimov, model, scale_name,
                                         THREE_BODY, stacklevel)
-    params = mdl.three_body_rows(a_b, efimov, q, channel=channel)
+    params = mdl.three_body_rows(a_b, efimov, q, channel=channel, x_max=_x_max(scale_name))
     k_s = scale_wavenumber_a0(scale_b * NK, sp.mass).ravel() / A0
     unit = HBAR / (sp.mass * k_s ** 4) / CM6_PER_S
     return mdl, params, unit, a_b.shape
 
 
-def atom_dimer_rows(a, scale_nk, species, efimov, model, stacklevel=4, scale_name="temperature"):
+def atom_dimer_rows(a, scale_nk, species, efimov, model, stacklevel=4, scale_name="temperature",
+                    channel="relaxation"):
     """Private helper shared with the likelihood: (model, params, natural unit in cm^3/s)."""
     sp, mdl, a_b, scale_b, q = _prepare(a, scale_nk, species, efimov, model, scale_name,
                                         ATOM_DIMER, stacklevel)
-    params = mdl.atom_dimer_rows(a_b, efimov, q)
+    params = mdl.atom_dimer_rows(a_b, efimov, q, channel=channel, x_max=_x_max(scale_name))
     k_s = scale_wavenumber_a0(scale_b * NK, sp.mass).ravel() / A0
     unit = HBAR / (sp.mass * k_s) / CM3_PER_S
     return mdl, params, unit, a_b.shape
@@ -111,7 +117,7 @@ def k3(a, energy, *, species, efimov, model=None, channel="total"):
     return _finish(out * unit, shape)
 
 
-def beta_energy(a, energy, *, species, efimov, model=None):
+def beta_energy(a, energy, *, species, efimov, model=None, channel="relaxation"):
     """Atom-dimer relaxation rate coefficient at fixed atom-dimer collision energy.
 
     Parameters
@@ -122,13 +128,18 @@ def beta_energy(a, energy, *, species, efimov, model=None):
         Atom-dimer collision energy E/k_B in nK (> 0).
     species, efimov, model
         As for :func:`k3`.
+    channel : {"relaxation", "breakup", "total"}
+        Dimers lost into deep dimers (relaxation), by breakup into three free atoms (above
+        the breakup threshold, E > E_b; all partial waves) or both. Only
+        ``model="zero-range"`` gives breakup.
 
     Returns
     -------
     float or ndarray
         beta(a, E) in cm^3/s (dimers lost).
     """
-    mdl, params, unit, shape = atom_dimer_rows(a, energy, species, efimov, model, scale_name="energy")
+    mdl, params, unit, shape = atom_dimer_rows(a, energy, species, efimov, model, scale_name="energy",
+                                               channel=channel)
     out = np.empty(params.shape[0])
     _evaluate_rows(mdl.atom_dimer_kernel, params, 1.0, out)
     return _finish(out * unit, shape)
@@ -175,7 +186,7 @@ def l3(a, temperature, *, species, efimov, model=None, rtol=1e-9, channel="total
                      a, temperature, species, efimov, model, rtol, channel=channel)
 
 
-def beta(a, temperature, *, species, efimov, model=None, rtol=1e-9):
+def beta(a, temperature, *, species, efimov, model=None, rtol=1e-9, channel="relaxation"):
     """Thermally averaged atom-dimer relaxation coefficient.
 
     ``beta(a, T) = ∫ beta(a, E) P2(E) dE`` with
@@ -189,6 +200,8 @@ def beta(a, temperature, *, species, efimov, model=None, rtol=1e-9):
         Temperature in nK (> 0).
     species, efimov, model, rtol
         As for :func:`l3`.
+    channel : {"relaxation", "breakup", "total"}
+        As for :func:`beta_energy`.
 
     Returns
     -------
@@ -196,4 +209,4 @@ def beta(a, temperature, *, species, efimov, model=None, rtol=1e-9):
         beta in cm^3/s.
     """
     return _averaged(atom_dimer_rows, "atom_dimer_kernel", "atom_dimer_features", ATOM_DIMER,
-                     a, temperature, species, efimov, model, rtol)
+                     a, temperature, species, efimov, model, rtol, channel=channel)

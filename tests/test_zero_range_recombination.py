@@ -220,3 +220,61 @@ def test_kappa_a_plus_from_the_table():
     with np.load(lf.universal.tables.table_path("recombination_positive_a.npz")) as d:
         alpha, b, c = float(d["threshold_alpha"]), complex(d["threshold_b"]), float(d["threshold_c"])
     assert abs(alpha + 2 * (b * w).real + c) < 1e-5 * alpha
+
+
+# --- dimer breakup (a > 0, atom-dimer energy above E_b) ----------------------------------
+
+def _beta_unit(a):
+    return sc.hbar * a * A0 / CS.mass * 1e6      # hbar a/m in cm^3/s
+
+
+def test_breakup_rate_matches_direct_solves():
+    # beta_breakup(E) = 3 pi hbar/(2 m k_AD) sum_J (2J + 1) P_break,J: J = 0 by a direct
+    # stm.above_breakup solve at this kappa*, eta, J >= 1 by breakup_partial_wave
+    from lossfit.universal.tables import load_atom_dimer_table
+    a, a_star, eta = 1800.0, 1000.0, 0.1
+    ef = lf.Efimov(a_star=a_star, eta_star=eta)
+    kappa_a = load_atom_dimer_table().kappa_star_a_star * a / a_star
+    for e_units in (0.4, 4.0):
+        kad = math.sqrt(4 * (e_units + 1) / 3)
+        j0 = stm.above_breakup(e_units, kappa_a, eta, cutoff=1e7)["beta_breakup"]
+        js = np.arange(1, 26)
+        higher = 3 * math.pi / (2 * kad) * np.sum((2 * js + 1) * breakup_partial_wave(kad, js, cutoff=1e3))
+        e_ad = _energy_nK(a, e_units + 1.0)          # atom-dimer energy E + E_b
+        got = lf.beta_energy(a, e_ad, species=CS, efimov=ef, model="zero-range", channel="breakup")
+        assert got == pytest.approx((j0 + higher) * _beta_unit(a), rel=3e-4)
+    # below the breakup threshold there is none
+    below = lf.beta_energy(a, _energy_nK(a, 0.9), species=CS, efimov=ef, model="zero-range",
+                           channel="breakup")
+    assert below == 0.0
+
+
+def test_breakup_channel_adds_to_relaxation_and_is_named():
+    ef = lf.Efimov(a_star=1000.0, eta_star=0.2)
+    a = np.array([600.0, 1500.0, 2500.0])
+    kw = dict(species=CS, efimov=ef, model="zero-range")
+    rel = lf.beta(a, 150.0, **kw)
+    brk = lf.beta(a, 150.0, channel="breakup", **kw)
+    tot = lf.beta(a, 150.0, channel="total", **kw)
+    np.testing.assert_allclose(rel + brk, tot, rtol=1e-7)
+    assert brk[0] < 1e-6 * rel[0] and brk[2] > 1e-3 * rel[2]      # breakup needs k_B T ~ E_b
+    with pytest.raises(LossfitValueError, match="channel") as info:
+        lf.beta(a, 150.0, species=CS, efimov=ef, model="capped", channel="breakup")
+    assert info.value.argument == "channel"
+
+
+def test_thermal_breakup_against_quad():
+    from lossfit.rates import atom_dimer_rows
+    k = lf.universal.models.get_model("zero-range").atom_dimer_kernel
+    ef = lf.Efimov(a_star=1000.0, eta_star=0.1)
+    a = np.array([1200.0, 3000.0])
+    _, params, unit, _ = atom_dimer_rows(a, np.full(a.size, 120.0), CS, ef, "zero-range",
+                                         channel="total")
+    got = lf.beta(a, 120.0, species=CS, efimov=ef, model="zero-range", channel="total") / unit
+    tab = load_recombination_table()
+    for p, g in zip(params, got):
+        kads = [1e-3, 2 / math.sqrt(3)] + [math.sqrt(4 * (e + 1) / 3) for e in (tab.energy_min, tab.energy_max)]
+        pts = sorted(x for x in ((c / p[0]) ** 2 for c in kads) if x < 45) or None
+        ref = quad(lambda x: k(x, p) * 2 / math.sqrt(math.pi) * math.sqrt(x) * math.exp(-x), 0, 45,
+                   points=pts, epsabs=0, epsrel=1e-12, limit=1000)[0]
+        assert g == pytest.approx(ref, rel=1e-6)

@@ -48,11 +48,14 @@ from ..constants import HBAR, S0
 from ..errors import LossfitValueError
 from ..thermal import FEATURES_SIGNATURE, KERNEL_SIGNATURE, U_MAX, feature_points, rate_kernel
 from ..units import A0
+from .tables import recombination_eval
 from .threshold import beta_coefficient_unchecked, l3_coefficient_unchecked
 
 _ARG_GAMMA = float(np.imag(loggamma(1 + 1j * S0)))
 # (shallow-dimer, deep-dimer) weights of the recombination channels; a < 0 has only deep
 _CHANNEL_WEIGHTS = {"total": (1.0, 1.0), "shallow": (1.0, 0.0), "deep": (0.0, 1.0)}
+# (relaxation, breakup) weights of the atom-dimer loss channels
+_ATOM_DIMER_CHANNEL_WEIGHTS = {"relaxation": (1.0, 0.0), "breakup": (0.0, 1.0), "total": (1.0, 1.0)}
 UNITARITY_THREE_BODY = 72.0 * math.sqrt(3.0) * math.pi ** 2
 UNITARITY_ATOM_DIMER = 3.0 * math.sqrt(3.0) * math.pi / 4.0
 
@@ -78,15 +81,17 @@ class EnergyModel:
     atom_dimer_kernel = None
     atom_dimer_features = None
 
-    def three_body_rows(self, a, efimov, q, channel="total"):
+    def three_body_rows(self, a, efimov, q, channel="total", x_max=U_MAX ** 2):
         """Parameter rows for K3: ``a`` in a0 (validated, non-zero), ``q = a k_s``
         (dimensionless), same shapes; one row per point in C order. ``channel`` is
         "total", or "shallow" / "deep" (recombination into the shallow dimer / deep
-        dimers) for models that resolve them."""
+        dimers) for models that resolve them. ``x_max``: the largest E/E_s the caller will
+        evaluate (U_MAX^2 for thermal averages, 1 at fixed energy), for range checks."""
         raise NotImplementedError
 
-    def atom_dimer_rows(self, a, efimov, q):
-        """Parameter rows for beta (a > 0)."""
+    def atom_dimer_rows(self, a, efimov, q, channel="relaxation", x_max=U_MAX ** 2):
+        """Parameter rows for beta (a > 0). ``channel`` is "relaxation" (into deep dimers),
+        or "breakup" / "total" for models that resolve dimer breakup."""
         raise NotImplementedError
 
     @property
@@ -154,6 +159,18 @@ def _capped_atom_dimer_features(p, out):
     return 1
 
 
+@numba.njit(cache=True)
+def _recombination_over_e2(packed_pos, energy, cos2phi, sin2phi, e2eta):
+    """a > 0, three-atom energy E (hbar^2/(m a^2)) > 0: (P_shallow / E^2, T_break / (E^2
+    |1 + s_AD w|^2)) with w = e^{2 i Phi - 2 eta}; P_shallow is the breakup probability of
+    an atom-dimer pair at the same total energy, summed over J with weights 2J + 1."""
+    re, im, ca, cbr, cbi, cc, tb, hj = recombination_eval(packed_pos, energy)
+    wr, wi = e2eta * cos2phi, e2eta * sin2phi
+    w2 = e2eta * e2eta
+    den = 1.0 + 2.0 * (re * wr - im * wi) + (re * re + im * im) * w2
+    return (ca + 2.0 * (cbr * wr - cbi * wi) + cc * w2) / den + hj, tb / den
+
+
 class ThresholdModel(EnergyModel):
     """The zero-energy law used at every collision energy."""
 
@@ -164,13 +181,16 @@ class ThresholdModel(EnergyModel):
     atom_dimer_kernel = staticmethod(_threshold_atom_dimer)
     atom_dimer_features = staticmethod(_no_features)
 
-    def three_body_rows(self, a, efimov, q, channel="total"):
+    def three_body_rows(self, a, efimov, q, channel="total", x_max=U_MAX ** 2):
         if channel != "total":
             raise LossfitValueError("channel", f"model {self.name!r} gives only the total rate; "
                                     "model='zero-range' resolves 'shallow' and 'deep'")
         return _threshold_rows_three_body(a, efimov, q)
 
-    def atom_dimer_rows(self, a, efimov, q):
+    def atom_dimer_rows(self, a, efimov, q, channel="relaxation", x_max=U_MAX ** 2):
+        if channel != "relaxation":
+            raise LossfitValueError("channel", f"model {self.name!r} gives only relaxation; "
+                                    "model='zero-range' resolves 'breakup' and 'total'")
         return _threshold_rows_atom_dimer(a, efimov, q)
 
 
@@ -186,32 +206,44 @@ class CappedModel(ThresholdModel):
 
 
 class ZeroRangeModel(EnergyModel):
-    """Exact zero-range theory from the project's solver tables (J = 0).
+    """Exact zero-range theory from the project's solver tables.
 
     Three-body loss, a < 0 (table s11 from the hyperspherical solver, docs/solver.md):
 
         K3(E) = 72 sqrt(3) pi^2 hbar/(m k^4) (1 - |s11|^2)(1 - e^{-4 eta})
                 / |1 + s11 exp(2 i Phi - 2 eta)|^2,   x = k|a|, E = hbar^2 k^2/m,
 
-    Atom-dimer relaxation, a > 0 (table s_AD from the STM solver, docs/stm.md), below and
-    above the breakup threshold; only J = 0 reaches short distance in zero-range theory,
-    so this is the whole relaxation rate:
+    all of it into deep dimers.
+
+    Three-body loss, a > 0 (table from the STM solver, docs/stm.md section 7), with
+    w = exp(2 i Phi - 2 eta):
+
+        K3_shallow(E) = 72 sqrt(3) pi^2 hbar/(m k^4) [(A + 2 Re(B w) + C |w|^2)/|1 + s_AD w|^2
+                                                      + sum_{J>=1} (2J + 1) P_J],
+        K3_deep(E)    = 72 sqrt(3) pi^2 hbar/(m k^4) T_break (1 - e^{-4 eta}) / |1 + s_AD w|^2,
+
+    the shallow part by detailed balance from dimer breakup in every partial wave, the
+    deep part (J = 0 only: only J = 0 reaches short distance) from the three-atom
+    transmission T_break into the Efimov channel. ``channel`` selects either.
+
+    Atom-dimer relaxation, a > 0 (table s_AD from the STM solver), below and above the
+    breakup threshold (J = 0 is the whole relaxation rate):
 
         beta(E) = 3 pi hbar / (2 m k_AD) T_AD (1 - e^{-4 eta})
                   / |1 + s_AD exp(2 i Phi - 2 eta)|^2,   E = 3 hbar^2 k_AD^2/(4m),
 
     T_AD being the atom-dimer -> Efimov-channel transmission (1 - |s_AD|^2 below breakup,
-    less above it, where flux also leaves as three free atoms),
+    less above it, where flux also leaves as three free atoms).
 
-    with Phi = s0 ln(kappa* |a| / sqrt 2) - arg Gamma(1 + i s0). kappa* comes from a_-
-    (kappa* = (kappa* a_-)/a_-) or a* (kappa* = (kappa* a*)/a*) with each table's own
-    kappa* a_- or kappa* a*, so that the threshold peaks sit at a_- and a*. Three-body
-    loss for a > 0 (shallow- and deep-dimer recombination, J > 0) is not tabulated yet:
-    those requests raise instead of falling back to an approximation.
+    Phi = s0 ln(kappa* |a| / sqrt 2) - arg Gamma(1 + i s0). kappa* comes from a_- (a < 0
+    three-body), a_+ (a > 0 three-body) or a* (relaxation) with each table's own
+    kappa* a_-, kappa* a_+ or kappa* a*, so that the threshold features sit at the given
+    positions. The tables are not extrapolated: requests beyond them (a > 0 three-body
+    loss above k_B T ~ 4.7 E_b, relaxation above k_AD a = 1e3) raise, naming ``a``.
     """
 
     name = "zero-range"
-    description = "exact zero-range universal functions (J = 0: K3 for a < 0, beta for a > 0)"
+    description = "exact zero-range universal functions (K3 both signs of a, beta for a > 0)"
     approximate = False
 
     def __init__(self):
@@ -246,7 +278,7 @@ class ZeroRangeModel(EnergyModel):
         # Compiled on first use and not cached on disk: the tables are baked into the
         # machine code, and a cache would not notice a regenerated table.
         if self._kernel is None:
-            from .tables import grid_limits, recombination_eval, recombination_grid_points, s11_eval
+            from .tables import grid_limits, recombination_grid_points, s11_eval
             packed = self.table.packed
             pref = self.table.k3_prefactor
             packed_pos = self.recombination_table.packed
@@ -264,13 +296,8 @@ class ZeroRangeModel(EnergyModel):
                 # a > 0: E m a^2/hbar^2 = q^2 x; the table holds the E^2-suppressed
                 # numerators over E^2, and K3 x^2 = (that) q^4 in natural units
                 q2 = p[0] * p[0]
-                re, im, ca, cbr, cbi, cc, tb, hj = recombination_eval(packed_pos, q2 * x)
-                wr, wi = p[3] * p[1], p[3] * p[2]
-                w2 = p[3] * p[3]
-                den = 1.0 + 2.0 * (re * wr - im * wi) + (re * re + im * im) * w2
-                shallow = (ca + 2.0 * (cbr * wr - cbi * wi) + cc * w2) / den + hj
-                deep = tb * p[4] / den
-                return pref * q2 * q2 * (p[5] * shallow + p[6] * deep)
+                shallow, deep = _recombination_over_e2(packed_pos, q2 * x, p[1], p[2], p[3])
+                return pref * q2 * q2 * (p[5] * shallow + p[6] * deep * p[4])
 
             lo, hi = grid_limits(packed)
             e_lo, e_hi = recombination_grid_points(packed_pos)
@@ -289,7 +316,7 @@ class ZeroRangeModel(EnergyModel):
             self._kernel = kernel
         return self._kernel
 
-    def three_body_rows(self, a, efimov, q, channel="total"):
+    def three_body_rows(self, a, efimov, q, channel="total", x_max=U_MAX ** 2):
         weights = _CHANNEL_WEIGHTS.get(channel)
         if weights is None:
             raise LossfitValueError("channel", f"must be one of {list(_CHANNEL_WEIGHTS)}, got {channel!r}")
@@ -305,14 +332,13 @@ class ZeroRangeModel(EnergyModel):
         if (~neg).any():
             a_plus, eta_plus = efimov.require("a_plus", "eta_plus")
             table = self.recombination_table
-            # thermal averages reach x = U_MAX^2 (fixed-energy calls use x = 1); the table
-            # is not extrapolated, so refuse what lies beyond its last point
-            reach = q[~neg] ** 2 * max(U_MAX, 1.0) ** 2
+            # the table is not extrapolated: refuse what lies beyond its last point
+            reach = q[~neg] ** 2 * x_max
             if np.any(reach > table.energy_max):
                 raise LossfitValueError(
                     "a", f"three-atom energies up to {reach.max():.3g} hbar^2/(m a^2) are needed, beyond "
                     f"the zero-range a > 0 recombination table (E <= {table.energy_max:g} hbar^2/(m a^2), "
-                    f"i.e. k_B T up to about {table.energy_max / max(U_MAX, 1.0) ** 2:.2g} E_b); "
+                    f"i.e. k_B T up to about {table.energy_max / U_MAX ** 2:.2g} E_b in thermal averages); "
                     "lower a or T, or use model='capped' (an approximation)")
             kappa[~neg] = table.kappa_star_a_plus / a_plus
             eta[~neg] = eta_plus
@@ -343,48 +369,78 @@ class ZeroRangeModel(EnergyModel):
     def atom_dimer_kernel(self):
         # as for the three-body kernel: the table is baked in, so no disk cache
         if self._ad_kernel is None:
-            from .tables import atom_dimer_grid_points, s_ad_eval
+            from .tables import atom_dimer_grid_points, recombination_grid_points, s_ad_eval
             packed = self.atom_dimer_table.packed
+            packed_pos = self.recombination_table.packed
 
             @numba.njit(KERNEL_SIGNATURE)
             def kernel(x, p):
-                # p = [k_AD a at E = E_s, cos 2Phi, sin 2Phi, exp(-2 eta), 1 - exp(-4 eta)];
+                # p = [k_AD a at E = E_s, cos 2Phi, sin 2Phi, exp(-2 eta), 1 - exp(-4 eta),
+                #      relaxation weight, breakup weight];
                 # x = E / E_s; den = |1 + s_AD exp(2 i Phi - 2 eta)|^2
-                t_ad, re, im = s_ad_eval(packed, p[0] * math.sqrt(x))
-                den = 1.0 + 2.0 * p[3] * (re * p[1] - im * p[2]) + p[3] * p[3] * (re * re + im * im)
-                return UNITARITY_ATOM_DIMER * t_ad * p[4] / (den * math.sqrt(x))
+                kad = p[0] * math.sqrt(x)
+                out = 0.0
+                if p[5] != 0.0:
+                    t_ad, re, im = s_ad_eval(packed, kad)
+                    den = 1.0 + 2.0 * p[3] * (re * p[1] - im * p[2]) + p[3] * p[3] * (re * re + im * im)
+                    out += p[5] * t_ad * p[4] / den
+                energy = 0.75 * kad * kad - 1.0           # three-atom energy, hbar^2/(m a^2)
+                if p[6] != 0.0 and energy > 0.0:
+                    shallow, _ = _recombination_over_e2(packed_pos, energy, p[1], p[2], p[3])
+                    out += p[6] * shallow * energy * energy
+                return UNITARITY_ATOM_DIMER * out / math.sqrt(x)
 
             first, breakup, _ = atom_dimer_grid_points(packed)
+            e_lo, e_hi = recombination_grid_points(packed_pos)
+            kad_lo = math.sqrt(4.0 * (e_lo + 1.0) / 3.0)
+            kad_hi = math.sqrt(4.0 * (e_hi + 1.0) / 3.0)
 
             @numba.njit(FEATURES_SIGNATURE)
             def features(p, out):
-                # the start of the grid and the breakup threshold (square-root kink)
+                # the start of the grid and the breakup threshold (square-root kink); with
+                # breakup, the ends of the three-body grid
                 out[0] = (first / p[0]) ** 2
                 out[1] = (breakup / p[0]) ** 2
-                return 2
+                if p[6] == 0.0:
+                    return 2
+                out[2] = (kad_lo / p[0]) ** 2
+                out[3] = (kad_hi / p[0]) ** 2
+                return 4
             self._ad_features = features
             self._ad_kernel = kernel
         return self._ad_kernel
 
-    def atom_dimer_rows(self, a, efimov, q):
+    def atom_dimer_rows(self, a, efimov, q, channel="relaxation", x_max=U_MAX ** 2):
+        weights = _ATOM_DIMER_CHANNEL_WEIGHTS.get(channel)
+        if weights is None:
+            raise LossfitValueError("channel", f"must be one of {list(_ATOM_DIMER_CHANNEL_WEIGHTS)}, "
+                                    f"got {channel!r}")
         a_star, eta = efimov.require("a_star", "eta_star")
         table = self.atom_dimer_table
         kappa = table.kappa_star_a_star / a_star          # 1/a0
-        rows = np.empty((a.size, 5))
+        rows = np.empty((a.size, 7))
         # E = 3 hbar^2 k_AD^2 / (4 m) and x = E / E_s with E_s = hbar^2 k_s^2 / m:
         # k_AD a = (2/sqrt 3) q sqrt(x)
         rows[:, 0] = (2.0 / math.sqrt(3.0)) * np.abs(q).ravel()
-        # thermal averages reach x = U_MAX^2 (fixed-energy calls use x = 1): the table is
-        # not extrapolated, so refuse what lies beyond its last point
-        reach = rows[:, 0] * max(U_MAX, 1.0)
+        # the table is not extrapolated: refuse what lies beyond its last point
+        reach = rows[:, 0] * math.sqrt(x_max)
         if np.any(reach > table.kad_max):
             raise LossfitValueError("a", f"k_AD a up to {reach.max():.3g} is needed, beyond the zero-range "
                                     f"atom-dimer table (k_AD a <= {table.kad_max:g}); lower |a| or T")
+        if weights[1]:
+            # breakup needs the three-body table (all partial waves), which ends lower
+            e_reach = 0.75 * reach ** 2 - 1.0
+            e_max = self.recombination_table.energy_max
+            if np.any(e_reach > e_max):
+                raise LossfitValueError(
+                    "a", f"dimer breakup up to three-atom energies {e_reach.max():.3g} hbar^2/(m a^2) is needed, "
+                    f"beyond the zero-range breakup table (<= {e_max:g}); lower a or T")
         two_phi = 2.0 * (S0 * np.log(kappa * np.asarray(a, dtype=float).ravel() / math.sqrt(2.0)) - _ARG_GAMMA)
         rows[:, 1] = np.cos(two_phi)
         rows[:, 2] = np.sin(two_phi)
         rows[:, 3] = math.exp(-2.0 * eta)
         rows[:, 4] = -math.expm1(-4.0 * eta)
+        rows[:, 5], rows[:, 6] = weights
         return rows
 
 
@@ -417,5 +473,5 @@ register_model(ThresholdModel())
 register_model(CappedModel())
 register_model(ZeroRangeModel())
 
-#: Model used when ``model`` is not given. "zero-range" replaces it once its tables ship.
+#: Model used when ``model`` is not given.
 DEFAULT_MODEL = "capped"
