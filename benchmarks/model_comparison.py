@@ -1,8 +1,10 @@
-"""Figure: the three models over a map of (a, T) for a < 0 (docs/model-comparison.png).
+"""Figure: the three models over a map of (a, T) (docs/model-comparison.png).
 
-Left: L3 against |a| at three temperatures for "threshold", "capped" (an approximation)
-and "zero-range". Right: log10 of capped / zero-range over (|a|, T). 133Cs,
-a_- = -1000 a0, eta_- = 0.05 (an invented parameter set).
+Top row a < 0, bottom row a > 0. Left: L3 against |a| at three temperatures for
+"threshold", "capped" (an approximation) and "zero-range". Right: log10 of
+capped / zero-range over (|a|, T); for a > 0 blank where the zero-range table ends
+(k_B T > 4.7 E_b). 133Cs, a_- = -1000 a0, eta = 0.05, a > 0 features tied universally
+(an invented parameter set).
 
 Run: python benchmarks/model_comparison.py
 """
@@ -15,17 +17,18 @@ import matplotlib
 matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
+import scipy.constants as sc  # noqa: E402
 
 import lossfit as lf  # noqa: E402
 
 warnings.simplefilter("ignore", lf.errors.ValidityWarning)
 CS = lf.species("133Cs")
-EF = lf.Efimov(a_minus=-1000.0, eta_minus=0.05)
+EF = lf.Efimov.universal(-1000.0, 0.05)
 OUT = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "docs", "model-comparison.png")
 
 
 def main():
-    fig, (ax, bx) = plt.subplots(1, 2, figsize=(11, 4.2), layout="constrained")
+    fig, ((ax, bx), (cx, dx)) = plt.subplots(2, 2, figsize=(11, 8.4), layout="constrained")
     a = -np.geomspace(200.0, 2e5, 300)
     ax.loglog(-a, lf.l3_threshold(a, species=CS, efimov=EF), ":", color="k", label="threshold (any T)")
     for t, c in zip((10.0, 100.0, 1000.0), ("C0", "C1", "C2")):
@@ -49,8 +52,45 @@ def main():
     bx.set_ylabel("T (nK)")
     bx.set_title("log10( capped / zero-range )", fontsize=9)
     fig.colorbar(im, ax=bx)
+    print(f"a < 0: capped/zero-range ranges {ratio.min():.3g} .. {ratio.max():.3g}")
+
+    # a > 0: only where the exact three-body table reaches (k_B T <= ~4.7 E_b)
+    from lossfit.thermal import U_MAX
+    from lossfit.universal.tables import load_recombination_table
+    t_limit = load_recombination_table().energy_max / U_MAX ** 2        # k_B T / E_b
+
+    def binding_nk(a):
+        a_m = a * sc.physical_constants["Bohr radius"][0]
+        return sc.hbar ** 2 / (CS.mass * a_m ** 2 * sc.k) * 1e9
+
+    a = np.geomspace(200.0, 2e4, 300)
+    cx.loglog(a, lf.l3_threshold(a, species=CS, efimov=EF), ":", color="k", label="threshold (any T)")
+    for t, c in zip((10.0, 100.0, 1000.0), ("C0", "C1", "C2")):
+        ok = t <= t_limit * binding_nk(a)
+        cx.loglog(a, lf.l3(a, t, species=CS, efimov=EF, model="capped", rtol=1e-7), "--", color=c,
+                  label=f"capped, {t:g} nK")
+        cx.loglog(a[ok], lf.l3(a[ok], t, species=CS, efimov=EF, model="zero-range", rtol=1e-7), "-", color=c,
+                  label=f"zero-range, {t:g} nK")
+    cx.axvline(EF.a_plus, color="0.6", lw=0.8)
+    cx.set_xlabel(r"$a$ ($a_0$), $a>0$ (grey: $a_+$)")
+    cx.set_ylabel(r"$L_3$ (cm$^6$/s), shallow + deep")
+    cx.set_ylim(1e-28, 1e-20)
+    cx.legend(fontsize=7)
+    aa = np.geomspace(200.0, 2e4, 110)
+    A, T = np.meshgrid(aa, tt)
+    ok = T <= t_limit * binding_nk(A)
+    ratio = np.full(A.shape, np.nan)
+    ratio[ok] = (lf.l3(A[ok], T[ok], species=CS, efimov=EF, model="capped", rtol=1e-7)
+                 / lf.l3(A[ok], T[ok], species=CS, efimov=EF, model="zero-range", rtol=1e-7))
+    im = dx.pcolormesh(aa, tt, np.log10(ratio), cmap="RdBu_r", vmin=-1.5, vmax=1.5, shading="auto")
+    dx.set_xscale("log")
+    dx.set_yscale("log")
+    dx.set_xlabel(r"$a$ ($a_0$), $a>0$")
+    dx.set_ylabel("T (nK)")
+    dx.set_title("log10( capped / zero-range ), blank: beyond the exact table", fontsize=9)
+    fig.colorbar(im, ax=dx)
     fig.savefig(OUT, dpi=130)
-    print(f"wrote {os.path.abspath(OUT)}; capped/zero-range ranges {ratio.min():.3g} .. {ratio.max():.3g}")
+    print(f"a > 0: capped/zero-range ranges {np.nanmin(ratio):.3g} .. {np.nanmax(ratio):.3g}; wrote {os.path.abspath(OUT)}")
 
 
 if __name__ == "__main__":

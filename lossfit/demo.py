@@ -89,7 +89,7 @@ species = "{SCENARIO['species']}"
 spectra = ["data.h5"]
 
 [model]
-name = "capped"      # an approximation: zero-energy law saturated at the J=0 unitarity bound
+name = "zero-range"  # the exact model the data were generated with ("capped" is the approximation)
 tie = "none"
 
 [free]

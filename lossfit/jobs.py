@@ -14,7 +14,7 @@ error that names the key)::
     # campaign = "campaign.h5"
 
     [model]
-    name = "capped"                        # see lossfit.available_models()
+    name = "zero-range"                    # the default; see lossfit.available_models()
     tie = "none"                           # "none" or "universal"
 
     [free]                                 # one entry per sampled parameter
@@ -182,7 +182,7 @@ def parse_job(text, path):
     """Validate job ``text``; relative data paths are taken from the folder of ``path``."""
     from .inference.parameters import EFIMOV_NAMES, NUISANCE_NAMES
     from .species import species as _species
-    from .universal.models import available_models
+    from .universal.models import DEFAULT_MODEL, available_models
     try:
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as err:
@@ -230,7 +230,7 @@ def parse_job(text, path):
         if not os.path.isfile(os.path.join(base, p)):
             raise JobError(key, f"no such file {os.path.join(base, p)!r}")
     model = doc.get("model", {})
-    name = model.get("name", "capped")
+    name = model.get("name", DEFAULT_MODEL)
     if name not in available_models():
         raise JobError("model.name", f"unknown model {name!r}; available: {available_models()}")
     tie = model.get("tie", "none")

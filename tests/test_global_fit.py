@@ -32,7 +32,8 @@ EF = lf.Efimov(a_minus=-900.0, eta_minus=0.08)
 def small():
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", lf.errors.ValidityWarning)     # |a| down to ~4.5 r_vdW on purpose
-        curves, res, truth = invented_campaign(11, n_fields=4)
+        # simulated with the model the likelihoods below use
+        curves, res, truth = invented_campaign(11, n_fields=4, model="capped")
         fits = [fit_curve(c, species=SP, resonance=res) for c in curves]
     return curves, res, truth, fits
 
@@ -183,8 +184,9 @@ def test_small_coverage_study_global_versus_two_stage():
             rng = np.random.default_rng(seed)
             truth = {"density_scale": float(np.exp(0.2 * rng.standard_normal())),
                      "temperature_scale": float(np.exp(0.05 * rng.standard_normal()))}
-            curves, res, truth = invented_campaign(seed, n_fields=6, truth=truth)
-            glob = fit_curves(curves, species=SP, free=["a_minus", "eta_minus"], resonance=res,
+            # one model throughout (the cheap one: this checks the fit machinery, not the model)
+            curves, res, truth = invented_campaign(seed, n_fields=6, truth=truth, model="capped")
+            glob = fit_curves(curves, species=SP, free=["a_minus", "eta_minus"], resonance=res, model="capped",
                               systematics={"density_scale": 0.2, "temperature_scale": 0.05},
                               walkers=16, steps=400, seed=seed, progress=False)
             spectra = spectrum_from_curves(curves, species=SP, resonance=res)
@@ -243,7 +245,7 @@ def test_dimer_curves_profile_and_recovery():
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ConvergenceWarning)
         result = fit_curves(curves, species=SP, free=["a_star", "eta_star"], walkers=8, steps=300, seed=2,
-                            progress=False)
+                            model="capped", progress=False)          # the simulation's model
     rows = {r["name"]: r for r in result.summary()}
     assert rows["a_star"]["lo95"] <= 950.0 <= rows["a_star"]["hi95"]
     assert rows["eta_star"]["lo95"] <= 0.1 <= rows["eta_star"]["hi95"]

@@ -41,7 +41,7 @@ def test_demo_writes_all_outputs_and_refuses_to_overwrite(tmp_path):
     for name in ("data.h5", "chains.h5", "summary.json", "corner.png", "spectrum.png"):
         assert (out / name).stat().st_size > 0
     summary = json.loads((out / "summary.json").read_text())
-    assert "approximation" in summary["model"]          # "capped" is labelled
+    assert summary["model"] == "zero-range"             # the exact model, no approximation label
     assert "invented" in summary["provenance"]["job_text"]
     for key in ("lossfit_version", "numpy", "scipy", "numba", "emcee", "host", "seed", "started_utc",
                 "finished_utc"):

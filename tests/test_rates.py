@@ -190,10 +190,11 @@ def test_threshold_model_l3_is_temperature_independent(sp):
     assert np.all(rel(got_b, want_b) < 1e-11)
 
 
-def test_default_model_is_capped():
-    # DESIGN §3: "capped" until the zero-range tables exist.
+def test_default_model_is_zero_range():
+    # issue 3: the exact model is the default once its tables ship; the approximations stay
     args = dict(species=CS, efimov=EF)
-    assert lf.l3(-2e4, 500.0, **args) == lf.l3(-2e4, 500.0, model="capped", **args)
+    assert lf.l3(-2e4, 500.0, **args) == lf.l3(-2e4, 500.0, model="zero-range", **args)
+    assert lf.l3(-2e4, 500.0, **args) != lf.l3(-2e4, 500.0, model="capped", **args)
     assert "capped" in lf.available_models() and "threshold" in lf.available_models()
 
 
@@ -206,7 +207,7 @@ def test_l3_capped_against_si_quadrature(sp):
     worst = 0.0
     for sign in (-1, 1):
         for aa in abs_a:
-            got = lf.l3(sign * aa, temps, species=sp, efimov=EF)
+            got = lf.l3(sign * aa, temps, species=sp, efimov=EF, model="capped")
             for t, g in zip(temps, got):
                 worst = max(worst, rel(g, quad_thermal_l3(sign * aa, t, sp, EF)[0]))
     assert worst < 1e-6
@@ -218,7 +219,7 @@ def test_beta_capped_against_si_quadrature(sp):
     temps = np.geomspace(1.0, 3000.0, 6)
     worst = 0.0
     for aa in abs_a:
-        got = lf.beta(aa, temps, species=sp, efimov=EF)
+        got = lf.beta(aa, temps, species=sp, efimov=EF, model="capped")
         for t, g in zip(temps, got):
             worst = max(worst, rel(g, quad_thermal_beta(aa, t, sp, EF)[0]))
     assert worst < 1e-6
@@ -236,7 +237,7 @@ def lambda3_si(sp):
 def test_capped_l3_t_minus_two_law_at_unitarity(sp, sign):
     a = sign * 1e7
     temps = np.array([1.0, 10.0, 100.0, 1000.0, 3000.0])
-    got = lf.l3(a, temps, species=sp, efimov=EF)              # cm^6/s
+    got = lf.l3(a, temps, species=sp, efimov=EF, model="capped")    # cm^6/s
     l3_t2 = got * 1e-12 * (temps * 1e-9) ** 2                 # m^6 K^2 / s
     for t, v in zip(temps, l3_t2):
         # Closed form of the capped average (derived in test_thermal.py): with
@@ -253,10 +254,11 @@ def test_capped_l3_t_minus_two_law_at_unitarity(sp, sign):
 
 
 def test_l3_continuous_across_resonance_at_unitarity():
-    # Rem et al. 2013: L3 is continuous across the resonance (here, to O(x_c)).
+    # Rem et al. 2013: L3 is continuous across the resonance (here, to O(x_c); capped model:
+    # the zero-range a > 0 table does not reach k_T a >> 1, docs/stm.md section 7).
     for t in (10.0, 1000.0):
-        lo = lf.l3(-1e7, t, species=LI, efimov=EF)
-        hi = lf.l3(1e7, t, species=LI, efimov=EF)
+        lo = lf.l3(-1e7, t, species=LI, efimov=EF, model="capped")
+        hi = lf.l3(1e7, t, species=LI, efimov=EF, model="capped")
         assert abs(lo / hi - 1) < 1e-3
 
 
@@ -265,7 +267,7 @@ def test_lambda3_lithium_against_rem_2013():
     # measured 7Li value 2.5(3)(6)e-20 uK^2 cm^6/s must not exceed by more than its error;
     # hand value: 36 sqrt(3) pi^2 hbar^5/(m^3 k_B^2) = 2.66e-20 uK^2 cm^6/s for 7Li.
     t_nk = 100.0
-    lam = lf.l3(-1e7, t_nk, species=LI, efimov=EF) * (t_nk * 1e-3) ** 2   # uK^2 cm^6/s
+    lam = lf.l3(-1e7, t_nk, species=LI, efimov=EF, model="capped") * (t_nk * 1e-3) ** 2   # uK^2 cm^6/s
     assert lam == pytest.approx(lambda3_si(LI) * 1e12 * 1e12, rel=1e-3)
     assert 2.5e-20 - 0.67e-20 < lam < 3.2e-20
     assert lam == pytest.approx(2.66e-20, rel=5e-3)
@@ -275,7 +277,7 @@ def test_lambda3_lithium_against_rem_2013():
 def test_capped_beta_t_minus_half_law(sp):
     a = 1e7
     temps = np.array([1.0, 30.0, 1000.0, 3000.0])
-    got = lf.beta(a, temps, species=sp, efimov=EF)             # cm^3/s
+    got = lf.beta(a, temps, species=sp, efimov=EF, model="capped")   # cm^3/s
     mu = 2 * sp.mass / 3
     const = math.sqrt(2 * math.pi) * HBAR ** 2 / (mu ** 1.5 * math.sqrt(KB))   # m^3 K^{1/2} / s
     for t, v in zip(temps, got):

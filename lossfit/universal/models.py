@@ -474,4 +474,4 @@ register_model(CappedModel())
 register_model(ZeroRangeModel())
 
 #: Model used when ``model`` is not given.
-DEFAULT_MODEL = "capped"
+DEFAULT_MODEL = "zero-range"
