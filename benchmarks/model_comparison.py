@@ -27,6 +27,16 @@ EF = lf.Efimov.universal(-1000.0, 0.05)
 OUT = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "docs", "model-comparison.png")
 
 
+def _ratio_map(fig, ax, a, t, ratio, xlabel, title):
+    im = ax.pcolormesh(a, t, np.log10(ratio), cmap="RdBu_r", vmin=-1.5, vmax=1.5, shading="auto")
+    ax.set_xscale("log")
+    ax.set_yscale("log")
+    ax.set_xlabel(xlabel)
+    ax.set_ylabel("T (nK)")
+    ax.set_title(title, fontsize=9)
+    fig.colorbar(im, ax=ax)
+
+
 def main():
     fig, ((ax, bx), (cx, dx)) = plt.subplots(2, 2, figsize=(11, 8.4), layout="constrained")
     a = -np.geomspace(200.0, 2e5, 300)
@@ -45,13 +55,7 @@ def main():
     A, T = np.meshgrid(aa, tt)
     ratio = (lf.l3(A, T, species=CS, efimov=EF, model="capped", rtol=1e-7)
              / lf.l3(A, T, species=CS, efimov=EF, model="zero-range", rtol=1e-7))
-    im = bx.pcolormesh(-aa, tt, np.log10(ratio), cmap="RdBu_r", vmin=-1.5, vmax=1.5, shading="auto")
-    bx.set_xscale("log")
-    bx.set_yscale("log")
-    bx.set_xlabel(r"$|a|$ ($a_0$), $a<0$")
-    bx.set_ylabel("T (nK)")
-    bx.set_title("log10( capped / zero-range )", fontsize=9)
-    fig.colorbar(im, ax=bx)
+    _ratio_map(fig, bx, -aa, tt, ratio, r"$|a|$ ($a_0$), $a<0$", "log10( capped / zero-range )")
     print(f"a < 0: capped/zero-range ranges {ratio.min():.3g} .. {ratio.max():.3g}")
 
     # a > 0: only where the exact three-body table reaches (k_B T <= ~4.7 E_b)
@@ -82,13 +86,8 @@ def main():
     ratio = np.full(A.shape, np.nan)
     ratio[ok] = (lf.l3(A[ok], T[ok], species=CS, efimov=EF, model="capped", rtol=1e-7)
                  / lf.l3(A[ok], T[ok], species=CS, efimov=EF, model="zero-range", rtol=1e-7))
-    im = dx.pcolormesh(aa, tt, np.log10(ratio), cmap="RdBu_r", vmin=-1.5, vmax=1.5, shading="auto")
-    dx.set_xscale("log")
-    dx.set_yscale("log")
-    dx.set_xlabel(r"$a$ ($a_0$), $a>0$")
-    dx.set_ylabel("T (nK)")
-    dx.set_title("log10( capped / zero-range ), blank: beyond the exact table", fontsize=9)
-    fig.colorbar(im, ax=dx)
+    _ratio_map(fig, dx, aa, tt, ratio, r"$a$ ($a_0$), $a>0$",
+               "log10( capped / zero-range ), blank: beyond the exact table")
     fig.savefig(OUT, dpi=130)
     print(f"a > 0: capped/zero-range ranges {np.nanmin(ratio):.3g} .. {np.nanmax(ratio):.3g}; wrote {os.path.abspath(OUT)}")
 

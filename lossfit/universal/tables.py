@@ -36,6 +36,12 @@ _DATA = os.path.join(os.path.dirname(os.path.abspath(__file__)), "data")
 _ARG_GAMMA = float(np.imag(loggamma(1 + 1j * S0)))
 
 
+def _open_table(path):
+    if not os.path.exists(path):
+        raise LossfitError(f"universal-function table {path!r} is missing from the installation")
+    return np.load(path, allow_pickle=False)
+
+
 def table_path(name="s11_negative_a.npz"):
     """Absolute path of a shipped table."""
     return os.path.join(_DATA, name)
@@ -55,9 +61,7 @@ class S11Table:
     """
 
     def __init__(self, path):
-        if not os.path.exists(path):
-            raise LossfitError(f"universal-function table {path!r} is missing from the installation")
-        with np.load(path, allow_pickle=False) as d:
+        with _open_table(path) as d:
             self.kappa_star_a_minus = float(d["kappa_star_a_minus"])
             x = np.array(d["x"])
             logt = np.array(d["log_transmission"])
@@ -197,9 +201,7 @@ class AtomDimerTable:
     """
 
     def __init__(self, path):
-        if not os.path.exists(path):
-            raise LossfitError(f"universal-function table {path!r} is missing from the installation")
-        with np.load(path, allow_pickle=False) as d:
+        with _open_table(path) as d:
             kad = np.array(d["kad"])
             s_ad = np.array(d["s_ad"])
             columns = [np.array(d["log_transmission"]), s_ad.real.copy(), s_ad.imag.copy()]
@@ -322,9 +324,7 @@ class RecombinationTable:
     """
 
     def __init__(self, path):
-        if not os.path.exists(path):
-            raise LossfitError(f"universal-function table {path!r} is missing from the installation")
-        with np.load(path, allow_pickle=False) as d:
+        with _open_table(path) as d:
             energy = np.array(d["energy"])
             s_ad = np.array(d["s_ad"])
             b = np.array(d["breakup_b_over_e2"])

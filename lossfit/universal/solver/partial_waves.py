@@ -39,7 +39,7 @@ import math
 import numba
 import numpy as np
 
-from .stm import _contour_dense, _kernel_onshell
+from .stm import _kernel_onshell, atom_dimer_contour
 
 
 @numba.njit(cache=True)
@@ -188,19 +188,9 @@ class PartialWaveSolver:
         if not k0 > 0:
             raise ValueError(f"kad must be > 0, got {kad!r}")
         self.kad = k0
-        self.energy = -1.0 + 0.75 * k0 * k0
-        if phi is None:
-            phi = min(0.5, 0.6 * math.atan(2.0 / k0))
-        if not 0.0 < phi < math.atan(2.0 / k0):
-            raise ValueError("need 0 < phi < atan(2/(k_AD a))")
-        if dmax == "auto":
-            dmax = 0.4 * k0 * math.tan(phi) if k0 > 4.0 else None
-        self.phi = phi
-        self._q, w = _contour_dense(cutoff, phi, q_factor * max(k0, 1.0), per_decade, narc,
-                                    qmin, order, 1.5 * max(k0, 1.0), dmax)
-        q = self._q
-        self._cw = (4.0 / math.pi) * w * q * q / (-1.0 + np.sqrt(3.0 * q * q / 4.0 - self.energy))
-        self.nodes = q.size
+        self.energy, self.phi, _, self._q, self._cw = atom_dimer_contour(
+            k0, cutoff, phi, per_decade, narc, q_factor, order, qmin, dmax)
+        self.nodes = self._q.size
 
     def amplitude(self, ell):
         """(f_l / a, S_l) of the partial wave ``ell``; S_l = 1 + 2 i k_AD f_l."""

@@ -55,7 +55,7 @@ __all__ = ["kernel_log", "momentum_grid", "three_body_force", "atom_dimer_length
            "recombination_deep", "kappa_a_minus", "above_breakup",
            "fit_atom_dimer_universal", "AtomDimerRankOne", "s_ad_from_stm", "s_ad_fit",
            "relaxation_probability_general",
-           "breakup_probability", "threshold_recombination_form"]
+           "breakup_probability", "threshold_recombination_form", "atom_dimer_contour"]
 
 import math
 
@@ -556,6 +556,28 @@ def _contour_dense(cutoff, phi, big_q, per_decade, narc, qmin, order, dense_hi, 
             np.concatenate([wy * rot, wqa, wt[keep] + 0j]))
 
 
+def atom_dimer_contour(kad, cutoff, phi=None, per_decade=48, narc=32, q_factor=20.0, order=8,
+                       qmin=1e-6, dmax="auto"):
+    """The deformed contour of :class:`AtomDimerRankOne` at one k_AD a, with the STM
+    integration weights: (E, phi, dmax, nodes q, c = (4/pi) w q^2 / D(q)).
+
+    Defaults: phi = min(0.5, 0.6 atan(2/(k_AD a))); dmax = 0.4 (k_AD a) tan(phi) when
+    k_AD a > 4, else no limit (see :class:`AtomDimerRankOne`).
+    """
+    k0 = float(kad)
+    energy = -1.0 + 0.75 * k0 * k0
+    if phi is None:
+        phi = min(0.5, 0.6 * math.atan(2.0 / k0))
+    if not 0.0 < phi < math.atan(2.0 / k0):
+        raise ValueError("need 0 < phi < atan(2/(k_AD a))")
+    if dmax == "auto":
+        dmax = 0.4 * k0 * math.tan(phi) if k0 > 4.0 else None
+    q, w = _contour_dense(cutoff, phi, q_factor * max(k0, 1.0), per_decade, narc, qmin,
+                          order, 1.5 * max(k0, 1.0), dmax)
+    cw = (4.0 / math.pi) * w * q * q / (-1.0 + np.sqrt(3.0 * q * q / 4.0 - energy))
+    return energy, phi, dmax, q, cw
+
+
 class AtomDimerRankOne:
     """Atom-dimer scattering at one k_AD a for every three-body force h at once.
 
@@ -584,18 +606,10 @@ class AtomDimerRankOne:
                  order=8, qmin=1e-6, dmax="auto"):
         k0 = float(kad)
         self.kad = k0
-        self.energy = energy = -1.0 + 0.75 * k0 * k0
-        if phi is None:
-            phi = min(0.5, 0.6 * math.atan(2.0 / k0))
-        if not 0.0 < phi < math.atan(2.0 / k0):
-            raise ValueError("need 0 < phi < atan(2/(k_AD a))")
-        if dmax == "auto":
-            dmax = 0.4 * k0 * math.tan(phi) if k0 > 4.0 else None
-        self.phi, self.dmax = phi, dmax
-        q, w = _contour_dense(cutoff, phi, q_factor * max(k0, 1.0), per_decade, narc, qmin,
-                              order, 1.5 * max(k0, 1.0), dmax)
+        self.energy, self.phi, self.dmax, q, cw = atom_dimer_contour(
+            k0, cutoff, phi, per_decade, narc, q_factor, order, qmin, dmax)
+        energy = self.energy
         self.nodes = q.size
-        cw = (4.0 / math.pi) * w * q * q / (-1.0 + np.sqrt(3.0 * q * q / 4.0 - energy))
         # 1 - K0 built in row blocks (memory), factorised in place as the Fortran-ordered
         # transpose (scipy getrf without a copy), solved with trans=1.
         from scipy.linalg import lu_factor, lu_solve
