@@ -20,10 +20,11 @@ git commit of the code).  Everything comes from the STM solver (docs/stm.md):
   (:func:`stm.threshold_recombination_form`), and are stored as ``threshold_*``.
 * J >= 1 (lossfit/universal/solver/partial_waves.py): no three-body force, so the
   breakup probabilities P_J(E) are universal; the shallow-dimer recombination gains
-  24 sqrt 3 pi^2 sum_J (2J + 1) P_J / E^2, summed until (2J+1) P_J < 1e-8 of the total.
+  24 sqrt 3 pi^2 sum_J (2J + 1) P_J / E^2, summed (8 partial waves at a time) until
+  (2J+1) P_J < 1e-8 of the total.
 
 Keys (float64 unless stated):
-    energy              E m a^2/hbar^2, uniform in ln E from 2e-2 to 200
+    energy              E m a^2/hbar^2, uniform in ln E from 2e-2 to 1000
     s_ad                complex128 s_AD at k_AD a = sqrt(4 (E + 1)/3)
     breakup_a_over_e2, breakup_b_over_e2 (complex128), breakup_c_over_e2
     t_break_over_e2
@@ -67,8 +68,9 @@ KAPPA0 = 0.15
 # Below E ~ 1e-2 the J = 0 breakup probability (~ 0.04 E^2) is the difference of numbers
 # near 1 and loses ~1e-3 of its digits, so the grid starts at 2e-2 and the runtime
 # interpolates from the separately computed E -> 0 limits.
-E_MIN, E_MAX, PER_DECADE = 2e-2, 200.0, 12
-J_CAP = 120
+E_MIN, E_MAX, PER_DECADE = 2e-2, 1000.0, 12
+J_CAP = 200
+J_BLOCK = 8             # partial waves per Legendre sweep (memory: 8 n^2 complex)
 J_REL_TOL = 1e-8
 # J = 0: as scripts/make_atom_dimer_table.py (MAIN); J >= 1: the kernel needs no large cutoff
 MAIN = dict(cut=1e8, dfac=0.5, per_decade=48, narc=32, cut_j=1e3, phi_scale=1.0)
@@ -95,12 +97,15 @@ def solve_higher_j(kad, cut_j, dfac, per_decade, narc, phi_scale, j0_total, **_)
                             per_decade=per_decade, narc=narc, dmax=dmax)
     p = []
     total = 0.0
-    for j in range(1, J_CAP + 1):
-        pj = 1.0 - abs(sol.amplitude(j)[1]) ** 2
-        p.append(pj)
-        term = (2 * j + 1) * pj
-        total += term
-        if j >= 4 and abs(term) < J_REL_TOL * (total + j0_total) and abs(p[-2]) >= abs(pj):
+    for lo in range(1, J_CAP + 1, J_BLOCK):
+        js = list(range(lo, min(lo + J_BLOCK, J_CAP + 1)))
+        for j, s_j in zip(js, sol.amplitudes(js, block=J_BLOCK)):
+            pj = 1.0 - abs(s_j) ** 2
+            p.append(pj)
+            total += (2 * j + 1) * pj
+        # stop once the terms have turned over and the last is negligible
+        last = (2 * js[-1] + 1) * p[-1]
+        if js[-1] >= 4 and abs(last) < J_REL_TOL * (total + j0_total) and abs(p[-2]) >= abs(p[-1]):
             break
     return np.array(p), total
 

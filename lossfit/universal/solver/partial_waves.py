@@ -70,6 +70,37 @@ def _q_ratio_chain(z, ell):
 
 
 @numba.njit(cache=True)
+def _q_block(z, l_lo, l_hi, out):
+    """Q_l(z) for l_lo <= l <= l_hi at once (out[l - l_lo, i]): one backward sweep per z
+    serves every degree of the block."""
+    ratios = np.empty(l_hi + 1, dtype=np.complex128)
+    for i in range(z.size):
+        zi = z[i]
+        q0 = cmath.atanh(1.0 / zi)
+        xi = zi + cmath.sqrt(zi - 1.0) * cmath.sqrt(zi + 1.0)
+        mod = abs(xi)
+        if mod < 1.0:
+            mod = 1.0 / mod
+        extra = 6
+        if mod > 1.0 + 1e-12:
+            extra += int(40.0 / (2.0 * math.log(mod)))
+        if extra > 20000:
+            extra = 20000
+        r = 0.0 + 0.0j
+        for m in range(l_hi + extra, 0, -1):
+            r = m / ((2.0 * m + 1.0) * zi - (m + 1.0) * r)
+            if m <= l_hi:
+                ratios[m] = r
+        prod = q0
+        if l_lo == 0:
+            out[0, i] = q0
+        for m in range(1, l_hi + 1):
+            prod *= ratios[m]
+            if m >= l_lo:
+                out[m - l_lo, i] = prod
+
+
+@numba.njit(cache=True)
 def _legendre_p_scalar(z, ell):
     if ell == 0:
         return 1.0 + 0.0j
@@ -194,10 +225,31 @@ class PartialWaveSolver:
 
     def amplitude(self, ell):
         """(f_l / a, S_l) of the partial wave ``ell``; S_l = 1 + 2 i k_AD f_l."""
+        q = self._q
+        return self._solve(ell, partial_wave_kernel(ell, q, q, self.energy))
+
+    def amplitudes(self, ells, block=8):
+        """S_l for every l in ``ells`` (consecutive degrees share one Legendre sweep per
+        kernel element, ``block`` at a time)."""
+        q, energy = self._q, self.energy
+        pq = q[:, None] * q[None, :]
+        z = ((q[:, None] ** 2 + q[None, :] ** 2 - energy) / pq).ravel()
+        ells = sorted(int(v) for v in ells)
+        out = {}
+        for lo in range(0, len(ells), block):
+            part = ells[lo:lo + block]
+            qs = np.empty((part[-1] - part[0] + 1, z.size), dtype=complex)
+            _q_block(z, part[0], part[-1], qs)
+            for ell in part:
+                kern = (-1.0) ** ell * qs[ell - part[0]].reshape(pq.shape) / pq
+                out[ell] = self._solve(ell, kern)[1]
+        return np.array([out[int(v)] for v in ells])
+
+    def _solve(self, ell, kernel):
         from scipy.linalg import lu_factor, lu_solve
 
         k0, energy, q, cw = self.kad, self.energy, self._q, self._cw
-        kmat = -partial_wave_kernel(ell, q, q, energy) * cw[None, :]
+        kmat = -kernel * cw[None, :]
         kmat[np.diag_indices_from(kmat)] += 1.0
         mv = _onshell_kernel(ell, k0, q, energy)
         lu = lu_factor(kmat.T, overwrite_a=True, check_finite=False)
@@ -232,4 +284,4 @@ def breakup_partial_wave(kad, ells, **num):
     if any(v < 1 for v in ells):
         raise ValueError("ells must be >= 1 (l = 0 needs the three-body force)")
     sol = PartialWaveSolver(kad, **num)
-    return np.array([1.0 - abs(sol.amplitude(v)[1]) ** 2 for v in ells])
+    return 1.0 - np.abs(sol.amplitudes(ells)) ** 2
