@@ -239,7 +239,7 @@ class ZeroRangeModel(EnergyModel):
     three-body), a_+ (a > 0 three-body) or a* (relaxation) with each table's own
     kappa* a_-, kappa* a_+ or kappa* a*, so that the threshold features sit at the given
     positions. The tables are not extrapolated: requests beyond them (a > 0 three-body
-    loss above k_B T ~ 4.7 E_b, relaxation above k_AD a = 1e3) raise, naming ``a``.
+    loss above k_B T ~ 24 E_b, relaxation above k_AD a = 1e3) raise, naming ``a``.
     """
 
     name = "zero-range"
