@@ -43,36 +43,11 @@ from .stm import _kernel_onshell, atom_dimer_contour
 
 
 @numba.njit(cache=True)
-def _q_ratio_chain(z, ell):
-    """Q_ell(z) for complex z off [-1, 1] by backward recurrence of the ratios."""
-    q0 = cmath.atanh(1.0 / z)
-    if ell == 0:
-        return q0
-    xi = z + cmath.sqrt(z - 1.0) * cmath.sqrt(z + 1.0)
-    mod = abs(xi)
-    if mod < 1.0:
-        mod = 1.0 / mod
-    # the error of the started chain falls like |xi|^(-2 (L - ell))
-    extra = 6
-    if mod > 1.0 + 1e-12:
-        extra += int(40.0 / (2.0 * math.log(mod)))
-    if extra > 20000:
-        extra = 20000
-    top = ell + extra
-    r = 0.0 + 0.0j
-    prod = 1.0 + 0.0j
-    # r_m = Q_m / Q_(m-1) = m / ((2m + 1) z - (m + 1) r_(m+1))
-    for m in range(top, 0, -1):
-        r = m / ((2.0 * m + 1.0) * z - (m + 1.0) * r)
-        if m <= ell:
-            prod *= r
-    return q0 * prod
-
-
-@numba.njit(cache=True)
 def _q_block(z, l_lo, l_hi, out):
-    """Q_l(z) for l_lo <= l <= l_hi at once (out[l - l_lo, i]): one backward sweep per z
-    serves every degree of the block."""
+    """Q_l(z) for l_lo <= l <= l_hi at once (out[l - l_lo, i]), complex z off [-1, 1]:
+    backward recurrence of the ratios r_m = Q_m / Q_(m-1) = m / ((2m + 1) z - (m + 1) r_(m+1)),
+    started far enough above l_hi that its error, ~|xi|^(-2 (L - l)), is below double
+    precision, then Q_l = Q_0 r_1 ... r_l; one sweep per z serves every degree of the block."""
     ratios = np.empty(l_hi + 1, dtype=np.complex128)
     for i in range(z.size):
         zi = z[i]
@@ -112,12 +87,6 @@ def _legendre_p_scalar(z, ell):
 
 
 @numba.njit(cache=True)
-def _q_array(z, ell, out):
-    for i in range(z.size):
-        out[i] = _q_ratio_chain(z[i], ell)
-
-
-@numba.njit(cache=True)
 def _p_array(z, ell, out):
     for i in range(z.size):
         out[i] = _legendre_p_scalar(z[i], ell)
@@ -141,8 +110,8 @@ def legendre_q(ell, z):
     if int(ell) != ell or ell < 0:
         raise ValueError(f"ell must be a non-negative integer, got {ell!r}")
     z = np.asarray(z, dtype=complex)
-    out = np.empty(z.size, dtype=complex)
-    _q_array(z.ravel(), int(ell), out)
+    out = np.empty((1, z.size), dtype=complex)
+    _q_block(z.ravel(), int(ell), int(ell), out)
     return out.reshape(z.shape)
 
 
