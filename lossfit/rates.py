@@ -99,8 +99,8 @@ def k3(a, energy, *, species, efimov, model=None, channel="total"):
     species : Species or str
     efimov : Efimov
     model : str, optional
-        ``"zero-range"``, ``"threshold"``, ``"capped"`` (an approximation) or a registered
-        model name.
+        ``"zero-range"`` (the default), ``"threshold"``, ``"capped"`` (an approximation) or
+        a registered model name.
     channel : {"total", "shallow", "deep"}
         Recombination into any dimer, into the shallow dimer (a > 0 only; 0 for a < 0)
         or into deep dimers. Only ``model="zero-range"`` resolves the two.
