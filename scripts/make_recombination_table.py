@@ -218,7 +218,6 @@ def main():
             "j_last_max": int(jmax),
         },
         "git_hash": git_revision() or "unknown",
-        "seconds": round(time.time() - t0),
     }
     np.savez_compressed(
         args.out, energy=energies, s_ad=col(main_res, "s_ad", complex),
