@@ -6,7 +6,7 @@ nK (energy as E/k_B), L3 and K3 in cm^6/s (lossfit convention, see
 :mod:`lossfit.universal.threshold`), beta in cm^3/s.
 """
 
-__all__ = ["k3", "beta_energy", "l3", "beta"]
+__all__ = ["k3", "beta_energy", "l3", "beta", "natural_unit"]
 
 import warnings
 
@@ -60,26 +60,33 @@ def _x_max(scale_name):
     return 1.0 if scale_name == "energy" else U_MAX ** 2
 
 
+def natural_unit(process, scale_nk, mass):
+    """The kernels' natural unit in public units at an energy scale E_s = k_B x scale_nk:
+    hbar/(m k_s^4) in cm^6/s (three-body) or hbar/(m k_s) in cm^3/s (atom-dimer),
+    k_s = sqrt(m E_s)/hbar. The one home of these unit factors."""
+    k_s = scale_wavenumber_a0(np.ravel(scale_nk) * NK, mass) / A0
+    if process == THREE_BODY:
+        return HBAR / (mass * k_s ** 4) / CM6_PER_S
+    return HBAR / (mass * k_s) / CM3_PER_S
+
+
+
 def three_body_rows(a, scale_nk, species, efimov, model, stacklevel=4, scale_name="temperature",
                     channel="total"):
-    """Private helper shared with the likelihood: (model, params, natural unit in cm^6/s)."""
+    """Parameter rows of the reference path: (model, params, natural unit in cm^6/s, shape)."""
     sp, mdl, a_b, scale_b, q = _prepare(a, scale_nk, species, efimov, model, scale_name,
                                         THREE_BODY, stacklevel)
     params = mdl.three_body_rows(a_b, efimov, q, channel=channel, x_max=_x_max(scale_name))
-    k_s = scale_wavenumber_a0(scale_b * NK, sp.mass).ravel() / A0
-    unit = HBAR / (sp.mass * k_s ** 4) / CM6_PER_S
-    return mdl, params, unit, a_b.shape
+    return mdl, params, natural_unit(THREE_BODY, scale_b, sp.mass), a_b.shape
 
 
 def atom_dimer_rows(a, scale_nk, species, efimov, model, stacklevel=4, scale_name="temperature",
                     channel="relaxation"):
-    """Private helper shared with the likelihood: (model, params, natural unit in cm^3/s)."""
+    """Parameter rows of the reference path: (model, params, natural unit in cm^3/s, shape)."""
     sp, mdl, a_b, scale_b, q = _prepare(a, scale_nk, species, efimov, model, scale_name,
                                         ATOM_DIMER, stacklevel)
     params = mdl.atom_dimer_rows(a_b, efimov, q, channel=channel, x_max=_x_max(scale_name))
-    k_s = scale_wavenumber_a0(scale_b * NK, sp.mass).ravel() / A0
-    unit = HBAR / (sp.mass * k_s) / CM3_PER_S
-    return mdl, params, unit, a_b.shape
+    return mdl, params, natural_unit(ATOM_DIMER, scale_b, sp.mass), a_b.shape
 
 
 def _finish(values, shape):
@@ -145,21 +152,31 @@ def beta_energy(a, energy, *, species, efimov, model=None, channel="relaxation")
     return _finish(out * unit, shape)
 
 
-def _averaged(rows, kernel_attr, features_attr, weight, a, temperature, species, efimov, model,
-              rtol, **channel):
-    if not (is_real(rtol) and 0 < rtol < 1):
-        raise LossfitValueError("rtol", f"must be a number in (0, 1), got {rtol!r}")
-    mdl, params, unit, shape = rows(a, temperature, species, efimov, model, stacklevel=5, **channel)
-    value, err = thermal_average(getattr(mdl, kernel_attr), getattr(mdl, features_attr),
-                                 params, weight, rtol=rtol)
-    bad = err > max(rtol, 1e-7) * np.abs(value) * 10.0
-    if bad.any():
-        warnings.warn(f"thermal quadrature did not reach rtol={rtol:g} at {bad.sum()} point(s)",
-                      RuntimeWarning, stacklevel=3)
-    return _finish(value * unit, shape)
+def _averaged(process, a, temperature, species, efimov, model, rtol, channel):
+    if rtol is not None and not (is_real(rtol) and 0 < rtol < 1):
+        raise LossfitValueError("rtol", f"must be None or a number in (0, 1), got {rtol!r}")
+    rows = three_body_rows if process == THREE_BODY else atom_dimer_rows
+    if rtol is not None:
+        # the reference path: adaptive quadrature of the model's kernel to ``rtol``
+        mdl, params, unit, shape = rows(a, temperature, species, efimov, model, stacklevel=5, channel=channel)
+        kernel, features = ((mdl.three_body_kernel, mdl.three_body_features) if process == THREE_BODY
+                            else (mdl.atom_dimer_kernel, mdl.atom_dimer_features))
+        value, err = thermal_average(kernel, features, params, process, rtol=rtol)
+        bad = err > max(rtol, 1e-7) * np.abs(value) * 10.0
+        if bad.any():
+            warnings.warn(f"thermal quadrature did not reach rtol={rtol:g} at {bad.sum()} point(s)",
+                          RuntimeWarning, stacklevel=3)
+        return _finish(value * unit, shape)
+    sp, mdl, a_b, scale_b, q = _prepare(a, temperature, species, efimov, model, "temperature", process, 5)
+    unit = natural_unit(process, scale_b, sp.mass)
+    if process == THREE_BODY:
+        value = mdl.thermal_three_body(a_b.ravel(), q.ravel(), efimov, unit, channel=channel)
+    else:
+        value = mdl.thermal_atom_dimer(a_b.ravel(), q.ravel(), efimov, unit, channel=channel)
+    return _finish(value, a_b.shape)
 
 
-def l3(a, temperature, *, species, efimov, model=None, rtol=1e-9, channel="total"):
+def l3(a, temperature, *, species, efimov, model=None, rtol=None, channel="total"):
     """Thermally averaged three-body loss coefficient of a non-degenerate gas.
 
     ``L3(a, T) = ∫ K3(a, E) P3(E) dE`` with P3(E) = E^2 exp(-E/k_BT)/(2 (k_BT)^3).
@@ -172,8 +189,11 @@ def l3(a, temperature, *, species, efimov, model=None, rtol=1e-9, channel="total
         Gas temperature in nK (> 0).
     species, efimov, model
         As for :func:`k3`.
-    rtol : float
-        Relative accuracy target of the thermal quadrature.
+    rtol : float, optional
+        None (default): the model's own average -- closed forms for ``"threshold"`` and
+        ``"capped"``, fixed quadrature rules accurate to about 3e-7 for ``"zero-range"``
+        (docs/thermal-averages.md). A number: adaptive quadrature of the energy-resolved
+        kernel to this relative tolerance (the reference path, 10-100x slower).
     channel : {"total", "shallow", "deep"}
         As for :func:`k3`.
 
@@ -182,11 +202,10 @@ def l3(a, temperature, *, species, efimov, model=None, rtol=1e-9, channel="total
     float or ndarray
         L3 in cm^6/s.
     """
-    return _averaged(three_body_rows, "three_body_kernel", "three_body_features", THREE_BODY,
-                     a, temperature, species, efimov, model, rtol, channel=channel)
+    return _averaged(THREE_BODY, a, temperature, species, efimov, model, rtol, channel)
 
 
-def beta(a, temperature, *, species, efimov, model=None, rtol=1e-9, channel="relaxation"):
+def beta(a, temperature, *, species, efimov, model=None, rtol=None, channel="relaxation"):
     """Thermally averaged atom-dimer relaxation coefficient.
 
     ``beta(a, T) = ∫ beta(a, E) P2(E) dE`` with
@@ -208,5 +227,4 @@ def beta(a, temperature, *, species, efimov, model=None, rtol=1e-9, channel="rel
     float or ndarray
         beta in cm^3/s.
     """
-    return _averaged(atom_dimer_rows, "atom_dimer_kernel", "atom_dimer_features", ATOM_DIMER,
-                     a, temperature, species, efimov, model, rtol, channel=channel)
+    return _averaged(ATOM_DIMER, a, temperature, species, efimov, model, rtol, channel)

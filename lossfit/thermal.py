@@ -1,5 +1,10 @@
 """Boltzmann averages of energy-resolved rate kernels over the collision energy.
 
+Two engines live here: the adaptive Gauss-Kronrod quadrature below (the *reference
+path*: any kernel, any tolerance) and the pieces of the *fast path*'s fixed rules
+(composite Gauss-Legendre panels in a log variable of the energy, the tail probability
+below the first node); docs/thermal-averages.md gives the method and its measured accuracy.
+
 For a non-degenerate gas at temperature T the collision-energy distributions are
 (DESIGN §5)
 
@@ -29,7 +34,8 @@ compiled with the signatures :data:`KERNEL_SIGNATURE` and :data:`FEATURES_SIGNAT
 """
 
 __all__ = ["THREE_BODY", "ATOM_DIMER", "U_MAX", "thermal_average", "averager", "rate_kernel",
-           "feature_points", "KERNEL_SIGNATURE", "FEATURES_SIGNATURE", "boltzmann_weight"]
+           "feature_points", "KERNEL_SIGNATURE", "FEATURES_SIGNATURE", "boltzmann_weight",
+           "probability_below", "panel_edges", "composite_gauss_legendre", "GL_ORDER"]
 
 import math
 
@@ -339,3 +345,76 @@ def thermal_average(kernel, features, params, weight, *, rtol=1e-9):
     # nothing is compiled (the likelihood's hot path uses :func:`averager` instead).
     _average_rows(kernel, features, params, int(weight), float(rtol), out, out_err)
     return out, out_err
+
+
+
+# --- fixed rules: the fast path ---------------------------------------------------------
+# A thermal average at one point becomes a sum over the nodes of a composite
+# Gauss-Legendre rule in a log variable of the energy (the fast path's kernels choose
+# the panels, see lossfit.universal.averages); these helpers are independent of any kernel.
+GL_ORDER = 8
+_GL_X, _GL_W = np.polynomial.legendre.leggauss(GL_ORDER)
+
+
+@numba.njit(cache=True)
+def probability_below(weight, x):
+    """P(E < x k_BT): the regularised lower incomplete gamma P(3, x) (three-body) or
+    P(3/2, x) (atom-dimer), by its power series below x = 2 (no cancellation there)."""
+    if x <= 0.0:
+        return 0.0
+    a = 3.0 if weight == THREE_BODY else 1.5
+    if x > 2.0:
+        if weight == THREE_BODY:
+            return 1.0 - math.exp(-x) * (1.0 + x + 0.5 * x * x)
+        return math.erf(math.sqrt(x)) - 2.0 * math.sqrt(x / math.pi) * math.exp(-x)
+    # P(a, x) = x^a e^-x / Gamma(a + 1) sum_k x^k / ((a + 1) ... (a + k))
+    term = 1.0
+    total = 1.0
+    k = 1.0
+    while term > 1e-17 * total:
+        term *= x / (a + k)
+        total += term
+        k += 1.0
+    return math.exp(a * math.log(x) - x - math.lgamma(a + 1.0)) * total
+
+
+def panel_edges(y0, y1, width, forced):
+    """Edges of panels covering [y0, y1], each no wider than ``width(y)`` anywhere on it.
+
+    Parameters
+    ----------
+    y0, y1 : float
+        Range to cover.
+    width : callable
+        ``width(a, b)``: the largest panel width acceptable on [a, b] (vectorised over
+        neither; called a few times per panel).
+    forced : sequence of float
+        Points that must be panel edges (kinks of the integrand).
+
+    Returns
+    -------
+    ndarray
+        Increasing edges, first y0, last y1.
+    """
+    stops = sorted({float(y0), float(y1)} | {float(f) for f in forced if y0 < f < y1})
+    edges = [stops[0]]
+    for a, b in zip(stops[:-1], stops[1:]):
+        s = a
+        while b - s > 1e-12:
+            h = min(width(s, b), b - s)
+            while h > 1e-6 and width(s, s + h) < h:
+                h *= 0.9
+            nxt = b if s + h >= b else s + h
+            if b - nxt < 0.25 * h and nxt < b:
+                nxt = s + 0.5 * (b - s)        # split a short remainder evenly
+            edges.append(nxt)
+            s = nxt
+    return np.array(edges)
+
+
+def composite_gauss_legendre(edges):
+    """Nodes and weights of the GL_ORDER-point Gauss-Legendre rule on every panel."""
+    a, b = edges[:-1, None], edges[1:, None]
+    nodes = 0.5 * (a + b) + 0.5 * (b - a) * _GL_X[None, :]
+    weights = 0.5 * (b - a) * _GL_W[None, :]
+    return nodes.ravel(), weights.ravel()

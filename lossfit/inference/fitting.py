@@ -109,7 +109,7 @@ def _start(posterior, space, walkers, rng, initial):
 
 
 def prepare(data, *, species, free, model=None, priors=None, fixed=None, tie=None,
-            density_sigma=None, rtol=1e-7):
+            density_sigma=None, rtol=None):
     """Validate a fit's inputs and build its pieces: (space, likelihood, posterior).
 
     Shared by :func:`fit` and by code that rebuilds results from stored chains.
@@ -128,7 +128,7 @@ def prepare(data, *, species, free, model=None, priors=None, fixed=None, tie=Non
     all_priors.update(user_priors)
     space = ParameterSpace(free, all_priors, fixed=fixed, tie=tie)
     _check_constrained(space, spectra)
-    likelihood = SpectrumLikelihood(spectra, sp, mdl, rtol=rtol)
+    likelihood = SpectrumLikelihood(spectra, sp, mdl, rtol=rtol, eta_min=space.eta_floor())
     return space, likelihood, Posterior(space, likelihood)
 
 
@@ -153,7 +153,7 @@ def make_result(space, likelihood, chain, log_prob, acceptance, *, burn=None, th
 
 def fit(data, *, species, free, model=None, priors=None, walkers=32, steps=3000, burn=None, thin=1,
         seed=None, backend=None, pool=None, fixed=None, tie=None, density_sigma=None,
-        progress=None, initial=None, rtol=1e-7, checkpoint_every=100, log_every=None, metadata=None,
+        progress=None, initial=None, rtol=None, checkpoint_every=100, log_every=None, metadata=None,
         **curve_options):
     """Sample the posterior of Efimov parameters given loss spectra.
 
@@ -197,8 +197,9 @@ def fit(data, *, species, free, model=None, priors=None, walkers=32, steps=3000,
         tqdm progress bar; default on in a terminal or notebook.
     initial : dict, optional
         Start point (physical units) instead of the automatic search.
-    rtol : float
-        Thermal quadrature tolerance inside the likelihood.
+    rtol : float, optional
+        None (default): the model's fast thermal averages. A number: the adaptive
+        reference quadrature at this tolerance at every likelihood call (slow; for checks).
     checkpoint_every : int
         Steps between checkpoints when ``backend`` is a file.
     log_every : int, optional

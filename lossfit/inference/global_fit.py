@@ -86,7 +86,7 @@ from ..feshbach import FeshbachResonance
 from ..species import species as _lookup_species
 from ..universal.models import DEFAULT_MODEL, get_model
 from .fitting import Posterior, _coerce_priors, _interactive, make_result
-from .likelihood import _Block
+from .likelihood import RateBlock
 from .parameters import ParameterSpace, default_priors
 from .priors import LogNormal, Normal, Prior
 from .sampling import open_backend, sample
@@ -216,8 +216,11 @@ class CurvesLikelihood:
         Chord Gauss-Newton steps per call (module docstring); 0 uses the linearised chi2.
     table_step : float
         Knot spacing of the T tables in ln T.
-    rtol : float
-        Tolerance of the thermal quadrature and of the integrator.
+    rtol : float, optional
+        None: the model's fast thermal averages; a number: the adaptive reference
+        quadrature at this tolerance (slow; for checks).
+    eta_min : float, optional
+        Smallest eta the sampler can reach (default: the default prior's lower edge).
 
     Attributes
     ----------
@@ -230,7 +233,7 @@ class CurvesLikelihood:
 
     def __init__(self, curves, species, model, *, resonance=None, reference_fits, heating=True,
                  recombination_heating_nK=0.0, temperature_scale_range=(1.0, 1.0), field_noise=False,
-                 field_noise_nodes=7, inner_steps=1, table_step=0.16, rtol=1e-7):
+                 field_noise_nodes=7, inner_steps=1, table_step=0.16, rtol=None, eta_min=None):
         self.curves = check_curves(curves)
         self.species = _lookup_species(species)
         self.model = get_model(model)
@@ -258,7 +261,7 @@ class CurvesLikelihood:
         self.signs = np.sign(self.a_nominal)
         self._setup_data()
         self._setup_tables(reference_fits, temperature_scale_range, table_step, field_noise,
-                           field_noise_nodes)
+                           field_noise_nodes, eta_min)
         self._set_reference(np.array([self._coords_of_fit(f) for f in reference_fits]),
                             self._jacobian_of_fits(reference_fits))
         self.two_stage_spectra = []
@@ -314,7 +317,7 @@ class CurvesLikelihood:
     def _partner_series(c):
         return c.kind == "dimers" and c.partner_atoms.ndim == 1
 
-    def _setup_tables(self, fits, s_range, step, field_noise, nodes):
+    def _setup_tables(self, fits, s_range, step, field_noise, nodes, eta_min):
         lo_s, hi_s = s_range
         lo, hi = np.empty(self.n_curves), np.empty(self.n_curves)
         for j, (c, f) in enumerate(zip(self.curves, fits)):
@@ -346,9 +349,10 @@ class CurvesLikelihood:
                 continue
             a = np.repeat(self.a_nominal[idx], n_knots * nh)
             temps = np.repeat(self.grid[idx].ravel(), nh)
-            spec = LossSpectrum(a, temps, np.ones(a.size), np.ones(a.size), kind=kind)
-            block = _Block([spec], self.species, self.model)
-            self.blocks[kind] = (idx, block, block.q / block.a)
+            block = RateBlock(kind, a, temps, self.species, self.model, rtol=self.rtol)
+            if eta_min is not None:
+                block.eta_min = eta_min
+            self.blocks[kind] = (idx, block)
         self._knots_all = np.log(self.t_lo)[:, None] + self.rel_knots[None, :]
         # not-a-knot cubic spline of ln rate in ln T (as TabulatedRate): coefficients of the
         # unit vectors, so that any table's coefficients are M @ values
@@ -411,7 +415,8 @@ class CurvesLikelihood:
         sigma_b = values.get("sigma_B", 0.0)
         nh = self.gh_x.size
         logv = np.empty((self.n_curves, self.n_knots))
-        for kind, (idx, block, k_s) in self.blocks.items():
+        for kind, (idx, block) in self.blocks.items():
+            a_block = None
             if nh > 1 or a is not self.a_nominal:
                 a_rows = np.repeat(a[idx], self.n_knots * nh).reshape(idx.size, self.n_knots, nh)
                 if nh > 1 and sigma_b > 0:
@@ -423,9 +428,8 @@ class CurvesLikelihood:
                     if np.any(np.sign(a_nodes) != self.signs[idx][fld][:, None]):
                         return None
                     a_rows[fld] = a_nodes[:, None, :]
-                block.a = a_rows.ravel()
-                block.q = block.a * k_s
-            pred = block.predict(efimov, self.rtol).reshape(idx.size, self.n_knots, nh) @ self.gh_w
+                a_block = a_rows.ravel()
+            pred = block.predict(efimov, a=a_block).reshape(idx.size, self.n_knots, nh) @ self.gh_w
             if not np.all(np.isfinite(pred)) or np.any(pred <= 0):
                 return None
             power = 2.0 if kind == "l3" else 1.0
@@ -664,7 +668,7 @@ def _systematic_priors(systematics, resonance):
 
 def prepare_curves(curves, *, species, free, model=None, priors=None, resonance=None, systematics=None,
                    fixed=None, tie=None, heating=True, recombination_heating_nK=0.0, inner_steps=1,
-                   field_noise_nodes=7, rtol=1e-7, density_sigma=None):
+                   field_noise_nodes=7, rtol=None, density_sigma=None):
     """Parameter space, likelihood and posterior of a global fit, without sampling.
 
     Arguments as in :func:`fit_curves`. The per-curve least-squares fits made here give
@@ -728,13 +732,15 @@ def prepare_curves(curves, *, species, free, model=None, priors=None, resonance=
     all_priors.update(sys_priors)
     space = CampaignSpace(free + [n for n in SYSTEMATIC_NAMES if n in sys_priors], all_priors,
                           fixed=fixed, tie=tie, correlated=correlated)
+    for _, block in likelihood.blocks.values():
+        block.eta_min = space.eta_floor()
     return space, likelihood, CampaignPosterior(space, likelihood)
 
 
 def fit_curves(curves, *, species, free, model=None, priors=None, resonance=None, systematics=None,
                fixed=None, tie=None, walkers=32, steps=2000, burn=None, thin=1, seed=None, backend=None,
                pool=None, progress=None, heating=True, recombination_heating_nK=0.0, inner_steps=1,
-               field_noise_nodes=7, rtol=1e-7, initial=None, checkpoint_every=100, log_every=None,
+               field_noise_nodes=7, rtol=None, initial=None, checkpoint_every=100, log_every=None,
                metadata=None, density_sigma=None):
     """Global posterior of Efimov parameters from raw decay curves (module docstring).
 
@@ -775,8 +781,9 @@ def fit_curves(curves, *, species, free, model=None, priors=None, resonance=None
         Chord Gauss-Newton steps of the per-curve nuisances per likelihood call.
     field_noise_nodes : int
         Gauss-Hermite nodes of the field-noise average.
-    rtol : float
-        Thermal-quadrature tolerance.
+    rtol : float, optional
+        None: the model's fast thermal averages; a number: the adaptive reference
+        quadrature at this tolerance (slow; for checks).
     density_sigma : float, optional
         As in :func:`lossfit.fit`: with ``"density_scale"`` in ``free``, the width of its
         log-normal prior (equivalent to ``systematics={"density_scale": density_sigma}``).

@@ -1,69 +1,103 @@
 """Gaussian likelihood of loss spectra under a thermally averaged rate model.
 
-Everything that does not depend on the fit parameters (the thermal wavenumber of
-each point, unit factors, the data) is computed once; one evaluation then costs one
-threshold-coefficient pass and one thermal quadrature per point.
+Everything that does not depend on the fit parameters (each point's thermal
+wavenumber and unit factor, the quadrature weights and table values of the exact
+model, the data) is prepared once in a :class:`RateBlock`; one evaluation then costs a
+pass over the prepared quadrature nodes (lossfit.universal.averages).
 """
 
-__all__ = ["SpectrumLikelihood"]
+__all__ = ["SpectrumLikelihood", "RateBlock"]
 
 import math
 
 import numpy as np
 
-from ..constants import HBAR
-from ..errors import LossfitValueError
-from ..species import species as _species
-from ..thermal import ATOM_DIMER, THREE_BODY, averager
-from ..units import A0, CM3_PER_S, CM6_PER_S, NK
-from ..universal.models import get_model, scale_wavenumber_a0
 from ..data import LossSpectrum
+from ..errors import LossfitValueError
+from ..rates import natural_unit
+from ..species import species as _species
+from ..thermal import ATOM_DIMER, THREE_BODY, thermal_average
+from ..units import NK
+from ..universal.averages import ETA_MIN
+from ..universal.models import get_model, scale_wavenumber_a0
 
 
-class _Block:
-    """All points of one kind (L3 or beta), prepared for repeated evaluation."""
+class RateBlock:
+    """Thermal L3 or beta at fixed points (a, T), prepared for repeated evaluation.
 
-    def __init__(self, spectra, sp, model):
-        self.kind = spectra[0].kind
-        self.sizes = [len(s) for s in spectra]
-        self.a = np.concatenate([s.a for s in spectra])
-        temperature = np.concatenate([s.temperature for s in spectra])
-        k_s = scale_wavenumber_a0(temperature * NK, sp.mass)      # 1/a0
-        self.q = self.a * k_s
-        k_si = k_s / A0
-        if self.kind == "l3":
-            self.unit = HBAR / (sp.mass * k_si ** 4) / CM6_PER_S
-            self.rows = model.three_body_rows
-            self.run = averager(model.three_body_kernel, model.three_body_features)
-            self.weight, self.density_power = THREE_BODY, 2.0
-        else:
-            self.unit = HBAR / (sp.mass * k_si) / CM3_PER_S
-            self.rows = model.atom_dimer_rows
-            self.run = averager(model.atom_dimer_kernel, model.atom_dimer_features)
-            self.weight, self.density_power = ATOM_DIMER, 1.0
-        self.value = np.concatenate([s.value for s in spectra])
-        self.inv_error = 1.0 / np.concatenate([s.error for s in spectra])
-        self.out = np.empty(self.a.size)
-        self.err = np.empty(self.a.size)
+    Parameters
+    ----------
+    kind : {"l3", "beta"}
+    a, temperature : ndarray
+        Scattering lengths (a0) and temperatures (nK), 1-D.
+    species : Species
+    model : EnergyModel
+    eta_min : float
+        Smallest eta the sampler can reach (the exact model's rules resolve it).
+    rtol : float, optional
+        None: the model's fast averages. A number: the adaptive reference quadrature
+        at this tolerance at every evaluation (slow; for checks).
+    """
+
+    def __init__(self, kind, a, temperature, species, model, eta_min=ETA_MIN, rtol=None):
+        self.kind = kind
+        self.process = THREE_BODY if kind == "l3" else ATOM_DIMER
+        self.a = np.asarray(a, dtype=float)
+        self.k_s = scale_wavenumber_a0(np.asarray(temperature, dtype=float) * NK, species.mass)   # 1/a0
+        self.unit = natural_unit(self.process, temperature, species.mass)
+        self.density_power = 2.0 if kind == "l3" else 1.0
         self.model = model
+        self.rtol = rtol
+        self._plan = None
+        self.eta_min = eta_min
+
+    @property
+    def eta_min(self):
+        """Smallest eta the prepared averages resolve (setting it discards them)."""
+        return self._eta_min
+
+    @eta_min.setter
+    def eta_min(self, value):
+        self._eta_min = min(float(value), ETA_MIN)
+        self._plan = None
 
     def __getstate__(self):
-        # The compiled closure is rebuilt where the block is unpickled (pool workers).
-        state = dict(self.__dict__)
-        del state["run"], state["rows"]
-        return state
+        # the plan's arrays are rebuilt where the block is unpickled (pool workers)
+        return {k: v for k, v in self.__dict__.items() if k != "_plan"}
 
     def __setstate__(self, state):
         self.__dict__.update(state)
-        m = self.model
-        self.rows = m.three_body_rows if self.kind == "l3" else m.atom_dimer_rows
-        self.run = averager(*((m.three_body_kernel, m.three_body_features) if self.kind == "l3"
-                              else (m.atom_dimer_kernel, m.atom_dimer_features)))
+        self._plan = None
 
-    def predict(self, efimov, rtol):
-        params = self.rows(self.a, efimov, self.q)
-        self.run(params, self.weight, rtol, self.out, self.err)
-        return self.out * self.unit
+    @property
+    def plan(self):
+        if self._plan is None:
+            build = self.model.three_body_plan if self.process == THREE_BODY else self.model.atom_dimer_plan
+            self._plan = build(self.a, self.a * self.k_s, self.unit, eta_min=self.eta_min)
+        return self._plan
+
+    def predict(self, efimov, a=None):
+        """L3 (cm^6/s) or beta (cm^3/s) at every point; ``a`` (a0) replaces the stored
+        scattering lengths (then nothing prepared is reused)."""
+        if self.rtol is not None:
+            return self._reference(efimov, self.a if a is None else a)
+        if a is None:
+            return self.plan.evaluate(efimov)
+        a = np.asarray(a, dtype=float)
+        q = a * self.k_s
+        if self.process == THREE_BODY:
+            return self.model.thermal_three_body(a, q, efimov, self.unit)
+        return self.model.thermal_atom_dimer(a, q, efimov, self.unit)
+
+    def _reference(self, efimov, a):
+        q = a * self.k_s
+        if self.process == THREE_BODY:
+            rows = self.model.three_body_rows(a, efimov, q)
+            kernel, features = self.model.three_body_kernel, self.model.three_body_features
+        else:
+            rows = self.model.atom_dimer_rows(a, efimov, q)
+            kernel, features = self.model.atom_dimer_kernel, self.model.atom_dimer_features
+        return thermal_average(kernel, features, rows, self.process, rtol=self.rtol)[0] * self.unit
 
 
 class SpectrumLikelihood:
@@ -74,11 +108,14 @@ class SpectrumLikelihood:
     spectra : sequence of LossSpectrum
     species : Species or str
     model : str or EnergyModel
-    rtol : float
-        Thermal quadrature tolerance.
+    rtol : float, optional
+        None (default): the model's fast thermal averages. A number: the adaptive
+        reference quadrature at this tolerance (slow; for checks).
+    eta_min : float
+        Smallest eta the sampler can reach (default: the default prior's lower edge).
     """
 
-    def __init__(self, spectra, species, model, rtol=1e-7):
+    def __init__(self, spectra, species, model, rtol=None, eta_min=ETA_MIN):
         spectra = [spectra] if isinstance(spectra, LossSpectrum) else list(spectra)
         if not spectra or not all(isinstance(s, LossSpectrum) for s in spectra):
             raise LossfitValueError("data", "must be one or more LossSpectrum objects")
@@ -86,14 +123,23 @@ class SpectrumLikelihood:
         self.model = get_model(model)
         self.rtol = rtol
         self.spectra = spectra
-        # Points of one kind share a kernel: one quadrature call serves all of them.
-        self.blocks = [_Block([s for s in spectra if s.kind == kind], self.species, self.model)
-                       for kind in ("l3", "beta") if any(s.kind == kind for s in spectra)]
+        self.blocks = []
+        # Points of one kind share a block: one prepared pass serves all of them.
+        for kind in ("l3", "beta"):
+            sel = [s for s in spectra if s.kind == kind]
+            if not sel:
+                continue
+            block = RateBlock(kind, np.concatenate([s.a for s in sel]), np.concatenate([s.temperature for s in sel]),
+                              self.species, self.model, eta_min=eta_min, rtol=rtol)
+            block.sizes = [len(s) for s in sel]
+            block.value = np.concatenate([s.value for s in sel])
+            block.inv_error = 1.0 / np.concatenate([s.error for s in sel])
+            self.blocks.append(block)
         self.n_points = sum(len(s) for s in spectra)
 
     def predict(self, efimov, density_scale=1.0):
         """Model values at every data point as the data would report them: one array per spectrum."""
-        per_kind = {b.kind: np.split(b.predict(efimov, self.rtol) / density_scale ** b.density_power,
+        per_kind = {b.kind: np.split(b.predict(efimov) / density_scale ** b.density_power,
                                      np.cumsum(b.sizes)[:-1]) for b in self.blocks}
         counters = {kind: iter(arrs) for kind, arrs in per_kind.items()}
         return [next(counters[s.kind]) for s in self.spectra]
@@ -105,7 +151,6 @@ class SpectrumLikelihood:
     def __call__(self, efimov, density_scale=1.0):
         total = 0.0
         for b in self.blocks:
-            pred = b.predict(efimov, self.rtol) / density_scale ** b.density_power
-            z = (b.value - pred) * b.inv_error
+            z = (b.value - b.predict(efimov) / density_scale ** b.density_power) * b.inv_error
             total -= 0.5 * float(np.dot(z, z))
         return total if math.isfinite(total) else -math.inf

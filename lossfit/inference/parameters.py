@@ -18,7 +18,7 @@ import numpy as np
 from ..constants import KAPPA_A_MINUS, KAPPA_A_PLUS, KAPPA_A_STAR, SCALING_FACTOR
 from ..errors import LossfitValueError
 from ..universal.threshold import Efimov
-from .priors import LogNormal, LogUniform, Prior
+from .priors import LogNormal, LogUniform, Normal, Prior, Uniform
 
 EFIMOV_NAMES = ("a_minus", "eta_minus", "a_star", "eta_star", "a_plus", "eta_plus")
 NUISANCE_NAMES = ("density_scale",)
@@ -134,6 +134,23 @@ class ParameterSpace:
 
     def density_scale(self, values):
         return values.get("density_scale", 1.0)
+
+    def eta_floor(self):
+        """The smallest inelasticity the sampler can reach: the lower edge of every eta
+        prior (eight widths below the median for unbounded priors) and fixed etas."""
+        floors = [float(v) for n, v in self.fixed.items() if n.startswith("eta")]
+        for name, prior in zip(self.names, self.priors):
+            if not name.startswith("eta"):
+                continue
+            if isinstance(prior, (LogUniform, Uniform)):
+                floors.append(prior.lo)
+            elif isinstance(prior, LogNormal):
+                floors.append(prior.median * math.exp(-8.0 * prior.sigma))
+            elif isinstance(prior, Normal):
+                floors.append(max(abs(prior.mu) - 8.0 * prior.sigma, 1e-3 * abs(prior.mu)))
+            else:
+                floors.append(1e-4)      # a user's own prior: a floor well below the default range
+        return min(floors) if floors else math.inf
 
 
 def default_priors(free, spectra, density_sigma=None):

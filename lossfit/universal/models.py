@@ -3,8 +3,17 @@
 A model supplies, for each process, a numba kernel ``kernel(x, p)`` giving the rate at
 collision energy E = x E_s in *natural units* of the energy scale E_s, the feature
 points of that kernel, and a packer that turns (a, Efimov parameters, E_s) into one
-parameter row per point. The thermal engine (:mod:`lossfit.thermal`) averages any such
-kernel; fixed-energy evaluation uses x = 1 with E_s = E.
+parameter row per point. The adaptive engine (:mod:`lossfit.thermal`) averages any such
+kernel (the reference path); fixed-energy evaluation uses x = 1 with E_s = E.
+
+Thermal averages go through two methods that a model may override with something
+faster (the built-in models do): ``thermal_three_body`` / ``thermal_atom_dimer`` at
+arbitrary points, and ``three_body_plan`` / ``atom_dimer_plan``, which prepare fixed
+points (a fit's data) once and return an object whose ``evaluate(efimov)`` gives the
+averages. The base class implements both with the adaptive engine, so a registered
+model needs only its kernels. ``"threshold"`` and ``"capped"`` have closed-form
+averages (below); ``"zero-range"`` uses the fixed rules of
+:mod:`lossfit.universal.averages`.
 
 Natural units, with k_s = sqrt(m E_s)/hbar (m the atom mass):
 
@@ -35,7 +44,7 @@ and E = hbar^2 k^2/(2 mu); in natural units beta <= (3 sqrt(3) pi / 4) / sqrt(x)
 """
 
 __all__ = ["EnergyModel", "ThresholdModel", "CappedModel", "ZeroRangeModel", "get_model", "register_model",
-           "available_models", "UNITARITY_THREE_BODY", "UNITARITY_ATOM_DIMER"]
+           "available_models", "UNITARITY_THREE_BODY", "UNITARITY_ATOM_DIMER", "REFERENCE_RTOL"]
 
 import math
 
@@ -46,8 +55,10 @@ from scipy.special import loggamma
 
 from ..constants import HBAR, S0
 from ..errors import LossfitValueError
-from ..thermal import FEATURES_SIGNATURE, KERNEL_SIGNATURE, U_MAX, feature_points, rate_kernel
+from ..thermal import (ATOM_DIMER, FEATURES_SIGNATURE, KERNEL_SIGNATURE, THREE_BODY, U_MAX, feature_points,
+                       probability_below, rate_kernel, thermal_average)
 from ..units import A0
+from . import averages
 from .tables import recombination_eval
 from .threshold import beta_coefficient_unchecked, l3_coefficient_unchecked
 
@@ -56,8 +67,10 @@ _ARG_GAMMA = float(np.imag(loggamma(1 + 1j * S0)))
 _CHANNEL_WEIGHTS = {"total": (1.0, 1.0), "shallow": (1.0, 0.0), "deep": (0.0, 1.0)}
 # (relaxation, breakup) weights of the atom-dimer loss channels
 _ATOM_DIMER_CHANNEL_WEIGHTS = {"relaxation": (1.0, 0.0), "breakup": (0.0, 1.0), "total": (1.0, 1.0)}
-UNITARITY_THREE_BODY = 72.0 * math.sqrt(3.0) * math.pi ** 2
-UNITARITY_ATOM_DIMER = 3.0 * math.sqrt(3.0) * math.pi / 4.0
+UNITARITY_THREE_BODY = averages.UNITARITY_THREE_BODY
+UNITARITY_ATOM_DIMER = averages.UNITARITY_ATOM_DIMER
+#: Tolerance of the adaptive quadrature when a model has no faster thermal average.
+REFERENCE_RTOL = 1e-9
 
 
 def scale_wavenumber_a0(energy_joule, mass):
@@ -94,6 +107,33 @@ class EnergyModel:
         or "breakup" / "total" for models that resolve dimer breakup."""
         raise NotImplementedError
 
+    def thermal_three_body(self, a, q, efimov, scale, channel="total"):
+        """Thermal averages of K3 at points (a, T): natural units hbar^5/(m^3 (k_BT)^2)
+        times ``scale`` per point; ``q = k_T |a|`` (k_T = sqrt(m k_BT)/hbar). The base
+        class uses the adaptive quadrature of :attr:`three_body_kernel`."""
+        rows = self.three_body_rows(a, efimov, q, channel=channel)
+        value, _ = thermal_average(self.three_body_kernel, self.three_body_features, rows, THREE_BODY,
+                                   rtol=REFERENCE_RTOL)
+        return value * scale
+
+    def thermal_atom_dimer(self, a, q, efimov, scale, channel="relaxation"):
+        """Thermal averages of beta (natural units hbar/(m k_T) times ``scale``); as
+        :meth:`thermal_three_body`."""
+        rows = self.atom_dimer_rows(a, efimov, q, channel=channel)
+        value, _ = thermal_average(self.atom_dimer_kernel, self.atom_dimer_features, rows, ATOM_DIMER,
+                                   rtol=REFERENCE_RTOL)
+        return value * scale
+
+    def three_body_plan(self, a, q, scale, channel="total", eta_min=averages.ETA_MIN):
+        """Prepare the thermal K3 averages at fixed points (a fit's data): an object
+        with ``evaluate(efimov) -> ndarray`` and ``n_points``. The base class
+        recomputes through :meth:`thermal_three_body` at every evaluation."""
+        return _RecomputingPlan(self.thermal_three_body, a, q, scale, channel)
+
+    def atom_dimer_plan(self, a, q, scale, channel="relaxation", eta_min=averages.ETA_MIN):
+        """As :meth:`three_body_plan` for beta (a > 0)."""
+        return _RecomputingPlan(self.thermal_atom_dimer, a, q, scale, channel)
+
     @property
     def label(self):
         """Name for outputs, with "approximation" spelled out where it applies."""
@@ -116,6 +156,67 @@ def _threshold_rows_atom_dimer(a, efimov, q):
     rows[:, 0] = np.abs(q).ravel()
     rows[:, 1] = beta_coefficient_unchecked(a.ravel(), efimov)
     return rows
+
+
+class _RecomputingPlan:
+    """A 'plan' that recomputes everything at each evaluation (models without a faster one)."""
+
+    def __init__(self, average, a, q, scale, channel):
+        self.average, self.a, self.q, self.scale, self.channel = average, a, q, scale, channel
+        self.n_points = a.size
+
+    def evaluate(self, efimov, out=None):
+        value = self.average(self.a, self.q, efimov, self.scale, channel=self.channel)
+        if out is None:
+            return value
+        out[:] = value
+        return out
+
+
+@numba.njit(cache=True)
+def _closed_form(coefficient, q, scale, weight, capped, out):
+    """Thermal average of the threshold law C |q|^4 (three-body) or C |q| (atom-dimer),
+    saturated at the J = 0 unitarity bound if ``capped``:
+
+    three-body: int min(K0, U/x^2) x^2 e^-x / 2 dx = K0 P(3, x_c) + (U/2) e^-x_c,
+        x_c = sqrt(U/K0);
+    atom-dimer: int min(K0, U/sqrt x) (2/sqrt pi) sqrt(x) e^-x dx
+        = K0 P(3/2, x_c) + U (2/sqrt pi) e^-x_c, x_c = (U/K0)^2,
+
+    with P the regularised lower incomplete gamma function (derivation: the models'
+    docstring and docs/thermal-averages.md)."""
+    for i in range(q.size):
+        aq = abs(q[i])
+        if weight == THREE_BODY:
+            k0 = coefficient[i] * aq * aq * aq * aq
+            if not capped:
+                out[i] = k0 * scale[i]
+                continue
+            x_c = math.sqrt(UNITARITY_THREE_BODY / k0)
+            out[i] = (k0 * probability_below(THREE_BODY, x_c) + 0.5 * UNITARITY_THREE_BODY * math.exp(-x_c)) * scale[i]
+        else:
+            k0 = coefficient[i] * aq
+            if not capped:
+                out[i] = k0 * scale[i]
+                continue
+            r = UNITARITY_ATOM_DIMER / k0
+            x_c = r * r
+            out[i] = (k0 * probability_below(ATOM_DIMER, x_c)
+                      + 1.1283791670955126 * UNITARITY_ATOM_DIMER * math.exp(-x_c)) * scale[i]
+
+
+class _ClosedFormPlan:
+    """Fixed-point averages of the threshold and capped models: one coefficient pass."""
+
+    def __init__(self, coefficients, a, q, scale, weight, capped):
+        self.coefficients, self.a, self.q, self.scale = coefficients, a, q, scale
+        self.weight, self.capped = weight, capped
+        self.n_points = a.size
+
+    def evaluate(self, efimov, out=None):
+        out = np.empty(self.n_points) if out is None else out
+        _closed_form(self.coefficients(self.a, efimov), self.q, self.scale, self.weight, self.capped, out)
+        return out
 
 
 @feature_points
@@ -181,17 +282,37 @@ class ThresholdModel(EnergyModel):
     atom_dimer_kernel = staticmethod(_threshold_atom_dimer)
     atom_dimer_features = staticmethod(_no_features)
 
+    def _check_channel(self, channel, only):
+        if channel != only:
+            more = "'shallow' and 'deep'" if only == "total" else "'breakup' and 'total'"
+            raise LossfitValueError("channel", f"model {self.name!r} gives only the {only} rate; "
+                                    f"model='zero-range' resolves {more}")
+
     def three_body_rows(self, a, efimov, q, channel="total", x_max=U_MAX ** 2):
-        if channel != "total":
-            raise LossfitValueError("channel", f"model {self.name!r} gives only the total rate; "
-                                    "model='zero-range' resolves 'shallow' and 'deep'")
+        self._check_channel(channel, "total")
         return _threshold_rows_three_body(a, efimov, q)
 
     def atom_dimer_rows(self, a, efimov, q, channel="relaxation", x_max=U_MAX ** 2):
-        if channel != "relaxation":
-            raise LossfitValueError("channel", f"model {self.name!r} gives only relaxation; "
-                                    "model='zero-range' resolves 'breakup' and 'total'")
+        self._check_channel(channel, "relaxation")
         return _threshold_rows_atom_dimer(a, efimov, q)
+
+    _capped = False
+
+    def thermal_three_body(self, a, q, efimov, scale, channel="total"):
+        return self.three_body_plan(a, q, scale, channel=channel).evaluate(efimov)
+
+    def thermal_atom_dimer(self, a, q, efimov, scale, channel="relaxation"):
+        return self.atom_dimer_plan(a, q, scale, channel=channel).evaluate(efimov)
+
+    def three_body_plan(self, a, q, scale, channel="total", eta_min=averages.ETA_MIN):
+        self._check_channel(channel, "total")
+        return _ClosedFormPlan(l3_coefficient_unchecked, np.ravel(a), np.ravel(q), np.ravel(scale), THREE_BODY,
+                               self._capped)
+
+    def atom_dimer_plan(self, a, q, scale, channel="relaxation", eta_min=averages.ETA_MIN):
+        self._check_channel(channel, "relaxation")
+        return _ClosedFormPlan(beta_coefficient_unchecked, np.ravel(a), np.ravel(q), np.ravel(scale), ATOM_DIMER,
+                               self._capped)
 
 
 class CappedModel(ThresholdModel):
@@ -199,6 +320,7 @@ class CappedModel(ThresholdModel):
 
     name = "capped"
     description = "zero-energy law saturated at the J=0 unitarity bound"
+    _capped = True
     three_body_kernel = staticmethod(_capped_three_body)
     three_body_features = staticmethod(_capped_three_body_features)
     atom_dimer_kernel = staticmethod(_capped_atom_dimer)
@@ -316,10 +438,41 @@ class ZeroRangeModel(EnergyModel):
             self._kernel = kernel
         return self._kernel
 
-    def three_body_rows(self, a, efimov, q, channel="total", x_max=U_MAX ** 2):
-        weights = _CHANNEL_WEIGHTS.get(channel)
+    @staticmethod
+    def _channel_weights(table, channel):
+        weights = table.get(channel)
         if weights is None:
-            raise LossfitValueError("channel", f"must be one of {list(_CHANNEL_WEIGHTS)}, got {channel!r}")
+            raise LossfitValueError("channel", f"must be one of {list(table)}, got {channel!r}")
+        return weights
+
+    def _check_three_body_reach(self, q_positive, x_max):
+        # the a > 0 table is not extrapolated: refuse what lies beyond its last point
+        table = self.recombination_table
+        reach = q_positive ** 2 * x_max
+        if np.any(reach > table.energy_max):
+            raise LossfitValueError(
+                "a", f"three-atom energies up to {reach.max():.3g} hbar^2/(m a^2) are needed, beyond "
+                f"the zero-range a > 0 recombination table (E <= {table.energy_max:g} hbar^2/(m a^2), "
+                f"i.e. k_B T up to about {table.energy_max / U_MAX ** 2:.2g} E_b in thermal averages); "
+                "lower a or T, or use model='capped' (an approximation)")
+
+    def _check_atom_dimer_reach(self, kad_at_scale, x_max, breakup):
+        # neither the atom-dimer nor (for breakup) the three-body table is extrapolated
+        table = self.atom_dimer_table
+        reach = kad_at_scale * math.sqrt(x_max)
+        if np.any(reach > table.kad_max):
+            raise LossfitValueError("a", f"k_AD a up to {reach.max():.3g} is needed, beyond the zero-range "
+                                    f"atom-dimer table (k_AD a <= {table.kad_max:g}); lower |a| or T")
+        if breakup:
+            e_reach = 0.75 * reach ** 2 - 1.0
+            e_max = self.recombination_table.energy_max
+            if np.any(e_reach > e_max):
+                raise LossfitValueError(
+                    "a", f"dimer breakup up to three-atom energies {e_reach.max():.3g} hbar^2/(m a^2) is needed, "
+                    f"beyond the zero-range breakup table (<= {e_max:g}); lower a or T")
+
+    def three_body_rows(self, a, efimov, q, channel="total", x_max=U_MAX ** 2):
+        weights = self._channel_weights(_CHANNEL_WEIGHTS, channel)
         a = np.asarray(a, dtype=float).ravel()
         q = np.abs(np.asarray(q, dtype=float)).ravel()
         neg = a < 0
@@ -331,16 +484,8 @@ class ZeroRangeModel(EnergyModel):
             eta[neg] = eta_minus
         if (~neg).any():
             a_plus, eta_plus = efimov.require("a_plus", "eta_plus")
-            table = self.recombination_table
-            # the table is not extrapolated: refuse what lies beyond its last point
-            reach = q[~neg] ** 2 * x_max
-            if np.any(reach > table.energy_max):
-                raise LossfitValueError(
-                    "a", f"three-atom energies up to {reach.max():.3g} hbar^2/(m a^2) are needed, beyond "
-                    f"the zero-range a > 0 recombination table (E <= {table.energy_max:g} hbar^2/(m a^2), "
-                    f"i.e. k_B T up to about {table.energy_max / U_MAX ** 2:.2g} E_b in thermal averages); "
-                    "lower a or T, or use model='capped' (an approximation)")
-            kappa[~neg] = table.kappa_star_a_plus / a_plus
+            self._check_three_body_reach(q[~neg], x_max)
+            kappa[~neg] = self.recombination_table.kappa_star_a_plus / a_plus
             eta[~neg] = eta_plus
         two_phi = 2.0 * (S0 * np.log(kappa * np.abs(a) / math.sqrt(2.0)) - _ARG_GAMMA)
         rows = np.empty((a.size, 9))
@@ -411,10 +556,7 @@ class ZeroRangeModel(EnergyModel):
         return self._ad_kernel
 
     def atom_dimer_rows(self, a, efimov, q, channel="relaxation", x_max=U_MAX ** 2):
-        weights = _ATOM_DIMER_CHANNEL_WEIGHTS.get(channel)
-        if weights is None:
-            raise LossfitValueError("channel", f"must be one of {list(_ATOM_DIMER_CHANNEL_WEIGHTS)}, "
-                                    f"got {channel!r}")
+        weights = self._channel_weights(_ATOM_DIMER_CHANNEL_WEIGHTS, channel)
         a_star, eta = efimov.require("a_star", "eta_star")
         table = self.atom_dimer_table
         kappa = table.kappa_star_a_star / a_star          # 1/a0
@@ -422,19 +564,7 @@ class ZeroRangeModel(EnergyModel):
         # E = 3 hbar^2 k_AD^2 / (4 m) and x = E / E_s with E_s = hbar^2 k_s^2 / m:
         # k_AD a = (2/sqrt 3) q sqrt(x)
         rows[:, 0] = (2.0 / math.sqrt(3.0)) * np.abs(q).ravel()
-        # the table is not extrapolated: refuse what lies beyond its last point
-        reach = rows[:, 0] * math.sqrt(x_max)
-        if np.any(reach > table.kad_max):
-            raise LossfitValueError("a", f"k_AD a up to {reach.max():.3g} is needed, beyond the zero-range "
-                                    f"atom-dimer table (k_AD a <= {table.kad_max:g}); lower |a| or T")
-        if weights[1]:
-            # breakup needs the three-body table (all partial waves), which ends lower
-            e_reach = 0.75 * reach ** 2 - 1.0
-            e_max = self.recombination_table.energy_max
-            if np.any(e_reach > e_max):
-                raise LossfitValueError(
-                    "a", f"dimer breakup up to three-atom energies {e_reach.max():.3g} hbar^2/(m a^2) is needed, "
-                    f"beyond the zero-range breakup table (<= {e_max:g}); lower a or T")
+        self._check_atom_dimer_reach(rows[:, 0], x_max, weights[1])
         two_phi = 2.0 * (S0 * np.log(kappa * np.asarray(a, dtype=float).ravel() / math.sqrt(2.0)) - _ARG_GAMMA)
         rows[:, 1] = np.cos(two_phi)
         rows[:, 2] = np.sin(two_phi)
@@ -442,6 +572,50 @@ class ZeroRangeModel(EnergyModel):
         rows[:, 4] = -math.expm1(-4.0 * eta)
         rows[:, 5], rows[:, 6] = weights
         return rows
+
+
+    # -- fast thermal averages (lossfit.universal.averages) -----------------------------
+    def thermal_three_body(self, a, q, efimov, scale, channel="total"):
+        shallow, deep = self._channel_weights(_CHANNEL_WEIGHTS, channel)
+        a = np.ravel(a)
+        q = np.abs(np.ravel(q))
+        scale = np.ravel(scale)
+        neg = a < 0
+        out = np.empty(a.size)
+        for family, sel in ((averages.NEGATIVE_A, neg), (averages.POSITIVE_A, ~neg)):
+            if not sel.any():
+                continue
+            if family == averages.POSITIVE_A:
+                self._check_three_body_reach(q[sel], U_MAX ** 2)
+            whole = sel.all()
+            out_sel = averages.general_average(family, a if whole else a[sel], q if whole else q[sel], efimov,
+                                               scale if whole else scale[sel], weights=(shallow, deep))
+            if whole:
+                return out_sel
+            out[sel] = out_sel
+        return out
+
+    def thermal_atom_dimer(self, a, q, efimov, scale, channel="relaxation"):
+        weights = self._channel_weights(_ATOM_DIMER_CHANNEL_WEIGHTS, channel)
+        kad = (2.0 / math.sqrt(3.0)) * np.abs(np.ravel(q))
+        self._check_atom_dimer_reach(kad, U_MAX ** 2, weights[1])
+        parts = tuple(p for p in (0, 1) if weights[p])
+        return averages.general_average(averages.ATOM_DIMER_A, np.ravel(a), kad, efimov, np.ravel(scale),
+                                        weights=weights, parts=parts)
+
+    def three_body_plan(self, a, q, scale, channel="total", eta_min=averages.ETA_MIN):
+        shallow, deep = self._channel_weights(_CHANNEL_WEIGHTS, channel)
+        a, q = np.ravel(a), np.abs(np.ravel(q))
+        if (a > 0).any():
+            self._check_three_body_reach(q[a > 0], U_MAX ** 2)
+        return averages.three_body_plan(a, q, np.ravel(scale), shallow=shallow, deep=deep, eta_min=eta_min)
+
+    def atom_dimer_plan(self, a, q, scale, channel="relaxation", eta_min=averages.ETA_MIN):
+        relaxation, breakup = self._channel_weights(_ATOM_DIMER_CHANNEL_WEIGHTS, channel)
+        q = np.abs(np.ravel(q))
+        self._check_atom_dimer_reach((2.0 / math.sqrt(3.0)) * q, U_MAX ** 2, breakup)
+        return averages.atom_dimer_plan(np.ravel(a), q, np.ravel(scale), relaxation=relaxation, breakup=breakup,
+                                        eta_min=eta_min)
 
 
 _MODELS = {}

@@ -1,0 +1,549 @@
+"""Thermal averages of the exact zero-range kernels at table speed.
+
+Every exact kernel is a ratio in w = exp(2 i Phi - 2 eta), where only Phi (through
+kappa* and ln|a|) and eta depend on the Efimov parameters:
+
+    K(E) = (N0 + 2 Re[(N1 + i N2) w] + N3 |w|^2 + (1 - e^{-4 eta}) N4) / |1 + s w|^2
+           (+ an eta-independent part),
+
+with N0..N4 and the reflection amplitude s universal functions of one table variable
+y (ln k|a| for a < 0, ln(E m a^2/hbar^2) for three-body loss at a > 0, ln k_AD a for
+beta) read from the shipped tables (:mod:`lossfit.universal.tables`).
+
+The thermal average over E is a composite Gauss-Legendre rule in y whose panels are
+*the same for every point*: a point at temperature T only shifts the Boltzmann weight
+along y (E/k_BT = exp((y - y_T)/sigma)). The table functions at the nodes are computed
+once per process; a point adds its Boltzmann weights. Hence two paths:
+
+* **fixed data** (:class:`ThermalPlan`): in a fit the (a, T) of every point are fixed,
+  so the weighted numerators of every node are computed once per data set; one
+  evaluation combines them with cos 2Phi, sin 2Phi and eta (a few operations per node);
+* **general** (:func:`general_average`): any points, the same nodes and sums, one
+  exponential per node for the Boltzmann factor.
+
+The panels follow each table's *resolution profile*: near a pole of 1/|1 + s w|^2
+(|s| close to 1, small eta) the integrand varies on the scale
+(1 - |s| e^{-2 eta_min}) / |d ln s / dy|; panels stay within ``_PROFILE_C`` times that
+width for the smallest eta asked for (``eta_min``), have edges at every kink of the
+tables (grid ends, the breakup threshold), and are at most ``_HMAX_Y`` wide so that
+the Boltzmann factor and the table splines are resolved anywhere. Below the point's first
+panel the kernel has reached its threshold limit, and that panel's first node also
+carries the probability of the energies below it. Settings and measured accuracy
+against the adaptive reference quadrature: docs/thermal-averages.md.
+"""
+
+__all__ = ["ThermalPlan", "three_body_plan", "atom_dimer_plan", "general_average", "phase_offset",
+           "ETA_MIN", "NEGATIVE_A", "POSITIVE_A", "ATOM_DIMER_A"]
+
+import functools
+import math
+
+import numba
+import numpy as np
+from scipy.special import loggamma
+
+from ..constants import S0
+from ..errors import LossfitValueError
+from ..thermal import (ATOM_DIMER, GL_ORDER, THREE_BODY, composite_gauss_legendre, panel_edges,
+                       probability_below)
+from .tables import (atom_dimer_grid_points, load_atom_dimer_table, load_recombination_table,
+                     load_s11_table, recombination_grid_points, s11_eval)
+
+#: Smallest eta for which the default rules are built (the default prior's lower edge);
+#: plans for smaller eta get finer rules of their own.
+ETA_MIN = 0.005
+_ARG_GAMMA = float(np.imag(loggamma(1 + 1j * S0)))
+_PROFILE_C = 2.0          # panel width / pole distance
+_PROFILE_DY = 0.01
+UNITARITY_THREE_BODY = 72.0 * math.sqrt(3.0) * math.pi ** 2
+UNITARITY_ATOM_DIMER = 3.0 * math.sqrt(3.0) * math.pi / 4.0
+
+# Kernel families.
+NEGATIVE_A = 0            # K3, a < 0:   y = ln(k|a|) = ln q + s/2        (s11 table)
+POSITIVE_A = 1            # K3, a > 0:   y = ln(E m a^2/hbar^2) = 2 ln q + s (recombination table)
+ATOM_DIMER_A = 2          # beta, a > 0: y = ln(k_AD a) = ln p + s/2       (atom-dimer table)
+_SIGMA = (0.5, 1.0, 0.5)
+# Widest panel in y: resolves the Boltzmann factor exp(-E/k_BT) (at most 1.5 in
+# s = ln(E/k_BT)) and, at a > 0, the coarser spline knots of the three-body table.
+_HMAX_Y = (0.75, 0.5, 0.75)
+# Layout range in y, and the table variable below which each kernel has reached its
+# threshold limit at eta = ETA_MIN (the rule starts there or at E = X_LO k_BT, whichever
+# is lower): 1 - |s11|^2 ~ x^4 and arg s11 ~ x^2 settle fast for a < 0, but
+# T_AD = 8.27 k_AD a near the atom-dimer threshold competes with 4 eta down to
+# k_AD a ~ 1e-5; at a > 0 |s| <= 0.04 above the three-atom threshold.
+_Y_RANGE = ((-32.0, 32.0), (-64.0, None), (-32.0, None))
+_X_LO = (1e-3, 1e-3, 1e-4)
+
+
+def _threshold_y(family, eta_min):
+    """Table variable below which the kernel has settled to its threshold limit for
+    every eta >= eta_min (the variations above scale like x^2 and like k_AD a)."""
+    if family == NEGATIVE_A:
+        return math.log(0.03 * math.sqrt(eta_min / ETA_MIN))
+    if family == POSITIVE_A:
+        return math.log(1e-3)
+    return math.log(1e-5 * eta_min / ETA_MIN)
+# s above which the Boltzmann weights hold less than 1e-10 (three-body) and 1e-12 (beta)
+# of the probability; the kernels do not grow with E there
+_Y_UPPER_S = math.log(32.0)
+
+# Term columns of each family (table functions at the nodes, Efimov-independent).
+# a < 0:        t, Re s11, Im s11, |s11|^2                       -> N4 = t / x^2
+# a > 0:        A, Re B, Im B, C, T_break, H, Re s, Im s, |s|^2  (all over E^2)
+# relaxation:   T_AD, Re s_AD, Im s_AD, |s_AD|^2                 -> N4 = T_AD / sqrt(x)
+# breakup:      E^2 x (A, Re B, Im B, C, H), Re s, Im s, |s|^2   (three-atom energy E)
+
+
+def _layout_terms(family, part, y):
+    """Table functions at the nodes ``y``, shape (n_columns, n_nodes)."""
+    if family == NEGATIVE_A:
+        tab = load_s11_table()
+        s = tab.s11(np.exp(y))
+        t = np.array([s11_eval(tab.packed, v)[0] for v in np.exp(y)])
+        return np.array([t, s.real, s.imag, np.maximum(1.0 - t, 0.0)])
+    if family == POSITIVE_A:
+        v = load_recombination_table().evaluate(np.exp(y))
+        re, im = v[:, 0], v[:, 1]
+        return np.array([v[:, 2], v[:, 3], v[:, 4], v[:, 5], v[:, 6], v[:, 7], re, im, re * re + im * im])
+    if part == 0:
+        t_ad, s = load_atom_dimer_table().evaluate(np.exp(y))
+        return np.array([t_ad, s.real, s.imag, np.abs(s) ** 2])
+    energy = 0.75 * np.exp(2.0 * y) - 1.0
+    above = energy > 0.0
+    out = np.zeros((8, y.size))
+    v = load_recombination_table().evaluate(energy[above])
+    e2 = energy[above] ** 2
+    for i, col in enumerate((2, 3, 4, 5, 7)):
+        out[i, above] = e2 * v[:, col]
+    out[5, above] = v[:, 0]
+    out[6, above] = v[:, 1]
+    out[7, above] = v[:, 0] ** 2 + v[:, 1] ** 2
+    return out
+
+
+class _Layout:
+    """The global rule of one kernel family: panels, nodes, weights and terms."""
+
+    def __init__(self, family, part, eta_min):
+        sigma = _SIGMA[family]
+        y0, y1 = _Y_RANGE[family]
+        y_grid, width, kinks, y_end = _profile(family, part, eta_min)
+        if y1 is None:
+            y1 = y_end
+        hmax = _HMAX_Y[family]
+        ylo, dy = y_grid[0], y_grid[1] - y_grid[0]
+
+        def allowed(a, b):
+            # the largest acceptable width on [a, b]: the profile's minimum there, hmax off it
+            i = int(max((a - ylo) / dy, 0.0))
+            j = int(min((b - ylo) / dy + 1.0, width.size))
+            if j <= 0 or i >= width.size:
+                return hmax
+            return min(hmax, float(width[i:max(j, i + 1)].min()))
+        self.edges = panel_edges(y0, y1, allowed, kinks)
+        self.y, self.omega = composite_gauss_legendre(self.edges)
+        self.sigma = sigma
+        self.terms = np.ascontiguousarray(_layout_terms(family, part, self.y))
+        # exp(y/sigma) at the nodes: x = E/k_BT = ex * exp(-y_T/sigma), one product per node
+        self.ex = np.exp(self.y / sigma)
+        self.y_threshold = _threshold_y(family, eta_min)
+
+
+@functools.lru_cache(maxsize=16)
+def _layout(family, part, eta_min):
+    return _Layout(family, part, eta_min)
+
+
+def _width_from_amplitude(y, log_modulus, phase, eta_min):
+    """Panel widths in y from the distance of the pole of 1/|1 + s w|^2 to the real axis."""
+    dy = y[1] - y[0]
+    dlog = np.hypot(np.gradient(log_modulus, dy), np.gradient(np.unwrap(phase), dy))
+    eps = 1.0 - np.exp(log_modulus) * math.exp(-2.0 * eta_min)
+    return _PROFILE_C * eps / np.maximum(dlog, 1e-12)
+
+
+def _profile(family, part, eta_min):
+    """(grid in y, widths on it, kinks, end of the table) of one kernel family."""
+    if family == NEGATIVE_A:
+        tab = load_s11_table()
+        lo, hi = math.log(tab.x[0]), math.log(tab.x[-1])
+        y = np.arange(lo - 1.0, hi + 1.0, _PROFILE_DY)
+        s = tab.s11(np.exp(y))
+        return y, _width_from_amplitude(y, np.log(np.abs(s)), np.angle(s), eta_min), [lo, hi], None
+    if family == POSITIVE_A:
+        e_lo, e_hi = recombination_grid_points(load_recombination_table().packed)
+        lo, hi = math.log(e_lo), math.log(e_hi)
+        y = np.arange(lo - 1.0, hi, _PROFILE_DY)
+        v = load_recombination_table().evaluate(np.exp(y))
+        s = v[:, 0] + 1j * v[:, 1]
+        width = _width_from_amplitude(y, np.log(np.maximum(np.abs(s), 1e-300)), np.angle(s), eta_min)
+        return y, width, [lo, hi], hi
+    tab = load_atom_dimer_table()
+    first, breakup, last = atom_dimer_grid_points(tab.packed)
+    y = np.arange(_threshold_y(ATOM_DIMER_A, eta_min) - 2.0, math.log(last), _PROFILE_DY)
+    _, s = tab.evaluate(np.exp(y))
+    width = _width_from_amplitude(y, np.log(np.abs(s)), np.angle(s), eta_min)
+    kinks = [math.log(first), math.log(breakup)]
+    end = math.log(last)
+    if part == 1:
+        e_lo, e_hi = recombination_grid_points(load_recombination_table().packed)
+        kinks += [0.5 * math.log(4.0 * (e + 1.0) / 3.0) for e in (e_lo, e_hi)]
+        end = min(end, 0.5 * math.log(4.0 * (e_hi + 1.0) / 3.0))
+        # far below the breakup threshold (E_b = x_b k_BT, x_b >> 1) the breakup integrand
+        # lives within ~1/x_b of it in ln E: panels graded geometrically away from the kink
+        above = y > math.log(breakup)
+        width[above] = np.minimum(width[above], np.maximum(0.005, 0.5 * (y[above] - math.log(breakup))))
+    return y, width, kinks, end
+
+
+# ---- per-point weights ------------------------------------------------------------------------
+@numba.njit(cache=True)
+def _point_range(edges, y_lo, y_hi):
+    """Indices [first, stop) of the nodes of the panels that overlap [y_lo, y_hi], and the
+    lower edge of the first such panel."""
+    n_pan = edges.size - 1
+    i = np.searchsorted(edges, y_lo, side="right") - 1
+    if i < 0:
+        i = 0
+    j = np.searchsorted(edges, y_hi, side="left")
+    if j > n_pan:
+        j = n_pan
+    if j <= i:
+        j = i + 1
+    return i * GL_ORDER, j * GL_ORDER, edges[i]
+
+
+@numba.njit(cache=True)
+def _weights(family, ex, omega, sigma, first, stop, edge, y_off, scale, out):
+    """Boltzmann weight x P(x) ds/dy of every node in [first, stop), times the power of x
+    that turns the table terms into the kernel (1/x^2 for K3 at a < 0, 1 at a > 0,
+    1/sqrt(x) for beta) and ``scale``; the probability below ``edge`` is added to the
+    first node (the kernel has reached its threshold limit there)."""
+    shift = math.exp(-y_off / sigma)
+    f = scale / sigma
+    # three loops rather than one branch per node: this is the general path's hot loop
+    if family == NEGATIVE_A:
+        for k in range(first, stop):
+            x = ex[k] * shift
+            out[k - first] = f * omega[k] * 0.5 * x * math.exp(-x)                  # x (x^2 e^-x/2) / x^2
+    elif family == POSITIVE_A:
+        for k in range(first, stop):
+            x = ex[k] * shift
+            out[k - first] = f * omega[k] * 0.5 * x * x * x * math.exp(-x)
+    else:
+        for k in range(first, stop):
+            x = ex[k] * shift
+            out[k - first] = f * omega[k] * 1.1283791670955126 * x * math.exp(-x)  # x (2/sqrt pi) sqrt(x) e^-x / sqrt(x)
+    x0 = ex[first] * shift
+    weight = ATOM_DIMER if family == ATOM_DIMER_A else THREE_BODY
+    tail = probability_below(weight, math.exp((edge - y_off) / sigma))
+    if family == NEGATIVE_A:
+        tail /= x0 * x0
+    elif family == ATOM_DIMER_A:
+        tail /= math.sqrt(x0)
+    out[0] += scale * tail
+
+
+# ---- sums: combine the terms with the Efimov phase and eta ------------------------------------
+# The loops run over slices from 0 so that numba can drop its negative-index checks
+# (measured: 1.6 instead of 2.3 ns per node).
+@numba.njit(cache=True, fastmath={"reassoc", "contract"})
+def _sum_single(wt, t, d1, d2, d3, first, stop, a1, a2, a3):
+    # sum_k wt t / (1 + a1 d1 + a2 d2 + a3 d3); wt is indexed from 0 at ``first``
+    n = stop - first
+    w = wt[:n]
+    tt, e1, e2, e3 = t[first:stop], d1[first:stop], d2[first:stop], d3[first:stop]
+    acc = 0.0
+    for j in range(n):
+        acc += w[j] * tt[j] / (1.0 + a1 * e1[j] + a2 * e2[j] + a3 * e3[j])
+    return acc
+
+
+@numba.njit(cache=True, fastmath={"reassoc", "contract"})
+def _sum_ratio(wt, c0, c1, c2, c3, c4, d1, d2, d3, first, stop, a1, a2, a3, b4):
+    # sum_k wt (c0 + a1 c1 + a2 c2 + a3 c3 + b4 c4) / (1 + a1 d1 + a2 d2 + a3 d3)
+    n = stop - first
+    w = wt[:n]
+    f0, f1, f2, f3, f4 = c0[first:stop], c1[first:stop], c2[first:stop], c3[first:stop], c4[first:stop]
+    e1, e2, e3 = d1[first:stop], d2[first:stop], d3[first:stop]
+    acc = 0.0
+    for j in range(n):
+        top = f0[j] + a1 * f1[j] + a2 * f2[j] + a3 * f3[j] + b4 * f4[j]
+        acc += w[j] * top / (1.0 + a1 * e1[j] + a2 * e2[j] + a3 * e3[j])
+    return acc
+
+
+@numba.njit(cache=True)
+def _dot(wt, col, first, stop):
+    n = stop - first
+    w = wt[:n]
+    c = col[first:stop]
+    acc = 0.0
+    for j in range(n):
+        acc += w[j] * c[j]
+    return acc
+
+
+@numba.njit(cache=True)
+def _point_value(family, part, terms, wt, first, stop, cos2phi, sin2phi, e2, g, w_a, w_b):
+    """One point's average from its node weights ``wt``; (w_a, w_b) are the channel
+    weights (shallow, deep) at a > 0 and (relaxation, breakup) for beta."""
+    a1 = 2.0 * e2 * cos2phi
+    a2 = -2.0 * e2 * sin2phi
+    a3 = e2 * e2
+    if family == NEGATIVE_A:
+        # all into deep dimers: the deep-channel weight w_b
+        return UNITARITY_THREE_BODY * w_b * g * _sum_single(wt, terms[0], terms[1], terms[2], terms[3], first, stop,
+                                                      a1, a2, a3)
+    if family == POSITIVE_A:
+        # shallow (A + 2 Re(B w) + C |w|^2)/den + H, deep T_break (1 - e^{-4 eta})/den
+        if w_a == 0.0:
+            return UNITARITY_THREE_BODY * w_b * g * _sum_single(wt, terms[4], terms[6], terms[7], terms[8], first,
+                                                                stop, a1, a2, a3)
+        ratio = _sum_ratio(wt, terms[0], terms[1], terms[2], terms[3], terms[4], terms[6], terms[7], terms[8],
+                           first, stop, a1, a2, a3, w_b * g / w_a)
+        return UNITARITY_THREE_BODY * w_a * (ratio + _dot(wt, terms[5], first, stop))
+    if part == 0:
+        return UNITARITY_ATOM_DIMER * w_a * g * _sum_single(wt, terms[0], terms[1], terms[2], terms[3], first,
+                                                            stop, a1, a2, a3)
+    ratio = _sum_ratio(wt, terms[0], terms[1], terms[2], terms[3], terms[0], terms[5], terms[6], terms[7],
+                       first, stop, a1, a2, a3, 0.0)
+    return UNITARITY_ATOM_DIMER * w_b * (ratio + _dot(wt, terms[4], first, stop))
+
+
+@numba.njit(cache=True)
+def _general(family, part, edges, ex, omega, sigma, terms, y_off, y_lo, y_hi, scale, cos2phi, sin2phi, e2, g,
+             w_a, w_b, out):
+    """The general path: every point through the global rule, nothing kept."""
+    wt = np.empty(ex.size)
+    for p in range(y_off.size):
+        first, stop, edge = _point_range(edges, y_lo[p], y_hi[p])
+        _weights(family, ex, omega, sigma, first, stop, edge, y_off[p], scale[p], wt)
+        out[p] += _point_value(family, part, terms, wt, first, stop, cos2phi[p], sin2phi[p], e2, g, w_a, w_b)
+
+
+@numba.njit(cache=True)
+def _plan_weights(family, edges, ex, omega, sigma, y_off, y_lo, y_hi, scale):
+    m = y_off.size
+    first = np.empty(m, dtype=np.int64)
+    stop = np.empty(m, dtype=np.int64)
+    offset = np.empty(m + 1, dtype=np.int64)
+    offset[0] = 0
+    edge = np.empty(m)
+    for p in range(m):
+        first[p], stop[p], edge[p] = _point_range(edges, y_lo[p], y_hi[p])
+        offset[p + 1] = offset[p] + stop[p] - first[p]
+    wt = np.empty(offset[m])
+    for p in range(m):
+        _weights(family, ex, omega, sigma, first[p], stop[p], edge[p], y_off[p], scale[p],
+                 wt[offset[p]:offset[p + 1]])
+    return wt, first, stop, offset
+
+
+@numba.njit(cache=True)
+def _plan_evaluate(family, part, terms, wt, first, stop, offset, cos_t, sin_t, cos_off, sin_off, e2, g, w_a,
+                   w_b, out):
+    # 2 Phi_p = theta_p + offset: rotate the stored (cos, sin) of theta_p = 2 s0 ln|a_p|
+    for p in range(first.size):
+        c = cos_t[p] * cos_off - sin_t[p] * sin_off
+        s = sin_t[p] * cos_off + cos_t[p] * sin_off
+        out[p] += _point_value(family, part, terms, wt[offset[p]:offset[p + 1]], first[p], stop[p], c, s, e2, g,
+                               w_a, w_b)
+
+
+# ---- the Efimov-dependent scalars --------------------------------------------------------------
+def phase_offset(kappa_times_feature, feature):
+    """2 Phi - 2 s0 ln|a| = 2 s0 ln(kappa*/sqrt 2) - 2 arg Gamma(1 + i s0), kappa* = the
+    table's kappa* x feature over the feature position (a0)."""
+    return 2.0 * (S0 * math.log(kappa_times_feature / feature / math.sqrt(2.0)) - _ARG_GAMMA)
+
+
+def _feature(family):
+    """(feature name, eta name, kappa* x feature): kappa* comes from a_- for a < 0, a_+ for
+    three-body loss at a > 0 and a* for atom-dimer loss."""
+    if family == NEGATIVE_A:
+        return "a_minus", "eta_minus", load_s11_table().kappa_star_a_minus
+    if family == POSITIVE_A:
+        return "a_plus", "eta_plus", load_recombination_table().kappa_star_a_plus
+    return "a_star", "eta_star", load_atom_dimer_table().kappa_star_a_star
+
+
+def _ranges(family, part, scale_q, layout):
+    """(y_T, y_lo, y_hi) per point: the table variable at E = k_BT and the rule's span."""
+    sigma = _SIGMA[family]
+    y_off = (2.0 if family == POSITIVE_A else 1.0) * np.log(scale_q)
+    y_lo = y_off + sigma * np.minimum(math.log(_X_LO[family]), (layout.y_threshold - y_off) / sigma)
+    y_hi = y_off + sigma * _Y_UPPER_S
+    if part == 1:
+        # breakup starts at E_b = x_b k_BT: reach as far above it as above E = 0
+        x_b = np.exp((math.log(2.0 / math.sqrt(3.0)) - y_off) / sigma)
+        y_hi = y_off + sigma * np.log(x_b + math.exp(_Y_UPPER_S))
+    if np.any(y_lo < layout.edges[0]):
+        raise LossfitValueError("temperature", "k_B T a^2 is too small for the fast thermal rule "
+                                "(below its range); use rtol= for the adaptive quadrature")
+    if np.any(y_hi > layout.edges[-1] + 1e-9):
+        raise LossfitValueError("a", "the thermal average reaches beyond the end of the zero-range table; "
+                                "lower a or T")
+    return y_off, y_lo, y_hi
+
+
+def _family_scale(family, scale_q, scale):
+    # the a > 0 table holds K3 x^2 / q^4 (its columns are over (E m a^2/hbar^2)^2)
+    scale = np.asarray(scale, dtype=float)
+    return scale * scale_q ** 4 if family == POSITIVE_A else scale
+
+
+def _efimov_scalars(family, efimov, eta_min):
+    feature, eta_name, kappa = _feature(family)
+    a_f, eta = efimov.require(feature, eta_name)
+    if eta < eta_min:
+        raise LossfitValueError(eta_name, f"{eta:g} is below eta_min={eta_min:g}, the smallest eta this "
+                                "fast rule resolves; build a plan with a smaller eta_min or use rtol=")
+    return phase_offset(kappa, a_f), math.exp(-2.0 * eta), -math.expm1(-4.0 * eta)
+
+
+def general_average(family, a, scale_q, efimov, scale, weights=(1.0, 0.0), parts=(0,)):
+    """Exact thermal averages at arbitrary points (the general path).
+
+    Parameters
+    ----------
+    family : int
+        :data:`NEGATIVE_A`, :data:`POSITIVE_A` or :data:`ATOM_DIMER_A`.
+    a : ndarray
+        Scattering lengths in a0, 1-D, all of the family's sign.
+    scale_q : ndarray
+        k_T |a| (three-body) or k_AD a at E = k_BT (atom-dimer), k_T = sqrt(m k_BT)/hbar.
+    efimov : Efimov
+    scale : ndarray
+        Factor per point on the natural-unit result (hbar^5/(m^3 (k_BT)^2) for K3,
+        hbar/(m k_T) for beta).
+    weights : (float, float)
+        Channel weights: (shallow, deep) at a > 0, (relaxation, breakup) for beta.
+    parts : tuple of int
+        For beta, the parts to add: 0 relaxation, 1 breakup.
+
+    Returns
+    -------
+    ndarray
+    """
+    eta = efimov.require(_feature(family)[1])[0]
+    # below the default range, rules of their own (finer where the tables need it)
+    eta_min = ETA_MIN if eta >= ETA_MIN else _check_eta_min(eta)
+    off, e2, g = _efimov_scalars(family, efimov, eta_min)
+    scale = _family_scale(family, scale_q, scale)
+    two_phi = 2.0 * S0 * np.log(np.abs(a)) + off
+    cos2, sin2 = np.cos(two_phi), np.sin(two_phi)
+    out = np.zeros(a.size)
+    for part in parts:
+        lay = _layout(family, part, eta_min)
+        y_off, y_lo, y_hi = _ranges(family, part, scale_q, lay)
+        _general(family, part, lay.edges, lay.ex, lay.omega, lay.sigma, lay.terms, y_off, y_lo, y_hi,
+                 scale, cos2, sin2, e2, g, float(weights[0]), float(weights[1]), out)
+    return out
+
+
+class ThermalPlan:
+    """The Efimov-independent part of exact thermal averages at fixed points.
+
+    Built once per data set by :func:`three_body_plan` / :func:`atom_dimer_plan`;
+    :meth:`evaluate` then costs a few operations per quadrature node.
+
+    Attributes
+    ----------
+    n_points : int
+    n_nodes : int
+        Quadrature nodes over all points (the cost of one evaluation).
+    eta_min : float
+        Smallest eta for which the plan keeps its accuracy.
+    """
+
+    def __init__(self, n_points, groups, eta_min):
+        self.n_points = n_points
+        self.groups = groups
+        self.eta_min = eta_min
+        self.n_nodes = sum(int(g["offset"][-1]) for g in groups)
+
+    def evaluate(self, efimov, out=None):
+        """Averages at every point, in the units set by the builder's ``scale``.
+
+        Parameters
+        ----------
+        efimov : Efimov
+            Needs the feature and eta of every side present (a_- and eta_- for a < 0, ...).
+        out : ndarray, optional
+            Filled in place and returned.
+        """
+        out = np.empty(self.n_points) if out is None else out
+        out[:] = 0.0
+        for grp in self.groups:
+            off, e2, g = _efimov_scalars(grp["family"], efimov, self.eta_min)
+            target = out if grp["index"] is None else grp["buffer"]
+            if grp["index"] is not None:
+                target[:] = 0.0
+            lay = grp["layout"]
+            _plan_evaluate(grp["family"], grp["part"], lay.terms, grp["wt"], grp["first"], grp["stop"],
+                           grp["offset"], grp["cos"], grp["sin"], math.cos(off), math.sin(off), e2, g,
+                           grp["w_a"], grp["w_b"], target)
+            if grp["index"] is not None:
+                out[grp["index"]] += target
+        return out
+
+
+def _group(family, part, a, scale_q, scale, weights, eta_min, index):
+    lay = _layout(family, part, eta_min)
+    y_off, y_lo, y_hi = _ranges(family, part, scale_q, lay)
+    wt, first, stop, offset = _plan_weights(family, lay.edges, lay.ex, lay.omega, lay.sigma, y_off, y_lo, y_hi,
+                                            _family_scale(family, scale_q, scale))
+    theta = 2.0 * S0 * np.log(np.abs(a))
+    return {"family": family, "part": part, "layout": lay, "wt": wt, "first": first, "stop": stop,
+            "offset": offset, "cos": np.cos(theta), "sin": np.sin(theta), "w_a": float(weights[0]),
+            "w_b": float(weights[1]), "index": index, "buffer": np.empty(a.size)}
+
+
+def _check_eta_min(eta_min):
+    if not (isinstance(eta_min, (int, float)) and not isinstance(eta_min, bool) and 0 < eta_min <= ETA_MIN):
+        raise LossfitValueError("eta_min", f"must be a number in (0, {ETA_MIN:g}], got {eta_min!r}")
+    # rules are cached per eta_min: snap to a few values so that plans share them
+    return ETA_MIN * 2.0 ** math.floor(math.log2(eta_min / ETA_MIN))
+
+
+def three_body_plan(a, q, scale, *, shallow=1.0, deep=1.0, eta_min=ETA_MIN):
+    """Fixed-data plan of the exact thermal K3 average at points (a, T).
+
+    Parameters
+    ----------
+    a : ndarray
+        Scattering lengths in a0 (non-zero, validated), 1-D, either sign.
+    q : ndarray
+        k_T |a| with k_T = sqrt(m k_B T)/hbar, same shape.
+    scale : ndarray
+        Factor per point on the natural-unit average hbar^5/(m^3 (k_BT)^2) (e.g. the
+        conversion to cm^6/s).
+    shallow, deep : float
+        Channel weights at a > 0 (a < 0 recombines into deep dimers only).
+    eta_min : float
+        Smallest eta the plan must resolve (default :data:`ETA_MIN`).
+
+    Returns
+    -------
+    ThermalPlan
+    """
+    eta_min = _check_eta_min(eta_min)
+    groups = []
+    neg = a < 0
+    for family, sel in ((NEGATIVE_A, neg), (POSITIVE_A, ~neg)):
+        if sel.any():
+            index = None if sel.all() else np.flatnonzero(sel)
+            groups.append(_group(family, 0, a[sel], np.abs(q[sel]), scale[sel], (shallow, deep), eta_min, index))
+    return ThermalPlan(a.size, groups, eta_min)
+
+
+def atom_dimer_plan(a, q, scale, *, relaxation=1.0, breakup=0.0, eta_min=ETA_MIN):
+    """Fixed-data plan of the exact thermal beta average (a > 0); ``q`` and ``scale`` as
+    for :func:`three_body_plan` (scale on hbar/(m k_T)), with the channel weights
+    ``relaxation`` and ``breakup``."""
+    eta_min = _check_eta_min(eta_min)
+    p0 = (2.0 / math.sqrt(3.0)) * np.abs(q)          # k_AD a at E = k_BT
+    groups = [_group(ATOM_DIMER_A, part, a, p0, scale, (relaxation, breakup), eta_min, None)
+              for part, on in ((0, relaxation), (1, breakup)) if on]
+    return ThermalPlan(a.size, groups, eta_min)
