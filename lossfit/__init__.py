@@ -7,18 +7,13 @@ trap frequencies in Hz.
 
 __version__ = "0.1.0"
 
+import importlib
+
 from . import errors
 from .constants import S0, SCALING_FACTOR
 from .errors import LossfitError, LossfitValueError
-from .curvefit import fit_curve, spectrum_from_curves
-from .curves import DecayCurve, read_campaign, read_curves_csv, write_campaign
-from .data import LossSpectrum, read_csv, read_spectra, write_spectra
-from .decay import TabulatedRate, simulate_decay
-from .feshbach import (FeshbachResonance, OverlappingResonances, ScatteringLengthTable,
-                       average_over_field_noise, calibrate_from_binding_energies)
 from .rates import beta, beta_energy, k3, l3
 from .species import Species, known_species, register_species, species
-from .trap import HarmonicTrap
 from .universal.models import EnergyModel, available_models, register_model
 from .universal.threshold import Efimov, beta_threshold, convert_l3, l3_threshold
 
@@ -34,14 +29,29 @@ __all__ = ["__version__", "errors", "S0", "SCALING_FACTOR", "LossfitError", "Los
            "calibrate_from_binding_energies", "DecayCurve", "write_campaign", "read_campaign",
            "read_curves_csv", "fit_curve", "spectrum_from_curves"]
 
-# The inference layer imports emcee and scipy.stats (about a second); load it on first use
-# so that computing rates starts fast.
+# Everything beyond the rates (data files and h5py, decay curves and scipy.optimize,
+# the inference layer with emcee: together more than a second) loads on first use, so
+# that computing rates starts fast.
 _LAZY = {name: "lossfit.inference" for name in
          ("fit", "FitResult", "LogUniform", "Uniform", "LogNormal", "Normal")}
+_LAZY.update({name: "lossfit.curvefit" for name in ("fit_curve", "spectrum_from_curves")})
+_LAZY.update({name: "lossfit.curves" for name in ("DecayCurve", "read_campaign", "read_curves_csv",
+                                                  "write_campaign")})
+_LAZY.update({name: "lossfit.data" for name in ("LossSpectrum", "read_csv", "read_spectra", "write_spectra")})
+_LAZY.update({name: "lossfit.decay" for name in ("TabulatedRate", "simulate_decay")})
+_LAZY.update({name: "lossfit.feshbach" for name in ("FeshbachResonance", "OverlappingResonances",
+                                                    "ScatteringLengthTable", "average_over_field_noise",
+                                                    "calibrate_from_binding_energies")})
+_LAZY["HarmonicTrap"] = "lossfit.trap"
 
 
 def __getattr__(name):
     if name in _LAZY:
-        import importlib
-        return getattr(importlib.import_module(_LAZY[name]), name)
+        value = getattr(importlib.import_module(_LAZY[name]), name)
+        globals()[name] = value          # later lookups skip this function
+        return value
     raise AttributeError(f"module 'lossfit' has no attribute {name!r}")
+
+
+def __dir__():
+    return sorted(set(globals()) | set(_LAZY))

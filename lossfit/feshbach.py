@@ -27,7 +27,6 @@ import warnings
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.constants import kilo as _KILO
 from scipy.interpolate import PchipInterpolator
 from scipy.optimize import brentq, least_squares
 
@@ -478,7 +477,7 @@ def average_over_field_noise(func_of_B, B, sigma_B, *, n_nodes=40):
 
 def _binding_prefactor_khz(sp):
     """hbar^2 / (m a0^2) / h in kHz, so that E_b / h = prefactor / ((a - abar)/a0)^2."""
-    return HBAR / (2.0 * math.pi * sp.mass * A0 ** 2) / _KILO
+    return HBAR / (2.0 * math.pi * sp.mass * A0 ** 2) / 1e3     # Hz -> kHz
 
 
 def binding_energy_khz(a, species):

@@ -7,6 +7,7 @@ import os
 import numpy as np
 
 from .errors import LossfitValueError
+from .inference.likelihood import RateBlock
 from .inference.parameters import UNITS
 
 _LABELS = {"a_minus": r"$a_-$", "a_star": r"$a_*$", "a_plus": r"$a_+$", "eta_minus": r"$\eta_-$",
@@ -64,18 +65,13 @@ def posterior_bands(result, a, temperature, kind, *, draws=200, seed=0):
     -------
     dict with keys "median", "lo68", "hi68", "lo95", "hi95" (arrays, cm^6/s or cm^3/s)
     """
-    from . import rates
     if kind not in ("l3", "beta"):
         raise LossfitValueError("kind", f"must be 'l3' or 'beta', got {kind!r}")
-    a = np.asarray(a, dtype=float)
-    func, power = (rates.l3, 2.0) if kind == "l3" else (rates.beta, 1.0)
-    import warnings
-    curves = []
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        for ef, scale in result.draws(draws, seed=seed):
-            curves.append(func(a, temperature, species=result.species, efimov=ef,
-                               model=result.model, rtol=1e-7) / scale ** power)
+    a = np.asarray(a, dtype=float).ravel()
+    # the curve's points are fixed: prepare them once, then one pass per draw
+    block = RateBlock(kind, a, np.full(a.size, float(temperature)), result.species, result.model,
+                      eta_min=result.space.eta_floor())
+    curves = [block.predict(ef) / scale ** block.density_power for ef, scale in result.draws(draws, seed=seed)]
     q = np.percentile(np.array(curves), [2.5, 16, 50, 84, 97.5], axis=0)
     return dict(zip(("lo95", "lo68", "median", "hi68", "hi95"), q))
 

@@ -16,7 +16,7 @@ import numpy as np
 from .constants import HBAR
 from .errors import LossfitValueError, ValidityWarning, check_nonzero, check_positive, is_real
 from .species import species as _species
-from .thermal import ATOM_DIMER, KERNEL_SIGNATURE, THREE_BODY, U_MAX, thermal_average
+from .thermal import ATOM_DIMER, KERNEL_SIGNATURE, THREE_BODY, U_MAX, LazyCompiled, compiled, thermal_average
 from .units import A0, CM3_PER_S, CM6_PER_S, NK
 from .universal.models import DEFAULT_MODEL, get_model, scale_wavenumber_a0
 from .universal.threshold import Efimov
@@ -25,11 +25,14 @@ from .universal.threshold import Efimov
 MIN_ABS_A_OVER_RVDW = 5.0
 
 
-@numba.njit(numba.types.void(numba.types.FunctionType(KERNEL_SIGNATURE), numba.types.float64[:, ::1],
-                             numba.types.float64, numba.types.float64[::1]), cache=True)
-def _evaluate_rows(kernel, params, x, out):
+def _evaluate_rows_py(kernel, params, x, out):
     for i in range(params.shape[0]):
         out[i] = kernel(x, params[i])
+
+
+_evaluate_rows = LazyCompiled(_evaluate_rows_py, numba.types.void(
+    numba.types.FunctionType(KERNEL_SIGNATURE), numba.types.float64[:, ::1], numba.types.float64,
+    numba.types.float64[::1]))
 
 
 def _prepare(a, scale_nk, species, efimov, model, scale_name, process, stacklevel):
@@ -120,7 +123,7 @@ def k3(a, energy, *, species, efimov, model=None, channel="total"):
     mdl, params, unit, shape = three_body_rows(a, energy, species, efimov, model, scale_name="energy",
                                                channel=channel)
     out = np.empty(params.shape[0])
-    _evaluate_rows(mdl.three_body_kernel, params, 1.0, out)
+    _evaluate_rows(compiled(mdl.three_body_kernel), params, 1.0, out)
     return _finish(out * unit, shape)
 
 
@@ -148,7 +151,7 @@ def beta_energy(a, energy, *, species, efimov, model=None, channel="relaxation")
     mdl, params, unit, shape = atom_dimer_rows(a, energy, species, efimov, model, scale_name="energy",
                                                channel=channel)
     out = np.empty(params.shape[0])
-    _evaluate_rows(mdl.atom_dimer_kernel, params, 1.0, out)
+    _evaluate_rows(compiled(mdl.atom_dimer_kernel), params, 1.0, out)
     return _finish(out * unit, shape)
 
 

@@ -33,7 +33,7 @@ compiled with the signatures :data:`KERNEL_SIGNATURE` and :data:`FEATURES_SIGNAT
 (decorators :func:`rate_kernel` and :func:`feature_points`).
 """
 
-__all__ = ["THREE_BODY", "ATOM_DIMER", "U_MAX", "thermal_average", "averager", "rate_kernel",
+__all__ = ["THREE_BODY", "ATOM_DIMER", "U_MAX", "thermal_average", "rate_kernel", "LazyCompiled", "compiled",
            "feature_points", "KERNEL_SIGNATURE", "FEATURES_SIGNATURE", "boltzmann_weight",
            "probability_below", "panel_edges", "composite_gauss_legendre", "GL_ORDER"]
 
@@ -92,15 +92,44 @@ _KERNEL_TYPE = numba.types.FunctionType(KERNEL_SIGNATURE)
 _FEATURES_TYPE = numba.types.FunctionType(FEATURES_SIGNATURE)
 
 
+class LazyCompiled:
+    """A numba function of a fixed signature, compiled (or loaded from the disk cache)
+    on first use rather than at import: start-up pays only for what a session uses.
+
+    Calling it calls the compiled function; :attr:`compiled` is the numba dispatcher
+    (what the engine takes as a first-class function).
+    """
+
+    def __init__(self, func, signature):
+        self.py_func = func
+        self.signature = signature
+        self._compiled = None
+        self.__doc__ = func.__doc__
+
+    @property
+    def compiled(self):
+        if self._compiled is None:
+            self._compiled = numba.njit(self.signature, cache=True)(self.py_func)
+        return self._compiled
+
+    def __call__(self, *args):
+        return self.compiled(*args)
+
+
+def compiled(func):
+    """The numba dispatcher behind ``func`` (a :class:`LazyCompiled` or a dispatcher)."""
+    return func.compiled if isinstance(func, LazyCompiled) else func
+
+
 def rate_kernel(func):
-    """Decorator: compile ``func(x, p) -> float`` as a kernel for the thermal engine."""
-    return numba.njit(KERNEL_SIGNATURE, cache=True)(func)
+    """Decorator: ``func(x, p) -> float`` as a kernel for the thermal engine (compiled on first use)."""
+    return LazyCompiled(func, KERNEL_SIGNATURE)
 
 
 def feature_points(func):
-    """Decorator: compile ``func(p, out) -> int`` (feature energies in units of the
-    energy scale, written to ``out``) for the thermal engine."""
-    return numba.njit(FEATURES_SIGNATURE, cache=True)(func)
+    """Decorator: ``func(p, out) -> int`` (feature energies in units of the energy scale,
+    written to ``out``) for the thermal engine (compiled on first use)."""
+    return LazyCompiled(func, FEATURES_SIGNATURE)
 
 
 @numba.njit(cache=True)
@@ -159,8 +188,10 @@ def _base_panel_tables():
         a, b = _BASE_EDGES[i], _BASE_EDGES[i + 1]
         u = 0.5 * (a + b) + 0.5 * (b - a) * _NODES15
         x[i] = u * u
-        for w in (THREE_BODY, ATOM_DIMER):
-            bw[w, i] = np.array([boltzmann_weight(v, w) for v in u])
+        # boltzmann_weight in numpy (calling the numba function here would load its
+        # compiled code at import time)
+        bw[THREE_BODY, i] = u ** 5 * np.exp(-u * u)
+        bw[ATOM_DIMER, i] = 4.0 / _SQRT_PI * u * u * np.exp(-u * u)
     return x, bw
 
 
@@ -281,10 +312,7 @@ def _average_one(kernel, features, p, weight, rtol, edges, feat, lo, hi, val, er
     return total, total_err
 
 
-@numba.njit(numba.types.void(_KERNEL_TYPE, _FEATURES_TYPE, numba.types.float64[:, ::1],
-                             numba.types.int64, numba.types.float64, numba.types.float64[::1],
-                             numba.types.float64[::1]), cache=True)
-def _average_rows(kernel, features, params, weight, rtol, out, out_err):
+def _average_rows_py(kernel, features, params, weight, rtol, out, out_err):
     edges = np.empty(_MAX_EDGES)
     feat = np.empty(_MAX_FEATURES)
     lo = np.empty(_MAX_INTERVALS)
@@ -297,23 +325,9 @@ def _average_rows(kernel, features, params, weight, rtol, out, out_err):
                                           edges, feat, lo, hi, val, err, scratch)
 
 
-_AVERAGERS = {}
-
-
-def averager(kernel, features):
-    """A compiled ``run(params, weight, rtol, out, out_err)`` with the kernel bound in.
-
-    Converting a dispatcher to a function pointer costs tens of microseconds when
-    done from Python at every call; inside this thin closure it happens once, at its
-    compilation (a fraction of a second; the quadrature itself comes from the cache).
-    """
-    key = (kernel, features)
-    if key not in _AVERAGERS:
-        @numba.njit
-        def run(params, weight, rtol, out, out_err):
-            _average_rows(kernel, features, params, weight, rtol, out, out_err)
-        _AVERAGERS[key] = run
-    return _AVERAGERS[key]
+_average_rows = LazyCompiled(_average_rows_py, numba.types.void(
+    _KERNEL_TYPE, _FEATURES_TYPE, numba.types.float64[:, ::1], numba.types.int64, numba.types.float64,
+    numba.types.float64[::1], numba.types.float64[::1]))
 
 
 def thermal_average(kernel, features, params, weight, *, rtol=1e-9):
@@ -321,10 +335,10 @@ def thermal_average(kernel, features, params, weight, *, rtol=1e-9):
 
     Parameters
     ----------
-    kernel : numba dispatcher
+    kernel : numba dispatcher or LazyCompiled
         ``kernel(x, p)``: the rate at collision energy E = x k_BT in the kernel's
         natural units, for parameter row ``p``.
-    features : numba dispatcher
+    features : numba dispatcher or LazyCompiled
         ``features(p, out) -> n``: writes n feature energies (in units of k_BT) to ``out``.
     params : ndarray, shape (n, n_par)
         One row per point.
@@ -341,9 +355,9 @@ def thermal_average(kernel, features, params, weight, *, rtol=1e-9):
     params = np.ascontiguousarray(params, dtype=float)
     out = np.empty(params.shape[0])
     out_err = np.empty(params.shape[0])
-    # Direct call of the cached engine: converting the kernel costs ~40 us per call but
-    # nothing is compiled (the likelihood's hot path uses :func:`averager` instead).
-    _average_rows(kernel, features, params, int(weight), float(rtol), out, out_err)
+    # the reference path: converting the kernel to a function pointer costs ~40 us per
+    # call, but nothing is compiled beyond the cached engine
+    _average_rows(compiled(kernel), compiled(features), params, int(weight), float(rtol), out, out_err)
     return out, out_err
 
 

@@ -66,10 +66,26 @@ def test_abar_over_rvdw():
 
 
 def test_constants_are_codata():
-    assert constants.HBAR == sc.hbar
+    # lossfit types the CODATA 2022 values in (start-up time); scipy.constants is the
+    # independent table (CODATA 2018 before scipy 1.15: at most 1.4e-9 apart)
+    assert constants.HBAR == pytest.approx(sc.hbar, rel=1e-15)         # exact in the 2019 SI
     assert constants.K_B == sc.k
-    assert constants.BOHR == sc.physical_constants["Bohr radius"][0]
-    assert constants.ATOMIC_MASS == sc.physical_constants["atomic mass constant"][0]
+    for name, value in (("Bohr radius", constants.BOHR), ("atomic mass constant", constants.ATOMIC_MASS),
+                        ("electron mass", constants.ELECTRON_MASS), ("Hartree energy", constants.HARTREE)):
+        assert value == pytest.approx(sc.physical_constants[name][0], rel=2e-9), name
+
+
+def test_s0_and_arg_gamma_against_scipy():
+    # s0 solves s cosh(pi s/2) = (8/sqrt 3) sinh(pi s/6) (Braaten & Hammer 2006): scipy's
+    # brentq on the same equation; arg Gamma(1 + i s0) against scipy.special.loggamma
+    from scipy.optimize import brentq
+    from scipy.special import loggamma
+
+    def efimov(s):
+        return s * math.cosh(math.pi * s / 2) - 8 / math.sqrt(3) * math.sinh(math.pi * s / 6)
+    assert constants.S0 == pytest.approx(brentq(efimov, 0.5, 1.5, xtol=1e-15, rtol=1e-15), rel=1e-14)
+    assert constants.S0 == pytest.approx(1.00623782, abs=1e-8)         # Braaten & Hammer 2006
+    assert constants.ARG_GAMMA_S0 == pytest.approx(float(loggamma(1 + 1j * constants.S0).imag), abs=1e-13)
 
 
 # ---------------------------------------------------------------------------- species

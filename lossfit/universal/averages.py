@@ -40,9 +40,8 @@ import math
 
 import numba
 import numpy as np
-from scipy.special import loggamma
 
-from ..constants import S0
+from ..constants import ARG_GAMMA_S0, S0
 from ..errors import LossfitValueError
 from ..thermal import (ATOM_DIMER, GL_ORDER, THREE_BODY, composite_gauss_legendre, panel_edges,
                        probability_below)
@@ -52,7 +51,6 @@ from .tables import (atom_dimer_grid_points, load_atom_dimer_table, load_recombi
 #: Smallest eta for which the default rules are built (the default prior's lower edge);
 #: plans for smaller eta get finer rules of their own.
 ETA_MIN = 0.005
-_ARG_GAMMA = float(np.imag(loggamma(1 + 1j * S0)))
 _PROFILE_C = 2.0          # panel width / pole distance
 _PROFILE_DY = 0.01
 UNITARITY_THREE_BODY = 72.0 * math.sqrt(3.0) * math.pi ** 2
@@ -198,18 +196,27 @@ def _profile(family, part, eta_min):
 
 # ---- per-point weights ------------------------------------------------------------------------
 @numba.njit(cache=True)
+def _panel_of(edges, y):
+    """Index of the panel [edges[i], edges[i + 1]) holding y (bisection; clipped to the ends)."""
+    lo = 0
+    hi = edges.size - 1
+    while hi - lo > 1:
+        mid = (lo + hi) // 2
+        if edges[mid] <= y:
+            lo = mid
+        else:
+            hi = mid
+    return lo
+
+
+@numba.njit(cache=True)
 def _point_range(edges, y_lo, y_hi):
     """Indices [first, stop) of the nodes of the panels that overlap [y_lo, y_hi], and the
     lower edge of the first such panel."""
-    n_pan = edges.size - 1
-    i = np.searchsorted(edges, y_lo, side="right") - 1
-    if i < 0:
-        i = 0
-    j = np.searchsorted(edges, y_hi, side="left")
-    if j > n_pan:
-        j = n_pan
-    if j <= i:
-        j = i + 1
+    i = _panel_of(edges, y_lo)
+    j = _panel_of(edges, y_hi) + 1
+    if y_hi <= edges[j - 1] and j - 1 > i:
+        j -= 1                  # y_hi on an edge: the panel above adds nothing
     return i * GL_ORDER, j * GL_ORDER, edges[i]
 
 
@@ -245,9 +252,13 @@ def _weights(family, ex, omega, sigma, first, stop, edge, y_off, scale, out):
 
 
 # ---- sums: combine the terms with the Efimov phase and eta ------------------------------------
-# The loops run over slices from 0 so that numba can drop its negative-index checks
-# (measured: 1.6 instead of 2.3 ns per node).
-@numba.njit(cache=True, fastmath={"reassoc", "contract"})
+# The loops run over slices from 0 so that numba can drop its negative-index checks, and
+# with IEEE division (error_model="numpy"; the denominators are >= (1 - e^{-2 eta})^2 > 0)
+# LLVM vectorises them (measured: 0.85 instead of 2.3 ns per node).
+_FAST_SUM = {"cache": True, "fastmath": {"reassoc", "contract"}, "error_model": "numpy"}
+
+
+@numba.njit(**_FAST_SUM)
 def _sum_single(wt, t, d1, d2, d3, first, stop, a1, a2, a3):
     # sum_k wt t / (1 + a1 d1 + a2 d2 + a3 d3); wt is indexed from 0 at ``first``
     n = stop - first
@@ -259,7 +270,7 @@ def _sum_single(wt, t, d1, d2, d3, first, stop, a1, a2, a3):
     return acc
 
 
-@numba.njit(cache=True, fastmath={"reassoc", "contract"})
+@numba.njit(**_FAST_SUM)
 def _sum_ratio(wt, c0, c1, c2, c3, c4, d1, d2, d3, first, stop, a1, a2, a3, b4):
     # sum_k wt (c0 + a1 c1 + a2 c2 + a3 c3 + b4 c4) / (1 + a1 d1 + a2 d2 + a3 d3)
     n = stop - first
@@ -273,7 +284,7 @@ def _sum_ratio(wt, c0, c1, c2, c3, c4, d1, d2, d3, first, stop, a1, a2, a3, b4):
     return acc
 
 
-@numba.njit(cache=True)
+@numba.njit(**_FAST_SUM)
 def _dot(wt, col, first, stop):
     n = stop - first
     w = wt[:n]
@@ -355,7 +366,7 @@ def _plan_evaluate(family, part, terms, wt, first, stop, offset, cos_t, sin_t, c
 def phase_offset(kappa_times_feature, feature):
     """2 Phi - 2 s0 ln|a| = 2 s0 ln(kappa*/sqrt 2) - 2 arg Gamma(1 + i s0), kappa* = the
     table's kappa* x feature over the feature position (a0)."""
-    return 2.0 * (S0 * math.log(kappa_times_feature / feature / math.sqrt(2.0)) - _ARG_GAMMA)
+    return 2.0 * (S0 * math.log(kappa_times_feature / feature / math.sqrt(2.0)) - ARG_GAMMA_S0)
 
 
 def _feature(family):
@@ -402,7 +413,7 @@ def _efimov_scalars(family, efimov, eta_min):
     return phase_offset(kappa, a_f), math.exp(-2.0 * eta), -math.expm1(-4.0 * eta)
 
 
-def general_average(family, a, scale_q, efimov, scale, weights=(1.0, 0.0), parts=(0,)):
+def general_average(family, a, scale_q, efimov, scale, weights=(1.0, 1.0), parts=(0,)):
     """Exact thermal averages at arbitrary points (the general path).
 
     Parameters
@@ -442,6 +453,26 @@ def general_average(family, a, scale_q, efimov, scale, weights=(1.0, 0.0), parts
     return out
 
 
+class _PlanGroup:
+    """The prepared points of one kernel family (and part) within a plan."""
+
+    __slots__ = ("feature", "eta_name", "kappa", "head", "w_a", "w_b", "index", "buffer", "n_nodes")
+
+    def __init__(self, family, part, a, scale_q, scale, weights, eta_min, index):
+        lay = _layout(family, part, eta_min)
+        y_off, y_lo, y_hi = _ranges(family, part, scale_q, lay)
+        wt, first, stop, offset = _plan_weights(family, lay.edges, lay.ex, lay.omega, lay.sigma, y_off, y_lo,
+                                                y_hi, _family_scale(family, scale_q, scale))
+        theta = 2.0 * S0 * np.log(np.abs(a))
+        self.feature, self.eta_name, self.kappa = _feature(family)
+        # the arguments of _plan_evaluate that do not change between evaluations
+        self.head = (family, part, lay.terms, wt, first, stop, offset, np.cos(theta), np.sin(theta))
+        self.w_a, self.w_b = float(weights[0]), float(weights[1])
+        self.index = index
+        self.buffer = np.empty(a.size)
+        self.n_nodes = int(offset[-1])
+
+
 class ThermalPlan:
     """The Efimov-independent part of exact thermal averages at fixed points.
 
@@ -461,7 +492,7 @@ class ThermalPlan:
         self.n_points = n_points
         self.groups = groups
         self.eta_min = eta_min
-        self.n_nodes = sum(int(g["offset"][-1]) for g in groups)
+        self.n_nodes = sum(g.n_nodes for g in groups)
 
     def evaluate(self, efimov, out=None):
         """Averages at every point, in the units set by the builder's ``scale``.
@@ -474,30 +505,26 @@ class ThermalPlan:
             Filled in place and returned.
         """
         out = np.empty(self.n_points) if out is None else out
-        out[:] = 0.0
+        out.fill(0.0)
         for grp in self.groups:
-            off, e2, g = _efimov_scalars(grp["family"], efimov, self.eta_min)
-            target = out if grp["index"] is None else grp["buffer"]
-            if grp["index"] is not None:
-                target[:] = 0.0
-            lay = grp["layout"]
-            _plan_evaluate(grp["family"], grp["part"], lay.terms, grp["wt"], grp["first"], grp["stop"],
-                           grp["offset"], grp["cos"], grp["sin"], math.cos(off), math.sin(off), e2, g,
-                           grp["w_a"], grp["w_b"], target)
-            if grp["index"] is not None:
-                out[grp["index"]] += target
+            # the hot path of every fit: plain attribute reads, no validation beyond this
+            a_f = getattr(efimov, grp.feature)
+            eta = getattr(efimov, grp.eta_name)
+            if a_f is None or eta is None:
+                efimov.require(grp.feature, grp.eta_name)
+            if eta < self.eta_min:
+                raise LossfitValueError(grp.eta_name, f"{eta:g} is below eta_min={self.eta_min:g}, the smallest "
+                                        "eta this plan resolves; build it with a smaller eta_min")
+            off = phase_offset(grp.kappa, a_f)
+            target = out
+            if grp.index is not None:
+                target = grp.buffer
+                target.fill(0.0)
+            _plan_evaluate(*grp.head, math.cos(off), math.sin(off), math.exp(-2.0 * eta), -math.expm1(-4.0 * eta),
+                           grp.w_a, grp.w_b, target)
+            if grp.index is not None:
+                out[grp.index] += target
         return out
-
-
-def _group(family, part, a, scale_q, scale, weights, eta_min, index):
-    lay = _layout(family, part, eta_min)
-    y_off, y_lo, y_hi = _ranges(family, part, scale_q, lay)
-    wt, first, stop, offset = _plan_weights(family, lay.edges, lay.ex, lay.omega, lay.sigma, y_off, y_lo, y_hi,
-                                            _family_scale(family, scale_q, scale))
-    theta = 2.0 * S0 * np.log(np.abs(a))
-    return {"family": family, "part": part, "layout": lay, "wt": wt, "first": first, "stop": stop,
-            "offset": offset, "cos": np.cos(theta), "sin": np.sin(theta), "w_a": float(weights[0]),
-            "w_b": float(weights[1]), "index": index, "buffer": np.empty(a.size)}
 
 
 def _check_eta_min(eta_min):
@@ -534,7 +561,7 @@ def three_body_plan(a, q, scale, *, shallow=1.0, deep=1.0, eta_min=ETA_MIN):
     for family, sel in ((NEGATIVE_A, neg), (POSITIVE_A, ~neg)):
         if sel.any():
             index = None if sel.all() else np.flatnonzero(sel)
-            groups.append(_group(family, 0, a[sel], np.abs(q[sel]), scale[sel], (shallow, deep), eta_min, index))
+            groups.append(_PlanGroup(family, 0, a[sel], np.abs(q[sel]), scale[sel], (shallow, deep), eta_min, index))
     return ThermalPlan(a.size, groups, eta_min)
 
 
@@ -544,6 +571,6 @@ def atom_dimer_plan(a, q, scale, *, relaxation=1.0, breakup=0.0, eta_min=ETA_MIN
     ``relaxation`` and ``breakup``."""
     eta_min = _check_eta_min(eta_min)
     p0 = (2.0 / math.sqrt(3.0)) * np.abs(q)          # k_AD a at E = k_BT
-    groups = [_group(ATOM_DIMER_A, part, a, p0, scale, (relaxation, breakup), eta_min, None)
+    groups = [_PlanGroup(ATOM_DIMER_A, part, a, p0, scale, (relaxation, breakup), eta_min, None)
               for part, on in ((0, relaxation), (1, breakup)) if on]
     return ThermalPlan(a.size, groups, eta_min)

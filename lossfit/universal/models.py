@@ -51,9 +51,8 @@ import math
 import numba
 import numpy as np
 
-from scipy.special import loggamma
 
-from ..constants import HBAR, S0
+from ..constants import ARG_GAMMA_S0, HBAR, S0
 from ..errors import LossfitValueError
 from ..thermal import (ATOM_DIMER, FEATURES_SIGNATURE, KERNEL_SIGNATURE, THREE_BODY, U_MAX, feature_points,
                        probability_below, rate_kernel, thermal_average)
@@ -62,7 +61,6 @@ from . import averages
 from .tables import recombination_eval
 from .threshold import beta_coefficient_unchecked, l3_coefficient_unchecked
 
-_ARG_GAMMA = float(np.imag(loggamma(1 + 1j * S0)))
 # (shallow-dimer, deep-dimer) weights of the recombination channels; a < 0 has only deep
 _CHANNEL_WEIGHTS = {"total": (1.0, 1.0), "shallow": (1.0, 0.0), "deep": (0.0, 1.0)}
 # (relaxation, breakup) weights of the atom-dimer loss channels
@@ -487,7 +485,7 @@ class ZeroRangeModel(EnergyModel):
             self._check_three_body_reach(q[~neg], x_max)
             kappa[~neg] = self.recombination_table.kappa_star_a_plus / a_plus
             eta[~neg] = eta_plus
-        two_phi = 2.0 * (S0 * np.log(kappa * np.abs(a) / math.sqrt(2.0)) - _ARG_GAMMA)
+        two_phi = 2.0 * (S0 * np.log(kappa * np.abs(a) / math.sqrt(2.0)) - ARG_GAMMA_S0)
         rows = np.empty((a.size, 9))
         rows[:, 0] = q
         rows[:, 1] = np.cos(two_phi)
@@ -565,7 +563,7 @@ class ZeroRangeModel(EnergyModel):
         # k_AD a = (2/sqrt 3) q sqrt(x)
         rows[:, 0] = (2.0 / math.sqrt(3.0)) * np.abs(q).ravel()
         self._check_atom_dimer_reach(rows[:, 0], x_max, weights[1])
-        two_phi = 2.0 * (S0 * np.log(kappa * np.asarray(a, dtype=float).ravel() / math.sqrt(2.0)) - _ARG_GAMMA)
+        two_phi = 2.0 * (S0 * np.log(kappa * np.asarray(a, dtype=float).ravel() / math.sqrt(2.0)) - ARG_GAMMA_S0)
         rows[:, 1] = np.cos(two_phi)
         rows[:, 2] = np.sin(two_phi)
         rows[:, 3] = math.exp(-2.0 * eta)

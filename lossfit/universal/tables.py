@@ -5,7 +5,8 @@ grids, cutoffs, estimated errors and git hash in its ``metadata``) holds, for a 
 J = 0, the long-distance reflection amplitude s11(x) of the Efimov channel on a log
 grid of x = k|a| (E = hbar^2 k^2/m), as ln(1 - |s11|^2) and the unwrapped phase of s11.
 
-Interpolation: cubic splines (scipy ``CubicSpline``, not-a-knot) of both in ln x,
+Interpolation: not-a-knot cubic splines (:func:`spline_coefficients`, the coefficients
+scipy's ``CubicSpline`` gives; tested against it) of both in ln x,
 evaluated in numba. Outside the grid the known limits take over:
 
 * x below the grid: 1 - |s11|^2 proportional to x^4 and arg s11 constant (threshold
@@ -18,7 +19,7 @@ evaluated in numba. Outside the grid the known limits take over:
 """
 
 __all__ = ["S11Table", "AtomDimerTable", "RecombinationTable", "load_s11_table", "load_atom_dimer_table",
-           "load_recombination_table", "table_path"]
+           "load_recombination_table", "table_path", "spline_coefficients"]
 
 import json
 import math
@@ -26,20 +27,43 @@ import os
 
 import numba
 import numpy as np
-from scipy.interpolate import CubicSpline
-from scipy.special import loggamma
 
-from ..constants import S0
+from ..constants import ARG_GAMMA_S0, S0
 from ..errors import LossfitError
 
 _DATA = os.path.join(os.path.dirname(os.path.abspath(__file__)), "data")
-_ARG_GAMMA = float(np.imag(loggamma(1 + 1j * S0)))
 
 
 def _open_table(path):
     if not os.path.exists(path):
         raise LossfitError(f"universal-function table {path!r} is missing from the installation")
     return np.load(path, allow_pickle=False)
+
+
+def spline_coefficients(x, y):
+    """Coefficients (4, n - 1) of the not-a-knot cubic spline through (x, y), highest
+    power first, in the layout of ``scipy.interpolate.CubicSpline(x, y).c``.
+
+    Written out (a tridiagonal-plus-ends solve for the second derivatives) because the
+    scipy.interpolate import costs a third of a second of every start-up.
+    """
+    x = np.asarray(x, dtype=float)
+    y = np.asarray(y, dtype=float)
+    n = x.size
+    h = np.diff(x)
+    slope = np.diff(y) / h
+    # unknowns: second derivatives m_0..m_{n-1}
+    mat = np.zeros((n, n))
+    rhs = np.zeros(n)
+    for i in range(1, n - 1):
+        mat[i, i - 1:i + 2] = h[i - 1], 2.0 * (h[i - 1] + h[i]), h[i]
+        rhs[i] = 6.0 * (slope[i] - slope[i - 1])
+    # not-a-knot: the third derivative is continuous at x_1 and x_{n-2}
+    mat[0, :3] = h[1], -(h[0] + h[1]), h[0]
+    mat[-1, -3:] = h[-1], -(h[-2] + h[-1]), h[-2]
+    m = np.linalg.solve(mat, rhs)
+    return np.array([(m[1:] - m[:-1]) / (6.0 * h), 0.5 * m[:-1],
+                     slope - h * (2.0 * m[:-1] + m[1:]) / 6.0, y[:-1]])
 
 
 def table_path(name="s11_negative_a.npz"):
@@ -88,7 +112,7 @@ class S11Table:
 
 
 def _unitarity_phase(x):
-    return math.pi - 2.0 * S0 * math.log(x / math.sqrt(2.0)) + 2.0 * _ARG_GAMMA
+    return math.pi - 2.0 * S0 * math.log(x / math.sqrt(2.0)) + 2.0 * ARG_GAMMA_S0
 
 
 _HEADER = 8
@@ -97,8 +121,8 @@ _HEADER = 8
 def _pack(lnx, logt, phase, c4, delta0):
     # [n, lnx0, h, c4, delta0, tail_dT, tail_dphase, x_last, c_logt (4*(n-1)), c_phase (4*(n-1))]
     n = lnx.size
-    st = CubicSpline(lnx, logt)
-    sp = CubicSpline(lnx, phase)
+    c_logt = spline_coefficients(lnx, logt)
+    c_phase = spline_coefficients(lnx, phase)
     x_last = math.exp(lnx[-1])
     t_unit = 1.0 - math.exp(-2.0 * math.pi * S0)
     tail_dt = math.exp(logt[-1]) - t_unit
@@ -108,11 +132,11 @@ def _pack(lnx, logt, phase, c4, delta0):
     tail_dp = phase[-1] - p_unit
     head = np.array([n, lnx[0], lnx[1] - lnx[0], c4, delta0, tail_dt, tail_dp, x_last])
     assert head.size == _HEADER
-    return np.concatenate([head, st.c.T.ravel(), sp.c.T.ravel(),
+    return np.concatenate([head, c_logt.T.ravel(), c_phase.T.ravel(),
                            [p_unit - _unitarity_phase(x_last)]])
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, inline="always")
 def _spline(packed, offset, i, dx):
     base = offset + 4 * i
     return ((packed[base] * dx + packed[base + 1]) * dx + packed[base + 2]) * dx + packed[base + 3]
@@ -142,7 +166,7 @@ def s11_eval(packed, x):
         branch = packed[_HEADER + 8 * (n - 1)]
         t = 1.0 - math.exp(-2.0 * math.pi * S0) + packed[5] * x_last / x
         ph = (math.pi - 2.0 * S0 * math.log(x / math.sqrt(2.0))
-              + 2.0 * _ARG_GAMMA + branch + packed[6] * x_last / x)
+              + 2.0 * ARG_GAMMA_S0 + branch + packed[6] * x_last / x)
         return t, ph
     i = int((lnx - lnx0) / h)
     if i > n - 2:
@@ -218,7 +242,7 @@ class AtomDimerTable:
             lnx = np.log(kad[sl])
             if not np.allclose(np.diff(lnx), lnx[1] - lnx[0], rtol=1e-9, atol=0):
                 raise LossfitError(f"{path!r}: a k_AD a grid segment is not uniform in ln")
-            parts.append((lnx, [CubicSpline(lnx, col[sl]) for col in columns]))
+            parts.append((lnx, [spline_coefficients(lnx, col[sl]) for col in columns]))
         (lnx1, sp1), (lnx2, sp2) = parts
         # unwrap delta0 onto the branch of the tabulated phase at the first node
         delta0 += 2.0 * math.pi * round((phase0 - delta0) / (2.0 * math.pi))
@@ -227,7 +251,7 @@ class AtomDimerTable:
         assert head.size == _AD_HEADER
         self.kad = kad
         self.kad_max = float(kad[-1])
-        self.packed = np.concatenate([head] + [sp.c.T.ravel() for sp in sp1 + sp2])
+        self.packed = np.concatenate([head] + [c.T.ravel() for c in sp1 + sp2])
 
     def evaluate(self, kad):
         """(T_AD, s_AD) at k_AD a (arrays), evaluated as the runtime kernel does."""
@@ -344,7 +368,7 @@ class RecombinationTable:
         assert head.size == _RC_HEADER
         self.energy = energy
         self.energy_min, self.energy_max = float(energy[0]), float(energy[-1])
-        self.packed = np.concatenate([head] + [CubicSpline(lnx, c).c.T.ravel() for c in columns])
+        self.packed = np.concatenate([head] + [spline_coefficients(lnx, c).T.ravel() for c in columns])
 
     def evaluate(self, energy):
         """The eight columns at three-atom energies E m a^2/hbar^2 (array, E <= energy_max),
