@@ -73,6 +73,11 @@ _A_ROWS = np.array([[_A21, 0.0, 0.0, 0.0, 0.0],
                     [_A41, _A42, _A43, 0.0, 0.0],
                     [_A51, _A52, _A53, _A54, 0.0],
                     [_A61, _A62, _A63, _A64, _A65]])
+# continuous extension (dense output) of the pair, coefficients of Hairer's DOPRI5
+# (Hairer, Norsett & Wanner 1993, sec. II.6; checked in tests/test_decay.py against
+# analytic solutions between steps)
+_D1, _D3, _D4 = -12715105075.0 / 11282082432.0, 87487479700.0 / 32700410799.0, -10690763975.0 / 1880347072.0
+_D5, _D6, _D7 = 701980252875.0 / 199316789632.0, -1453857185.0 / 822651844.0, 69997945.0 / 29380423.0
 # error weights: b(5th order) - b(4th order)
 _E1, _E3, _E4, _E5, _E6, _E7 = (71.0 / 57600.0, -71.0 / 16695.0, 71.0 / 1920.0,
                                 -17253.0 / 339200.0, 22.0 / 525.0, -1.0 / 40.0)
@@ -92,11 +97,15 @@ def _rate(temperature, const, knots, coefs):
     x = math.log(temperature)
     if x < knots[0] or x > knots[n - 1]:
         return -1.0
-    i = np.searchsorted(knots, x) - 1
-    if i < 0:
-        i = 0
-    if i > n - 2:
-        i = n - 2
+    # bisection for the interval (a handful of knots; cheaper than np.searchsorted here)
+    i = 0
+    hi = n - 1
+    while hi - i > 1:
+        mid = (i + hi) // 2
+        if knots[mid] <= x:
+            i = mid
+        else:
+            hi = mid
     dx = x - knots[i]
     v = ((coefs[0, i] * dx + coefs[1, i]) * dx + coefs[2, i]) * dx + coefs[3, i]
     return math.exp(v)
@@ -114,7 +123,9 @@ def _rhs(y, p, l3k, l3c, bk, bc, out):
     if beta < 0.0:
         return _OUT_OF_BETA_TABLE
     r3 = l3 * p[_C3] * n_a * n_a * n_a / (temp * temp * temp)      # atoms lost per s
-    r_ad = beta * p[_CAD] * n_a * n_d / temp ** 1.5                  # relaxation events per s
+    r_ad = 0.0
+    if n_d != 0.0:
+        r_ad = beta * p[_CAD] * n_a * n_d / (temp * math.sqrt(temp))  # relaxation events per s
     out[0] = -p[_GAMMA] * n_a - r3 - r_ad
     out[1] = -p[_GAMMA_D] * n_d - r_ad
     if p[_HEAT] != 0.0 and n_a + n_d > 0.0:
@@ -186,19 +197,17 @@ def _integrate(t_out, y0, p, l3k, l3c, bk, bc, rtol, atol, max_steps, out):
     t = 0.0
     k = 0
     steps = 0
+    while k < t_out.shape[0] and t_out[k] <= t:
+        for i in range(dim):
+            out[k, i] = y[i]
+        k += 1
     while k < t_out.shape[0]:
-        if t_out[k] <= t:
-            for i in range(dim):
-                out[k, i] = y[i]
-            k += 1
-            continue
         if steps >= max_steps:
             return _MAX_STEPS
         steps += 1
-        h_free = h
-        landing = h >= t_out[k] - t
-        if landing:
-            h = t_out[k] - t
+        last = h >= t_end - t
+        if last:
+            h = t_end - t
         status, err = _dp_step(y, f, h, p, l3k, l3c, bk, bc, rtol, atol, ks, ys, yn)
         if status == _NOT_FINITE and h > 1e-12 * t_end:
             # an over-long trial step drove T through zero: retry shorter
@@ -207,15 +216,26 @@ def _integrate(t_out, y0, p, l3k, l3c, bk, bc, rtol, atol, max_steps, out):
         if status != _OK:
             return status
         if err <= 1.0:
-            factor = 5.0 if err == 0.0 else min(5.0, max(0.2, 0.9 * err ** -0.2))
-            t = t_out[k] if landing else t + h
+            t_new = t_end if last else t + h
+            # output times inside the step from the continuous extension (dense output)
+            # of the Dormand-Prince pair (Hairer, Norsett & Wanner, Solving Ordinary
+            # Differential Equations I, sec. II.6): free steps instead of one landing on
+            # every output time
+            while k < t_out.shape[0] and t_out[k] <= t_new:
+                theta = (t_out[k] - t) / h
+                for i in range(dim):
+                    diff = yn[i] - y[i]
+                    bspl = h * f[i] - diff
+                    r4 = diff - h * ks[5, i] - bspl
+                    r5 = h * (_D1 * f[i] + _D3 * ks[1, i] + _D4 * ks[2, i] + _D5 * ks[3, i] + _D6 * ks[4, i]
+                              + _D7 * ks[5, i])
+                    out[k, i] = y[i] + theta * (diff + (1.0 - theta) * (bspl + theta * (r4 + (1.0 - theta) * r5)))
+                k += 1
+            t = t_new
             for i in range(dim):
                 y[i] = yn[i]
                 f[i] = ks[5, i]      # first-same-as-last
-            h_next = factor * h
-            if landing and factor >= 1.0 and h_free > h_next:
-                h_next = h_free      # the clip to the output time was not an accuracy limit
-            h = h_next
+            h *= 5.0 if err == 0.0 else min(5.0, max(0.2, 0.9 * err ** -0.2))
         else:
             h *= max(0.2, 0.9 * err ** -0.2)
     return _OK

@@ -8,6 +8,7 @@ nK (energy as E/k_B), L3 and K3 in cm^6/s (lossfit convention, see
 
 __all__ = ["k3", "beta_energy", "l3", "beta", "natural_unit"]
 
+import math
 import warnings
 
 import numba
@@ -15,6 +16,7 @@ import numpy as np
 
 from .constants import HBAR
 from .errors import LossfitValueError, ValidityWarning, check_nonzero, check_positive, is_real
+from .species import Species
 from .species import species as _species
 from .thermal import ATOM_DIMER, KERNEL_SIGNATURE, THREE_BODY, U_MAX, LazyCompiled, compiled, thermal_average
 from .units import A0, CM3_PER_S, CM6_PER_S, NK
@@ -36,10 +38,18 @@ _evaluate_rows = LazyCompiled(_evaluate_rows_py, numba.types.void(
 
 
 def _prepare(a, scale_nk, species, efimov, model, scale_name, process, stacklevel):
-    sp = _species(species)
+    sp = species if isinstance(species, Species) else _species(species)
     if not isinstance(efimov, Efimov):
         raise LossfitValueError("efimov", f"must be a lossfit.Efimov, got {efimov!r}")
     mdl = get_model(DEFAULT_MODEL if model is None else model)
+    if is_real(a) and is_real(scale_nk) and math.isfinite(a) and a != 0 and math.isfinite(scale_nk) \
+            and scale_nk > 0 and (process == THREE_BODY or a > 0):
+        # one valid point: the same result without a dozen numpy calls on 0-d arrays
+        if abs(a) < MIN_ABS_A_OVER_RVDW * sp.r_vdw:
+            _warn_short(sp, stacklevel + 1)
+        # the array path's expression, so that scalars and arrays give identical bits
+        k_s = scale_wavenumber_a0(float(scale_nk) * NK, sp.mass)
+        return sp, mdl, np.array(float(a)), np.array(float(scale_nk)), np.array(float(a) * k_s)
     a = check_nonzero("a", a)
     scale = check_positive(scale_name, scale_nk)
     if process == ATOM_DIMER and (a <= 0).any():
@@ -51,11 +61,15 @@ def _prepare(a, scale_nk, species, efimov, model, scale_name, process, stackleve
         raise LossfitValueError("a", f"shape {a.shape} does not broadcast against "
                                 f"{scale_name} shape {scale.shape}") from None
     if (np.abs(a_b) < MIN_ABS_A_OVER_RVDW * sp.r_vdw).any():
-        warnings.warn(f"|a| < {MIN_ABS_A_OVER_RVDW:g} r_vdW ({MIN_ABS_A_OVER_RVDW * sp.r_vdw:.0f} a0 "
-                      f"for {sp.name}): zero-range theory is not reliable there", ValidityWarning,
-                      stacklevel=stacklevel)
+        _warn_short(sp, stacklevel + 1)
     q = a_b * scale_wavenumber_a0(scale_b * NK, sp.mass)
     return sp, mdl, a_b, scale_b, q
+
+
+def _warn_short(sp, stacklevel):
+    warnings.warn(f"|a| < {MIN_ABS_A_OVER_RVDW:g} r_vdW ({MIN_ABS_A_OVER_RVDW * sp.r_vdw:.0f} a0 "
+                  f"for {sp.name}): zero-range theory is not reliable there", ValidityWarning,
+                  stacklevel=stacklevel)
 
 
 def _x_max(scale_name):

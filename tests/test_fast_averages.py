@@ -130,11 +130,12 @@ def test_plans_equal_the_general_path():
     rng = np.random.default_rng(3)
     a = np.concatenate([-np.geomspace(600, 5e4, 20), np.geomspace(600, 3000, 10)])
     t = rng.uniform(5.0, 400.0, a.size)
-    ef = lf.Efimov(a_minus=-1100.0, eta_minus=0.03, a_plus=260.0, eta_plus=0.2, a_star=1000.0, eta_star=0.04)
+    eta = 0.03           # plans built for eta_min = eta use the general path's rules for eta
+    ef = lf.Efimov(a_minus=-1100.0, eta_minus=eta, a_plus=260.0, eta_plus=eta, a_star=1000.0, eta_star=eta)
     for kind, rate in (("l3", lf.l3), ("beta", lf.beta)):
         sel = slice(None) if kind == "l3" else slice(20, None)
         like = SpectrumLikelihood([lf.LossSpectrum(a[sel], t[sel], np.ones(a[sel].size), np.ones(a[sel].size),
-                                                   kind=kind)], sp, model)
+                                                   kind=kind)], sp, model, eta_min=eta)
         np.testing.assert_allclose(like.blocks[0].predict(ef), rate(a[sel], t[sel], species=sp, efimov=ef),
                                    rtol=1e-13)
 

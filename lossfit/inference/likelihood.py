@@ -59,7 +59,7 @@ class RateBlock:
 
     @eta_min.setter
     def eta_min(self, value):
-        self._eta_min = min(float(value), ETA_MIN)
+        self._eta_min = float(value)
         self._plan = None
 
     def __getstate__(self):

@@ -63,27 +63,30 @@ ATOM_DIMER_A = 2          # beta, a > 0: y = ln(k_AD a) = ln p + s/2       (atom
 _SIGMA = (0.5, 1.0, 0.5)
 # Widest panel in y: resolves the Boltzmann factor exp(-E/k_BT) (at most 1.5 in
 # s = ln(E/k_BT)) and, at a > 0, the coarser spline knots of the three-body table.
-_HMAX_Y = (0.75, 0.5, 0.75)
+_HMAX_Y = (0.75, 0.6, 0.75)
 # Layout range in y, and the table variable below which each kernel has reached its
 # threshold limit at eta = ETA_MIN (the rule starts there or at E = X_LO k_BT, whichever
 # is lower): 1 - |s11|^2 ~ x^4 and arg s11 ~ x^2 settle fast for a < 0, but
 # T_AD = 8.27 k_AD a near the atom-dimer threshold competes with 4 eta down to
 # k_AD a ~ 1e-5; at a > 0 |s| <= 0.04 above the three-atom threshold.
 _Y_RANGE = ((-32.0, 32.0), (-64.0, None), (-32.0, None))
-_X_LO = (1e-3, 1e-3, 1e-4)
 
 
 def _threshold_y(family, eta_min):
     """Table variable below which the kernel has settled to its threshold limit for
     every eta >= eta_min (the variations above scale like x^2 and like k_AD a)."""
+    ratio = eta_min / ETA_MIN
     if family == NEGATIVE_A:
-        return math.log(0.03 * math.sqrt(eta_min / ETA_MIN))
+        # not above 0.03 for large eta: the x^2 corrections of t/x^2 set the limit there
+        return math.log(0.03 * math.sqrt(min(ratio, 1.0)))
     if family == POSITIVE_A:
         return math.log(1e-3)
-    return math.log(1e-5 * eta_min / ETA_MIN)
+    # T_AD/2 = 4.1 k_AD a against 2 eta: linear in eta; corrections linear in k_AD a
+    return math.log(1e-5 * ratio)
 # s above which the Boltzmann weights hold less than 1e-10 (three-body) and 1e-12 (beta)
 # of the probability; the kernels do not grow with E there
 _Y_UPPER_S = math.log(32.0)
+_Y_BREAKUP = math.log(2.0 / math.sqrt(3.0))      # ln k_AD a at the breakup threshold
 
 # Term columns of each family (table functions at the nodes, Efimov-independent).
 # a < 0:        t, Re s11, Im s11, |s11|^2                       -> N4 = t / x^2
@@ -191,6 +194,10 @@ def _profile(family, part, eta_min):
         # lives within ~1/x_b of it in ln E: panels graded geometrically away from the kink
         above = y > math.log(breakup)
         width[above] = np.minimum(width[above], np.maximum(0.005, 0.5 * (y[above] - math.log(breakup))))
+        # and no panel wider than the 0.6 of the a > 0 family in ln E (the three-body
+        # table's knots), mapped to ln k_AD a: d ln E / dy = 1.5 (k_AD a)^2 / E
+        kad2 = np.exp(2.0 * y[above])
+        width[above] = np.minimum(width[above], _HMAX_Y[POSITIVE_A] * (0.75 * kad2 - 1.0) / (1.5 * kad2))
     return y, width, kinks, end
 
 
@@ -210,14 +217,19 @@ def _panel_of(edges, y):
 
 
 @numba.njit(cache=True)
-def _point_range(edges, y_lo, y_hi):
+def _point_range(edges, y, y_lo, y_hi):
     """Indices [first, stop) of the nodes of the panels that overlap [y_lo, y_hi], and the
-    lower edge of the first such panel."""
+    lower edge of the first such panel. Nodes of the last panel beyond y_hi are dropped:
+    their Boltzmann weights are below 1e-12 of the total (whole panels are kept at the
+    lower end, where the tail probability joins the first node)."""
     i = _panel_of(edges, y_lo)
     j = _panel_of(edges, y_hi) + 1
     if y_hi <= edges[j - 1] and j - 1 > i:
         j -= 1                  # y_hi on an edge: the panel above adds nothing
-    return i * GL_ORDER, j * GL_ORDER, edges[i]
+    stop = j * GL_ORDER
+    while stop > (j - 1) * GL_ORDER + 1 and y[stop - 1] > y_hi:
+        stop -= 1
+    return i * GL_ORDER, stop, edges[i]
 
 
 @numba.njit(cache=True)
@@ -228,19 +240,21 @@ def _weights(family, ex, omega, sigma, first, stop, edge, y_off, scale, out):
     first node (the kernel has reached its threshold limit there)."""
     shift = math.exp(-y_off / sigma)
     f = scale / sigma
+    e = ex[first:stop]
+    om = omega[first:stop]
     # three loops rather than one branch per node: this is the general path's hot loop
     if family == NEGATIVE_A:
-        for k in range(first, stop):
-            x = ex[k] * shift
-            out[k - first] = f * omega[k] * 0.5 * x * math.exp(-x)                  # x (x^2 e^-x/2) / x^2
+        for j in range(stop - first):
+            x = e[j] * shift
+            out[j] = f * om[j] * 0.5 * x * math.exp(-x)                  # x (x^2 e^-x/2) / x^2
     elif family == POSITIVE_A:
-        for k in range(first, stop):
-            x = ex[k] * shift
-            out[k - first] = f * omega[k] * 0.5 * x * x * x * math.exp(-x)
+        for j in range(stop - first):
+            x = e[j] * shift
+            out[j] = f * om[j] * 0.5 * x * x * x * math.exp(-x)
     else:
-        for k in range(first, stop):
-            x = ex[k] * shift
-            out[k - first] = f * omega[k] * 1.1283791670955126 * x * math.exp(-x)  # x (2/sqrt pi) sqrt(x) e^-x / sqrt(x)
+        for j in range(stop - first):
+            x = e[j] * shift
+            out[j] = f * om[j] * 1.1283791670955126 * x * math.exp(-x)  # x (2/sqrt pi) sqrt(x) e^-x / sqrt(x)
     x0 = ex[first] * shift
     weight = ATOM_DIMER if family == ATOM_DIMER_A else THREE_BODY
     tail = probability_below(weight, math.exp((edge - y_off) / sigma))
@@ -296,9 +310,20 @@ def _dot(wt, col, first, stop):
 
 
 @numba.njit(cache=True)
-def _point_value(family, part, terms, wt, first, stop, cos2phi, sin2phi, e2, g, w_a, w_b):
+def _h_sum(family, part, terms, wt, first, stop):
+    """The eta-independent part (shallow-dimer recombination in J >= 1): sum of wt H."""
+    if family == POSITIVE_A:
+        return _dot(wt, terms[5], first, stop)
+    if family == ATOM_DIMER_A and part == 1:
+        return _dot(wt, terms[4], first, stop)
+    return 0.0
+
+
+@numba.njit(cache=True)
+def _point_value(family, part, terms, wt, first, stop, cos2phi, sin2phi, e2, g, w_a, w_b, h_sum):
     """One point's average from its node weights ``wt``; (w_a, w_b) are the channel
-    weights (shallow, deep) at a > 0 and (relaxation, breakup) for beta."""
+    weights (shallow, deep) at a > 0 and (relaxation, breakup) for beta; ``h_sum`` is
+    the eta-independent sum of :func:`_h_sum` if known (plans), else NaN."""
     a1 = 2.0 * e2 * cos2phi
     a2 = -2.0 * e2 * sin2phi
     a3 = e2 * e2
@@ -313,53 +338,85 @@ def _point_value(family, part, terms, wt, first, stop, cos2phi, sin2phi, e2, g, 
                                                                 stop, a1, a2, a3)
         ratio = _sum_ratio(wt, terms[0], terms[1], terms[2], terms[3], terms[4], terms[6], terms[7], terms[8],
                            first, stop, a1, a2, a3, w_b * g / w_a)
-        return UNITARITY_THREE_BODY * w_a * (ratio + _dot(wt, terms[5], first, stop))
+        h = _h_sum(family, part, terms, wt, first, stop) if h_sum != h_sum else h_sum
+        return UNITARITY_THREE_BODY * w_a * (ratio + h)
     if part == 0:
         return UNITARITY_ATOM_DIMER * w_a * g * _sum_single(wt, terms[0], terms[1], terms[2], terms[3], first,
                                                             stop, a1, a2, a3)
     ratio = _sum_ratio(wt, terms[0], terms[1], terms[2], terms[3], terms[0], terms[5], terms[6], terms[7],
                        first, stop, a1, a2, a3, 0.0)
-    return UNITARITY_ATOM_DIMER * w_b * (ratio + _dot(wt, terms[4], first, stop))
+    h = _h_sum(family, part, terms, wt, first, stop) if h_sum != h_sum else h_sum
+    return UNITARITY_ATOM_DIMER * w_b * (ratio + h)
 
 
 @numba.njit(cache=True)
-def _general(family, part, edges, ex, omega, sigma, terms, y_off, y_lo, y_hi, scale, cos2phi, sin2phi, e2, g,
+def _general(family, part, edges, y, ex, omega, sigma, terms, y_threshold, a, scale_q, scale, offset, e2, g,
              w_a, w_b, out):
-    """The general path: every point through the global rule, nothing kept."""
+    """The general path: every point through the global rule, nothing kept. Returns 0,
+    or 1 / 2 if a point's rule would leave the layout below / above (nothing written)."""
     wt = np.empty(ex.size)
-    for p in range(y_off.size):
-        first, stop, edge = _point_range(edges, y_lo[p], y_hi[p])
-        _weights(family, ex, omega, sigma, first, stop, edge, y_off[p], scale[p], wt)
-        out[p] += _point_value(family, part, terms, wt, first, stop, cos2phi[p], sin2phi[p], e2, g, w_a, w_b)
+    for p in range(a.size):
+        y_off, y_lo, y_hi = _span(family, part, scale_q[p], y_threshold)
+        if y_lo < edges[0]:
+            return 1
+        if y_hi > edges[edges.size - 1] + 1e-9:
+            return 2
+    for p in range(a.size):
+        y_off, y_lo, y_hi = _span(family, part, scale_q[p], y_threshold)
+        first, stop, edge = _point_range(edges, y, y_lo, y_hi)
+        f = scale[p] * scale_q[p] ** 4 if family == POSITIVE_A else scale[p]
+        _weights(family, ex, omega, sigma, first, stop, edge, y_off, f, wt)
+        two_phi = 2.0 * S0 * math.log(abs(a[p])) + offset
+        out[p] += _point_value(family, part, terms, wt, first, stop, math.cos(two_phi), math.sin(two_phi), e2, g,
+                               w_a, w_b, math.nan)
+    return 0
 
 
 @numba.njit(cache=True)
-def _plan_weights(family, edges, ex, omega, sigma, y_off, y_lo, y_hi, scale):
-    m = y_off.size
+def _plan_weights(family, part, edges, y, ex, omega, sigma, y_threshold, scale_q, scale):
+    """Node ranges and weights of every point of a plan (see :func:`_general`); the
+    last value is the status (0, or 1 / 2: a rule would leave the layout)."""
+    m = scale_q.size
     first = np.empty(m, dtype=np.int64)
     stop = np.empty(m, dtype=np.int64)
-    offset = np.empty(m + 1, dtype=np.int64)
-    offset[0] = 0
+    offset = np.zeros(m + 1, dtype=np.int64)
     edge = np.empty(m)
+    y_off = np.empty(m)
+    status = 0
     for p in range(m):
-        first[p], stop[p], edge[p] = _point_range(edges, y_lo[p], y_hi[p])
+        y_off[p], y_lo, y_hi = _span(family, part, scale_q[p], y_threshold)
+        if y_lo < edges[0]:
+            status = 1
+        elif y_hi > edges[edges.size - 1] + 1e-9:
+            status = 2
+        first[p], stop[p], edge[p] = _point_range(edges, y, y_lo, y_hi)
         offset[p + 1] = offset[p] + stop[p] - first[p]
     wt = np.empty(offset[m])
+    if status != 0:
+        return wt, first, stop, offset, status
     for p in range(m):
-        _weights(family, ex, omega, sigma, first[p], stop[p], edge[p], y_off[p], scale[p],
-                 wt[offset[p]:offset[p + 1]])
-    return wt, first, stop, offset
+        f = scale[p] * scale_q[p] ** 4 if family == POSITIVE_A else scale[p]
+        _weights(family, ex, omega, sigma, first[p], stop[p], edge[p], y_off[p], f, wt[offset[p]:offset[p + 1]])
+    return wt, first, stop, offset, status
 
 
 @numba.njit(cache=True)
-def _plan_evaluate(family, part, terms, wt, first, stop, offset, cos_t, sin_t, cos_off, sin_off, e2, g, w_a,
-                   w_b, out):
+def _plan_evaluate(family, part, terms, wt, first, stop, offset, h_sum, cos_t, sin_t, cos_off, sin_off, e2, g,
+                   w_a, w_b, out):
     # 2 Phi_p = theta_p + offset: rotate the stored (cos, sin) of theta_p = 2 s0 ln|a_p|
     for p in range(first.size):
         c = cos_t[p] * cos_off - sin_t[p] * sin_off
         s = sin_t[p] * cos_off + cos_t[p] * sin_off
         out[p] += _point_value(family, part, terms, wt[offset[p]:offset[p + 1]], first[p], stop[p], c, s, e2, g,
-                               w_a, w_b)
+                               w_a, w_b, h_sum[p])
+
+
+@numba.njit(cache=True)
+def _plan_h_sums(family, part, terms, wt, first, stop, offset):
+    out = np.empty(first.size)
+    for p in range(first.size):
+        out[p] = _h_sum(family, part, terms, wt[offset[p]:offset[p + 1]], first[p], stop[p])
+    return out
 
 
 # ---- the Efimov-dependent scalars --------------------------------------------------------------
@@ -369,6 +426,7 @@ def phase_offset(kappa_times_feature, feature):
     return 2.0 * (S0 * math.log(kappa_times_feature / feature / math.sqrt(2.0)) - ARG_GAMMA_S0)
 
 
+@functools.lru_cache(maxsize=None)
 def _feature(family):
     """(feature name, eta name, kappa* x feature): kappa* comes from a_- for a < 0, a_+ for
     three-body loss at a > 0 and a* for atom-dimer loss."""
@@ -379,34 +437,37 @@ def _feature(family):
     return "a_star", "eta_star", load_atom_dimer_table().kappa_star_a_star
 
 
-def _ranges(family, part, scale_q, layout):
-    """(y_T, y_lo, y_hi) per point: the table variable at E = k_BT and the rule's span."""
-    sigma = _SIGMA[family]
-    y_off = (2.0 if family == POSITIVE_A else 1.0) * np.log(scale_q)
-    y_lo = y_off + sigma * np.minimum(math.log(_X_LO[family]), (layout.y_threshold - y_off) / sigma)
+@numba.njit(cache=True)
+def _span(family, part, scale_q, y_threshold):
+    """(y_T, y_lo, y_hi) of one point: the table variable at E = k_BT and the span of its
+    rule, from the threshold regime up to where the Boltzmann weight is negligible."""
+    sigma = 1.0 if family == POSITIVE_A else 0.5
+    y_off = (2.0 if family == POSITIVE_A else 1.0) * math.log(scale_q)
+    x_lo = 1e-4 if family == ATOM_DIMER_A else 1e-3
+    y_lo = y_off + sigma * min(math.log(x_lo), (y_threshold - y_off) / sigma)
     y_hi = y_off + sigma * _Y_UPPER_S
     if part == 1:
         # breakup starts at E_b = x_b k_BT: reach as far above it as above E = 0
-        x_b = np.exp((math.log(2.0 / math.sqrt(3.0)) - y_off) / sigma)
-        y_hi = y_off + sigma * np.log(x_b + math.exp(_Y_UPPER_S))
-    if np.any(y_lo < layout.edges[0]):
-        raise LossfitValueError("temperature", "k_B T a^2 is too small for the fast thermal rule "
-                                "(below its range); use rtol= for the adaptive quadrature")
-    if np.any(y_hi > layout.edges[-1] + 1e-9):
-        raise LossfitValueError("a", "the thermal average reaches beyond the end of the zero-range table; "
-                                "lower a or T")
+        x_b = math.exp((_Y_BREAKUP - y_off) / sigma)
+        y_hi = y_off + sigma * math.log(x_b + math.exp(_Y_UPPER_S))
     return y_off, y_lo, y_hi
 
 
-def _family_scale(family, scale_q, scale):
-    # the a > 0 table holds K3 x^2 / q^4 (its columns are over (E m a^2/hbar^2)^2)
-    scale = np.asarray(scale, dtype=float)
-    return scale * scale_q ** 4 if family == POSITIVE_A else scale
+def _span_error(status):
+    if status == 1:
+        raise LossfitValueError("temperature", "k_B T a^2 is too small for the fast thermal rule "
+                                "(below its range); use rtol= for the adaptive quadrature")
+    raise LossfitValueError("a", "the thermal average reaches beyond the end of the zero-range table; "
+                            "lower a or T")
 
 
 def _efimov_scalars(family, efimov, eta_min):
+    """(2 Phi - 2 s0 ln|a|, e^{-2 eta}, 1 - e^{-4 eta}) of one kernel family."""
     feature, eta_name, kappa = _feature(family)
-    a_f, eta = efimov.require(feature, eta_name)
+    a_f = getattr(efimov, feature)
+    eta = getattr(efimov, eta_name)
+    if a_f is None or eta is None:
+        efimov.require(feature, eta_name)
     if eta < eta_min:
         raise LossfitValueError(eta_name, f"{eta:g} is below eta_min={eta_min:g}, the smallest eta this "
                                 "fast rule resolves; build a plan with a smaller eta_min or use rtol=")
@@ -437,36 +498,35 @@ def general_average(family, a, scale_q, efimov, scale, weights=(1.0, 1.0), parts
     -------
     ndarray
     """
-    eta = efimov.require(_feature(family)[1])[0]
-    # below the default range, rules of their own (finer where the tables need it)
-    eta_min = ETA_MIN if eta >= ETA_MIN else _check_eta_min(eta)
-    off, e2, g = _efimov_scalars(family, efimov, eta_min)
-    scale = _family_scale(family, scale_q, scale)
-    two_phi = 2.0 * S0 * np.log(np.abs(a)) + off
-    cos2, sin2 = np.cos(two_phi), np.sin(two_phi)
+    eta = getattr(efimov, _feature(family)[1])
+    off, e2, g = _efimov_scalars(family, efimov, 0.0 if eta is None else eta)
     out = np.zeros(a.size)
     for part in parts:
-        lay = _layout(family, part, eta_min)
-        y_off, y_lo, y_hi = _ranges(family, part, scale_q, lay)
-        _general(family, part, lay.edges, lay.ex, lay.omega, lay.sigma, lay.terms, y_off, y_lo, y_hi,
-                 scale, cos2, sin2, e2, g, float(weights[0]), float(weights[1]), out)
+        lay = _layout(family, part, _rule_eta(eta))
+        status = _general(family, part, lay.edges, lay.y, lay.ex, lay.omega, lay.sigma, lay.terms, lay.y_threshold, a,
+                          scale_q, scale, off, e2, g, float(weights[0]), float(weights[1]), out)
+        if status:
+            _span_error(status)
     return out
 
 
 class _PlanGroup:
     """The prepared points of one kernel family (and part) within a plan."""
 
-    __slots__ = ("feature", "eta_name", "kappa", "head", "w_a", "w_b", "index", "buffer", "n_nodes")
+    __slots__ = ("family", "head", "w_a", "w_b", "index", "buffer", "n_nodes")
 
     def __init__(self, family, part, a, scale_q, scale, weights, eta_min, index):
-        lay = _layout(family, part, eta_min)
-        y_off, y_lo, y_hi = _ranges(family, part, scale_q, lay)
-        wt, first, stop, offset = _plan_weights(family, lay.edges, lay.ex, lay.omega, lay.sigma, y_off, y_lo,
-                                                y_hi, _family_scale(family, scale_q, scale))
+        lay = _layout(family, part, _rule_eta(eta_min))
+        wt, first, stop, offset, status = _plan_weights(family, part, lay.edges, lay.y, lay.ex, lay.omega,
+                                                        lay.sigma,
+                                                        lay.y_threshold, scale_q, np.asarray(scale, dtype=float))
+        if status:
+            _span_error(status)
         theta = 2.0 * S0 * np.log(np.abs(a))
-        self.feature, self.eta_name, self.kappa = _feature(family)
+        self.family = family
         # the arguments of _plan_evaluate that do not change between evaluations
-        self.head = (family, part, lay.terms, wt, first, stop, offset, np.cos(theta), np.sin(theta))
+        h_sum = _plan_h_sums(family, part, lay.terms, wt, first, stop, offset)
+        self.head = (family, part, lay.terms, wt, first, stop, offset, h_sum, np.cos(theta), np.sin(theta))
         self.w_a, self.w_b = float(weights[0]), float(weights[1])
         self.index = index
         self.buffer = np.empty(a.size)
@@ -507,31 +567,29 @@ class ThermalPlan:
         out = np.empty(self.n_points) if out is None else out
         out.fill(0.0)
         for grp in self.groups:
-            # the hot path of every fit: plain attribute reads, no validation beyond this
-            a_f = getattr(efimov, grp.feature)
-            eta = getattr(efimov, grp.eta_name)
-            if a_f is None or eta is None:
-                efimov.require(grp.feature, grp.eta_name)
-            if eta < self.eta_min:
-                raise LossfitValueError(grp.eta_name, f"{eta:g} is below eta_min={self.eta_min:g}, the smallest "
-                                        "eta this plan resolves; build it with a smaller eta_min")
-            off = phase_offset(grp.kappa, a_f)
+            off, e2, g = _efimov_scalars(grp.family, efimov, self.eta_min)
             target = out
             if grp.index is not None:
                 target = grp.buffer
                 target.fill(0.0)
-            _plan_evaluate(*grp.head, math.cos(off), math.sin(off), math.exp(-2.0 * eta), -math.expm1(-4.0 * eta),
-                           grp.w_a, grp.w_b, target)
+            _plan_evaluate(*grp.head, math.cos(off), math.sin(off), e2, g, grp.w_a, grp.w_b, target)
             if grp.index is not None:
                 out[grp.index] += target
         return out
 
 
+def _rule_eta(eta):
+    """The rules used for eta >= ``eta``: those built for the largest ETA_MIN 2^k <= eta/2
+    (k from -17 to 5; the factor 2 is the safety margin measured in
+    docs/thermal-averages.md), coarser for large eta, finer for small."""
+    k = min(max(math.floor(math.log2(eta / ETA_MIN)) - 1, -17), 5)
+    return ETA_MIN * 2.0 ** k
+
+
 def _check_eta_min(eta_min):
-    if not (isinstance(eta_min, (int, float)) and not isinstance(eta_min, bool) and 0 < eta_min <= ETA_MIN):
-        raise LossfitValueError("eta_min", f"must be a number in (0, {ETA_MIN:g}], got {eta_min!r}")
-    # rules are cached per eta_min: snap to a few values so that plans share them
-    return ETA_MIN * 2.0 ** math.floor(math.log2(eta_min / ETA_MIN))
+    if not (isinstance(eta_min, (int, float)) and not isinstance(eta_min, bool) and 0 < eta_min < math.inf):
+        raise LossfitValueError("eta_min", f"must be a positive number, got {eta_min!r}")
+    return float(eta_min)
 
 
 def three_body_plan(a, q, scale, *, shallow=1.0, deep=1.0, eta_min=ETA_MIN):

@@ -575,22 +575,17 @@ class ZeroRangeModel(EnergyModel):
     # -- fast thermal averages (lossfit.universal.averages) -----------------------------
     def thermal_three_body(self, a, q, efimov, scale, channel="total"):
         shallow, deep = self._channel_weights(_CHANNEL_WEIGHTS, channel)
-        a = np.ravel(a)
-        q = np.abs(np.ravel(q))
-        scale = np.ravel(scale)
+        a, q, scale = np.ravel(a), np.abs(np.ravel(q)), np.ravel(scale)
         neg = a < 0
+        n_neg = int(np.count_nonzero(neg))
+        if n_neg < a.size:
+            self._check_three_body_reach(q[~neg] if n_neg else q, U_MAX ** 2)
+        if n_neg in (0, a.size):
+            family = averages.NEGATIVE_A if n_neg else averages.POSITIVE_A
+            return averages.general_average(family, a, q, efimov, scale, weights=(shallow, deep))
         out = np.empty(a.size)
         for family, sel in ((averages.NEGATIVE_A, neg), (averages.POSITIVE_A, ~neg)):
-            if not sel.any():
-                continue
-            if family == averages.POSITIVE_A:
-                self._check_three_body_reach(q[sel], U_MAX ** 2)
-            whole = sel.all()
-            out_sel = averages.general_average(family, a if whole else a[sel], q if whole else q[sel], efimov,
-                                               scale if whole else scale[sel], weights=(shallow, deep))
-            if whole:
-                return out_sel
-            out[sel] = out_sel
+            out[sel] = averages.general_average(family, a[sel], q[sel], efimov, scale[sel], weights=(shallow, deep))
         return out
 
     def thermal_atom_dimer(self, a, q, efimov, scale, channel="relaxation"):
