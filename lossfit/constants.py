@@ -14,6 +14,7 @@ typed in; ``ARG_GAMMA_S0`` = arg Gamma(1 + i s0) enters every Efimov phase.
 
 __all__ = ["HBAR", "K_B", "ATOMIC_MASS", "BOHR", "ELECTRON_MASS", "HARTREE",
            "S0", "SCALING_FACTOR", "ARG_GAMMA_S0", "KAPPA_A_MINUS", "KAPPA_A_STAR", "KAPPA_A_PLUS",
+           "C_NEGATIVE", "C_POSITIVE_SHALLOW_MAX", "C_POSITIVE_DEEP", "C_ATOM_DIMER", "PUBLISHED",
            "UNIVERSAL_A_STAR_OVER_A_MINUS", "ABAR_OVER_RVDW", "VDW_A_MINUS_OVER_RVDW"]
 
 import cmath
@@ -69,11 +70,34 @@ ARG_GAMMA_S0 = _log_gamma(complex(1.0, S0)).imag
 KAPPA_A_MINUS = -1.50763
 #: kappa* a*_0 for the atom-dimer threshold of the same Efimov branch (same sources).
 KAPPA_A_STAR = 0.0707645
-#: kappa* a_+ for the recombination minimum (quoted from memory from Braaten & Hammer,
-#: Ann. Phys. 322, 120 (2007)). The project's STM solver (docs/stm.md) finds 0.316472,
-#: 1.5e-3 lower, while it reproduces kappa* a*_0 and kappa* a_- to 1e-6; only one of our
-#: routes computes a_+, so the quoted value stays here, with the disagreement on record.
-KAPPA_A_PLUS = 0.316943
+#: kappa* a_+ for the recombination minimum: the project's STM solver (docs/stm.md),
+#: confirmed by an independent momentum-space calculation to 1e-6. The earlier quoted
+#: 0.316943 (from memory; see PUBLISHED) is 1.5e-3 high.
+KAPPA_A_PLUS = 0.316472
+
+# ---- exact zero-range threshold coefficients (docs/conventions.md, "Threshold laws") ----
+# In the form K3 = C(a) hbar a^4/m for recombination *events* and beta = C_beta(a) hbar a/m
+# (dimers lost); lossfit's L3 (atoms lost) is three times the event coefficient.
+_UNIVERSAL = 128.0 * math.pi ** 2 * (4.0 * math.pi - 3.0 * math.sqrt(3.0))
+#: a < 0: C = C_NEGATIVE sinh(2 eta)/(sin^2[s0 ln(a/a_-)] + sinh^2 eta), C_NEGATIVE =
+#: 64 pi^2 (4 pi - 3 sqrt 3) coth(pi s0) = 4672.18. The closed form agrees with both of the
+#: project's solvers to 1e-6 (docs/solver.md, docs/stm.md); it is not derived analytically.
+C_NEGATIVE = 0.5 * _UNIVERSAL / math.tanh(math.pi * S0)
+#: a > 0 into the shallow dimer: C = 128 pi^2 (4 pi - 3 sqrt 3)(sin^2 theta + sinh^2 eta)
+#: / (sinh^2(pi s0 + eta) + cos^2 theta), theta = s0 ln(a/a_+) (analytic; Braaten & Hammer
+#: 2006); its eta -> 0 maximum 128 pi^2 (4 pi - 3 sqrt 3)/sinh^2(pi s0) = 67.1177.
+C_POSITIVE_SHALLOW_MAX = _UNIVERSAL / math.sinh(math.pi * S0) ** 2
+#: a > 0 into deep dimers: C = C_POSITIVE_DEEP sinh(2 eta)/(sinh^2(pi s0 + eta) + cos^2 theta)
+#: with the constant of a < 0 (derivation and the solver check in docs/conventions.md).
+C_POSITIVE_DEEP = C_NEGATIVE
+#: atom-dimer relaxation: C_beta = C_ATOM_DIMER sinh(2 eta)/(sin^2[s0 ln(a/a*)] + sinh^2 eta),
+#: the STM solver's threshold coefficient (docs/stm.md), confirmed independently to 1e-6.
+C_ATOM_DIMER = 19.4935
+#: The published numbers these replace: Braaten & Hammer, Phys. Rep. 428, 259 (2006) (fits to
+#: early numerics: 4590, 67.1, 16.8, 20.3) and kappa* a_+ = 0.316943 (quoted from memory, not
+#: confirmed). docs/conventions.md states how far each is from the exact value.
+PUBLISHED = {"C_NEGATIVE": 4590.0, "C_POSITIVE_SHALLOW": 67.1, "C_POSITIVE_DEEP": 16.8,
+             "C_ATOM_DIMER": 20.3, "KAPPA_A_PLUS": 0.316943}
 #: a*/|a_-| when the atom-dimer resonance of the next (deeper) branch is paired with a_-:
 #: (KAPPA_A_STAR * SCALING_FACTOR) / |KAPPA_A_MINUS| = 1.0652 (DESIGN §5).
 UNIVERSAL_A_STAR_OVER_A_MINUS = KAPPA_A_STAR * SCALING_FACTOR / KAPPA_A_MINUS

@@ -6,7 +6,8 @@ nK (energy as E/k_B), L3 and K3 in cm^6/s (lossfit convention, see
 :mod:`lossfit.universal.threshold`), beta in cm^3/s.
 """
 
-__all__ = ["k3", "beta_energy", "l3", "beta", "natural_unit"]
+__all__ = ["k3", "beta_energy", "l3", "beta", "natural_unit", "validity_flags", "MIN_ABS_A_OVER_RVDW",
+           "MAX_ENERGY_OVER_VDW"]
 
 import math
 import warnings
@@ -25,6 +26,31 @@ from .universal.threshold import Efimov
 
 #: Below this |a|/r_vdW the zero-range theory is outside its validity range (warning only).
 MIN_ABS_A_OVER_RVDW = 5.0
+#: Above this k_B T (or E) over the van der Waals energy hbar^2/(m r_vdW^2) the collisions
+#: probe the short-range potential: zero-range theory does not apply (warning only).
+MAX_ENERGY_OVER_VDW = 0.1
+
+
+def validity_flags(a, scale_nk, species):
+    """Points outside the zero-range theory's validity range (docs/conventions.md).
+
+    Parameters
+    ----------
+    a : array_like
+        Scattering lengths in a0.
+    scale_nk : array_like
+        Temperatures (or collision energies E/k_B) in nK, broadcast against ``a``.
+    species : Species or str
+
+    Returns
+    -------
+    dict of bool arrays
+        ``"short_a"``: |a| < 5 r_vdW; ``"hot"``: k_B T > 0.1 hbar^2/(m r_vdW^2).
+    """
+    sp = species if isinstance(species, Species) else _species(species)
+    a_b, s_b = np.broadcast_arrays(np.asarray(a, dtype=float), np.asarray(scale_nk, dtype=float))
+    return {"short_a": np.abs(a_b) < MIN_ABS_A_OVER_RVDW * sp.r_vdw,
+            "hot": s_b > MAX_ENERGY_OVER_VDW * sp.vdw_energy_nK}
 
 
 def _evaluate_rows_py(kernel, params, x, out):
@@ -47,6 +73,8 @@ def _prepare(a, scale_nk, species, efimov, model, scale_name, process, stackleve
         # one valid point: the same result without a dozen numpy calls on 0-d arrays
         if abs(a) < MIN_ABS_A_OVER_RVDW * sp.r_vdw:
             _warn_short(sp, stacklevel + 1)
+        if scale_nk > MAX_ENERGY_OVER_VDW * sp.vdw_energy_nK:
+            _warn_hot(sp, scale_name, stacklevel + 1)
         # the array path's expression, so that scalars and arrays give identical bits
         k_s = scale_wavenumber_a0(float(scale_nk) * NK, sp.mass)
         return sp, mdl, np.array(float(a)), np.array(float(scale_nk)), np.array(float(a) * k_s)
@@ -62,8 +90,18 @@ def _prepare(a, scale_nk, species, efimov, model, scale_name, process, stackleve
                                 f"{scale_name} shape {scale.shape}") from None
     if (np.abs(a_b) < MIN_ABS_A_OVER_RVDW * sp.r_vdw).any():
         _warn_short(sp, stacklevel + 1)
+    if (scale_b > MAX_ENERGY_OVER_VDW * sp.vdw_energy_nK).any():
+        _warn_hot(sp, scale_name, stacklevel + 1)
     q = a_b * scale_wavenumber_a0(scale_b * NK, sp.mass)
     return sp, mdl, a_b, scale_b, q
+
+
+def _warn_hot(sp, scale_name, stacklevel):
+    what = "k_B T" if scale_name == "temperature" else "the collision energy"
+    warnings.warn(f"{what} above {MAX_ENERGY_OVER_VDW:g} hbar^2/(m r_vdW^2) "
+                  f"({MAX_ENERGY_OVER_VDW * sp.vdw_energy_nK:.4g} nK for {sp.name}): the collisions probe the "
+                  "van der Waals potential, where zero-range theory does not apply", ValidityWarning,
+                  stacklevel=stacklevel)
 
 
 def _warn_short(sp, stacklevel):

@@ -15,7 +15,7 @@ __all__ = ["Species", "species", "register_species", "known_species"]
 import math
 from dataclasses import dataclass, field
 
-from .constants import ABAR_OVER_RVDW, ATOMIC_MASS, ELECTRON_MASS
+from .constants import ABAR_OVER_RVDW, ATOMIC_MASS, BOHR, ELECTRON_MASS, HBAR, K_B
 from .errors import LossfitValueError, is_real
 
 
@@ -56,6 +56,12 @@ class Species:
         """Van der Waals length r_vdW = (1/2)(m C6/hbar^2)^(1/4), in a0."""
         mass_au = self.mass / ELECTRON_MASS     # atomic units: hbar = m_e = a0 = 1
         return 0.5 * (mass_au * self.c6_au) ** 0.25
+
+    @property
+    def vdw_energy_nK(self):
+        """Van der Waals energy hbar^2/(m r_vdW^2) as E/k_B, in nK: collision energies near
+        it probe the short-range potential, beyond zero-range theory."""
+        return HBAR ** 2 / (self.mass * (self.r_vdw * BOHR) ** 2) / K_B * 1e9
 
     @property
     def abar(self):

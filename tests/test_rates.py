@@ -46,19 +46,27 @@ EF = lf.Efimov(a_minus=-957.0, eta_minus=0.05, a_star=1020.0, eta_star=0.07, a_p
 
 # ---------------------------------------------------------------------------- references (SI)
 
+# Exact zero-range threshold coefficients (events; docs/conventions.md), written out again:
+# P = 128 pi^2 (4 pi - 3 sqrt 3) (analytic, Braaten & Hammer 2006), C_- = P coth(pi s0)/2
+# and C_beta = 19.4935 (the project's solvers, confirmed independently to 1e-6).
+P_SHALLOW = 128 * math.pi ** 2 * (4 * math.pi - 3 * math.sqrt(3))
+C_MINUS = P_SHALLOW / 2 / math.tanh(math.pi * S0)
+
+
 def c_threshold(a, ef):
-    """3 C(a) (lossfit convention) of Braaten & Hammer, written out again."""
+    """3 C(a) (lossfit convention), written out again."""
     if a < 0:
         s = math.sin(S0 * math.log(a / ef.a_minus))
-        return 3 * 4590 * math.sinh(2 * ef.eta_minus) / (s * s + math.sinh(ef.eta_minus) ** 2)
-    s = math.sin(S0 * math.log(a / ef.a_plus))
+        return 3 * C_MINUS * math.sinh(2 * ef.eta_minus) / (s * s + math.sinh(ef.eta_minus) ** 2)
+    t = S0 * math.log(a / ef.a_plus)
     e = ef.eta_plus
-    return 3 * (67.1 * math.exp(-2 * e) * (s * s + math.sinh(e) ** 2) + 16.8 * (1 - math.exp(-4 * e)))
+    return 3 * ((P_SHALLOW * (math.sin(t) ** 2 + math.sinh(e) ** 2) + C_MINUS * math.sinh(2 * e))
+                / (math.sinh(math.pi * S0 + e) ** 2 + math.cos(t) ** 2))
 
 
 def c_beta(a, ef):
     s = math.sin(S0 * math.log(a / ef.a_star))
-    return 20.3 * math.sinh(2 * ef.eta_star) / (s * s + math.sinh(ef.eta_star) ** 2)
+    return 19.4935 * math.sinh(2 * ef.eta_star) / (s * s + math.sinh(ef.eta_star) ** 2)
 
 
 def k3_threshold_si(a, sp, ef):

@@ -289,17 +289,25 @@ def test_many_rows_in_one_call_match_single_rows():
 # The accuracy map of issue 2 / DESIGN §9: eta in {0.005, 0.05, 0.5, 2}, |a| from 5 r_vdW
 # to 1e6 a0 (log grid plus the Efimov features), T from 1 nK to 3 uK, 133Cs and 7Li.
 
+# Exact zero-range threshold coefficients (events; docs/conventions.md), written out here:
+# P = 128 pi^2 (4 pi - 3 sqrt 3) (analytic, Braaten & Hammer 2006), C_- = P coth(pi s0)/2
+# (the project's solvers, confirmed to 1e-6), C_beta = 19.4935 (same).
+P_SHALLOW = 128 * math.pi ** 2 * (4 * math.pi - 3 * math.sqrt(3))
+C_MINUS = P_SHALLOW / 2 / math.tanh(math.pi * S0)
+
+
 def bh_c_negative(a, a_minus, eta):
-    return 4590 * math.sinh(2 * eta) / (math.sin(S0 * math.log(a / a_minus)) ** 2 + math.sinh(eta) ** 2)
+    return C_MINUS * math.sinh(2 * eta) / (math.sin(S0 * math.log(a / a_minus)) ** 2 + math.sinh(eta) ** 2)
 
 
 def bh_c_positive(a, a_plus, eta):
-    return (67.1 * math.exp(-2 * eta) * (math.sin(S0 * math.log(a / a_plus)) ** 2 + math.sinh(eta) ** 2)
-            + 16.8 * (1 - math.exp(-4 * eta)))
+    t = S0 * math.log(a / a_plus)
+    return ((P_SHALLOW * (math.sin(t) ** 2 + math.sinh(eta) ** 2) + C_MINUS * math.sinh(2 * eta))
+            / (math.sinh(math.pi * S0 + eta) ** 2 + math.cos(t) ** 2))
 
 
 def bh_c_beta(a, a_star, eta):
-    return 20.3 * math.sinh(2 * eta) / (math.sin(S0 * math.log(a / a_star)) ** 2 + math.sinh(eta) ** 2)
+    return 19.4935 * math.sinh(2 * eta) / (math.sin(S0 * math.log(a / a_star)) ** 2 + math.sinh(eta) ** 2)
 
 
 def thermal_q(a_a0, t_nk, mass):

@@ -104,19 +104,22 @@ def test_threshold_shallow_rate_is_the_analytic_law():
 
 
 @pytest.mark.parametrize("eta", [0.01, 0.1, 1.0])
-def test_threshold_total_within_one_percent_of_braaten_hammer(eta):
-    # Braaten & Hammer, Phys. Rep. 428, 259 (2006): K3 = 3 C hbar a^4/m with
-    # C = 67.1 e^{-2 eta}(sin^2[s0 ln(a/a_+)] + sinh^2 eta) + 16.8 (1 - e^{-4 eta})
-    # (lf.l3_threshold), for |a| from 1e2 to 1e5 a0 at k a = 3e-3 (issue 3: within 1 %)
+def test_threshold_total_is_the_exact_law(eta):
+    # lf.l3_threshold at a > 0 uses the exact closed forms (docs/conventions.md):
+    # C = [P (sin^2 t + sinh^2 eta) + C_- sinh(2 eta)] / (sinh^2(pi s0 + eta) + cos^2 t),
+    # P = 128 pi^2 (4 pi - 3 sqrt 3), C_- = 4672.18; the table at E -> 0 reproduces it to 1e-4
+    # (Braaten & Hammer's 67.1 / 16.8 form, Phys. Rep. 428, 259 (2006), to 0.3-0.7 %)
     a_plus = 1200.0
     ef = lf.Efimov(a_plus=a_plus, eta_plus=eta)
     a = np.geomspace(100.0, 1e5, 25)
-    got = lf.k3(a, _energy_nK(a, 1e-5), species=CS, efimov=ef, model="zero-range")
+    # at E = 1e-12 hbar^2/(m a^2): the finite-energy corrections, linear in k a, are 1e-7
+    got = lf.k3(a, _energy_nK(a, 1e-12), species=CS, efimov=ef, model="zero-range")
     want = lf.l3_threshold(a, species=CS, efimov=ef)
-    # where the eta -> 0 shallow rate vanishes the total is the (small) deep part alone:
-    # compare relative to the local value and to the deep-dimer floor
-    floor = 3 * 16.8 * (1 - math.exp(-4 * eta)) * _k3_unit(a)
-    assert np.all(np.abs(got - want) <= 0.01 * np.maximum(want, floor))
+    np.testing.assert_allclose(got, want, rtol=1e-4)
+    th = S0 * np.log(a / a_plus)
+    bh = 3 * (67.1 * math.exp(-2 * eta) * (np.sin(th) ** 2 + math.sinh(eta) ** 2)
+              + 16.8 * (1 - math.exp(-4 * eta))) * _k3_unit(a)
+    assert np.all(np.abs(bh / want - 1) < 0.008)
 
 
 def test_threshold_deep_rate_against_direct_solves():
@@ -128,7 +131,11 @@ def test_threshold_deep_rate_against_direct_solves():
         ref = stm.recombination_deep(_kappa_a(a, a_plus), eta, cutoff=1e7) * _k3_unit(a)
         got = lf.k3(a, _energy_nK(a, 1e-6), species=CS, efimov=ef, model="zero-range", channel="deep")
         assert got == pytest.approx(ref, rel=1e-3)
-        # and Braaten & Hammer's 16.8 (1 - e^{-4 eta}) (events), within 1 %
+        # the exact closed form C_- sinh(2 eta)/(sinh^2(pi s0 + eta) + cos^2 t), C_- = 4672.18
+        # events (docs/conventions.md); Braaten & Hammer's 16.8 (1 - e^{-4 eta}) within 1 %
+        t = S0 * math.log(a / a_plus)
+        exact = 3 * 4672.182 * math.sinh(2 * eta) / (math.sinh(math.pi * S0 + eta) ** 2 + math.cos(t) ** 2)
+        assert got / (exact * _k3_unit(a)) == pytest.approx(1.0, abs=1e-4)
         assert got / (3 * 16.8 * -math.expm1(-4 * eta) * _k3_unit(a)) == pytest.approx(1.0, abs=0.01)
 
 
@@ -213,7 +220,7 @@ def test_beyond_the_table_raises_naming_a():
 
 def test_kappa_a_plus_from_the_table():
     # the eta -> 0 shallow rate vanishes at a_+: kappa* a_+ from our solver is 0.316472
-    # (docs/stm.md); the value 0.316943 (lossfit.constants, from memory) is 1.5e-3 away
+    # (docs/stm.md, lossfit.constants); the value 0.316943 quoted from memory is 1.5e-3 away
     tab = load_recombination_table()
     assert tab.kappa_star_a_plus == pytest.approx(0.3164722, abs=2e-6)
     w = np.exp(2j * np.asarray(phase_phi(tab.kappa_star_a_plus)))

@@ -13,6 +13,7 @@ from .._io import atomic_path
 from ..constants import (KAPPA_A_MINUS, KAPPA_A_PLUS, UNIVERSAL_A_STAR_OVER_A_MINUS,
                          VDW_A_MINUS_OVER_RVDW)
 from ..errors import ConvergenceWarning
+from ..rates import validity_flags
 from .diagnostics import MIN_STEPS_PER_TAU, autocorrelation_times, split_rhat
 from .parameters import UNITS
 
@@ -21,7 +22,7 @@ REFERENCES = {
     "a_star/a_minus": (UNIVERSAL_A_STAR_OVER_A_MINUS,
                        "zero-range, next branch (Braaten & Hammer 2006; Gogolin, Mora & Egger 2008)"),
     "a_plus/a_minus": (KAPPA_A_PLUS / KAPPA_A_MINUS,
-                       "zero-range, same branch (kappa* a_+ = 0.316943, from memory)"),
+                       "zero-range, same branch (kappa* a_+ = 0.316472, the project's solver)"),
     "a_minus/r_vdw": (VDW_A_MINUS_OVER_RVDW,
                       "van der Waals universality (Wang, D'Incao, Esry & Greene 2012)"),
 }
@@ -63,7 +64,11 @@ class FitResult:
     acceptance_fraction : float
         Mean over walkers.
     warnings : list of str
-        Convergence problems found (also issued as ConvergenceWarning).
+        Convergence problems and validity notes (convergence problems are also issued
+        as ConvergenceWarning).
+    outside_validity : list of dict
+        Data points outside the zero-range theory's range: spectrum index, point index,
+        a (a0), T (nK) and reasons ("|a| < 5 r_vdW", "k_B T > 0.1 E_vdW").
     """
 
     def __init__(self, *, space, chain, log_prob, acceptance, burn, thin, likelihood, species,
@@ -90,6 +95,11 @@ class FitResult:
         self.ess = {n: float(n_total / t) if t > 0 else float("nan") for n, t in self.tau.items()}
         self.rhat = dict(zip(self.names, map(float, rhat)))
         self.warnings = []
+        self.outside_validity = _outside_validity(getattr(likelihood, "spectra", []), species)
+        if self.outside_validity:
+            reasons = sorted({r for p in self.outside_validity for r in p["reasons"]})
+            self.warnings.append(f"{len(self.outside_validity)} data point(s) outside the zero-range validity "
+                                 f"range ({', '.join(reasons)}); see outside_validity")
         steps_kept = chain.shape[0] - self.burn
         tau_max = float(np.nanmax(tau)) if np.isfinite(tau).any() else float("nan")
         if not math.isfinite(tau_max) or steps_kept < MIN_STEPS_PER_TAU * tau_max:
@@ -238,9 +248,24 @@ class FitResult:
                 "thin": self.thin, "acceptance_fraction": self.acceptance_fraction,
                 "summary": [{k: clean(v) for k, v in r.items()} for r in self.summary()],
                 "correlation": {"names": self.names, "matrix": self.correlation().tolist()},
-                "fixed": self.space.fixed, "tie": self.space.tie, "warnings": self.warnings}
+                "fixed": self.space.fixed, "tie": self.space.tie, "warnings": self.warnings,
+                "outside_validity": self.outside_validity}
 
     def write_json(self, path, *, overwrite=False):
         """Write :meth:`to_dict` atomically (temporary file, then rename)."""
         with atomic_path(path, overwrite=overwrite) as tmp, open(tmp, "w") as fh:
             json.dump(self.to_dict(), fh, indent=2, default=str)
+
+
+def _outside_validity(spectra, species):
+    """Points of the fitted spectra outside the zero-range validity range."""
+    out = []
+    for i, spec in enumerate(spectra):
+        flags = validity_flags(spec.a, spec.temperature, species)
+        for j in np.flatnonzero(flags["short_a"] | flags["hot"]):
+            reasons = [text for key, text in (("short_a", "|a| < 5 r_vdW"), ("hot", "k_B T > 0.1 E_vdW"))
+                       if flags[key][j]]
+            out.append({"spectrum": i, "point": int(j), "a": float(spec.a[j]),
+                        "temperature_nK": float(np.broadcast_to(spec.temperature, spec.a.shape)[j]),
+                        "reasons": reasons})
+    return out

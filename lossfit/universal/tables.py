@@ -9,9 +9,10 @@ Interpolation: not-a-knot cubic splines (:func:`spline_coefficients`, the coeffi
 scipy's ``CubicSpline`` gives; tested against it) of both in ln x,
 evaluated in numba. Outside the grid the known limits take over:
 
-* x below the grid: 1 - |s11|^2 proportional to x^4 and arg s11 constant (threshold
-  limit c4 x^4, delta0; the corrections are O(x^2), about 1e-6 at the first node),
-  matched to the first node so that the function is continuous;
+* x below the grid: 1 - |s11|^2 = x^4 (c4 + d x^2) and arg s11 = delta0 + e x^2 (the
+  threshold limits c4, delta0 stored with the table and their O(x^2) corrections, about
+  1e-6 at the first node), d and e set so that the function is continuous at the first
+  node;
 * x above the grid: the exact unitarity value
   s11 = -exp(-pi s0) (x/sqrt 2)^(-2 i s0) Gamma(1 + i s0)/Gamma(1 - i s0),
   plus the table's last difference from it decaying like 1/x (docs/solver.md: the
@@ -156,11 +157,16 @@ def s11_eval(packed, x):
     h = packed[2]
     lnx = math.log(x)
     if lnx <= lnx0:
-        # threshold law c4 x^4, scaled to meet the first node so that the kernel is
-        # continuous (a jump would stall adaptive quadrature)
+        # threshold laws 1 - |s11|^2 -> c4 x^4 and arg s11 -> delta0 with their O(x^2)
+        # corrections, matched to the first node so that the kernel is continuous (a jump
+        # would stall adaptive quadrature) and tends to the solver's threshold values
         r = x / math.exp(lnx0)
         r2 = r * r
-        return math.exp(_spline(packed, _HEADER, 0, 0.0)) * r2 * r2, _spline(packed, _HEADER + 4 * (n - 1), 0, 0.0)
+        x0 = math.exp(lnx0)
+        c4_first = math.exp(_spline(packed, _HEADER, 0, 0.0)) / (x0 * x0 * x0 * x0)
+        ph0 = _spline(packed, _HEADER + 4 * (n - 1), 0, 0.0)
+        t = x * x * x * x * (packed[3] + (c4_first - packed[3]) * r2)
+        return t, packed[4] + (ph0 - packed[4]) * r2
     x_last = packed[7]
     if x >= x_last:
         branch = packed[_HEADER + 8 * (n - 1)]

@@ -1,11 +1,15 @@
 """Zero-energy (threshold) laws of zero-range theory and the Efimov parameter set.
 
-The laws are those of Braaten & Hammer, Phys. Rep. 428, 259 (2006), written as
-``K3 = C(a) hbar a^4 / m`` and ``beta = C_beta(a) hbar a / m`` with
+The laws have the shapes of Braaten & Hammer, Phys. Rep. 428, 259 (2006), written as
+``K3 = C(a) hbar a^4 / m`` and ``beta = C_beta(a) hbar a / m``, with the exact zero-range
+constants of :mod:`lossfit.constants` (values, closed forms and provenance in
+docs/conventions.md; the published 4590, 67.1, 16.8 and 20.3 were fits to early numerics):
 
-* a < 0:  C = 4590 sinh(2 eta_-) / (sin^2[s0 ln(a/a_-)] + sinh^2 eta_-)
-* a > 0:  C = 67.1 exp(-2 eta_+) (sin^2[s0 ln(a/a_+)] + sinh^2 eta_+) + 16.8 (1 - exp(-4 eta_+))
-* atom-dimer:  C_beta = 20.3 sinh(2 eta*) / (sin^2[s0 ln(a/a*)] + sinh^2 eta*)
+* a < 0:  C = 4672.18 sinh(2 eta_-) / (sin^2[s0 ln(a/a_-)] + sinh^2 eta_-)
+* a > 0:  C = [128 pi^2 (4 pi - 3 sqrt 3)(sin^2 theta + sinh^2 eta_+)     (shallow dimer)
+              + 4672.18 sinh(2 eta_+)] / (sinh^2(pi s0 + eta_+) + cos^2 theta),   (deep dimers)
+          theta = s0 ln(a/a_+)
+* atom-dimer:  C_beta = 19.4935 sinh(2 eta*) / (sin^2[s0 ln(a/a*)] + sinh^2 eta*)
 
 Loss-coefficient convention (pinned project-wide, DESIGN §4)
 -------------------------------------------------------------
@@ -35,8 +39,7 @@ dimer is lost per relaxation event and the Braaten-Hammer C_beta is used as is.
 """
 
 __all__ = ["Efimov", "l3_threshold", "beta_threshold", "convert_l3",
-           "CONVENTIONS", "BRAATEN_HAMMER_CONVENTION",
-           "C_NEGATIVE", "C_POSITIVE_SHALLOW", "C_POSITIVE_DEEP", "C_ATOM_DIMER"]
+           "CONVENTIONS", "BRAATEN_HAMMER_CONVENTION"]
 
 import dataclasses
 import math
@@ -44,17 +47,14 @@ import math
 import numba
 import numpy as np
 
-from ..constants import (HBAR, KAPPA_A_MINUS, KAPPA_A_PLUS, KAPPA_A_STAR, S0,
+from ..constants import (C_ATOM_DIMER, C_NEGATIVE, C_POSITIVE_DEEP, C_POSITIVE_SHALLOW_MAX, HBAR,
+                         KAPPA_A_MINUS, KAPPA_A_PLUS, KAPPA_A_STAR, S0,
                          SCALING_FACTOR)
 from ..errors import LossfitValueError, check_finite, check_nonzero, is_real
 from ..species import species as _species
 from ..units import A0, CM3_PER_S, CM6_PER_S
 
-# Braaten & Hammer, Phys. Rep. 428, 259 (2006): dimensionless threshold coefficients.
-C_NEGATIVE = 4590.0
-C_POSITIVE_SHALLOW = 67.1
-C_POSITIVE_DEEP = 16.8
-C_ATOM_DIMER = 20.3
+_SHALLOW = C_POSITIVE_SHALLOW_MAX * math.sinh(math.pi * S0) ** 2     # 128 pi^2 (4 pi - 3 sqrt 3)
 
 CONVENTIONS = {"atoms-thermal": 1.0, "events-thermal": 3.0,
                "atoms-condensate": 6.0, "events-condensate": 18.0}
@@ -146,8 +146,8 @@ class Efimov:
 
         kappa* a_- = -1.50763, kappa* a*_0 = 0.0707645 (Gogolin, Mora & Egger,
         PRL 100, 140404 (2008); Braaten & Hammer 2006), so the atom-dimer resonance of
-        the next branch is a* = 1.0652 |a_-|; kappa* a_+ = 0.316943 (from memory,
-        Braaten & Hammer, Ann. Phys. 322, 120 (2007)). One eta serves every feature.
+        the next branch is a* = 1.0652 |a_-|; kappa* a_+ = 0.316472 (the project's
+        solver, docs/stm.md). One eta serves every feature.
 
         Parameters
         ----------
@@ -194,22 +194,24 @@ def _resonant(amplitude, ratio, eta):
 
 @numba.njit(cache=True)
 def c_negative(a_over_a_minus, eta):
-    """Braaten-Hammer C(a) for a < 0 at ratio a/a_- > 0 (dimensionless)."""
+    """C(a) for a < 0 at ratio a/a_- > 0 (dimensionless, recombination events)."""
     return _resonant(C_NEGATIVE, a_over_a_minus, eta)
 
 
 @numba.njit(cache=True)
 def c_positive(a_over_a_plus, eta):
-    """Braaten-Hammer C(a) for a > 0 (shallow plus deep dimers), ratio a/a_+ > 0."""
-    s = math.sin(S0 * math.log(a_over_a_plus))
+    """C(a) for a > 0 (shallow plus deep dimers, events), ratio a/a_+ > 0."""
+    theta = S0 * math.log(a_over_a_plus)
+    s = math.sin(theta)
+    c = math.cos(theta)
     sh = math.sinh(eta)
-    return (C_POSITIVE_SHALLOW * math.exp(-2.0 * eta) * (s * s + sh * sh)
-            + C_POSITIVE_DEEP * (1.0 - math.exp(-4.0 * eta)))
+    sd = math.sinh(math.pi * S0 + eta)
+    return (_SHALLOW * (s * s + sh * sh) + C_POSITIVE_DEEP * math.sinh(2.0 * eta)) / (sd * sd + c * c)
 
 
 @numba.njit(cache=True)
 def c_atom_dimer(a_over_a_star, eta):
-    """Braaten-Hammer C_beta(a) for atom-dimer relaxation, ratio a/a* > 0."""
+    """C_beta(a) for atom-dimer relaxation (dimers lost), ratio a/a* > 0."""
     return _resonant(C_ATOM_DIMER, a_over_a_star, eta)
 
 
@@ -278,7 +280,7 @@ def _as_output(x):
 def l3_threshold(a, *, species, efimov):
     """Zero-energy three-body loss coefficient L3 (cm^6/s, lossfit convention).
 
-    ``L3 = 3 C(a) hbar a^4 / m`` with the Braaten-Hammer C(a) (module docstring).
+    ``L3 = 3 C(a) hbar a^4 / m`` with the exact zero-range C(a) (module docstring).
 
     Parameters
     ----------
@@ -303,8 +305,8 @@ def l3_threshold(a, *, species, efimov):
 def beta_threshold(a, *, species, efimov):
     """Zero-energy atom-dimer relaxation coefficient beta (cm^3/s).
 
-    ``beta = C_beta(a) hbar a / m`` (Braaten & Hammer 2006), dimers lost per
-    ``∫ n_A n_D d^3r``.
+    ``beta = C_beta(a) hbar a / m`` (shape of Braaten & Hammer 2006, exact zero-range
+    C_beta), dimers lost per ``∫ n_A n_D d^3r``.
 
     Parameters
     ----------
