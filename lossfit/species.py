@@ -12,6 +12,7 @@ which are themselves quoted from memory.
 
 __all__ = ["Species", "species", "register_species", "known_species"]
 
+import functools
 import math
 from dataclasses import dataclass, field
 
@@ -46,24 +47,24 @@ class Species:
             if not (is_real(value) and math.isfinite(value) and value > 0):
                 raise LossfitValueError(arg, f"must be a positive finite number, got {value!r}")
 
-    @property
+    @functools.cached_property
     def mass(self):
         """Atomic mass in kg."""
         return self.mass_u * ATOMIC_MASS
 
-    @property
+    @functools.cached_property
     def r_vdw(self):
         """Van der Waals length r_vdW = (1/2)(m C6/hbar^2)^(1/4), in a0."""
         mass_au = self.mass / ELECTRON_MASS     # atomic units: hbar = m_e = a0 = 1
         return 0.5 * (mass_au * self.c6_au) ** 0.25
 
-    @property
+    @functools.cached_property
     def vdw_energy_nK(self):
         """Van der Waals energy hbar^2/(m r_vdW^2) as E/k_B, in nK: collision energies near
         it probe the short-range potential, beyond zero-range theory."""
         return HBAR ** 2 / (self.mass * (self.r_vdw * BOHR) ** 2) / K_B * 1e9
 
-    @property
+    @functools.cached_property
     def abar(self):
         """Gribakin-Flambaum mean scattering length abar = 0.955978 r_vdW, in a0."""
         return ABAR_OVER_RVDW * self.r_vdw
