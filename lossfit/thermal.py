@@ -415,9 +415,9 @@ def panel_edges(y0, y1, width, forced):
     for a, b in zip(stops[:-1], stops[1:]):
         s = a
         while b - s > 1e-12:
-            h = min(width(s, b), b - s)
+            h = min(width(s, s), b - s)            # the width allowed where the panel starts
             while h > 1e-6 and width(s, s + h) < h:
-                h *= 0.9
+                h *= 0.9                           # ... and everywhere on it
             nxt = b if s + h >= b else s + h
             if b - nxt < 0.25 * h and nxt < b:
                 nxt = s + 0.5 * (b - s)        # split a short remainder evenly

@@ -63,7 +63,7 @@ ATOM_DIMER_A = 2          # beta, a > 0: y = ln(k_AD a) = ln p + s/2       (atom
 _SIGMA = (0.5, 1.0, 0.5)
 # Widest panel in y: resolves the Boltzmann factor exp(-E/k_BT) (at most 1.5 in
 # s = ln(E/k_BT)) and, at a > 0, the coarser spline knots of the three-body table.
-_HMAX_Y = (0.75, 0.6, 0.75)
+_HMAX_Y = (0.5, 0.6, 0.75)
 # Layout range in y, and the table variable below which each kernel has reached its
 # threshold limit at eta = ETA_MIN (the rule starts there or at E = X_LO k_BT, whichever
 # is lower): 1 - |s11|^2 ~ x^4 and arg s11 ~ x^2 settle fast for a < 0, but
