@@ -6,7 +6,6 @@ Target (DESIGN §9): >= 1.8x on 2 ranks, measured against the serial pool in the
 """
 
 import os
-import shutil
 import subprocess
 import sys
 import time
@@ -15,7 +14,7 @@ import warnings
 import numpy as np
 
 import lossfit as lf
-from lossfit.inference.fitting import Posterior, prepare
+from lossfit.inference.fitting import prepare
 from lossfit.inference.pools import find_mpiexec, make_pool
 from lossfit.inference.sampling import sample
 

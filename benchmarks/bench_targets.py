@@ -33,8 +33,6 @@ from scipy.integrate import quad
 import lossfit as lf
 from lossfit.inference.global_fit import CurvesLikelihood
 from lossfit.inference.likelihood import SpectrumLikelihood
-from lossfit.rates import natural_unit
-from lossfit.thermal import THREE_BODY
 from lossfit.units import NK
 from lossfit.universal.models import get_model, scale_wavenumber_a0
 
@@ -55,7 +53,7 @@ def _times(func, repeat=7, number=1):
 
 def _row(what, fast, base, base_name, target, unit="us", scale=1e6, floor=False):
     """One table row; ``floor``: the baseline is a cost every run pays (ratio measured/floor)."""
-    (fmin, fmed), (bmin, bmed) = fast, base
+    (fmin, fmed), (_, bmed) = fast, base
     ratio = (f"{fmed / bmed:.2f}x {base_name}" if floor else f"{bmed / fmed:,.0f}x faster than {base_name}")
     ROWS.append((what, f"{fmin * scale:.3g} / {fmed * scale:.3g} {unit}", f"{ratio} ({bmed * scale:.3g} {unit})",
                  target))

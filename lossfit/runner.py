@@ -190,7 +190,8 @@ def report(out_dir, *, overwrite=False, stream=None):
     from .inference.backends import read_chain_file
     import numpy as np
 
-    from .inference.fitting import make_result, prepare
+    from .inference.fitting import prepare
+    from .inference.posterior import make_result
     from .jobs import parse_job
     stream = stream or sys.stdout
     out_dir = os.fspath(out_dir)

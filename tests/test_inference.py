@@ -172,7 +172,7 @@ def test_likelihood_speed_path_matches_public_rates():
 def test_burn_in_of_a_chain_too_short_for_any_tau():
     # emcee returns NaN autocorrelation times for a 3-step chain; the default burn-in
     # must still be an integer (steps/5 rule, common practice, no source)
-    from lossfit.inference.fitting import auto_burn
+    from lossfit.inference.posterior import auto_burn
     chain = np.zeros((3, 8, 2))
     assert auto_burn(chain) == 0
     chain = np.random.default_rng(1).standard_normal((50, 8, 2))

@@ -18,7 +18,6 @@ References
 """
 
 import math
-import warnings
 
 import numba
 import numpy as np

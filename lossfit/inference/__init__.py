@@ -1,6 +1,7 @@
 """Bayesian inference of Efimov parameters: priors, likelihoods, sampling, results."""
 
-from .fitting import Posterior, fit
+from .fitting import fit
+from .posterior import Posterior
 from .priors import LogNormal, LogUniform, Normal, Prior, Uniform
 from .result import FitResult
 

@@ -1,60 +1,22 @@
 """``lossfit.fit``: posterior Efimov parameters from loss spectra with emcee."""
 
-__all__ = ["fit", "prepare", "make_result", "auto_burn", "Posterior"]
+__all__ = ["fit", "prepare"]
 
 import math
-import sys
 
 import numpy as np
 from scipy.optimize import minimize
 
+from ..curves import DecayCurve
 from ..data import LossSpectrum
 from ..errors import LossfitValueError
 from ..species import species as _species
 from ..universal.models import DEFAULT_MODEL, get_model
-from .diagnostics import autocorrelation_times
+from .global_fit import fit_curves
 from .likelihood import SpectrumLikelihood
-from .parameters import EFIMOV_NAMES, ParameterSpace, default_priors
-from .priors import LogUniform, Prior
-from .result import FitResult
+from .parameters import ParameterSpace, default_priors
+from .posterior import Posterior, coerce_priors, interactive, make_result, walker_ball
 from .sampling import open_backend, sample
-
-
-class Posterior:
-    """log posterior in sampling coordinates; picklable, so any pool can map it."""
-
-    def __init__(self, space, likelihood):
-        self.space = space
-        self.likelihood = likelihood
-
-    def __call__(self, theta):
-        lp = self.space.log_prior(theta)
-        if lp == -math.inf:
-            return -math.inf
-        values = self.space.values(theta)
-        return lp + self.likelihood.given_values(self.space.efimov(values), values)
-
-
-def _interactive():
-    try:
-        from IPython import get_ipython
-        if get_ipython() is not None:
-            return True
-    except ImportError:
-        pass
-    return sys.stderr.isatty()
-
-
-def _coerce_priors(priors):
-    out = {}
-    for name, p in (priors or {}).items():
-        if isinstance(p, Prior):
-            out[name] = p
-        elif isinstance(p, (tuple, list)) and len(p) == 2:
-            out[name] = LogUniform(*p)
-        else:
-            raise LossfitValueError(f"priors[{name!r}]", f"must be a Prior or a (lo, hi) pair, got {p!r}")
-    return out
 
 
 def _check_constrained(space, spectra):
@@ -98,14 +60,7 @@ def _start(posterior, space, walkers, rng, initial):
             if best is None or res.fun < best.fun:
                 best = res
         centre = best.x
-    p0 = np.empty((walkers, ndim))
-    for w in range(walkers):
-        for _ in range(1000):
-            trial = centre + 1e-3 * rng.standard_normal(ndim)
-            if np.isfinite(posterior(trial)):
-                break
-        p0[w] = trial
-    return p0
+    return walker_ball(posterior, centre, walkers, rng, np.full(ndim, 1e-3))
 
 
 def prepare(data, *, species, free, model=None, priors=None, fixed=None, tie=None,
@@ -123,32 +78,13 @@ def prepare(data, *, species, free, model=None, priors=None, fixed=None, tie=Non
     if "density_scale" in free and density_sigma is not None:
         if not (isinstance(density_sigma, (int, float)) and math.isfinite(density_sigma) and density_sigma > 0):
             raise LossfitValueError("density_sigma", f"must be a positive number, got {density_sigma!r}")
-    user_priors = _coerce_priors(priors)
+    user_priors = coerce_priors(priors)
     all_priors = default_priors([n for n in free if n not in user_priors], spectra, density_sigma)
     all_priors.update(user_priors)
     space = ParameterSpace(free, all_priors, fixed=fixed, tie=tie)
     _check_constrained(space, spectra)
     likelihood = SpectrumLikelihood(spectra, sp, mdl, rtol=rtol, eta_min=space.eta_floor())
     return space, likelihood, Posterior(space, likelihood)
-
-
-def auto_burn(chain):
-    """Default burn-in: max(3 tau_max, steps/5), at most steps/2."""
-    tau = autocorrelation_times(chain)
-    # a very short chain can give no finite tau at all: fall back on steps/5
-    tau_max = float(np.max(tau[np.isfinite(tau)])) if np.isfinite(tau).any() else 0.0
-    return int(min(max(3 * tau_max, chain.shape[0] / 5), chain.shape[0] / 2))
-
-
-def make_result(space, likelihood, chain, log_prob, acceptance, *, burn=None, thin=1, settings=None):
-    """A :class:`FitResult` from a chain (steps, walkers, ndim) in sampling coordinates."""
-    if burn is None:
-        burn = auto_burn(chain)
-    elif not isinstance(burn, (int, np.integer)) or not (0 <= burn < chain.shape[0] - 1):
-        raise LossfitValueError("burn", f"must be an integer in [0, {chain.shape[0] - 2}], got {burn!r}")
-    return FitResult(space=space, chain=chain, log_prob=log_prob, acceptance=acceptance, burn=burn,
-                     thin=thin, likelihood=likelihood, species=likelihood.species,
-                     model=likelihood.model, settings=settings or {})
 
 
 def fit(data, *, species, free, model=None, priors=None, walkers=32, steps=3000, burn=None, thin=1,
@@ -211,10 +147,8 @@ def fit(data, *, species, free, model=None, priors=None, walkers=32, steps=3000,
     -------
     FitResult
     """
-    from ..curves import DecayCurve
     items = [data] if isinstance(data, (LossSpectrum, DecayCurve)) else list(data)
     if items and all(isinstance(d, DecayCurve) for d in items):
-        from .global_fit import fit_curves
         return fit_curves(items, species=species, free=free, model=model, priors=priors, walkers=walkers,
                           steps=steps, burn=burn, thin=thin, seed=seed, backend=backend, pool=pool,
                           fixed=fixed, tie=tie, density_sigma=density_sigma, progress=progress,
@@ -242,7 +176,7 @@ def fit(data, *, species, free, model=None, priors=None, walkers=32, steps=3000,
 
     store, done = open_backend(backend, walkers, space.ndim, every=checkpoint_every,
                                names=space.names, metadata=metadata)
-    show = _interactive() if progress is None else bool(progress)
+    show = interactive() if progress is None else bool(progress)
     p0 = _start(posterior, space, walkers, rng, initial) if done == 0 else np.zeros((walkers, space.ndim))
     run = sample(posterior, p0, steps, backend=store, pool=pool, seed=int(rng.integers(2 ** 31)),
                  progress=show, log_every=log_every, checkpoint_every=checkpoint_every,

@@ -85,7 +85,7 @@ from ..errors import LossfitValueError, ValidityWarning
 from ..feshbach import FeshbachResonance
 from ..species import species as _lookup_species
 from ..universal.models import DEFAULT_MODEL, get_model
-from .fitting import Posterior, _coerce_priors, _interactive, make_result
+from .posterior import Posterior, coerce_priors, interactive, make_result, walker_ball
 from .likelihood import RateBlock
 from .parameters import ParameterSpace, default_priors
 from .priors import LogNormal, Normal, Prior
@@ -652,7 +652,7 @@ def _systematic_priors(systematics, resonance):
             continue
         if name == "sigma_B":
             if isinstance(spec, (tuple, list)) and len(spec) == 2:
-                out[name] = _coerce_priors({name: tuple(spec)})[name]
+                out[name] = coerce_priors({name: tuple(spec)})[name]
                 continue
             raise LossfitValueError("systematics['sigma_B']", "give a Prior or a (lo, hi) range in G")
         if not (isinstance(spec, (int, float)) and math.isfinite(spec) and spec > 0):
@@ -726,7 +726,7 @@ def prepare_curves(curves, *, species, free, model=None, priors=None, resonance=
                                   recombination_heating_nK=recombination_heating_nK,
                                   temperature_scale_range=s_range, field_noise=field_noise,
                                   field_noise_nodes=field_noise_nodes, inner_steps=inner_steps, rtol=rtol)
-    user_priors = _coerce_priors(priors)
+    user_priors = coerce_priors(priors)
     all_priors = default_priors([n for n in free if n not in user_priors], likelihood.two_stage_spectra)
     all_priors.update(user_priors)
     all_priors.update(sys_priors)
@@ -818,7 +818,7 @@ def fit_curves(curves, *, species, free, model=None, priors=None, resonance=None
         vals = space.values(centre)
         likelihood.refresh(space.efimov(vals), vals)
         p0 = np.zeros((walkers, space.ndim))
-    show = _interactive() if progress is None else bool(progress)
+    show = interactive() if progress is None else bool(progress)
     run = sample(posterior, p0, steps, backend=store, pool=pool, seed=int(rng.integers(2 ** 31)),
                  progress=show, log_every=log_every, checkpoint_every=checkpoint_every, names=space.names,
                  metadata=metadata)
@@ -872,14 +872,4 @@ def _scales(space):
 
 def _ball(posterior, space, walkers, rng, centre):
     """Walkers in a small ball around the mode, each coordinate scaled by :func:`_scales`."""
-    scale = _scales(space)
-    p0 = np.empty((walkers, space.ndim))
-    for w in range(walkers):
-        for _ in range(1000):
-            trial = centre + scale * rng.standard_normal(space.ndim)
-            if np.isfinite(posterior(trial)):
-                break
-        else:
-            raise LossfitValueError("initial", "no finite posterior near the mode")
-        p0[w] = trial
-    return p0
+    return walker_ball(posterior, centre, walkers, rng, _scales(space))

@@ -1,0 +1,89 @@
+"""What the spectrum fit and the global curve fit share: the log posterior, prior
+shorthands, the walker ball around a start point, the default burn-in and the result."""
+
+__all__ = ["Posterior", "coerce_priors", "interactive", "walker_ball", "auto_burn", "make_result"]
+
+import math
+import sys
+
+import numpy as np
+
+from ..errors import LossfitValueError
+from .diagnostics import autocorrelation_times
+from .priors import LogUniform, Prior
+from .result import FitResult
+
+
+class Posterior:
+    """log posterior in sampling coordinates; picklable, so any pool can map it."""
+
+    def __init__(self, space, likelihood):
+        self.space = space
+        self.likelihood = likelihood
+
+    def __call__(self, theta):
+        lp = self.space.log_prior(theta)
+        if lp == -math.inf:
+            return -math.inf
+        values = self.space.values(theta)
+        return lp + self.likelihood.given_values(self.space.efimov(values), values)
+
+
+def interactive():
+    """True in a notebook or a terminal (progress bars on), False in batch jobs."""
+    try:
+        from IPython import get_ipython
+        if get_ipython() is not None:
+            return True
+    except ImportError:
+        pass
+    return sys.stderr.isatty()
+
+
+def coerce_priors(priors):
+    """name -> Prior from a dict of Priors or (lo, hi) pairs meaning LogUniform."""
+    out = {}
+    for name, p in (priors or {}).items():
+        if isinstance(p, Prior):
+            out[name] = p
+        elif isinstance(p, (tuple, list)) and len(p) == 2:
+            out[name] = LogUniform(*p)
+        else:
+            raise LossfitValueError(f"priors[{name!r}]", f"must be a Prior or a (lo, hi) pair, got {p!r}")
+    return out
+
+
+def walker_ball(posterior, centre, walkers, rng, scale):
+    """Walkers in a small Gaussian ball of per-coordinate ``scale`` around ``centre``
+    (sampling coordinates), each redrawn until its posterior is finite; raises if a
+    walker finds no finite point (a start on the edge of the support)."""
+    ndim = centre.size
+    p0 = np.empty((walkers, ndim))
+    for w in range(walkers):
+        for _ in range(1000):
+            trial = centre + scale * rng.standard_normal(ndim)
+            if np.isfinite(posterior(trial)):
+                break
+        else:
+            raise LossfitValueError("initial", "no finite posterior near the start point")
+        p0[w] = trial
+    return p0
+
+
+def auto_burn(chain):
+    """Default burn-in: max(3 tau_max, steps/5), at most steps/2."""
+    tau = autocorrelation_times(chain)
+    # a very short chain can give no finite tau at all: fall back on steps/5
+    tau_max = float(np.max(tau[np.isfinite(tau)])) if np.isfinite(tau).any() else 0.0
+    return int(min(max(3 * tau_max, chain.shape[0] / 5), chain.shape[0] / 2))
+
+
+def make_result(space, likelihood, chain, log_prob, acceptance, *, burn=None, thin=1, settings=None):
+    """A :class:`FitResult` from a chain (steps, walkers, ndim) in sampling coordinates."""
+    if burn is None:
+        burn = auto_burn(chain)
+    elif not isinstance(burn, (int, np.integer)) or not (0 <= burn < chain.shape[0] - 1):
+        raise LossfitValueError("burn", f"must be an integer in [0, {chain.shape[0] - 2}], got {burn!r}")
+    return FitResult(space=space, chain=chain, log_prob=log_prob, acceptance=acceptance, burn=burn,
+                     thin=thin, likelihood=likelihood, species=likelihood.species,
+                     model=likelihood.model, settings=settings or {})
