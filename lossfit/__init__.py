@@ -5,11 +5,10 @@ from a thermal gas, dN/dt = -L3 ∫n^3), beta in cm^3/s, fields in G, times in s
 trap frequencies in Hz.
 """
 
-__version__ = "0.1.0"
-
 import importlib
 
 from . import errors
+from ._version import __version__
 from .constants import S0, SCALING_FACTOR
 from .errors import LossfitError, LossfitValueError
 from .rates import beta, beta_energy, k3, l3

@@ -19,6 +19,7 @@ __all__ = ["main"]
 import argparse
 import sys
 
+from ._version import __version__
 from .errors import LossfitValueError
 
 
@@ -50,7 +51,6 @@ def _cmd_report(args):
 def build_parser():
     parser = argparse.ArgumentParser(prog="lossfit", description="Thermally averaged zero-range fits "
                                      "of three-body and atom-dimer loss spectra (Efimov parameters).")
-    from . import __version__
     parser.add_argument("--version", action="version", version=f"lossfit {__version__}")
     sub = parser.add_subparsers(dest="command", required=True)
     demo = sub.add_parser("demo", help="fit the built-in invented demo scenario and write all outputs")

@@ -34,11 +34,13 @@ __all__ = ["DecayCurve", "Campaign", "write_campaign", "read_campaign", "read_cu
 import json
 import math
 import os
-from dataclasses import dataclass, field as _dc_field
+from dataclasses import dataclass
+from dataclasses import field as _dc_field
 
 import numpy as np
 
 from ._io import atomic_path, open_checked_h5, read_csv_table
+from ._version import __version__
 from .errors import LossfitValueError, check_finite, check_positive
 from .feshbach import FeshbachResonance
 from .trap import HarmonicTrap, as_trap
@@ -101,7 +103,7 @@ class DecayCurve:
     def __init__(self, *, t, atoms, atoms_err, temperature=None, temperature_err=None, field=None,
                  a=None, trap_hz=None, kind="atoms", partner_atoms=None, partner_atoms_err=None,
                  label=None):
-        from .decay import _times      # the integrator's own time validation
+        from .decay import _times  # the integrator's own time validation
         if kind not in KINDS:
             raise LossfitValueError("kind", f"must be 'atoms' or 'dimers', got {kind!r}")
         self.t = _times(t).astype(float)
@@ -253,7 +255,6 @@ def write_campaign(path, curves, *, species=None, resonance=None, metadata=None,
         JSON-serialisable notes (apparatus, date, scenario, ...).
     overwrite : bool
     """
-    from . import __version__
     curves = check_curves(curves)
     if resonance is not None and not isinstance(resonance, FeshbachResonance):
         raise LossfitValueError("resonance", "the campaign schema stores a single FeshbachResonance; "

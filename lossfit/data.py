@@ -20,6 +20,7 @@ import os
 import numpy as np
 
 from ._io import atomic_path, open_checked_h5, read_csv_table
+from ._version import __version__
 from .errors import LossfitValueError, check_finite, check_nonzero, check_positive
 
 SCHEMA = "lossfit.spectra"
@@ -108,7 +109,6 @@ def write_spectra(path, spectra, *, overwrite=False):
     overwrite : bool
         Replace an existing file; otherwise an existing file is an error.
     """
-    from . import __version__
     spectra = [spectra] if isinstance(spectra, LossSpectrum) else list(spectra)
     if not spectra or not all(isinstance(s, LossSpectrum) for s in spectra):
         raise LossfitValueError("spectra", "must be one or more LossSpectrum objects")

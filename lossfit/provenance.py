@@ -8,6 +8,8 @@ import platform
 import socket
 import subprocess
 
+from ._version import __version__
+
 
 def now_utc():
     """ISO 8601 UTC timestamp."""
@@ -38,7 +40,6 @@ def provenance(**extra):
     import numba
     import numpy
     import scipy
-    from . import __version__
     info = {"lossfit_version": __version__, "git_revision": git_revision(),
             "numpy": numpy.__version__, "scipy": scipy.__version__, "numba": numba.__version__,
             "emcee": emcee.__version__, "h5py": h5py.__version__, "python": platform.python_version(),

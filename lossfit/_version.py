@@ -1,0 +1,5 @@
+"""The package version: the one place it is written (pyproject.toml reads it)."""
+
+__all__ = ["__version__"]
+
+__version__ = "0.1.0"
