@@ -1,4 +1,4 @@
-"""Likelihood, demo and cold-start timings (DESIGN §9), printed against targets.
+"""Likelihood, demo and cold-start timings (docs/architecture.md, targets), printed against targets.
 
 Run: python benchmarks/bench_fit.py [--skip-demo]
 """

@@ -1,7 +1,7 @@
 """Timing of the global decay-curve fit (invented scenario, not measured data).
 
 Prints one global log-likelihood evaluation for 40 curves x 15 points (target <= 2 ms,
-DESIGN §9), its parts, and the wall time of a full global fit. Numbers depend on the
+docs/architecture.md, targets), its parts, and the wall time of a full global fit. Numbers depend on the
 machine and its load; run on an idle machine.
 
 Usage: python benchmarks/bench_global.py [--steps 1500 --walkers 24]

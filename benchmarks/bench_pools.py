@@ -2,7 +2,7 @@
 
 Run: python benchmarks/bench_pools.py        (serial + processes, then launches MPI)
 The MPI part re-runs this file as ``mpiexec -n 2 python bench_pools.py --mpi``.
-Target (DESIGN §9): >= 1.8x on 2 ranks, measured against the serial pool in the same run.
+Target (docs/architecture.md, targets): >= 1.8x on 2 ranks, measured against the serial pool in the same run.
 """
 
 import os

@@ -1,6 +1,6 @@
 """Speed of the thermally averaged rates against a straightforward scipy.integrate.quad.
 
-DESIGN §9 target: thermal L3 at one (a, T) <= 2 us after JIT, >= 1000x faster than
+docs/architecture.md, targets target: thermal L3 at one (a, T) <= 2 us after JIT, >= 1000x faster than
 ``scipy.integrate.quad`` over the same kernel, <= 1e-6 relative difference.
 
 * lossfit: ``lossfit.l3`` (and ``lossfit.beta``) on arrays of 10^4 (a, T) points

@@ -9,7 +9,7 @@ Baselines
 * thermal averages and likelihoods: the same computation on the reference path
   (adaptive Gauss-Kronrod quadrature at the old default rtol 1e-9, or 1e-7 inside
   likelihoods as before), and for the public call also ``scipy.integrate.quad`` over
-  the public energy-resolved kernel ``lf.k3`` (DESIGN target: >= 2000x);
+  the public energy-resolved kernel ``lf.k3`` (docs/architecture.md target: >= 2000x);
 * whole commands: ``python -c "import lossfit"`` (the floor every command pays);
 * start-up: a trivial cached numba function (``import numba`` and its first call),
   the floor any numba-based library pays.

@@ -1,6 +1,6 @@
 """Accuracy map of the thermal engine (lossfit.thermal) against scipy.integrate.quad.
 
-Documents the quadrature choice of lossfit/thermal.py (DESIGN §9 target: relative
+Documents the quadrature choice of lossfit/thermal.py (docs/architecture.md, targets target: relative
 difference <= 1e-6 over eta in [0.005, 2], |a| in [5 r_vdW, 1e6 a0], T in [1 nK, 3 uK]).
 
 For every (species, eta, process, sign, |a|, T) the capped kernel of

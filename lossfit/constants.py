@@ -99,7 +99,7 @@ C_ATOM_DIMER = 19.4935
 PUBLISHED = {"C_NEGATIVE": 4590.0, "C_POSITIVE_SHALLOW": 67.1, "C_POSITIVE_DEEP": 16.8,
              "C_ATOM_DIMER": 20.3, "KAPPA_A_PLUS": 0.316943}
 #: a*/|a_-| when the atom-dimer resonance of the next (deeper) branch is paired with a_-:
-#: (KAPPA_A_STAR * SCALING_FACTOR) / |KAPPA_A_MINUS| = 1.0652 (DESIGN §5).
+#: (KAPPA_A_STAR * SCALING_FACTOR) / |KAPPA_A_MINUS| = 1.0652 (docs/architecture.md, conventions).
 UNIVERSAL_A_STAR_OVER_A_MINUS = KAPPA_A_STAR * SCALING_FACTOR / KAPPA_A_MINUS
 #: Mean scattering length over r_vdW, 4 pi / Gamma(1/4)^2 (Gribakin & Flambaum, PRA 48, 546 (1993)).
 ABAR_OVER_RVDW = 4.0 * math.pi / math.gamma(0.25) ** 2

@@ -500,7 +500,7 @@ def simulate_decay(t, *, species, trap_hz, n0, t0_nK, l3=None, efimov=None, a=No
     t0_nK : float
         Initial temperature in nK (> 0).
     l3 : float, TabulatedRate or callable, optional
-        Three-body loss coefficient in cm^6/s (atoms lost, thermal gas, DESIGN §4): a
+        Three-body loss coefficient in cm^6/s (atoms lost, thermal gas, docs/conventions.md): a
         constant, a table in T, or ``l3(temperature_nK)``. Exclusive with ``efimov``.
     efimov : Efimov, optional
         Efimov parameters; with ``a`` the rates come from ``lossfit.rates`` at the

@@ -1,7 +1,7 @@
 """Public loss coefficients: at fixed collision energy and thermally averaged.
 
 All functions broadcast ``a`` against ``energy``/``temperature`` (numpy rules) and
-return a float for scalar input. Units (DESIGN §3): a in a0, energy and temperature in
+return a float for scalar input. Units (docs/architecture.md, units): a in a0, energy and temperature in
 nK (energy as E/k_B), L3 and K3 in cm^6/s (lossfit convention, see
 :mod:`lossfit.universal.threshold`), beta in cm^3/s.
 """

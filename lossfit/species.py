@@ -6,7 +6,7 @@ Gribakin & Flambaum, PRA 48, 546 (1993)).
 
 Sources of the table (masses: atomic mass evaluation AME2016, Wang et al., Chin.
 Phys. C 41, 030003 (2017); C6: as listed per entry). All values are quoted from
-memory and checked by the tests only against the derived r_vdW values of DESIGN §7,
+memory and checked by the tests only against derived r_vdW check values (tests/test_constants_species.py),
 which are themselves quoted from memory.
 """
 

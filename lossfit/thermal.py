@@ -6,7 +6,7 @@ path*: any kernel, any tolerance) and the pieces of the *fast path*'s fixed rule
 below the first node); docs/thermal-averages.md gives the method and its measured accuracy.
 
 For a non-degenerate gas at temperature T the collision-energy distributions are
-(DESIGN §5)
+(docs/architecture.md, conventions)
 
 * three-body relative energy:  P3(E) = E^2 exp(-E/k_BT) / (2 (k_BT)^3)
 * atom-dimer relative energy:  P2(E) = (2/sqrt(pi)) E^(1/2) (k_BT)^(-3/2) exp(-E/k_BT)

@@ -175,7 +175,7 @@ class HarmonicTrap:
     def mean_n2(self, n_atoms, temperature_nK, species):
         """Density-weighted mean square density <n^2> = (1/N) int n^3 d^3r.
 
-        Equal to N^2 (m omega_bar^2 / (2 pi k_B T))^3 / 3^(3/2) (DESIGN §6).
+        Equal to N^2 (m omega_bar^2 / (2 pi k_B T))^3 / 3^(3/2) (docs/architecture.md, conventions).
 
         Parameters
         ----------

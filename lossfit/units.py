@@ -1,6 +1,6 @@
 """Unit factors: the only module where public units are converted to SI.
 
-Public units (DESIGN §3): scattering length in Bohr radii (a0), temperature and
+Public units (docs/architecture.md, units): scattering length in Bohr radii (a0), temperature and
 collision energy in nK (energy given as E/k_B), L3 in cm^6/s, beta in cm^3/s,
 magnetic field in gauss, time in seconds, trap frequencies in Hz.
 """

@@ -6,7 +6,8 @@ References
   H.-W. Hammer, Phys. Rep. 428, 259 (2006) (s0 = 1.00624, e^{pi/s0} = 22.7).
 * r_vdW = (1/2)(m C6/hbar^2)^(1/4): Chin, Grimm, Julienne & Tiesinga, RMP 82, 1225 (2010).
 * abar = 4 pi / Gamma(1/4)^2 r_vdW = 0.955978 r_vdW: Gribakin & Flambaum, PRA 48, 546 (1993).
-* r_vdW check values: DESIGN §7, *quoted from memory* (not from a source at hand).
+* r_vdW check values: *quoted from memory* (not from a source at hand): 133Cs 101.1 a0,
+  87Rb 82.6, 39K 64.6, 7Li 32.5, 23Na 44.9 from C6 = 6890, 4707, 3921, 1393, 1556 au.
 """
 
 import math
@@ -53,7 +54,7 @@ def test_scaling_factor_published_value():
 
 def test_universal_ratio_a_star_over_a_minus():
     # kappa* a_- = -1.50763, kappa* a*_0 = 0.0707645 (Braaten & Hammer 2006; Gogolin,
-    # Mora & Egger, PRL 100, 140404 (2008)); next-branch a* / a_- = -1.0652 (DESIGN §5).
+    # Mora & Egger, PRL 100, 140404 (2008)); next-branch a* / a_- = -1.0652.
     assert abs(constants.UNIVERSAL_A_STAR_OVER_A_MINUS - (-1.0652)) < 5e-5
     expected = 0.0707645 * math.exp(math.pi / lf.S0) / -1.50763
     assert constants.UNIVERSAL_A_STAR_OVER_A_MINUS == pytest.approx(expected, rel=1e-12)
@@ -98,7 +99,7 @@ def r_vdw_si(mass_kg, c6_au):
     return 0.5 * (mass_kg * c6 / sc.hbar ** 2) ** 0.25 / a0
 
 
-# DESIGN §7 check values, computed from C6 quoted from memory (atomic units).
+# r_vdW check values, computed from C6 quoted from memory (atomic units).
 RVDW_CHECK = {"133Cs": 101.1, "87Rb": 82.6, "39K": 64.6, "7Li": 32.5, "23Na": 44.9}
 
 

@@ -1,11 +1,11 @@
 """Per-curve least-squares fits (lossfit.curvefit) against references outside the project.
 
 * Closed form of dN/dt = -Gamma N - K N^3 at constant T (a Bernoulli equation):
-  N(t)^-2 = (N0^-2 + K/Gamma) e^(2 Gamma t) - K/Gamma, K = L3 c / T^3 (DESIGN §6).
+  N(t)^-2 = (N0^-2 + K/Gamma) e^(2 Gamma t) - K/Gamma, K = L3 c / T^3 (docs/architecture.md, conventions).
 * scipy.integrate.solve_ivp of the rate equations with heating (Weber et al.,
   PRL 91, 123201 (2003)) and of the atom-dimer equations.
 * Monte Carlo: the spread of fitted L3 over noisy realisations versus the reported error.
-The density coefficients c, d are recomputed here from scipy.constants (DESIGN §6).
+The density coefficients c, d are recomputed here from scipy.constants (docs/architecture.md, conventions).
 """
 
 import math

@@ -1,7 +1,7 @@
 """Tests of lossfit.decay: closed-form solutions, scipy.integrate.solve_ivp, energy balance.
 
 The density coefficient c (<n^2> = c N^2 / T^3) is recomputed here from scipy.constants
-with the closed form of DESIGN §6 (Weber et al., PRL 91, 123201 (2003)); the trap
+with the closed form of docs/architecture.md, conventions (Weber et al., PRL 91, 123201 (2003)); the trap
 module itself is tested against quadrature in test_trap.py.
 """
 
@@ -27,7 +27,7 @@ TIMES = np.linspace(0.0, 3.0, 15)
 
 
 def _c3(freqs=FREQS):
-    """c in cm^-6 nK^3 from N^2 (m wbar^2 / (2 pi k T))^3 / 3^{3/2} (DESIGN §6)."""
+    """c in cm^-6 nK^3 from N^2 (m wbar^2 / (2 pi k T))^3 / 3^{3/2} (docs/architecture.md, conventions)."""
     wbar2 = (2 * math.pi) ** 2 * np.prod(freqs) ** (2.0 / 3.0)
     per_k = (SP.mass * wbar2 / (2 * math.pi * sc.k)) ** 3 / 3 ** 1.5      # m^-6 K^3
     return per_k * 1e-12 * 1e27                                            # cm^-6 nK^3
@@ -114,7 +114,7 @@ def test_heating_constant_l3_matches_solve_ivp():
 
 
 def _unitarity_like(temp):
-    # L3 ~ lambda3 / T^2 near unitarity (DESIGN §5; Rem et al., PRL 110, 163202 (2013)),
+    # L3 ~ lambda3 / T^2 near unitarity (docs/architecture.md, conventions; Rem et al., PRL 110, 163202 (2013)),
     # with an offset so that the function is not a pure power law
     return L3 * ((T0 / temp) ** 2 + 0.3)
 

@@ -1,7 +1,7 @@
 """The global fit of decay curves (lossfit.inference.global_fit).
 
 References outside the project:
-* scipy.integrate.quad of K3(E) over the Boltzmann distribution P3(E) (DESIGN §5) for
+* scipy.integrate.quad of K3(E) over the Boltzmann distribution P3(E) (docs/architecture.md, conventions) for
   the per-curve rate tables, and over Gaussian field noise for the sigma_B average;
 * scipy.optimize.least_squares over every curve's nuisances for the inner profile that
   the chord Gauss-Newton iteration approximates;

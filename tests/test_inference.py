@@ -110,7 +110,7 @@ def test_universal_tie_and_density_nuisance():
         res = lf.fit(spectra[:2], species=CS, free=["a_minus", "eta", "density_scale"], tie="universal",
                      density_sigma=0.3, steps=800, seed=4, progress=False)
     ef = res.efimov()
-    assert ef.a_star / ef.a_minus == pytest.approx(-1.0652, rel=1e-4)   # DESIGN §5
+    assert ef.a_star / ef.a_minus == pytest.approx(-1.0652, rel=1e-4)   # docs/architecture.md, conventions
     assert ef.eta_star == ef.eta_minus
     assert np.all(res.derived["a_star/a_minus"] == res.derived["a_star/a_minus"][0])
 

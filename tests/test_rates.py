@@ -1,9 +1,9 @@
-"""Public rate API: k3, beta_energy, l3, beta (DESIGN §3) against independent physics.
+"""Public rate API: k3, beta_energy, l3, beta (docs/architecture.md, units) against independent physics.
 
 References and derivations
 --------------------------
 * Threshold laws: Braaten & Hammer, Phys. Rep. 428, 259 (2006); lossfit L3 = 3 C hbar a^4/m
-  (atoms lost, thermal gas; DESIGN §4).
+  (atoms lost, thermal gas; docs/conventions.md).
 * Three-body J=0 unitarity bound, lossfit convention: K3(E) <= 72 sqrt(3) pi^2 hbar^5/(m^3 E^2)
   (derivation in lossfit/universal/models.py); its Boltzmann average over
   P3(E) = E^2 e^{-E/kT}/(2 (kT)^3) is <E^-2> = 1/(2 (kT)^2), giving
@@ -14,7 +14,7 @@ References and derivations
   With <E^{-1/2}> = (2/sqrt(pi)) (kT)^{-1/2} over P2:
   beta = sqrt(2 pi) hbar^2 / (mu^{3/2} sqrt(k_B T)).
 * Measured 7Li unitarity coefficient lambda3 = 2.5(3)stat(6)syst x 1e-20 uK^2 cm^6/s
-  (Rem et al. 2013, as quoted in DESIGN §5).
+  (Rem et al. 2013, as quoted in docs/architecture.md, conventions).
 """
 
 import math
@@ -457,7 +457,7 @@ def test_empty_input_gives_empty_output():
 @pytest.mark.parametrize("bad", [0.0, float("nan")], ids=str)
 @pytest.mark.parametrize("fun", [lf.l3, lf.beta], ids=["l3", "beta"])
 def test_bad_rtol(fun, bad):
-    # Every public argument is validated (DESIGN §2, "no silent NaN"). Fails today:
+    # Every public argument is validated (docs/architecture.md, rules, "no silent NaN"). Fails today:
     # lossfit/rates.py l3/beta pass rtol straight to the engine; rtol <= 0 or NaN runs the
     # adaptive loop to its 400-interval cap and returns without error or warning (the
     # warning test in _averaged uses max(rtol, 1e-7)). Fix: check_positive("rtol", rtol).

@@ -2,7 +2,7 @@
 
 References
 ----------
-* Collision-energy distributions of a Boltzmann gas (DESIGN §5; Maxwell-Boltzmann
+* Collision-energy distributions of a Boltzmann gas (docs/architecture.md, conventions; Maxwell-Boltzmann
   statistics of 6 and 3 relative degrees of freedom, common practice, no source):
   three-body  P3(x) = x^2 e^{-x} / 2,   atom-dimer  P2(x) = (2/sqrt(pi)) x^{1/2} e^{-x},
   with x = E/k_BT.  Moments: <x^s>_3 = Gamma(3+s)/2,  <x^s>_2 = (2/sqrt(pi)) Gamma(3/2+s).
@@ -40,7 +40,7 @@ S0 = brentq(lambda s: s * math.cosh(math.pi * s / 2) - 8 / math.sqrt(3) * math.s
 LAMBDA = math.exp(math.pi / S0)
 U3 = 72 * math.sqrt(3) * math.pi ** 2      # three-body J=0 bound, natural units (models.py)
 U2 = 3 * math.sqrt(3) * math.pi / 4        # atom-dimer s-wave bound, natural units
-TOL = 1e-6                                 # DESIGN §9 accuracy target
+TOL = 1e-6                                 # docs/architecture.md, targets accuracy target
 
 
 def p3(x):
@@ -285,7 +285,7 @@ def test_many_rows_in_one_call_match_single_rows():
 
 
 # ---------------------------------------------------------------------------- capped kernels
-# The accuracy map of issue 2 / DESIGN §9: eta in {0.005, 0.05, 0.5, 2}, |a| from 5 r_vdW
+# The accuracy map of issue 2 / docs/architecture.md, targets: eta in {0.005, 0.05, 0.5, 2}, |a| from 5 r_vdW
 # to 1e6 a0 (log grid plus the Efimov features), T from 1 nK to 3 uK, 133Cs and 7Li.
 
 # Exact zero-range threshold coefficients (events; docs/conventions.md), written out here:

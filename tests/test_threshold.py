@@ -13,7 +13,7 @@ limits of the solver tables):
 * atom-dimer: beta = C_b hbar a/m,  C_b = 19.4935 sinh(2 eta) / (sin^2[s0 ln(a/a*)] + sinh^2 eta)
 
 lossfit's L3 counts atoms lost from a thermal gas; the Braaten-Hammer coefficient is
-used as an event-rate constant, so L3 = 3 C hbar a^4/m (DESIGN §4;
+used as an event-rate constant, so L3 = 3 C hbar a^4/m (docs/conventions.md;
 ``lossfit.universal.threshold.BH_TO_L3``). Three atoms per event: common practice, no
 source; the thermal/condensate factor 3! = g3(0) of a thermal gas (Kagan, Svistunov &
 Shlyapnikov, JETP Lett. 42, 209 (1985)).
@@ -329,7 +329,7 @@ def test_l3_positive_side_does_not_vanish_as_eta_to_zero():
 
 def test_universal_a_star_over_a_minus():
     ef = lf.Efimov.universal(a_minus=-900.0, eta=0.08)
-    # DESIGN §5: a*/a_- = -1.0652 (Braaten & Hammer 2006; Gogolin, Mora & Egger 2008).
+    # docs/architecture.md, conventions: a*/a_- = -1.0652 (Braaten & Hammer 2006; Gogolin, Mora & Egger 2008).
     assert abs(ef.a_star / ef.a_minus - (-1.0652)) < 5e-5
     assert ef.a_star / ef.a_minus == pytest.approx(-0.0707645 * LAMBDA / 1.50763, rel=1e-12)
 

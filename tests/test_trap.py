@@ -77,7 +77,7 @@ def test_mean_n2_matches_quadrature_of_n_cubed(cube_integral):
 
 
 def test_mean_n2_matches_design_closed_form():
-    # N^2 (m wbar^2 / (2 pi k T))^3 / 3^{3/2}, DESIGN §6 (Weber et al. 2003)
+    # N^2 (m wbar^2 / (2 pi k T))^3 / 3^{3/2}, docs/architecture.md, conventions (Weber et al. 2003)
     trap = HarmonicTrap(FREQS)
     wbar2 = np.prod(_omegas(FREQS)) ** (2.0 / 3.0)
     expected = N_ATOMS ** 2 * (M * wbar2 / (2 * math.pi * KT)) ** 3 / 3 ** 1.5 * 1e-12

@@ -11,7 +11,7 @@ docs/conventions.md; the published 4590, 67.1, 16.8 and 20.3 were fits to early 
           theta = s0 ln(a/a_+)
 * atom-dimer:  C_beta = 19.4935 sinh(2 eta*) / (sin^2[s0 ln(a/a*)] + sinh^2 eta*)
 
-Loss-coefficient convention (pinned project-wide, DESIGN §4)
+Loss-coefficient convention (pinned project-wide, docs/conventions.md)
 -------------------------------------------------------------
 lossfit's ``L3`` is the *atom-loss* coefficient of a *non-degenerate (thermal)* gas:
 ``dN/dt = -L3 ∫ n^3 d^3r``. The dimensionless Braaten-Hammer coefficients are used in
