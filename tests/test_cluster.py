@@ -121,6 +121,7 @@ def test_mpiexec_two_ranks_end_to_end(campaign, uninterrupted):
     assert json.loads((out / "summary.json").read_text())["steps"] == 2500
 
 
+@pytest.mark.slow
 def test_finished_results_are_never_overwritten(campaign, uninterrupted):
     out = campaign / "whole"
     before = {n: (out / n).read_bytes() for n in ("chains.h5", "summary.json")}
@@ -148,6 +149,7 @@ def test_a_second_process_on_the_same_folder_refuses(campaign):
     assert lock.exists() and not (out / "chains.h5").exists()
 
 
+@pytest.mark.slow
 def test_truncated_chain_file_is_detected(campaign, uninterrupted, tmp_path):
     out = tmp_path / "trunc"
     out.mkdir()

@@ -146,6 +146,7 @@ def test_spectrum_from_curves_and_errors():
         fit_curve(short, species=SP)
 
 
+@pytest.mark.slow
 @pytest.mark.filterwarnings("ignore::lossfit.errors.ConvergenceWarning")
 def test_mcmc_agrees_with_least_squares_where_the_model_is_nearly_linear():
     # A well-measured curve: the posterior is close to Gaussian, so its median and 68 %

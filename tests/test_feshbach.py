@@ -220,6 +220,7 @@ def test_calibration_recovers_truth_from_exact_data():
     assert fit.resonance.a_std(340.0) > 0
 
 
+@pytest.mark.slow
 def test_calibration_errors_are_calibrated():
     # Frequentist coverage: over repeated noisy data sets (1 % energy errors) the 1-sigma
     # interval should contain the truth 68.3 % of the time; with 400 draws the binomial

@@ -145,6 +145,7 @@ def test_bad_input_is_named():
     assert info.value.argument == "curves"
 
 
+@pytest.mark.slow
 def test_global_fit_recovers_the_truth_and_plots(tmp_path):
     from lossfit.plotting_curves import curves_plot, derived_spectrum_plot
     curves, res, truth = invented_campaign(21, n_fields=8)
@@ -232,6 +233,7 @@ def _dimer_campaign(seed):
     return curves, ef
 
 
+@pytest.mark.slow
 def test_dimer_curves_profile_and_recovery():
     curves, ef = _dimer_campaign(5)
     fits = [fit_curve(c, species=SP) for c in curves]

@@ -85,6 +85,7 @@ def _synthetic(seed=5, rel=0.12):
     return spectra, truth
 
 
+@pytest.mark.slow
 def test_recovers_known_parameters_from_synthetic_spectra():
     spectra, truth = _synthetic()
     with warnings.catch_warnings():
@@ -103,6 +104,7 @@ def test_recovers_known_parameters_from_synthetic_spectra():
     assert "a_minus (a0)" in res.table()
 
 
+@pytest.mark.slow
 def test_universal_tie_and_density_nuisance():
     spectra, truth = _synthetic(seed=9)
     with warnings.catch_warnings():

@@ -47,6 +47,7 @@ def test_couplings_antisymmetric_and_vanish_at_unitarity():
     assert np.all(coupling_matrix(adiabatic_nu([1.0], 0, 4), 0) == 0)
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("kl", [0.01, 1.0, 30.0])
 def test_unitarity_s11_analytic(kl):
     # |a| = infinity: outgoing solution sqrt(R) H^(1)_{i s0}(K R) gives

@@ -55,6 +55,7 @@ def test_kernel_efimov_exponent():
     assert abs(h2 / h1 - 1) < 1e-4
 
 
+@pytest.mark.slow
 def test_kappa_a_star():
     # kappa* a*_0 = 0.0707645 (Gogolin, Mora & Egger, PRL 100, 140404 (2008); Braaten &
     # Hammer 2006).  Measured 0.07076457 at Lambda a = 1e6.
@@ -62,6 +63,7 @@ def test_kappa_a_star():
     assert r["kappa_a_star"] == pytest.approx(0.0707645, rel=1e-5)
 
 
+@pytest.mark.slow
 def test_kappa_a_minus():
     # kappa* a_- = -1.50763 (Gogolin, Mora & Egger 2008; Braaten & Hammer 2006).
     assert stm.kappa_a_minus(CUT) == pytest.approx(-1.50763, rel=1e-5)
@@ -197,6 +199,7 @@ def test_negative_a_coefficient_matches_project_solver():
         assert c == pytest.approx(4672, rel=1e-3)
 
 
+@pytest.mark.slow
 def test_beta_energy_dependence_matches_hyperspherical():
     # Cross-check of two independent routes below breakup (docs/solver.md 5b gives
     # beta = 3 pi P/(2 k_AD) with P from s_AD and Phi): measured agreement 7e-6 at

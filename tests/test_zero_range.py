@@ -248,6 +248,7 @@ def test_fit_with_the_exact_model_recovers_a_minus():
     assert "approximation" not in res.model.label
 
 
+@pytest.mark.slow
 def test_atom_dimer_amplitude_near_breakup_against_direct_stm():
     # just below and above k_AD a = 2/sqrt 3 the runtime s_AD (Re/Im splines) against
     # fresh STM extractions (docs/stm.md); 1 - |s_AD|^2 is ~1e-6 there, so a spline of

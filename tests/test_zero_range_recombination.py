@@ -53,6 +53,7 @@ def _kappa_a(a, a_plus):
     return load_recombination_table().kappa_star_a_plus * a / a_plus
 
 
+@pytest.mark.slow
 def test_table_interpolation_against_fresh_solves():
     # off-grid energies: the eight runtime columns against a new STM extraction
     tab = load_recombination_table()
@@ -67,6 +68,7 @@ def test_table_interpolation_against_fresh_solves():
         assert got[6] == pytest.approx((r["one_minus_abs_s2"] - r["t_ad"]) / e2, rel=1e-4)
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("e_units", [0.3, 3.0])
 def test_shallow_rate_matches_direct_breakup_solves(e_units):
     # runtime K3_shallow(E) (rows, spline, units) against an independent evaluation:
@@ -235,6 +237,7 @@ def _beta_unit(a):
     return sc.hbar * a * A0 / CS.mass * 1e6      # hbar a/m in cm^3/s
 
 
+@pytest.mark.slow
 def test_breakup_rate_matches_direct_solves():
     # beta_breakup(E) = 3 pi hbar/(2 m k_AD) sum_J (2J + 1) P_break,J: J = 0 by a direct
     # stm.above_breakup solve at this kappa*, eta, J >= 1 by breakup_partial_wave
