@@ -38,8 +38,9 @@ def bench_likelihood():
     # Baseline measured in the same run: the same likelihood written the usual
     # notebook way, with scipy.integrate.quad per point over the same capped kernel.
     from scipy.integrate import quad
-    from lossfit.universal.models import UNITARITY_THREE_BODY
+
     from lossfit.rates import three_body_rows
+    from lossfit.universal.models import UNITARITY_THREE_BODY
     rows = []
     for s in data:
         mdl, params, unit, _ = three_body_rows(s.a, s.temperature, "133Cs", ef, "capped")

@@ -31,9 +31,9 @@ from scipy.integrate import quad
 sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), ".."))
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 
-import lossfit as lf  # noqa: E402
-
 from _reference import A0, HBAR, KB, S0, SQRT_PI  # noqa: E402,F401
+
+import lossfit as lf  # noqa: E402
 
 
 def k3_threshold(a, ef, m):
@@ -133,7 +133,7 @@ def main():
         warnings.simplefilter("ignore", lf.errors.ValidityWarning)
         r1 = bench("l3", lambda a, tt: lf.l3(a, tt, species=sp, efimov=ef),
                    lambda a, tt, **o: quad_l3(a, tt, ef, sp.mass, **o), sign * abs_a, t, n_quad, repeats, rng)
-        r2 = bench("beta", lambda a, tt: lf.beta(a, tt, species=sp, efimov=ef),
+        bench("beta", lambda a, tt: lf.beta(a, tt, species=sp, efimov=ef),
                    lambda a, tt, **o: quad_beta(a, tt, ef, sp.mass, **o), abs_a, t, n_quad, repeats, rng)
         # Single-point call: the public-API overhead a per-point Python loop would pay.
         one = best_time(lambda: lf.l3(-1000.0, 100.0, species=sp, efimov=ef), 2000 if not quick else 200)

@@ -89,7 +89,8 @@ def main():
     _ratio_map(fig, dx, aa, tt, ratio, r"$a$ ($a_0$), $a>0$",
                "log10( capped / zero-range ), blank: beyond the exact table")
     fig.savefig(OUT, dpi=130)
-    print(f"a > 0: capped/zero-range ranges {np.nanmin(ratio):.3g} .. {np.nanmax(ratio):.3g}; wrote {os.path.abspath(OUT)}")
+    print(f"a > 0: capped/zero-range ranges {np.nanmin(ratio):.3g} .. {np.nanmax(ratio):.3g}; "
+          f"wrote {os.path.abspath(OUT)}")
 
 
 if __name__ == "__main__":

@@ -34,12 +34,12 @@ sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), ".."
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 
 import numba  # noqa: E402
+from _reference import A0, HBAR, KB, LAMBDA, S0, SQRT_PI, U2, U3  # noqa: E402,F401
 
 import lossfit as lf  # noqa: E402
 from lossfit.thermal import ATOM_DIMER, THREE_BODY, thermal_average  # noqa: E402
 from lossfit.universal.models import get_model  # noqa: E402
 
-from _reference import A0, HBAR, KB, LAMBDA, S0, SQRT_PI, U2, U3  # noqa: E402,F401
 ETAS = [0.005, 0.05, 0.5, 2.0]
 KW = dict(epsabs=0.0, epsrel=1e-12, limit=500)
 

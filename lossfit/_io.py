@@ -45,6 +45,7 @@ def open_checked_h5(path, schema, max_version, *, argument="path"):
     returned :class:`h5py.File` (use it in a ``with`` block).
     """
     import h5py
+
     from .errors import LossfitValueError
     path = os.fspath(path)
     if not os.path.exists(path):

@@ -246,7 +246,7 @@ class _CurveLogProb:
 
 def _sample_curve(model, x_best, cov, lower, settings):
     """Posterior chain of one curve's coordinates (after burn-in) and its tau."""
-    from .inference.diagnostics import autocorrelation_times    # emcee is only needed here
+    from .inference.diagnostics import autocorrelation_times  # emcee is only needed here
     from .inference.posterior import auto_burn
     from .inference.sampling import sample
     rng = np.random.default_rng(settings["seed"])

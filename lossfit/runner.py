@@ -111,6 +111,7 @@ def write_outputs(result, out_dir, provenance_info, *, truths=None):
     import matplotlib
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
+
     from .plotting import corner_plot, spectrum_plot
     summary = result.to_dict()
     summary["provenance"] = provenance_info
@@ -187,9 +188,9 @@ def run_job(job_path, out_dir, *, pool="serial", workers=None, steps=None, overw
 
 def report(out_dir, *, overwrite=False, stream=None):
     """Re-create summary.json, corner.png and spectrum.png from the stored chain."""
-    from .inference.backends import read_chain_file
     import numpy as np
 
+    from .inference.backends import read_chain_file
     from .inference.fitting import prepare
     from .inference.posterior import make_result
     from .jobs import parse_job

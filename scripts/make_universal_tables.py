@@ -47,11 +47,12 @@ ROOT = os.path.dirname(HERE)
 sys.path.insert(0, ROOT)
 
 from lossfit.provenance import git_revision  # noqa: E402
-from lossfit.universal.solver.scattering import (DEFAULTS, K3_PREFACTOR, S0,  # noqa: E402
-                                                 s11_components)
-from lossfit.universal.solver.boundstates import (kappa_star_from_phase,  # noqa: E402
-                                                  trimer_branch_negative_a,
-                                                  trimer_branch_positive_a)
+from lossfit.universal.solver.boundstates import (  # noqa: E402
+    kappa_star_from_phase,
+    trimer_branch_negative_a,
+    trimer_branch_positive_a,
+)
+from lossfit.universal.solver.scattering import DEFAULTS, K3_PREFACTOR, S0, s11_components  # noqa: E402
 
 
 def git_hash():
@@ -63,8 +64,9 @@ def convergence_study(table_path):
     import matplotlib
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
-    from lossfit.universal.solver.scattering import s11_unitarity
+
     from lossfit.universal.solver.boundstates import atom_dimer_threshold_phase
+    from lossfit.universal.solver.scattering import s11_unitarity
 
     res = {}
     t0 = time.time()
@@ -109,16 +111,19 @@ def convergence_study(table_path):
     trn = np.array(res["nchan"]["transmission"])
     ax[0, 0].loglog(n, np.abs(trn[:-1] / trn[-1] - 1), "s-", label="|T(N)/T(48) - 1|")
     ax[0, 0].loglog(n, 1e-2 * n ** -2.5, "k:", label="N^-2.5")
-    ax[0, 0].set(xlabel="channels N", title="a < 0, k|a| = 0.01"); ax[0, 0].legend(fontsize=8)
+    ax[0, 0].set(xlabel="channels N", title="a < 0, k|a| = 0.01")
+    ax[0, 0].legend(fontsize=8)
     for x, d in res["c_out"].items():
         c = np.array(d["c"][:-1])
         ax[0, 1].loglog(c, np.abs(np.array(d["phase"][:-1]) - d["phase"][-1]) + 1e-12, "o-", label=f"k|a| = {x}")
     ax[0, 1].set(xlabel="c_out (R_m = c_out / K)", ylabel="|arg s11 - arg s11(c_out=320)|",
-                 title="outer radius"); ax[0, 1].legend(fontsize=8)
+                 title="outer radius")
+    ax[0, 1].legend(fontsize=8)
     ax[1, 0].loglog(refs, raw, "o-", label="single step")
     ax[1, 0].loglog(refs, rich, "s-", label="Richardson h, h/2")
     ax[1, 0].set(xlabel="refinement of (h, c_osc)", ylabel="|arg s11 - exact| (unitarity)",
-                 title="step size vs exact |a| = inf"); ax[1, 0].legend(fontsize=8)
+                 title="step size vs exact |a| = inf")
+    ax[1, 0].legend(fontsize=8)
     for rm, d in res["astar"].items():
         ax[1, 1].plot(d["n"], d["value"], "o-", label=f"R_m = {rm} a")
     ax[1, 1].axhline(0.0707645, color="k", ls=":", label="0.0707645 (GME 2008)")
@@ -131,7 +136,8 @@ def convergence_study(table_path):
     bx.loglog(tab["x"], tab["transmission"], label="1 - |s11|^2")
     bx.loglog(tab["x"], np.full_like(tab["x"], 1 - math.exp(-2 * math.pi * S0)), "k:", label="unitarity")
     bx.loglog(tab["x"], float(tab["threshold_c4"]) * tab["x"] ** 4, "k--", label="c4 x^4")
-    bx.set(ylim=(1e-13, 2), xlabel="k|a|", title="a < 0 universal transmission"); bx.legend()
+    bx.set(ylim=(1e-13, 2), xlabel="k|a|", title="a < 0 universal transmission")
+    bx.legend()
     fig2.tight_layout()
     fig2.savefig(os.path.join(ROOT, "docs", "solver-s11.png"), dpi=110)
     print(f"wrote {out}")

@@ -13,8 +13,7 @@ import numpy as np
 import pytest
 
 import lossfit as lf
-from lossfit.curves import (DecayCurve, invented_campaign, read_campaign, read_curves_csv,
-                            write_campaign)
+from lossfit.curves import DecayCurve, invented_campaign, read_campaign, read_curves_csv, write_campaign
 from lossfit.data import LossSpectrum, write_spectra
 from lossfit.errors import LossfitValueError
 from lossfit.feshbach import FeshbachResonance

@@ -12,9 +12,14 @@ import scipy.constants as sc
 from scipy.integrate import quad
 
 from lossfit.errors import LossfitValueError
-from lossfit.feshbach import (FeshbachResonance, OverlappingResonances, ScatteringLengthTable,
-                              average_over_field_noise, binding_energy_khz,
-                              calibrate_from_binding_energies)
+from lossfit.feshbach import (
+    FeshbachResonance,
+    OverlappingResonances,
+    ScatteringLengthTable,
+    average_over_field_noise,
+    binding_energy_khz,
+    calibrate_from_binding_energies,
+)
 from lossfit.species import species
 
 B0, WIDTH, ABG = 350.0, -45.0, -25.0

@@ -7,8 +7,13 @@ import pytest
 from scipy.integrate import quad
 from scipy.special import eval_legendre, lqmn
 
-from lossfit.universal.solver.partial_waves import (PartialWaveSolver, breakup_partial_wave,
-                                                     legendre_p, legendre_q, partial_wave_kernel)
+from lossfit.universal.solver.partial_waves import (
+    PartialWaveSolver,
+    breakup_partial_wave,
+    legendre_p,
+    legendre_q,
+    partial_wave_kernel,
+)
 from lossfit.universal.solver.stm import AtomDimerRankOne
 
 

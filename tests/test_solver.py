@@ -10,14 +10,17 @@ import numpy as np
 import pytest
 from scipy.integrate import solve_ivp
 
+from lossfit.universal.solver.atom_dimer import s_ad_components
+from lossfit.universal.solver.boundstates import (
+    atom_dimer_threshold_phase,
+    kappa_star_a_minus,
+    kappa_star_from_phase,
+    trimer_branch_negative_a,
+    trimer_branch_positive_a,
+)
 from lossfit.universal.solver.hyperspherical import adiabatic_nu, coupling_matrix, efimov_s0
 from lossfit.universal.solver.propagate import efimov_functions, hankel1_logder
-from lossfit.universal.solver.scattering import (K3_PREFACTOR, S0, k3_from_s11,
-                                                 s11_components, s11_point, s11_unitarity)
-from lossfit.universal.solver.atom_dimer import s_ad_components
-from lossfit.universal.solver.boundstates import (atom_dimer_threshold_phase, trimer_branch_positive_a,
-                                                  kappa_star_a_minus, kappa_star_from_phase,
-                                                  trimer_branch_negative_a)
+from lossfit.universal.solver.scattering import K3_PREFACTOR, S0, k3_from_s11, s11_components, s11_point, s11_unitarity
 
 
 def test_s0_published():

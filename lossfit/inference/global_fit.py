@@ -85,9 +85,9 @@ from ..errors import LossfitValueError, ValidityWarning
 from ..feshbach import FeshbachResonance
 from ..species import species as _lookup_species
 from ..universal.models import DEFAULT_MODEL, get_model
-from .posterior import Posterior, coerce_priors, interactive, make_result, walker_ball
 from .likelihood import RateBlock
 from .parameters import ParameterSpace, default_priors
+from .posterior import Posterior, coerce_priors, interactive, make_result, walker_ball
 from .priors import LogNormal, Normal, Prior
 from .sampling import open_backend, sample
 

@@ -82,7 +82,8 @@ class ParameterSpace:
                 raise LossfitValueError("priors", f"needs a Prior for {name!r}, got {priors.get(name)!r}")
             want = SIGNS.get(name, 1.0)
             if priors[name].sign != want:
-                raise LossfitValueError(f"priors[{name!r}]", f"support must be {'negative' if want < 0 else 'positive'}")
+                side = "negative" if want < 0 else "positive"
+                raise LossfitValueError(f"priors[{name!r}]", f"support must be {side}")
         self.names = free
         self.priors = [priors[n] for n in free]
         self.fixed = fixed

@@ -10,8 +10,7 @@ import warnings
 import numpy as np
 
 from .._io import atomic_path
-from ..constants import (KAPPA_A_MINUS, KAPPA_A_PLUS, UNIVERSAL_A_STAR_OVER_A_MINUS,
-                         VDW_A_MINUS_OVER_RVDW)
+from ..constants import KAPPA_A_MINUS, KAPPA_A_PLUS, UNIVERSAL_A_STAR_OVER_A_MINUS, VDW_A_MINUS_OVER_RVDW
 from ..errors import ConvergenceWarning
 from ..rates import validity_flags
 from .diagnostics import MIN_STEPS_PER_TAU, autocorrelation_times, split_rhat

@@ -43,10 +43,15 @@ import numpy as np
 
 from ..constants import ARG_GAMMA_S0, S0
 from ..errors import LossfitValueError
-from ..thermal import (ATOM_DIMER, GL_ORDER, THREE_BODY, composite_gauss_legendre, panel_edges,
-                       probability_below)
-from .tables import (atom_dimer_grid_points, load_atom_dimer_table, load_recombination_table,
-                     load_s11_table, recombination_grid_points, s11_eval)
+from ..thermal import ATOM_DIMER, GL_ORDER, THREE_BODY, composite_gauss_legendre, panel_edges, probability_below
+from .tables import (
+    atom_dimer_grid_points,
+    load_atom_dimer_table,
+    load_recombination_table,
+    load_s11_table,
+    recombination_grid_points,
+    s11_eval,
+)
 
 #: Smallest eta for which the default rules are built (the default prior's lower edge);
 #: plans for smaller eta get finer rules of their own.

@@ -51,11 +51,19 @@ import math
 import numba
 import numpy as np
 
-
 from ..constants import ARG_GAMMA_S0, HBAR, S0
 from ..errors import LossfitValueError
-from ..thermal import (ATOM_DIMER, FEATURES_SIGNATURE, KERNEL_SIGNATURE, THREE_BODY, U_MAX, feature_points,
-                       probability_below, rate_kernel, thermal_average)
+from ..thermal import (
+    ATOM_DIMER,
+    FEATURES_SIGNATURE,
+    KERNEL_SIGNATURE,
+    THREE_BODY,
+    U_MAX,
+    feature_points,
+    probability_below,
+    rate_kernel,
+    thermal_average,
+)
 from ..units import A0
 from . import averages
 from .tables import recombination_eval

@@ -47,9 +47,18 @@ import math
 import numba
 import numpy as np
 
-from ..constants import (C_ATOM_DIMER, C_NEGATIVE, C_POSITIVE_DEEP, C_POSITIVE_SHALLOW_MAX, HBAR,
-                         KAPPA_A_MINUS, KAPPA_A_PLUS, KAPPA_A_STAR, S0,
-                         SCALING_FACTOR)
+from ..constants import (
+    C_ATOM_DIMER,
+    C_NEGATIVE,
+    C_POSITIVE_DEEP,
+    C_POSITIVE_SHALLOW_MAX,
+    HBAR,
+    KAPPA_A_MINUS,
+    KAPPA_A_PLUS,
+    KAPPA_A_STAR,
+    S0,
+    SCALING_FACTOR,
+)
 from ..errors import LossfitValueError, check_finite, check_nonzero, is_real
 from ..species import species as _species
 from ..units import A0, CM3_PER_S, CM6_PER_S

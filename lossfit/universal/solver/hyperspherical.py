@@ -34,9 +34,8 @@ returned: G is regular there.  Lengths are in units of |a|; ``inv_a`` is +1, -1
 __all__ = ["efimov_s0", "g_function", "g_nu", "pole_list", "adiabatic_nu",
            "coupling_matrix", "adiabatic_data"]
 
-import math
-
 import cmath
+import math
 
 import numba
 import numpy as np

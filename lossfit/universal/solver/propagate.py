@@ -24,8 +24,8 @@ __all__ = ["S0", "make_t_grid", "bessel_series_logder", "hankel1_logder", "kv_lo
            "inward_logderivative", "inward_from_outer", "down_amplitude", "efimov_functions",
            "sector_setup", "outward_logderivative"]
 
-import math
 import cmath
+import math
 
 import numba
 import numpy as np
