@@ -20,7 +20,7 @@ energies as E_b / h in kHz.
 
 __all__ = ["FeshbachResonance", "OverlappingResonances", "ScatteringLengthTable",
            "average_over_field_noise", "calibrate_from_binding_energies", "BindingEnergyFit",
-           "binding_energy_khz"]
+           "binding_energy_khz", "resonance_scattering_length", "resonance_covariance"]
 
 import math
 import warnings
@@ -75,6 +75,13 @@ class _ScatteringLengthModel:
                             xtol=1e-13, rtol=4 * np.finfo(float).eps))
 
 
+def resonance_scattering_length(field, b0, width, a_bg):
+    """a(B) = a_bg (1 - width / (B - b0)) of one resonance (Chin, Grimm, Julienne &
+    Tiesinga, RMP 82, 1225 (2010)), without validation: fields in G, a_bg in a0; numpy
+    arrays broadcast. The one home of this formula."""
+    return a_bg * (1.0 - width / (field - b0))
+
+
 class FeshbachResonance(_ScatteringLengthModel):
     """A single magnetic Feshbach resonance, a(B) = a_bg (1 - width / (B - b0)).
 
@@ -99,7 +106,7 @@ class FeshbachResonance(_ScatteringLengthModel):
             raise LossfitValueError("width", "must be non-zero")
         if self.a_bg == 0.0:
             raise LossfitValueError("a_bg", "must be non-zero")
-        self.covariance = None if covariance is None else _covariance(covariance)
+        self.covariance = None if covariance is None else resonance_covariance(covariance)
 
     def __repr__(self):
         return (f"FeshbachResonance(b0={self.b0:g} G, width={self.width:g} G, "
@@ -116,7 +123,7 @@ class FeshbachResonance(_ScatteringLengthModel):
         return self.b0 + self.width
 
     def _a_unchecked(self, B):
-        return self.a_bg * (1.0 - self.width / (B - self.b0))
+        return resonance_scattering_length(B, self.b0, self.width, self.a_bg)
 
     def a(self, B):
         """Scattering length at field ``B``.
@@ -227,14 +234,14 @@ class FeshbachResonance(_ScatteringLengthModel):
 
     def _cov(self, covariance):
         if covariance is not None:
-            return _covariance(covariance)
+            return resonance_covariance(covariance)
         if self.covariance is None:
             raise LossfitValueError("covariance", "this resonance carries no covariance; pass one "
                                     "for (b0, width, a_bg)")
         return self.covariance
 
 
-def _covariance(covariance):
+def resonance_covariance(covariance):
     cov = check_finite("covariance", covariance)
     if cov.shape != (3, 3):
         raise LossfitValueError("covariance", "must be a 3x3 matrix for (b0, width, a_bg), "
@@ -588,8 +595,7 @@ def calibrate_from_binding_energies(B, E_b_kHz, E_b_err, species, guess, *, abso
     abar = sp.abar
 
     def a_of(params):
-        b0, width, a_bg = params
-        return a_bg * (1.0 - width / (b - b0))
+        return resonance_scattering_length(b, *params)
 
     # Stage 1: scattering lengths implied by each energy, errors propagated linearly.
     a_data = abar + np.sqrt(pref / e)

@@ -35,26 +35,7 @@ the profile minimum). With the curvature frozen, ln det H_j is a constant and dr
 out, so marginal and profile likelihood coincide up to a constant. Starting every
 call from the same reference keeps log L a deterministic function of theta (a warm
 start from the previous call would make it depend on the walker's history and break
-detailed balance). Measured accuracy (tests/test_global_fit.py against
-``least_squares`` over all nuisances): exact at the reference, and within 2 % of
-Delta chi2 for points up to Delta chi2 ~ 20 away from it. Cost: (inner_steps + 1)
-batched integrations per call. Measured (``benchmarks/bench_global.py``, invented
-scenario, 40 curves x 15 points, 2-core machine): 1.4 ms per log-likelihood when idle,
-of which about 0.25 ms builds the rate tables and 0.45 ms is each batched integration;
-over 30 posterior draws the chord chi2 exceeds the exact profile by a median of 0.01
-(max 0.05), far below the posterior's chi2 spread. Coverage
-(``benchmarks/coverage_study.py``, 70 invented campaigns of 40 curves, seeds 5000-5069,
-calibration truths drawn from the priors, 20 walkers x 1200 steps): the global fit's
-68 % intervals held the truth in 74 % (a_-), 70 % (eta_-), 63 % (density scale) and
-68 % (temperature scale, 40 campaigns) of campaigns, its 95 % intervals in 96 %, 99 %,
-91 % and 90 % (binomial s.e. 0.056 and 0.026 at n = 70); the coarse rank histograms of
-the truth among the posterior quantiles give chi2 = 5.1, 3.0, 9.3, 2.7 for 5 degrees of
-freedom -- calibrated within the statistics. The two-stage route on the same campaigns:
-80 %, 31 %, 11 % (68 %) and 99 %, 69 %, 23 % (95 %), chi2 = 7, 266, 842: its eta_- and
-density-scale intervals are far too narrow and biased. Neither the chord approximation
-nor the omitted ln det H(theta) term limits coverage: repeating 24 campaigns with
-``inner_steps=2`` changed 1 of 72 containments, and reweighting one posterior by
-exp(-ln det H / 2) moved its medians by <= 0.08 sigma.
+detailed balance). Measured accuracy, cost and coverage: docs/global-fit.md.
 
 L3(T) and beta(T) at each curve's scattering length enter the rate equations only
 through a table of the theory on a small, fixed grid of true temperatures per curve
@@ -82,7 +63,7 @@ from ..curves import check_curves
 from ..data import LossSpectrum
 from ..decay import DecayBatch, TabulatedRate
 from ..errors import LossfitValueError, ValidityWarning
-from ..feshbach import FeshbachResonance
+from ..feshbach import FeshbachResonance, resonance_covariance, resonance_scattering_length
 from ..species import species as _lookup_species
 from ..universal.models import DEFAULT_MODEL, get_model
 from .likelihood import RateBlock
@@ -403,7 +384,7 @@ class CurvesLikelihood:
         r = self.resonance
         b0, width, a_bg = (values.get(n, getattr(r, n)) for n in _RESONANCE_NAMES)
         a = self.a_nominal.copy()
-        a[self.by_field] = a_bg * (1.0 - width / (self.fields[self.by_field] - b0))
+        a[self.by_field] = resonance_scattering_length(self.fields[self.by_field], b0, width, a_bg)
         return a
 
     def tables(self, efimov, values):
@@ -424,7 +405,7 @@ class CurvesLikelihood:
                     b = self.fields[idx][fld][:, None] + sigma_b * self.gh_x[None, :]
                     r = self.resonance
                     b0, width, a_bg = (values.get(n, getattr(r, n)) for n in _RESONANCE_NAMES)
-                    a_nodes = a_bg * (1.0 - width / (b - b0))
+                    a_nodes = resonance_scattering_length(b, b0, width, a_bg)
                     if np.any(np.sign(a_nodes) != self.signs[idx][fld][:, None]):
                         return None
                     a_rows[fld] = a_nodes[:, None, :]
@@ -634,8 +615,7 @@ def _systematic_priors(systematics, resonance):
                                         "pass a 3x3 covariance of (b0, width, a_bg) instead of True")
             cov = resonance.covariance
         else:
-            from ..feshbach import _covariance
-            cov = _covariance(spec)
+            cov = resonance_covariance(spec)
         cov = np.array(cov, dtype=float)
         if np.any(np.diag(cov) <= 0) or np.linalg.eigvalsh(cov).min() <= 1e-12 * np.max(np.diag(cov)):
             raise LossfitValueError("systematics['resonance']", "the covariance must be positive definite "
