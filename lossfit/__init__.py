@@ -10,11 +10,12 @@ import importlib
 from . import errors
 from ._version import __version__
 from .constants import S0, SCALING_FACTOR
+from .efimov import Efimov
 from .errors import LossfitError, LossfitValueError
 from .rates import beta, beta_energy, k3, l3
 from .species import Species, known_species, register_species, species
 from .universal.models import EnergyModel, available_models, register_model
-from .universal.threshold import Efimov, beta_threshold, convert_l3, l3_threshold
+from .universal.threshold import beta_threshold, convert_l3, l3_threshold
 
 __all__ = ["__version__", "errors", "S0", "SCALING_FACTOR", "LossfitError", "LossfitValueError",
            "Species", "species", "known_species", "register_species",

@@ -41,6 +41,7 @@ import numpy as np
 
 from ._io import atomic_path, open_checked_h5, read_csv_table
 from ._version import __version__
+from .efimov import Efimov
 from .errors import LossfitValueError, check_finite, check_positive
 from .feshbach import FeshbachResonance
 from .trap import HarmonicTrap, as_trap
@@ -560,7 +561,6 @@ def invented_campaign(seed, *, n_fields=20, scenario=None, model=None, truth=Non
     """
     from .rates import l3
     from .species import species as _lookup
-    from .universal.threshold import Efimov
     sc = dict(INVENTED_CAMPAIGN, **(scenario or {}))
     tr = dict(sc["truth"], **(truth or {}))
     rng = np.random.default_rng(seed)

@@ -18,10 +18,10 @@ import warnings
 import numpy as np
 
 from .data import LossSpectrum, write_spectra
+from .efimov import Efimov
 from .errors import ValidityWarning
 from .rates import beta, l3
 from .species import species
-from .universal.threshold import Efimov
 
 SCENARIO = {
     "description": "invented demo scenario (not measured data): Cs-133 gas, "

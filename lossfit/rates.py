@@ -16,13 +16,13 @@ import numba
 import numpy as np
 
 from .constants import HBAR
+from .efimov import Efimov
 from .errors import LossfitValueError, ValidityWarning, check_nonzero, check_positive, is_real
 from .species import Species
 from .species import species as _species
 from .thermal import ATOM_DIMER, KERNEL_SIGNATURE, THREE_BODY, U_MAX, LazyCompiled, compiled, thermal_average
 from .units import A0, CM3_PER_S, CM6_PER_S, NK
 from .universal.models import DEFAULT_MODEL, get_model, scale_wavenumber_a0
-from .universal.threshold import Efimov
 
 #: Below this |a|/r_vdW the zero-range theory is outside its validity range (warning only).
 MIN_ABS_A_OVER_RVDW = 5.0

@@ -16,8 +16,8 @@ import math
 import numpy as np
 
 from ..constants import KAPPA_A_MINUS, KAPPA_A_PLUS, KAPPA_A_STAR, SCALING_FACTOR
+from ..efimov import Efimov
 from ..errors import LossfitValueError
-from ..universal.threshold import Efimov
 from .priors import LogNormal, LogUniform, Normal, Prior, Uniform
 
 EFIMOV_NAMES = ("a_minus", "eta_minus", "a_star", "eta_star", "a_plus", "eta_plus")

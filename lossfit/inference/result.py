@@ -11,6 +11,7 @@ import numpy as np
 
 from .._io import atomic_path
 from ..constants import KAPPA_A_MINUS, KAPPA_A_PLUS, UNIVERSAL_A_STAR_OVER_A_MINUS, VDW_A_MINUS_OVER_RVDW
+from ..efimov import Efimov
 from ..errors import ConvergenceWarning
 from ..rates import validity_flags
 from .diagnostics import MIN_STEPS_PER_TAU, autocorrelation_times, split_rhat
@@ -168,7 +169,6 @@ class FitResult:
 
     def efimov(self):
         """Efimov parameters at the posterior medians."""
-        from ..universal.threshold import Efimov
         ef = self.space.efimov(self.median_values())
         return Efimov(**ef.as_dict())
 
