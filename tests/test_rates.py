@@ -430,10 +430,7 @@ def test_unknown_species(fun):
                                              (lf.k3, "energy"), (lf.beta_energy, "energy")],
                          ids=IDS)
 def test_mismatched_shapes(fun, scale_name):
-    # The message must name both arguments of *this* function. Fails today for k3 and
-    # beta_energy: lossfit/rates.py _prepare is always called with scale_name
-    # "temperature" (three_body_rows / atom_dimer_rows), and _rename only renames the
-    # error's `argument`, so k3's message reads "... against temperature shape (2,)".
+    # The message must name both arguments of *this* function.
     with pytest.raises(LossfitValueError) as info:
         fun(np.array([1000.0, 2000.0, 3000.0]), np.array([10.0, 20.0]), species=CS, efimov=EF)
     msg = str(info.value)
@@ -443,10 +440,7 @@ def test_mismatched_shapes(fun, scale_name):
 
 
 def test_empty_input_gives_empty_output():
-    # numpy convention: an empty a broadcasts to an empty result (no crash). Fails today
-    # for l3_threshold, k3 and l3: lossfit/universal/threshold.py l3_coefficient_unchecked
-    # calls a.min()/a.max() on the empty array (numpy "zero-size array to reduction
-    # operation" ValueError). Fix: guard `a.size and a.min() < 0` (same for max).
+    # numpy convention: an empty a broadcasts to an empty result (no crash).
     empty = np.array([])
     assert lf.l3_threshold(empty, species=CS, efimov=EF).shape == (0,)
     assert lf.beta_threshold(empty, species=CS, efimov=EF).shape == (0,)
@@ -457,10 +451,7 @@ def test_empty_input_gives_empty_output():
 @pytest.mark.parametrize("bad", [0.0, float("nan")], ids=str)
 @pytest.mark.parametrize("fun", [lf.l3, lf.beta], ids=["l3", "beta"])
 def test_bad_rtol(fun, bad):
-    # Every public argument is validated (docs/architecture.md, rules, "no silent NaN"). Fails today:
-    # lossfit/rates.py l3/beta pass rtol straight to the engine; rtol <= 0 or NaN runs the
-    # adaptive loop to its 400-interval cap and returns without error or warning (the
-    # warning test in _averaged uses max(rtol, 1e-7)). Fix: check_positive("rtol", rtol).
+    # Every public argument is validated (docs/architecture.md, rules, "no silent NaN").
     with pytest.raises(LossfitValueError) as info:
         fun(1000.0, 100.0, species=CS, efimov=EF, rtol=bad)
     assert info.value.argument == "rtol"

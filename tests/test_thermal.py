@@ -269,10 +269,6 @@ def test_narrow_gaussian_line_with_documented_features(c, g):
     f = lambda x: math.exp(-0.5 * ((x - c) / g) ** 2) / (g * math.sqrt(2 * math.pi))
     ref = quad_average(f, THREE_BODY, [c + k * g for k in range(-8, 9)])
     assert rel(ref, exact) < 1e-9
-    # Fails today (library bug, lossfit/thermal.py _average_one): the 32 % of the line
-    # outside c +- g sits in a layer a few g wide at the end of the neighbouring interval,
-    # between the outermost Gauss-Kronrod nodes, so K15 = G7 = ~0, the error estimate is
-    # ~0 and the loop stops: 16-32 % too low with a tiny error estimate (no warning).
     value = average(k_gauss, gauss_features, [[c, g]], THREE_BODY)
     assert rel(value[0], exact) < TOL
 

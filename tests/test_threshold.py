@@ -464,7 +464,7 @@ def test_efimov_accepts_any_real_number_type(value):
 
 
 def test_efimov_rejects_booleans():
-    # eta=True is a typo, not 1.0 (bool is an int subclass). Fails today (accepted as 1.0).
+    # eta=True is a typo, not 1.0 (bool is an int subclass).
     with pytest.raises(LossfitValueError) as info:
         lf.Efimov(a_minus=-900.0, eta_minus=True)
     assert info.value.argument == "eta_minus"
