@@ -14,8 +14,8 @@ import warnings
 import numpy as np
 
 import lossfit as lf
-from lossfit.demo import demo_spectra
 from lossfit.inference.likelihood import SpectrumLikelihood
+from lossfit.simulate import demo_spectra
 
 
 def bench_likelihood():

@@ -15,9 +15,9 @@ import numpy as np
 
 import lossfit as lf
 from lossfit.curvefit import fit_curves_individually
-from lossfit.curves import invented_campaign
 from lossfit.errors import ConvergenceWarning, ValidityWarning
 from lossfit.inference.global_fit import CurvesLikelihood, fit_curves
+from lossfit.simulate import invented_campaign
 
 
 def _per_call(func, repeat):

@@ -139,7 +139,7 @@ def bench_public():
 
 def bench_global():
     from lossfit.curvefit import fit_curves_individually
-    from lossfit.curves import invented_campaign
+    from lossfit.simulate import invented_campaign
     curves, res, truth = invented_campaign(1, n_fields=20)
     fits = fit_curves_individually(curves, species="133Cs", resonance=res)
     ef = lf.Efimov(a_minus=truth["a_minus"], eta_minus=truth["eta_minus"])

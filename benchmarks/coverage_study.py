@@ -41,9 +41,9 @@ import numpy as np
 import lossfit as lf
 from lossfit._io import atomic_path
 from lossfit.curvefit import fit_curves_individually, spectrum_from_curves
-from lossfit.curves import INVENTED_CAMPAIGN, invented_campaign
 from lossfit.errors import ConvergenceWarning, ValidityWarning
 from lossfit.inference.global_fit import fit_curves
+from lossfit.simulate import INVENTED_CAMPAIGN, invented_campaign
 
 PARAMS = ("a_minus", "eta_minus", "a_star", "eta_star", "density_scale", "temperature_scale")
 DENSITY_SIGMA = 0.2

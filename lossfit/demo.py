@@ -1,71 +1,16 @@
-"""The built-in demo scenario: invented data, generated from the forward model.
+"""``lossfit demo``: fit the built-in invented scenarios (:mod:`lossfit.simulate`) and
+write data, job file, chain, summary and figures. No laboratory's measurement is used."""
 
-The scenario is *invented* for demonstration: a caesium-133 gas (atomic data only are
-real) whose "true" Efimov parameters are chosen by us, measured at three temperatures
-on the a < 0 side (L3) and at one temperature on the a > 0 side (atom-dimer beta).
-Each point scatters normally with its stated error (a fixed fraction of the model
-value, the noise model the Gaussian likelihood assumes), and the whole data set
-shares a density-calibration error of +8 % (L3 scales as 1/s^2, beta as 1/s).
-No laboratory's measurement is used.
-"""
-
-__all__ = ["SCENARIO", "demo_spectra", "run_demo"]
+__all__ = ["run_demo", "run_curves_demo"]
 
 import os
 import time
 import warnings
 
-import numpy as np
-
-from .data import LossSpectrum, write_spectra
-from .efimov import Efimov
+from .data import write_spectra
 from .errors import ValidityWarning
-from .rates import beta, l3
+from .simulate import INVENTED_CAMPAIGN, SCENARIO, demo_spectra, invented_campaign
 from .species import species
-
-SCENARIO = {
-    "description": "invented demo scenario (not measured data): Cs-133 gas, "
-                   "L3 at a<0 for 15, 60 and 250 nK, atom-dimer beta at a>0 for 40 nK",
-    "species": "133Cs",
-    "truth": {"a_minus": -920.0, "eta_minus": 0.07, "a_star": 980.0, "eta_star": 0.09,
-              "density_scale": 1.08},
-    "l3_temperatures_nK": [15.0, 60.0, 250.0],
-    "l3_a_range_a0": [-3500.0, -450.0],
-    "l3_points": 18,
-    "beta_temperature_nK": 40.0,
-    "beta_a_range_a0": [350.0, 3500.0],
-    "beta_points": 16,
-    "relative_error": 0.18,
-    "seed": 20261202,
-}
-
-
-def demo_spectra(scenario=SCENARIO):
-    """The demo's synthetic spectra (list of LossSpectrum) and the truth dict."""
-    rng = np.random.default_rng(scenario["seed"])
-    sp = species(scenario["species"])
-    truth = scenario["truth"]
-    ef = Efimov(**{k: v for k, v in truth.items() if k != "density_scale"})
-    s = truth["density_scale"]
-    rel = scenario["relative_error"]
-    out = []
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", ValidityWarning)
-        lo, hi = scenario["l3_a_range_a0"]
-        a = -np.geomspace(abs(hi), abs(lo), scenario["l3_points"])
-        for t in scenario["l3_temperatures_nK"]:
-            model = l3(a, t, species=sp, efimov=ef) / s ** 2
-            value = model * (1.0 + rel * rng.standard_normal(a.size))
-            out.append(LossSpectrum(a, t, value, rel * model, kind="l3", label=f"L3, {t:g} nK",
-                                    species=sp.name))
-        lo, hi = scenario["beta_a_range_a0"]
-        a = np.geomspace(lo, hi, scenario["beta_points"])
-        t = scenario["beta_temperature_nK"]
-        model = beta(a, t, species=sp, efimov=ef) / s
-        value = model * (1.0 + rel * rng.standard_normal(a.size))
-        out.append(LossSpectrum(a, t, value, rel * model, kind="beta", label=f"beta, {t:g} nK",
-                                species=sp.name))
-    return out, dict(truth)
 
 
 def _fresh_folder(out_dir, names, overwrite):
@@ -150,7 +95,7 @@ def run_curves_demo(out_dir, *, walkers=16, steps=1500, seed=1, n_fields=10, ove
 
     from ._io import atomic_path
     from .curvefit import fit_curves_individually
-    from .curves import INVENTED_CAMPAIGN, invented_campaign, write_campaign
+    from .curves import write_campaign
     from .inference.global_fit import fit_curves
     from .plotting import corner_plot, save_figure
     from .plotting_curves import curves_plot, derived_spectrum_plot

@@ -13,10 +13,11 @@ import numpy as np
 import pytest
 
 import lossfit as lf
-from lossfit.curves import DecayCurve, invented_campaign, read_campaign, read_curves_csv, write_campaign
+from lossfit.curves import DecayCurve, read_campaign, read_curves_csv, write_campaign
 from lossfit.data import LossSpectrum, write_spectra
 from lossfit.errors import LossfitValueError
 from lossfit.feshbach import FeshbachResonance
+from lossfit.simulate import invented_campaign
 
 TRAP = (40.0, 40.0, 8.0)
 T = np.linspace(0.0, 1.0, 6)
@@ -228,7 +229,7 @@ def test_invented_campaign_with_atom_dimer_mixtures():
         # the constant-beta model describes a mixture curve to within noise
         assert fit.chi2 < fit.dof + 4 * math.sqrt(2 * fit.dof)
     with pytest.raises(LossfitValueError, match="n_dimers0"):
-        from lossfit.curves import simulate_curve
+        from lossfit.simulate import simulate_curve
         simulate_curve(np.linspace(0, 0.1, 5), species="133Cs", trap_hz=TRAP, efimov=lf.Efimov(a_star=900.0,
                        eta_star=0.1), n0=1e4, t0_nK=100.0, a=1000.0, rng=np.random.default_rng(0),
                        kind="dimers")

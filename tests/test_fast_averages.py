@@ -160,7 +160,7 @@ def test_plans_for_small_eta_are_finer_and_refuse_below_their_floor():
 def test_fit_gives_the_same_posterior_on_fast_and_reference_paths():
     # demo scenario, fixed seed and start: the two likelihoods differ by ~1e-7
     # relative, so the chains agree and the medians coincide far within 0.05 sigma
-    from lossfit.demo import demo_spectra
+    from lossfit.simulate import demo_spectra
     spectra, truth = demo_spectra()
     kw = dict(species="133Cs", free=["a_minus", "eta_minus", "a_star", "eta_star"], walkers=12, steps=150,
               seed=4, progress=False, initial={k: truth[k] for k in ("a_minus", "eta_minus", "a_star", "eta_star")})

@@ -20,9 +20,9 @@ from scipy.optimize import least_squares
 
 import lossfit as lf
 from lossfit.curvefit import fit_curve, fit_curves_individually, spectrum_from_curves
-from lossfit.curves import invented_campaign
 from lossfit.errors import ConvergenceWarning, LossfitValueError
 from lossfit.inference.global_fit import CurvesLikelihood, fit_curves
+from lossfit.simulate import invented_campaign
 
 SP = lf.species("133Cs")
 EF = lf.Efimov(a_minus=-900.0, eta_minus=0.08)
