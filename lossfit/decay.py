@@ -48,6 +48,7 @@ import numba
 import numpy as np
 from scipy.interpolate import CubicSpline
 
+from ._bisect import interval_of
 from .errors import LossfitValueError, ValidityWarning, check_finite, check_positive
 from .species import species as _lookup_species
 from .trap import as_trap
@@ -97,15 +98,7 @@ def _rate(temperature, const, knots, coefs):
     x = math.log(temperature)
     if x < knots[0] or x > knots[n - 1]:
         return -1.0
-    # bisection for the interval (a handful of knots; cheaper than np.searchsorted here)
-    i = 0
-    hi = n - 1
-    while hi - i > 1:
-        mid = (i + hi) // 2
-        if knots[mid] <= x:
-            i = mid
-        else:
-            hi = mid
+    i = interval_of(knots, x)       # a handful of knots: cheaper than np.searchsorted here
     dx = x - knots[i]
     v = ((coefs[0, i] * dx + coefs[1, i]) * dx + coefs[2, i]) * dx + coefs[3, i]
     return math.exp(v)

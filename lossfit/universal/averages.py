@@ -41,6 +41,7 @@ import math
 import numba
 import numpy as np
 
+from .._bisect import interval_of
 from ..constants import ARG_GAMMA_S0, S0
 from ..errors import LossfitValueError
 from ..thermal import ATOM_DIMER, GL_ORDER, THREE_BODY, composite_gauss_legendre, panel_edges, probability_below
@@ -208,27 +209,13 @@ def _profile(family, part, eta_min):
 
 # ---- per-point weights ------------------------------------------------------------------------
 @numba.njit(cache=True)
-def _panel_of(edges, y):
-    """Index of the panel [edges[i], edges[i + 1]) holding y (bisection; clipped to the ends)."""
-    lo = 0
-    hi = edges.size - 1
-    while hi - lo > 1:
-        mid = (lo + hi) // 2
-        if edges[mid] <= y:
-            lo = mid
-        else:
-            hi = mid
-    return lo
-
-
-@numba.njit(cache=True)
 def _point_range(edges, y, y_lo, y_hi):
     """Indices [first, stop) of the nodes of the panels that overlap [y_lo, y_hi], and the
     lower edge of the first such panel. Nodes of the last panel beyond y_hi are dropped:
     their Boltzmann weights are below 1e-12 of the total (whole panels are kept at the
     lower end, where the tail probability joins the first node)."""
-    i = _panel_of(edges, y_lo)
-    j = _panel_of(edges, y_hi) + 1
+    i = interval_of(edges, y_lo)
+    j = interval_of(edges, y_hi) + 1
     if y_hi <= edges[j - 1] and j - 1 > i:
         j -= 1                  # y_hi on an edge: the panel above adds nothing
     stop = j * GL_ORDER
