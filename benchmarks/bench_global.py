@@ -1,7 +1,8 @@
 """Timing of the global decay-curve fit (invented scenario, not measured data).
 
-Prints one global log-likelihood evaluation for 40 curves x 15 points (target <= 2 ms,
-docs/architecture.md, targets), its parts, and the wall time of a full global fit. Numbers depend on the
+Prints one global log-likelihood evaluation for 40 curves x 15 points with the exact
+(zero-range, the default) and the capped model (target <= 1 ms, docs/architecture.md,
+targets), its parts, and the wall time of a full global fit. Numbers depend on the
 machine and its load; run on an idle machine.
 
 Usage: python benchmarks/bench_global.py [--steps 1500 --walkers 24]
@@ -43,13 +44,14 @@ def main(argv=None):
     fits = fit_curves_individually(curves, species="133Cs", resonance=res)
     ef = lf.Efimov(a_minus=truth["a_minus"], eta_minus=truth["eta_minus"])
     values = {"density_scale": 1.1, "temperature_scale": 1.0}
-    for inner in (0, 1, 2):
-        lik = CurvesLikelihood(curves, "133Cs", "capped", resonance=res, reference_fits=fits,
-                               temperature_scale_range=(0.8, 1.25), inner_steps=inner)
-        lik.refresh(ef, values)
-        t = _per_call(lambda: lik(ef, values), 200)
-        print(f"log-likelihood, inner_steps={inner}: {t * 1e3:.3f} ms per call "
-              f"({lik.n_knots} T knots per curve){'   <- default' if inner == 1 else ''}")
+    for model in ("zero-range", "capped"):
+        for inner in (0, 1, 2):
+            lik = CurvesLikelihood(curves, "133Cs", model, resonance=res, reference_fits=fits,
+                                   temperature_scale_range=(0.8, 1.25), inner_steps=inner)
+            lik.refresh(ef, values)
+            t = _per_call(lambda: lik(ef, values), 200)
+            print(f"log-likelihood, {model}, inner_steps={inner}: {t * 1e3:.3f} ms per call "
+                  f"({lik.n_knots} T knots per curve){'   <- default' if inner == 1 else ''}")
     lik.inner_steps = 1
     tables = lik.tables(ef, values)
     t_tables = _per_call(lambda: lik.tables(ef, values), 200)
