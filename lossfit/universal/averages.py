@@ -68,19 +68,19 @@ POSITIVE_A = 1            # K3, a > 0:   y = ln(E m a^2/hbar^2) = 2 ln q + s (re
 ATOM_DIMER_A = 2          # beta, a > 0: y = ln(k_AD a) = ln p + s/2       (atom-dimer table)
 _SIGMA = (0.5, 1.0, 0.5)
 # Widest panel in y: resolves the Boltzmann factor exp(-E/k_BT) (at most 1.5 in
-# s = ln(E/k_BT)) and, at a > 0, the coarser spline knots of the three-body table.
+# s = ln(E/k_BT)); for a < 0 the near-threshold resonance of s11 at small eta, for a > 0
+# the coarser spline knots of the three-body table (docs/thermal-averages.md).
 _HMAX_Y = (0.5, 0.6, 0.75)
-# Layout range in y, and the table variable below which each kernel has reached its
-# threshold limit at eta = ETA_MIN (the rule starts there or at E = X_LO k_BT, whichever
-# is lower): 1 - |s11|^2 ~ x^4 and arg s11 ~ x^2 settle fast for a < 0, but
-# T_AD = 8.27 k_AD a near the atom-dimer threshold competes with 4 eta down to
-# k_AD a ~ 1e-5; at a > 0 |s| <= 0.04 above the three-atom threshold.
+# Range of the global layouts in y (None: the end of the table).
 _Y_RANGE = ((-32.0, 32.0), (-64.0, None), (-32.0, None))
 
 
 def _threshold_y(family, eta_min):
-    """Table variable below which the kernel has settled to its threshold limit for
-    every eta >= eta_min (the variations above scale like x^2 and like k_AD a)."""
+    """Table variable below which the kernel has settled to its threshold limit for every
+    eta >= eta_min; a point's rule starts there or at E = 1e-3 k_BT (1e-4 for beta),
+    whichever is lower. 1 - |s11|^2 ~ x^4 and arg s11 ~ x^2 settle fast for a < 0, but
+    T_AD = 8.27 k_AD a competes with 4 eta down to k_AD a ~ 1e-5 (eta = 0.005); at a > 0
+    |s| <= 0.04 above the three-atom threshold."""
     ratio = eta_min / ETA_MIN
     if family == NEGATIVE_A:
         # not above 0.03 for large eta: the x^2 corrections of t/x^2 set the limit there
@@ -89,15 +89,18 @@ def _threshold_y(family, eta_min):
         return math.log(1e-3)
     # T_AD/2 = 4.1 k_AD a against 2 eta: linear in eta; corrections linear in k_AD a
     return math.log(1e-5 * ratio)
+
+
 # s above which the Boltzmann weights hold less than 1e-10 (three-body) and 1e-12 (beta)
 # of the probability; the kernels do not grow with E there
 _Y_UPPER_S = math.log(32.0)
 _Y_BREAKUP = math.log(2.0 / math.sqrt(3.0))      # ln k_AD a at the breakup threshold
 
-# Term columns of each family (table functions at the nodes, Efimov-independent).
-# a < 0:        t, Re s11, Im s11, |s11|^2                       -> N4 = t / x^2
+# Term columns of each family (table functions at the nodes, Efimov-independent; the
+# powers of x = E/k_BT that turn them into the kernel are in the node weights, _weights):
+# a < 0:        t = 1 - |s11|^2, Re s11, Im s11, |s11|^2
 # a > 0:        A, Re B, Im B, C, T_break, H, Re s, Im s, |s|^2  (all over E^2)
-# relaxation:   T_AD, Re s_AD, Im s_AD, |s_AD|^2                 -> N4 = T_AD / sqrt(x)
+# relaxation:   T_AD, Re s_AD, Im s_AD, |s_AD|^2
 # breakup:      E^2 x (A, Re B, Im B, C, H), Re s, Im s, |s|^2   (three-atom energy E)
 
 
