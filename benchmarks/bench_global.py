@@ -15,8 +15,8 @@ import warnings
 import numpy as np
 
 import lossfit as lf
-from lossfit.curvefit import fit_curves_individually
 from lossfit.errors import ConvergenceWarning, ValidityWarning
+from lossfit.inference.curve_fits import fit_curves_individually
 from lossfit.inference.global_fit import CurvesLikelihood, fit_curves
 from lossfit.simulate import invented_campaign
 

@@ -138,7 +138,7 @@ def bench_public():
 
 
 def bench_global():
-    from lossfit.curvefit import fit_curves_individually
+    from lossfit.inference.curve_fits import fit_curves_individually
     from lossfit.simulate import invented_campaign
     curves, res, truth = invented_campaign(1, n_fields=20)
     fits = fit_curves_individually(curves, species="133Cs", resonance=res)

@@ -8,7 +8,7 @@ curves scatter with their stated errors. Two analyses per campaign:
 
 * global: :func:`lossfit.inference.global_fit.fit_curves` with both calibration
   nuisances sampled and the per-curve nuisances eliminated inside the likelihood;
-* two-stage: per-curve constant-L3 fits (:func:`lossfit.curvefit.spectrum_from_curves`),
+* two-stage: per-curve constant-L3 fits (:func:`lossfit.inference.curve_fits.spectrum_from_curves`),
   then :func:`lossfit.fit` on the derived spectrum with the density-scale nuisance (the
   two-stage route has no handle on the thermometry scale, as in common practice).
 
@@ -40,8 +40,8 @@ import numpy as np
 
 import lossfit as lf
 from lossfit._io import atomic_path
-from lossfit.curvefit import fit_curves_individually, spectrum_from_curves
 from lossfit.errors import ConvergenceWarning, ValidityWarning
+from lossfit.inference.curve_fits import fit_curves_individually, spectrum_from_curves
 from lossfit.inference.global_fit import fit_curves
 from lossfit.simulate import INVENTED_CAMPAIGN, invented_campaign
 

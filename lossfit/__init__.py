@@ -34,7 +34,7 @@ __all__ = ["__version__", "errors", "S0", "SCALING_FACTOR", "LossfitError", "Los
 # that computing rates starts fast.
 _LAZY = {name: "lossfit.inference" for name in
          ("fit", "FitResult", "LogUniform", "Uniform", "LogNormal", "Normal")}
-_LAZY.update({name: "lossfit.curvefit" for name in ("fit_curve", "spectrum_from_curves")})
+_LAZY.update({name: "lossfit.inference.curve_fits" for name in ("fit_curve", "spectrum_from_curves")})
 _LAZY.update({name: "lossfit.curves" for name in ("DecayCurve", "read_campaign", "read_curves_csv",
                                                   "write_campaign")})
 _LAZY.update({name: "lossfit.data" for name in ("LossSpectrum", "read_csv", "read_spectra", "write_spectra")})

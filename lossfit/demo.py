@@ -94,8 +94,8 @@ def run_curves_demo(out_dir, *, walkers=16, steps=1500, seed=1, n_fields=10, ove
     import matplotlib.pyplot as plt
 
     from ._io import atomic_path
-    from .curvefit import fit_curves_individually
     from .curves import write_campaign
+    from .inference.curve_fits import fit_curves_individually
     from .inference.global_fit import fit_curves
     from .plotting import corner_plot, save_figure
     from .plotting_curves import curves_plot, derived_spectrum_plot

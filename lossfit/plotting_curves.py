@@ -60,7 +60,7 @@ def curves_plot(curves=None, *, fits=None, result=None, species=None, ncols=5, m
     curves : sequence of DecayCurve, optional
         Default: the curves of ``fits`` or ``result``.
     fits : list of CurveFit, optional
-        Per-curve least-squares fits (:func:`lossfit.curvefit.fit_curve`): dashed lines.
+        Per-curve least-squares fits (:func:`lossfit.inference.curve_fits.fit_curve`): dashed lines.
     result : FitResult, optional
         A global fit (:func:`lossfit.inference.global_fit.fit_curves`): solid lines at the
         posterior medians, nuisances re-solved there.
@@ -134,7 +134,7 @@ def derived_spectrum_plot(spectra=None, *, result=None, fig=None, **kwargs):
     Parameters
     ----------
     spectra : list of LossSpectrum, optional
-        From :func:`lossfit.curvefit.spectrum_from_curves`.
+        From :func:`lossfit.inference.curve_fits.spectrum_from_curves`.
     result : FitResult, optional
     **kwargs
         Passed to :func:`lossfit.plotting.spectrum_plot`.

@@ -1,4 +1,4 @@
-"""Per-curve least-squares fits (lossfit.curvefit) against references outside the project.
+"""Per-curve least-squares fits (lossfit.inference.curve_fits) against references outside the project.
 
 * Closed form of dN/dt = -Gamma N - K N^3 at constant T (a Bernoulli equation):
   N(t)^-2 = (N0^-2 + K/Gamma) e^(2 Gamma t) - K/Gamma, K = L3 c / T^3 (docs/architecture.md, conventions).
@@ -15,10 +15,10 @@ import pytest
 import scipy.constants as sc
 from scipy.integrate import solve_ivp
 
-from lossfit.curvefit import fit_curve, spectrum_from_curves
 from lossfit.curves import DecayCurve
 from lossfit.errors import LossfitValueError
 from lossfit.feshbach import FeshbachResonance
+from lossfit.inference.curve_fits import fit_curve, spectrum_from_curves
 from lossfit.species import species
 
 SP = species("133Cs")

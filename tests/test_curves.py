@@ -208,8 +208,8 @@ def test_invented_campaign_is_on_the_requested_side():
 def test_invented_campaign_with_atom_dimer_mixtures():
     import warnings
 
-    from lossfit.curvefit import fit_curve
     from lossfit.errors import ValidityWarning
+    from lossfit.inference.curve_fits import fit_curve
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ValidityWarning)
         curves, res, truth = invented_campaign(3, n_fields=2, dimer_fields=3)

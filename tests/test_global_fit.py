@@ -19,8 +19,8 @@ from scipy.integrate import quad
 from scipy.optimize import least_squares
 
 import lossfit as lf
-from lossfit.curvefit import fit_curve, fit_curves_individually, spectrum_from_curves
 from lossfit.errors import ConvergenceWarning, LossfitValueError
+from lossfit.inference.curve_fits import fit_curve, fit_curves_individually, spectrum_from_curves
 from lossfit.inference.global_fit import CurvesLikelihood, fit_curves
 from lossfit.simulate import invented_campaign
 

@@ -58,7 +58,6 @@ import numpy as np
 from scipy.interpolate import CubicSpline
 from scipy.optimize import least_squares, minimize
 
-from ..curvefit import fit_curve
 from ..curves import check_curves
 from ..data import LossSpectrum
 from ..decay import DecayBatch, TabulatedRate
@@ -66,6 +65,7 @@ from ..errors import LossfitValueError, ValidityWarning
 from ..feshbach import FeshbachResonance, resonance_covariance, resonance_scattering_length
 from ..species import species as _lookup_species
 from ..universal.models import DEFAULT_MODEL, get_model
+from .curve_fits import fit_curve
 from .likelihood import RateBlock
 from .parameters import ParameterSpace, default_priors
 from .posterior import Posterior, coerce_priors, interactive, make_result, walker_ball
