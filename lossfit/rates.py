@@ -20,7 +20,7 @@ from .efimov import Efimov
 from .errors import LossfitValueError, ValidityWarning, check_nonzero, check_positive, is_real
 from .species import Species
 from .species import species as _species
-from .thermal import ATOM_DIMER, KERNEL_SIGNATURE, THREE_BODY, U_MAX, LazyCompiled, compiled, thermal_average
+from .thermal import ATOM_DIMER, KERNEL_SIGNATURE, THREE_BODY, U_MAX, LazyCompiled, compiled
 from .units import A0, CM3_PER_S, CM6_PER_S, NK
 from .universal.models import DEFAULT_MODEL, get_model, scale_wavenumber_a0
 
@@ -125,7 +125,6 @@ def natural_unit(process, scale_nk, mass):
     return HBAR / (mass * k_s) / CM3_PER_S
 
 
-
 def three_body_rows(a, scale_nk, species, efimov, model, stacklevel=4, scale_name="temperature",
                     channel="total"):
     """Parameter rows of the reference path: (model, params, natural unit in cm^6/s, shape)."""
@@ -210,24 +209,21 @@ def beta_energy(a, energy, *, species, efimov, model=None, channel="relaxation")
 def _averaged(process, a, temperature, species, efimov, model, rtol, channel):
     if rtol is not None and not (is_real(rtol) and 0 < rtol < 1):
         raise LossfitValueError("rtol", f"must be None or a number in (0, 1), got {rtol!r}")
-    rows = three_body_rows if process == THREE_BODY else atom_dimer_rows
+    sp, mdl, a_b, scale_b, q = _prepare(a, temperature, species, efimov, model, "temperature", process, 5)
+    unit = natural_unit(process, scale_b, sp.mass)
+    a_f, q_f = a_b.ravel(), q.ravel()
     if rtol is not None:
         # the reference path: adaptive quadrature of the model's kernel to ``rtol``
-        mdl, params, unit, shape = rows(a, temperature, species, efimov, model, stacklevel=5, channel=channel)
-        kernel, features = ((mdl.three_body_kernel, mdl.three_body_features) if process == THREE_BODY
-                            else (mdl.atom_dimer_kernel, mdl.atom_dimer_features))
-        value, err = thermal_average(kernel, features, params, process, rtol=rtol)
+        value, err = mdl.reference_average(process, a_f, q_f, efimov, channel, rtol)
         bad = err > max(rtol, 1e-7) * np.abs(value) * 10.0
         if bad.any():
             warnings.warn(f"thermal quadrature did not reach rtol={rtol:g} at {bad.sum()} point(s)",
                           RuntimeWarning, stacklevel=3)
-        return _finish(value * unit, shape)
-    sp, mdl, a_b, scale_b, q = _prepare(a, temperature, species, efimov, model, "temperature", process, 5)
-    unit = natural_unit(process, scale_b, sp.mass)
+        return _finish(value * unit, a_b.shape)
     if process == THREE_BODY:
-        value = mdl.thermal_three_body(a_b.ravel(), q.ravel(), efimov, unit, channel=channel)
+        value = mdl.thermal_three_body(a_f, q_f, efimov, unit, channel=channel)
     else:
-        value = mdl.thermal_atom_dimer(a_b.ravel(), q.ravel(), efimov, unit, channel=channel)
+        value = mdl.thermal_atom_dimer(a_f, q_f, efimov, unit, channel=channel)
     return _finish(value, a_b.shape)
 
 

@@ -17,7 +17,7 @@ from ..data import LossSpectrum
 from ..errors import LossfitValueError
 from ..rates import natural_unit
 from ..species import species as _species
-from ..thermal import ATOM_DIMER, THREE_BODY, thermal_average
+from ..thermal import ATOM_DIMER, THREE_BODY
 from ..units import NK
 from ..universal.averages import ETA_MIN
 from ..universal.models import get_model, scale_wavenumber_a0
@@ -91,14 +91,8 @@ class RateBlock:
         return self.model.thermal_atom_dimer(a, q, efimov, self.unit)
 
     def _reference(self, efimov, a):
-        q = a * self.k_s
-        if self.process == THREE_BODY:
-            rows = self.model.three_body_rows(a, efimov, q)
-            kernel, features = self.model.three_body_kernel, self.model.three_body_features
-        else:
-            rows = self.model.atom_dimer_rows(a, efimov, q)
-            kernel, features = self.model.atom_dimer_kernel, self.model.atom_dimer_features
-        return thermal_average(kernel, features, rows, self.process, rtol=self.rtol)[0] * self.unit
+        channel = "total" if self.process == THREE_BODY else "relaxation"
+        return self.model.reference_average(self.process, a, a * self.k_s, efimov, channel, self.rtol)[0] * self.unit
 
 
 @numba.njit(cache=True)

@@ -113,22 +113,29 @@ class EnergyModel:
         or "breakup" / "total" for models that resolve dimer breakup."""
         raise NotImplementedError
 
+    def reference_average(self, process, a, q, efimov, channel, rtol):
+        """The reference path: adaptive quadrature of the kernel to ``rtol``.
+
+        ``process`` is :data:`lossfit.thermal.THREE_BODY` or ``ATOM_DIMER``, ``q = k_T |a|``
+        (k_T = sqrt(m k_BT)/hbar). Returns (averages in natural units, quadrature error
+        estimates).
+        """
+        if process == THREE_BODY:
+            rows = self.three_body_rows(a, efimov, q, channel=channel)
+            return thermal_average(self.three_body_kernel, self.three_body_features, rows, process, rtol=rtol)
+        rows = self.atom_dimer_rows(a, efimov, q, channel=channel)
+        return thermal_average(self.atom_dimer_kernel, self.atom_dimer_features, rows, process, rtol=rtol)
+
     def thermal_three_body(self, a, q, efimov, scale, channel="total"):
         """Thermal averages of K3 at points (a, T): natural units hbar^5/(m^3 (k_BT)^2)
-        times ``scale`` per point; ``q = k_T |a|`` (k_T = sqrt(m k_BT)/hbar). The base
-        class uses the adaptive quadrature of :attr:`three_body_kernel`."""
-        rows = self.three_body_rows(a, efimov, q, channel=channel)
-        value, _ = thermal_average(self.three_body_kernel, self.three_body_features, rows, THREE_BODY,
-                                   rtol=REFERENCE_RTOL)
-        return value * scale
+        times ``scale`` per point; ``q = k_T |a|``. The base class uses
+        :meth:`reference_average`."""
+        return self.reference_average(THREE_BODY, a, q, efimov, channel, REFERENCE_RTOL)[0] * scale
 
     def thermal_atom_dimer(self, a, q, efimov, scale, channel="relaxation"):
         """Thermal averages of beta (natural units hbar/(m k_T) times ``scale``); as
         :meth:`thermal_three_body`."""
-        rows = self.atom_dimer_rows(a, efimov, q, channel=channel)
-        value, _ = thermal_average(self.atom_dimer_kernel, self.atom_dimer_features, rows, ATOM_DIMER,
-                                   rtol=REFERENCE_RTOL)
-        return value * scale
+        return self.reference_average(ATOM_DIMER, a, q, efimov, channel, REFERENCE_RTOL)[0] * scale
 
     def three_body_plan(self, a, q, scale, channel="total", eta_min=averages.ETA_MIN):
         """Prepare the thermal K3 averages at fixed points (a fit's data): an object
@@ -578,7 +585,6 @@ class ZeroRangeModel(EnergyModel):
         rows[:, 4] = -math.expm1(-4.0 * eta)
         rows[:, 5], rows[:, 6] = weights
         return rows
-
 
     # -- fast thermal averages (lossfit.universal.averages) -----------------------------
     def thermal_three_body(self, a, q, efimov, scale, channel="total"):
