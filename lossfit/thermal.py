@@ -73,13 +73,16 @@ _MAX_INTERVALS = 600
 _MAX_FEATURES = 32
 
 
-@numba.njit(cache=True)
-def boltzmann_weight(u, weight):
-    """Weight in u = sqrt(E/k_BT) so that the average is ∫_0^∞ f(u^2) w(u) du."""
+def _boltzmann_weight(u, weight):
+    # numpy arrays (the panel tables below, at import) or floats (compiled, in the engine)
     u2 = u * u
     if weight == THREE_BODY:
-        return u2 * u2 * u * math.exp(-u2)
-    return 4.0 / _SQRT_PI * u2 * math.exp(-u2)
+        return u2 * u2 * u * np.exp(-u2)
+    return 4.0 / _SQRT_PI * u2 * np.exp(-u2)
+
+
+#: Weight in u = sqrt(E/k_BT) so that the average is ∫_0^∞ f(u^2) w(u) du.
+boltzmann_weight = numba.njit(cache=True)(_boltzmann_weight)
 
 
 # Kernels are passed as numba first-class functions of fixed signatures. A cached
@@ -188,10 +191,9 @@ def _base_panel_tables():
         a, b = _BASE_EDGES[i], _BASE_EDGES[i + 1]
         u = 0.5 * (a + b) + 0.5 * (b - a) * _NODES15
         x[i] = u * u
-        # boltzmann_weight in numpy (calling the numba function here would load its
-        # compiled code at import time)
-        bw[THREE_BODY, i] = u ** 5 * np.exp(-u * u)
-        bw[ATOM_DIMER, i] = 4.0 / _SQRT_PI * u * u * np.exp(-u * u)
+        # the plain-Python weight: the compiled one would be loaded at import time
+        for w in (THREE_BODY, ATOM_DIMER):
+            bw[w, i] = _boltzmann_weight(u, w)
     return x, bw
 
 
