@@ -345,22 +345,33 @@ def _point_value(family, part, terms, wt, first, stop, cos2phi, sin2phi, e2, g, 
 
 
 @numba.njit(cache=True)
+def _point_weights(family, part, edges, y, ex, omega, sigma, y_threshold, scale_q, scale, out):
+    """One point's rule: writes its node weights to ``out`` and returns (first, stop,
+    status) -- the node range in the layout and 0, or 1 / 2 if the rule would leave the
+    layout below / above (then nothing is written)."""
+    y_off, y_lo, y_hi = _span(family, part, scale_q, y_threshold)
+    if y_lo < edges[0]:
+        return 0, 0, 1
+    if y_hi > edges[edges.size - 1] + 1e-9:
+        return 0, 0, 2
+    first, stop, edge = _point_range(edges, y, y_lo, y_hi)
+    # the a > 0 table holds K3 x^2 / q^4 (its columns are over (E m a^2/hbar^2)^2)
+    f = scale * scale_q ** 4 if family == POSITIVE_A else scale
+    _weights(family, ex, omega, sigma, first, stop, edge, y_off, f, out)
+    return first, stop, 0
+
+
+@numba.njit(cache=True)
 def _general(family, part, edges, y, ex, omega, sigma, terms, y_threshold, a, scale_q, scale, offset, e2, g,
              w_a, w_b, out):
-    """The general path: every point through the global rule, nothing kept. Returns 0,
-    or 1 / 2 if a point's rule would leave the layout below / above (nothing written)."""
+    """The general path: every point through the global rule, nothing kept. Returns the
+    first non-zero status of :func:`_point_weights`, or 0."""
     wt = np.empty(ex.size)
     for p in range(a.size):
-        y_off, y_lo, y_hi = _span(family, part, scale_q[p], y_threshold)
-        if y_lo < edges[0]:
-            return 1
-        if y_hi > edges[edges.size - 1] + 1e-9:
-            return 2
-    for p in range(a.size):
-        y_off, y_lo, y_hi = _span(family, part, scale_q[p], y_threshold)
-        first, stop, edge = _point_range(edges, y, y_lo, y_hi)
-        f = scale[p] * scale_q[p] ** 4 if family == POSITIVE_A else scale[p]
-        _weights(family, ex, omega, sigma, first, stop, edge, y_off, f, wt)
+        first, stop, status = _point_weights(family, part, edges, y, ex, omega, sigma, y_threshold, scale_q[p],
+                                             scale[p], wt)
+        if status:
+            return status
         two_phi = 2.0 * S0 * math.log(abs(a[p])) + offset
         out[p] += _point_value(family, part, terms, wt, first, stop, math.cos(two_phi), math.sin(two_phi), e2, g,
                                w_a, w_b, math.nan)
@@ -369,30 +380,24 @@ def _general(family, part, edges, y, ex, omega, sigma, terms, y_threshold, a, sc
 
 @numba.njit(cache=True)
 def _plan_weights(family, part, edges, y, ex, omega, sigma, y_threshold, scale_q, scale):
-    """Node ranges and weights of every point of a plan (see :func:`_general`); the
-    last value is the status (0, or 1 / 2: a rule would leave the layout)."""
+    """Node ranges and weights of every point of a plan (see :func:`_point_weights`); the
+    last value is the status."""
     m = scale_q.size
     first = np.empty(m, dtype=np.int64)
     stop = np.empty(m, dtype=np.int64)
     offset = np.zeros(m + 1, dtype=np.int64)
-    edge = np.empty(m)
-    y_off = np.empty(m)
-    status = 0
+    wt = np.empty(m * ex.size // 4 + ex.size)
     for p in range(m):
-        y_off[p], y_lo, y_hi = _span(family, part, scale_q[p], y_threshold)
-        if y_lo < edges[0]:
-            status = 1
-        elif y_hi > edges[edges.size - 1] + 1e-9:
-            status = 2
-        first[p], stop[p], edge[p] = _point_range(edges, y, y_lo, y_hi)
+        if offset[p] + ex.size > wt.size:
+            grown = np.empty(2 * wt.size + ex.size)
+            grown[:offset[p]] = wt[:offset[p]]
+            wt = grown
+        first[p], stop[p], status = _point_weights(family, part, edges, y, ex, omega, sigma, y_threshold,
+                                                   scale_q[p], scale[p], wt[offset[p]:])
+        if status:
+            return wt[:0], first, stop, offset, status
         offset[p + 1] = offset[p] + stop[p] - first[p]
-    wt = np.empty(offset[m])
-    if status != 0:
-        return wt, first, stop, offset, status
-    for p in range(m):
-        f = scale[p] * scale_q[p] ** 4 if family == POSITIVE_A else scale[p]
-        _weights(family, ex, omega, sigma, first[p], stop[p], edge[p], y_off[p], f, wt[offset[p]:offset[p + 1]])
-    return wt, first, stop, offset, status
+    return wt[:offset[m]].copy(), first, stop, offset, 0
 
 
 @numba.njit(cache=True)
