@@ -220,11 +220,7 @@ def _averaged(process, a, temperature, species, efimov, model, rtol, channel):
             warnings.warn(f"thermal quadrature did not reach rtol={rtol:g} at {bad.sum()} point(s)",
                           RuntimeWarning, stacklevel=3)
         return _finish(value * unit, a_b.shape)
-    if process == THREE_BODY:
-        value = mdl.thermal_three_body(a_f, q_f, efimov, unit, channel=channel)
-    else:
-        value = mdl.thermal_atom_dimer(a_f, q_f, efimov, unit, channel=channel)
-    return _finish(value, a_b.shape)
+    return _finish(mdl.thermal(process, a_f, q_f, efimov, unit, channel=channel), a_b.shape)
 
 
 def l3(a, temperature, *, species, efimov, model=None, rtol=None, channel="total"):

@@ -73,8 +73,7 @@ class RateBlock:
     @property
     def plan(self):
         if self._plan is None:
-            build = self.model.three_body_plan if self.process == THREE_BODY else self.model.atom_dimer_plan
-            self._plan = build(self.a, self.a * self.k_s, self.unit, eta_min=self.eta_min)
+            self._plan = self.model.plan(self.process, self.a, self.a * self.k_s, self.unit, eta_min=self.eta_min)
         return self._plan
 
     def predict(self, efimov, a=None):
@@ -85,10 +84,7 @@ class RateBlock:
         if a is None:
             return self.plan.evaluate(efimov)
         a = np.asarray(a, dtype=float)
-        q = a * self.k_s
-        if self.process == THREE_BODY:
-            return self.model.thermal_three_body(a, q, efimov, self.unit)
-        return self.model.thermal_atom_dimer(a, q, efimov, self.unit)
+        return self.model.thermal(self.process, a, a * self.k_s, efimov, self.unit)
 
     def _reference(self, efimov, a):
         channel = "total" if self.process == THREE_BODY else "relaxation"

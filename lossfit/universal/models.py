@@ -137,6 +137,18 @@ class EnergyModel:
         :meth:`thermal_three_body`."""
         return self.reference_average(ATOM_DIMER, a, q, efimov, channel, REFERENCE_RTOL)[0] * scale
 
+    def thermal(self, process, a, q, efimov, scale, channel=None):
+        """:meth:`thermal_three_body` or :meth:`thermal_atom_dimer` by ``process`` (default channel)."""
+        if process == THREE_BODY:
+            return self.thermal_three_body(a, q, efimov, scale, channel=channel or "total")
+        return self.thermal_atom_dimer(a, q, efimov, scale, channel=channel or "relaxation")
+
+    def plan(self, process, a, q, scale, eta_min=averages.ETA_MIN):
+        """:meth:`three_body_plan` or :meth:`atom_dimer_plan` by ``process`` (default channel)."""
+        if process == THREE_BODY:
+            return self.three_body_plan(a, q, scale, eta_min=eta_min)
+        return self.atom_dimer_plan(a, q, scale, eta_min=eta_min)
+
     def three_body_plan(self, a, q, scale, channel="total", eta_min=averages.ETA_MIN):
         """Prepare the thermal K3 averages at fixed points (a fit's data): an object
         with ``evaluate(efimov) -> ndarray`` and ``n_points``. The base class
