@@ -200,8 +200,6 @@ class CurvesLikelihood:
     rtol : float, optional
         None: the model's fast thermal averages; a number: the adaptive reference
         quadrature at this tolerance (slow; for checks).
-    eta_min : float, optional
-        Smallest eta the sampler can reach (default: the default prior's lower edge).
 
     Attributes
     ----------
@@ -214,7 +212,7 @@ class CurvesLikelihood:
 
     def __init__(self, curves, species, model, *, resonance=None, reference_fits, heating=True,
                  recombination_heating_nK=0.0, temperature_scale_range=(1.0, 1.0), field_noise=False,
-                 field_noise_nodes=7, inner_steps=1, table_step=0.16, rtol=None, eta_min=None):
+                 field_noise_nodes=7, inner_steps=1, table_step=0.16, rtol=None):
         self.curves = check_curves(curves)
         self.species = _lookup_species(species)
         self.model = get_model(model)
@@ -242,7 +240,7 @@ class CurvesLikelihood:
         self.signs = np.sign(self.a_nominal)
         self._setup_data()
         self._setup_tables(reference_fits, temperature_scale_range, table_step, field_noise,
-                           field_noise_nodes, eta_min)
+                           field_noise_nodes)
         self._set_reference(np.array([self._coords_of_fit(f) for f in reference_fits]),
                             self._jacobian_of_fits(reference_fits))
         self.two_stage_spectra = []
@@ -298,7 +296,7 @@ class CurvesLikelihood:
     def _partner_series(c):
         return c.kind == "dimers" and c.partner_atoms.ndim == 1
 
-    def _setup_tables(self, fits, s_range, step, field_noise, nodes, eta_min):
+    def _setup_tables(self, fits, s_range, step, field_noise, nodes):
         lo_s, hi_s = s_range
         lo, hi = np.empty(self.n_curves), np.empty(self.n_curves)
         for j, (c, f) in enumerate(zip(self.curves, fits)):
@@ -331,8 +329,6 @@ class CurvesLikelihood:
             a = np.repeat(self.a_nominal[idx], n_knots * nh)
             temps = np.repeat(self.grid[idx].ravel(), nh)
             block = RateBlock(kind, a, temps, self.species, self.model, rtol=self.rtol)
-            if eta_min is not None:
-                block.eta_min = eta_min
             self.blocks[kind] = (idx, block)
         self._knots_all = np.log(self.t_lo)[:, None] + self.rel_knots[None, :]
         # not-a-knot cubic spline of ln rate in ln T (as TabulatedRate): coefficients of the
@@ -375,6 +371,12 @@ class CurvesLikelihood:
             for target, act in ((self.pinv, self.active[j]),
                                 (self.pinv_fixed_gamma, self.active[j] & (np.arange(self.k) != 3))):
                 target[j][act] = np.linalg.pinv(jac[j][:, act])
+
+    def set_eta_min(self, eta_min):
+        """Make the prepared thermal averages resolve every eta >= ``eta_min`` (the lower
+        edge of the eta priors; default 0.005)."""
+        for _, block in self.blocks.values():
+            block.eta_min = eta_min
 
     # -- evaluation -----------------------------------------------------------------------
     def scattering_lengths(self, values):
@@ -712,8 +714,7 @@ def prepare_curves(curves, *, species, free, model=None, priors=None, resonance=
     all_priors.update(sys_priors)
     space = CampaignSpace(free + [n for n in SYSTEMATIC_NAMES if n in sys_priors], all_priors,
                           fixed=fixed, tie=tie, correlated=correlated)
-    for _, block in likelihood.blocks.values():
-        block.eta_min = space.eta_floor()
+    likelihood.set_eta_min(space.eta_floor())
     return space, likelihood, CampaignPosterior(space, likelihood)
 
 
