@@ -290,3 +290,27 @@ def test_fit_result_records_points_outside_the_validity_range():
     assert flagged == {(0, ("|a| < 5 r_vdW",)), (4, ("k_B T > 0.1 E_vdW",))}
     assert any("validity" in w for w in res.warnings)
     assert res.to_dict()["outside_validity"][0]["a"] == -300.0
+
+
+@pytest.mark.parametrize("grid", ["uniform", "uneven"])
+def test_table_splines_are_scipys_not_a_knot_splines(grid):
+    # lossfit writes the not-a-knot cubic spline out (start-up time); scipy's CubicSpline
+    # (the default not-a-knot end conditions) is the reference
+    from scipy.interpolate import CubicSpline
+
+    from lossfit.universal.tables import spline_coefficients
+    rng = np.random.default_rng(4)
+    x = np.linspace(-7.0, 7.0, 241) if grid == "uniform" else np.cumsum(rng.uniform(0.1, 1.0, 30))
+    y = np.sin(x) * np.exp(0.2 * x) + rng.normal(0.0, 0.1, x.size)
+    ref = CubicSpline(x, y).c
+    np.testing.assert_allclose(spline_coefficients(x, y), ref, rtol=0, atol=1e-12 * np.abs(ref).max())
+
+
+def test_log_gamma_against_scipy():
+    # lossfit.constants computes arg Gamma(1 + i s0) by Stirling's series (start-up time);
+    # scipy.special.loggamma is the reference, here at several complex arguments
+    from scipy.special import loggamma
+
+    from lossfit.constants import _log_gamma
+    for z in (1 + 1j * S0, 0.3 + 2j, 1 + 5j, 2.5 - 0.7j, 40 + 1j):
+        assert abs(_log_gamma(z) - loggamma(z)) < 1e-12
