@@ -107,10 +107,10 @@ _Y_BREAKUP = math.log(2.0 / math.sqrt(3.0))      # ln k_AD a at the breakup thre
 def _layout_terms(family, part, y):
     """Table functions at the nodes ``y``, shape (n_columns, n_nodes)."""
     if family == NEGATIVE_A:
-        tab = load_s11_table()
-        s = tab.s11(np.exp(y))
-        t = np.array([s11_eval(tab.packed, v)[0] for v in np.exp(y)])
-        return np.array([t, s.real, s.imag, np.maximum(1.0 - t, 0.0)])
+        packed = load_s11_table().packed
+        t, phase = np.array([s11_eval(packed, v) for v in np.exp(y)]).T
+        r2 = np.maximum(1.0 - t, 0.0)
+        return np.array([t, np.sqrt(r2) * np.cos(phase), np.sqrt(r2) * np.sin(phase), r2])
     if family == POSITIVE_A:
         v = load_recombination_table().evaluate(np.exp(y))
         re, im = v[:, 0], v[:, 1]
