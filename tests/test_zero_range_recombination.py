@@ -213,11 +213,91 @@ def test_thermal_average_against_quad():
                 assert g == pytest.approx(ref, rel=1e-6), (eta, t, p)
 
 
-def test_beyond_the_table_raises_naming_a():
+def test_shallow_channel_beyond_its_table_raises_naming_a():
+    # the shallow-dimer J >= 1 sum is not extrapolated (docs/stm.md section 7); the deep
+    # channel reaches any a
     ef = lf.Efimov.universal(-1000.0, 0.05)
-    with pytest.raises(LossfitValueError, match="recombination table") as info:
-        lf.l3(2e4, 400.0, species=CS, efimov=ef, model="zero-range")
-    assert info.value.argument == "a"
+    for channel in ("total", "shallow"):
+        with pytest.raises(LossfitValueError, match="shallow-dimer channel") as info:
+            lf.l3(2e4, 400.0, species=CS, efimov=ef, model="zero-range", channel=channel)
+        assert info.value.argument == "a"
+    assert lf.l3(2e4, 400.0, species=CS, efimov=ef, model="zero-range", channel="deep") > 0
+    v = load_recombination_table().evaluate(np.array([900.0, 1100.0]))
+    assert np.all(np.isfinite(v[0])) and np.all(np.isnan(v[1, 2:6])) and np.isnan(v[1, 7])
+
+
+def test_deep_channel_joins_the_atom_dimer_table_and_the_unitarity_tail():
+    # above the three-body grid T_break = 1 - |s_AD|^2 - T_AD comes from the atom-dimer
+    # table (same solver, docs/stm.md): the two must meet at the grid's last point, and the
+    # |a| = infinity tail must meet the atom-dimer table at its end (k_AD a = 1e3)
+    tab = load_recombination_table()
+    for e in (tab.energy_max, tab.deep_energy_switch):
+        lo, hi = tab.evaluate(np.array([e * (1 - 1e-12), e * (1 + 1e-12)]))[:, [0, 1, 6]]
+        np.testing.assert_allclose(hi[:2], lo[:2], rtol=0, atol=2e-6)
+        assert hi[2] == pytest.approx(lo[2], rel=2e-6)
+    # the tail's 1/x coefficients are those of the last decade of the table: measured,
+    # (T_break - T_unitarity) x = -4.24 and (s/s_unitarity - 1) x = -2.12 (docs/stm.md)
+    assert tab.unitarity_tail["t_break"] == pytest.approx(-4.24, abs=0.02)
+    assert tab.unitarity_tail["s"].real == pytest.approx(-2.12, abs=0.02)
+
+
+def _unitarity_l3_si(temperature_nk, species, kappa_star_per_m, eta):
+    """Boltzmann average of the separable |a| = infinity solution, m^6/s (events).
+
+    At |a| = infinity the hyperradial equation separates; the outgoing solution
+    sqrt(R) H^(1)_{i s0}(K R) (Bessel function of imaginary order) reflects with
+    s = -e^{-pi s0} (k/kappa*)^{-2 i s0} e^{i theta0} times the three-body phase, so
+    K3(E) = 72 sqrt3 pi^2 hbar^5/(m^3 E^2) (1 - e^{-2 pi s0})(1 - e^{-4 eta})
+            / |1 - e^{-pi s0 - 2 eta} exp(2 i s0 ln(kappa*/k))|^2
+    (Braaten & Hammer, Phys. Rep. 428, 259 (2006); Rem et al., PRL 110, 163202 (2013);
+    the phase convention Phi = s0 ln(kappa*|a|/sqrt 2) - arg Gamma(1 + i s0) of
+    docs/conventions.md cancels arg Gamma here). Averaged with x^2 e^{-x}/2, x = E/k_BT,
+    by scipy quad.
+    """
+    kt = sc.k * temperature_nk * 1e-9
+    m = species.mass
+    amp = math.exp(-math.pi * S0 - 2 * eta)
+    core = 72 * math.sqrt(3) * math.pi ** 2 * sc.hbar ** 5 / m ** 3 * (1 - math.exp(-2 * math.pi * S0)) \
+        * (1 - math.exp(-4 * eta))
+
+    def integrand(x):
+        k = math.sqrt(m * x * kt) / sc.hbar
+        den = abs(1 - amp * np.exp(2j * S0 * math.log(kappa_star_per_m / k))) ** 2
+        return core / ((x * kt) ** 2 * den) * x * x * math.exp(-x) / 2
+    return quad(integrand, 0, 80, epsabs=0, epsrel=1e-10, limit=400)[0]
+
+
+@pytest.mark.parametrize("species", ["133Cs", "7Li"])
+def test_unitarity_limit_on_both_sides_follows_the_separable_solution(species):
+    # |a| -> infinity on both sides of the resonance: L3 T^2 against the Boltzmann average
+    # of the separable unitarity solution within 0.5 % from 10 nK to 2 uK (a > 0: the deep
+    # channel, the only one that reaches unitarity, docs/stm.md section 7)
+    sp = lf.species(species)
+    ef = lf.Efimov.universal(-900.0, 0.12)
+    kappa = lf.constants.KAPPA_A_MINUS / ef.a_minus / A0            # 1/m
+    temps = np.geomspace(10.0, 2000.0, 9)
+    ref = np.array([_unitarity_l3_si(t, sp, kappa, 0.12) for t in temps]) * 1e12      # cm^6/s
+    for a, channel in ((-1e9, "total"), (1e9, "deep")):
+        got = lf.l3(a, temps, species=sp, efimov=ef, model="zero-range", channel=channel)
+        np.testing.assert_allclose(got * temps ** 2, ref * temps ** 2, rtol=5e-3)
+        # and the approach: a > 0 departs like 1/(k a) (measured 3.8e-4 for 7Li at 10 nK and
+        # 1e9 a0), so at 1e11 a0 both sides sit within 1e-5 of the separable solution
+        far = lf.l3(100 * a, temps, species=sp, efimov=ef, model="zero-range", channel=channel)
+        np.testing.assert_allclose(far, ref, rtol=1e-5)
+
+
+def test_deep_loss_is_continuous_across_the_resonance():
+    # at fixed T the deep-dimer L3 at a = +1e8 and -1e8 a0 agree within 0.5 % at 20, 100 and
+    # 500 nK (Rem et al., PRL 110, 163202 (2013): L3 is continuous through unitarity);
+    # measured 6e-4, 3e-4, 1.2e-4 (docs/stm.md section 7)
+    ef = lf.Efimov.universal(-900.0, 0.1)
+    for t in (20.0, 100.0, 500.0):
+        lo = lf.l3(-1e8, t, species=CS, efimov=ef, model="zero-range")
+        hi = lf.l3(1e8, t, species=CS, efimov=ef, model="zero-range", channel="deep")
+        assert hi == pytest.approx(lo, rel=5e-3)
+        # the fast rule against the adaptive reference on the extended range
+        assert hi == pytest.approx(lf.l3(1e8, t, species=CS, efimov=ef, model="zero-range", channel="deep",
+                                         rtol=1e-10), rel=1e-8)
 
 
 def test_kappa_a_plus_from_the_table():

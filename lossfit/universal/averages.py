@@ -71,8 +71,10 @@ _SIGMA = (0.5, 1.0, 0.5)
 # s = ln(E/k_BT)); for a < 0 the near-threshold resonance of s11 at small eta, for a > 0
 # the coarser spline knots of the three-body table (docs/thermal-averages.md).
 _HMAX_Y = (0.5, 0.6, 0.75)
-# Range of the global layouts in y (None: the end of the table).
-_Y_RANGE = ((-32.0, 32.0), (-64.0, None), (-32.0, None))
+# Range of the global layouts in y (None: the end of the table). At a > 0 the deep-dimer
+# channel reaches |a| = infinity (the shallow channel's columns are NaN above its table,
+# and the model refuses it there): ln E = 64 is a = 1e16 a0 at 2 uK for 133Cs.
+_Y_RANGE = ((-32.0, 32.0), (-64.0, 64.0), (-32.0, None))
 
 
 def _threshold_y(family, eta_min):
@@ -181,13 +183,13 @@ def _profile(family, part, eta_min):
         s = tab.s11(np.exp(y))
         return y, _width_from_amplitude(y, np.log(np.abs(s)), np.angle(s), eta_min), [lo, hi], None
     if family == POSITIVE_A:
-        e_lo, e_hi = recombination_grid_points(load_recombination_table().packed)
-        lo, hi = math.log(e_lo), math.log(e_hi)
-        y = np.arange(lo - 1.0, hi, _PROFILE_DY)
+        e_lo, e_hi, e_unitarity = recombination_grid_points(load_recombination_table().packed)
+        kinks = [math.log(e_lo), math.log(e_hi), math.log(e_unitarity)]
+        y = np.arange(kinks[0] - 1.0, _Y_RANGE[POSITIVE_A][1], _PROFILE_DY)
         v = load_recombination_table().evaluate(np.exp(y))
         s = v[:, 0] + 1j * v[:, 1]
         width = _width_from_amplitude(y, np.log(np.maximum(np.abs(s), 1e-300)), np.angle(s), eta_min)
-        return y, width, [lo, hi], hi
+        return y, width, kinks, None
     tab = load_atom_dimer_table()
     first, breakup, last = atom_dimer_grid_points(tab.packed)
     y = np.arange(_threshold_y(ATOM_DIMER_A, eta_min) - 2.0, math.log(last), _PROFILE_DY)
@@ -196,7 +198,7 @@ def _profile(family, part, eta_min):
     kinks = [math.log(first), math.log(breakup)]
     end = math.log(last)
     if part == 1:
-        e_lo, e_hi = recombination_grid_points(load_recombination_table().packed)
+        e_lo, e_hi, _ = recombination_grid_points(load_recombination_table().packed)
         kinks += [0.5 * math.log(4.0 * (e + 1.0) / 3.0) for e in (e_lo, e_hi)]
         end = min(end, 0.5 * math.log(4.0 * (e_hi + 1.0) / 3.0))
         # far below the breakup threshold (E_b = x_b k_BT, x_b >> 1) the breakup integrand

@@ -290,7 +290,7 @@ def _recombination_over_e2(packed_pos, energy, cos2phi, sin2phi, e2eta):
     """a > 0, three-atom energy E (hbar^2/(m a^2)) > 0: (P_shallow / E^2, T_break / (E^2
     |1 + s_AD w|^2)) with w = e^{2 i Phi - 2 eta}; P_shallow is the breakup probability of
     an atom-dimer pair at the same total energy, summed over J with weights 2J + 1."""
-    re, im, ca, cbr, cbi, cc, tb, hj = recombination_eval(packed_pos, energy)
+    re, im, ca, cbr, cbi, cc, tb, hj = recombination_eval(packed_pos, energy)   # shallow: NaN above the grid
     wr, wi = e2eta * cos2phi, e2eta * sin2phi
     w2 = e2eta * e2eta
     den = 1.0 + 2.0 * (re * wr - im * wi) + (re * re + im * im) * w2
@@ -385,8 +385,11 @@ class ZeroRangeModel(EnergyModel):
     Phi = s0 ln(kappa* |a| / sqrt 2) - arg Gamma(1 + i s0). kappa* comes from a_- (a < 0
     three-body), a_+ (a > 0 three-body) or a* (relaxation) with each table's own
     kappa* a_-, kappa* a_+ or kappa* a*, so that the threshold features sit at the given
-    positions. The tables are not extrapolated: requests beyond them (a > 0 three-body
-    loss above k_B T ~ 24 E_b, relaxation above k_AD a = 1e3) raise, naming ``a``.
+    positions. The deep-dimer channel reaches any a at a > 0: above the three-body table
+    the atom-dimer table and, beyond k_AD a = 1e3, the exact |a| = infinity solution with
+    its measured 1/(k a) approach carry it (:mod:`.tables`). The other tables are not
+    extrapolated: requests beyond them (the shallow-dimer channel above k_B T ~ 24 E_b,
+    relaxation above k_AD a = 1e3) raise, naming ``a``.
     """
 
     name = "zero-range"
@@ -444,10 +447,13 @@ class ZeroRangeModel(EnergyModel):
                 # numerators over E^2, and K3 x^2 = (that) q^4 in natural units
                 q2 = p[0] * p[0]
                 shallow, deep = _recombination_over_e2(packed_pos, q2 * x, p[1], p[2], p[3])
-                return pref * q2 * q2 * (p[5] * shallow + p[6] * deep * p[4])
+                out = p[6] * deep * p[4]
+                if p[5] != 0.0:
+                    out += p[5] * shallow          # NaN above the table: the reach check refuses that
+                return pref * q2 * q2 * out
 
             lo, hi = grid_limits(packed)
-            e_lo, e_hi = recombination_grid_points(packed_pos)
+            e_lo, e_hi, e_unitarity = recombination_grid_points(packed_pos)
 
             @numba.njit(FEATURES_SIGNATURE)
             def features(p, out):
@@ -455,10 +461,11 @@ class ZeroRangeModel(EnergyModel):
                 if p[7] < 0.0:
                     out[0] = (lo / p[0]) ** 2
                     out[1] = (hi / p[0]) ** 2
-                else:
-                    out[0] = e_lo / (p[0] * p[0])
-                    out[1] = e_hi / (p[0] * p[0])
-                return 2
+                    return 2
+                out[0] = e_lo / (p[0] * p[0])
+                out[1] = e_hi / (p[0] * p[0])
+                out[2] = e_unitarity / (p[0] * p[0])
+                return 3
             self._features = features
             self._kernel = kernel
         return self._kernel
@@ -470,16 +477,16 @@ class ZeroRangeModel(EnergyModel):
             raise LossfitValueError("channel", f"must be one of {list(table)}, got {channel!r}")
         return weights
 
-    def _check_three_body_reach(self, q_positive, x_max):
-        # the a > 0 table is not extrapolated: refuse what lies beyond its last point
+    def _check_three_body_reach(self, q_positive, x_max, shallow):
+        # the deep channel reaches any a; the shallow one is not extrapolated beyond its table
         table = self.recombination_table
         reach = q_positive ** 2 * x_max
-        if np.any(reach > table.energy_max):
+        if shallow and np.any(reach > table.energy_max):
             raise LossfitValueError(
-                "a", f"three-atom energies up to {reach.max():.3g} hbar^2/(m a^2) are needed, beyond "
-                f"the zero-range a > 0 recombination table (E <= {table.energy_max:g} hbar^2/(m a^2), "
+                "a", f"three-atom energies up to {reach.max():.3g} hbar^2/(m a^2) are needed, beyond the "
+                f"shallow-dimer channel of the zero-range a > 0 table (E <= {table.energy_max:g} hbar^2/(m a^2), "
                 f"i.e. k_B T up to about {table.energy_max / U_MAX ** 2:.2g} E_b in thermal averages); "
-                "lower a or T, or use model='capped' (an approximation)")
+                "channel='deep' reaches any a, or lower a or T, or use model='capped' (an approximation)")
 
     def _check_atom_dimer_reach(self, kad_at_scale, x_max, breakup):
         # neither the atom-dimer nor (for breakup) the three-body table is extrapolated
@@ -509,7 +516,7 @@ class ZeroRangeModel(EnergyModel):
             eta[neg] = eta_minus
         if (~neg).any():
             a_plus, eta_plus = efimov.require("a_plus", "eta_plus")
-            self._check_three_body_reach(q[~neg], x_max)
+            self._check_three_body_reach(q[~neg], x_max, weights[0])
             kappa[~neg] = self.recombination_table.kappa_star_a_plus / a_plus
             eta[~neg] = eta_plus
         two_phi = 2.0 * (S0 * np.log(kappa * np.abs(a) / math.sqrt(2.0)) - ARG_GAMMA_S0)
@@ -561,7 +568,7 @@ class ZeroRangeModel(EnergyModel):
                 return UNITARITY_ATOM_DIMER * out / math.sqrt(x)
 
             first, breakup, _ = atom_dimer_grid_points(packed)
-            e_lo, e_hi = recombination_grid_points(packed_pos)
+            e_lo, e_hi, _ = recombination_grid_points(packed_pos)
             kad_lo = math.sqrt(4.0 * (e_lo + 1.0) / 3.0)
             kad_hi = math.sqrt(4.0 * (e_hi + 1.0) / 3.0)
 
@@ -605,7 +612,7 @@ class ZeroRangeModel(EnergyModel):
         neg = a < 0
         n_neg = int(np.count_nonzero(neg))
         if n_neg < a.size:
-            self._check_three_body_reach(q[~neg] if n_neg else q, U_MAX ** 2)
+            self._check_three_body_reach(q[~neg] if n_neg else q, U_MAX ** 2, shallow)
         if n_neg in (0, a.size):
             family = averages.NEGATIVE_A if n_neg else averages.POSITIVE_A
             return averages.general_average(family, a, q, efimov, scale, weights=(shallow, deep))
@@ -626,7 +633,7 @@ class ZeroRangeModel(EnergyModel):
         shallow, deep = self._channel_weights(_CHANNEL_WEIGHTS, channel)
         a, q = np.ravel(a), np.abs(np.ravel(q))
         if (a > 0).any():
-            self._check_three_body_reach(q[a > 0], U_MAX ** 2)
+            self._check_three_body_reach(q[a > 0], U_MAX ** 2, shallow)
         return averages.three_body_plan(a, q, np.ravel(scale), shallow=shallow, deep=deep, eta_min=eta_min)
 
     def atom_dimer_plan(self, a, q, scale, channel="relaxation", eta_min=averages.ETA_MIN):

@@ -112,7 +112,14 @@ class S11Table:
         return out.reshape(x.shape)
 
 
+#: 1 - |s|^2 of the Efimov channel at |a| = infinity (both signs of a).
+T_UNITARITY = 1.0 - math.exp(-2.0 * math.pi * S0)
+
+
+@numba.njit(cache=True)
 def _unitarity_phase(x):
+    """arg s at |a| = infinity, x = k|a| (a < 0) or sqrt(E m a^2/hbar^2) (a > 0): the exact
+    s = -exp(-pi s0) (x/sqrt 2)^(-2 i s0) Gamma(1 + i s0)/Gamma(1 - i s0) (docs/solver.md)."""
     return math.pi - 2.0 * S0 * math.log(x / math.sqrt(2.0)) + 2.0 * ARG_GAMMA_S0
 
 
@@ -125,8 +132,7 @@ def _pack(lnx, logt, phase, c4, delta0):
     c_logt = spline_coefficients(lnx, logt)
     c_phase = spline_coefficients(lnx, phase)
     x_last = math.exp(lnx[-1])
-    t_unit = 1.0 - math.exp(-2.0 * math.pi * S0)
-    tail_dt = math.exp(logt[-1]) - t_unit
+    tail_dt = math.exp(logt[-1]) - T_UNITARITY
     # unwrap the unitarity phase onto the table's branch at the last node
     p_unit = _unitarity_phase(x_last)
     p_unit += 2.0 * math.pi * round((phase[-1] - p_unit) / (2.0 * math.pi))
@@ -170,10 +176,8 @@ def s11_eval(packed, x):
     x_last = packed[7]
     if x >= x_last:
         branch = packed[_HEADER + 8 * (n - 1)]
-        t = 1.0 - math.exp(-2.0 * math.pi * S0) + packed[5] * x_last / x
-        ph = (math.pi - 2.0 * S0 * math.log(x / math.sqrt(2.0))
-              + 2.0 * ARG_GAMMA_S0 + branch + packed[6] * x_last / x)
-        return t, ph
+        t = T_UNITARITY + packed[5] * x_last / x
+        return t, _unitarity_phase(x) + branch + packed[6] * x_last / x
     i = int((lnx - lnx0) / h)
     if i > n - 2:
         i = n - 2
@@ -333,9 +337,18 @@ def load_atom_dimer_table(path=None):
 # which the table stores from direct threshold solves (measured: A/E^2 departs from its
 # limit like 0.04 sqrt(E) for E < 1e-2, the breakup branch point sqrt(3q^2/4 - E) of the
 # dimer propagator); the J >= 1 sum runs like E^2 (its measured threshold behaviour,
-# dominated by J = 2). Above the grid nothing is extrapolated.
+# dominated by J = 2).
+#
+# Above the grid only the deep-dimer columns are known (Re s, Im s, T_break/E^2); the
+# shallow-dimer columns are NaN there, so that no rate can be extrapolated silently (the
+# J >= 1 sum needs J up to ~ k a, docs/stm.md section 7). T_break = 1 - |s_AD|^2 - T_AD
+# and s_AD come from the atom-dimer table (the same solver; the two agree to 1e-6 at this
+# grid's last point) up to its end, k_AD a = 1e3 (E = 7.5e5), and beyond it from the exact
+# |a| = infinity solution plus the atom-dimer table's last difference from it, decaying like
+# 1/x with x = sqrt(E) (measured over 1e3 <= E <= 7.5e5: (T_break - T_UNITARITY) x moves
+# from -3.98 to -4.24 and (s/s_unitarity - 1) x from -2.06 to -2.12; docs/stm.md).
 
-_RC_HEADER = 12
+_RC_HEADER = 16       # grid, E -> 0 limits, the deep channel's switch to unitarity and its tail
 _RC_COLUMNS = 8       # Re s, Im s, A/E^2, Re B/E^2, Im B/E^2, C/E^2, T_break/E^2, J>=1 sum/E^2
 
 
@@ -345,15 +358,20 @@ class RecombinationTable:
     Attributes
     ----------
     packed : ndarray
-        1-D float array consumed by :func:`recombination_eval`.
+        1-D float array consumed by :func:`recombination_eval`: this table's splines and,
+        for the deep-dimer channel above its grid, the atom-dimer table and the unitarity tail.
     energy_min, energy_max : float
-        Grid ends in E m a^2 / hbar^2 (no extrapolation above ``energy_max``).
+        Grid ends in E m a^2 / hbar^2; above ``energy_max`` only the deep-dimer channel is
+        known (the shallow-dimer columns are NaN).
+    deep_energy_switch : float
+        E m a^2/hbar^2 where the deep channel passes from the atom-dimer table to the
+        |a| = infinity solution (k_AD a = the atom-dimer table's last point).
     kappa_star_a_plus : float
         kappa* a_+ where the eta -> 0 threshold shallow-dimer rate vanishes.
     metadata : dict
     """
 
-    def __init__(self, path):
+    def __init__(self, path, atom_dimer):
         with _open_table(path) as d:
             energy = np.array(d["energy"])
             s_ad = np.array(d["s_ad"])
@@ -370,15 +388,29 @@ class RecombinationTable:
         lnx = np.log(energy)
         if not np.allclose(np.diff(lnx), lnx[1] - lnx[0], rtol=1e-9, atol=0):
             raise LossfitError(f"{path!r}: the energy grid is not uniform in ln E")
-        head = np.array([energy.size, lnx[0], lnx[1] - lnx[0], energy[0], energy[-1]] + limits[:7])
-        assert head.size == _RC_HEADER
         self.energy = energy
         self.energy_min, self.energy_max = float(energy[0]), float(energy[-1])
-        self.packed = np.concatenate([head] + [spline_coefficients(lnx, c).T.ravel() for c in columns])
+        self.deep_energy_switch = 0.75 * atom_dimer.kad_max ** 2 - 1.0
+        if self.deep_energy_switch <= self.energy_max:
+            raise LossfitError(f"{path!r}: the atom-dimer table ends below the recombination grid")
+        # the unitarity tail's 1/x coefficients from the atom-dimer table's last point
+        x_last = math.sqrt(self.deep_energy_switch)
+        t_ad, s_last = atom_dimer.evaluate(np.array([atom_dimer.kad_max]))
+        t_break = 1.0 - abs(s_last[0]) ** 2 - t_ad[0]
+        s_unit = math.exp(-math.pi * S0) * complex(math.cos(_unitarity_phase(x_last)),
+                                                   math.sin(_unitarity_phase(x_last)))
+        tail_s = (s_last[0] / s_unit - 1.0) * x_last
+        self.unitarity_tail = {"t_break": (t_break - T_UNITARITY) * x_last, "s": tail_s}
+        head = np.array([energy.size, lnx[0], lnx[1] - lnx[0], energy[0], energy[-1]] + limits[:7]
+                        + [self.deep_energy_switch, (t_break - T_UNITARITY) * x_last, tail_s.real, tail_s.imag])
+        assert head.size == _RC_HEADER
+        splines = [spline_coefficients(lnx, c).T.ravel() for c in columns]
+        self.packed = np.concatenate([head] + splines + [atom_dimer.packed])
 
     def evaluate(self, energy):
-        """The eight columns at three-atom energies E m a^2/hbar^2 (array, E <= energy_max),
-        evaluated as the runtime kernel does: shape energy.shape + (8,)."""
+        """The eight columns at three-atom energies E m a^2/hbar^2 (array, E > 0), evaluated
+        as the runtime kernel does: shape energy.shape + (8,); NaN in the shallow-dimer
+        columns above ``energy_max``."""
         energy = np.asarray(energy, dtype=float)
         out = np.empty((energy.size, _RC_COLUMNS))
         for i, v in enumerate(energy.ravel()):
@@ -388,8 +420,9 @@ class RecombinationTable:
 
 @numba.njit(cache=True)
 def recombination_grid_points(packed):
-    """(first, last) grid energy E m a^2/hbar^2: the kernel's kinks."""
-    return packed[3], packed[4]
+    """(first, last) grid energy E m a^2/hbar^2 and where the deep channel's unitarity
+    tail begins: the kernel's kinks."""
+    return packed[3], packed[4], packed[12]
 
 
 @numba.njit(cache=True)
@@ -405,11 +438,32 @@ def _rc_column(packed, c, n, below, i, dx, r):
 
 
 @numba.njit(cache=True)
+def _deep_above_grid(packed, n, energy):
+    """(Re s_AD, Im s_AD, T_break/E^2) above the grid: atom-dimer table, then unitarity."""
+    e2 = energy * energy
+    if energy <= packed[12]:
+        t_ad, re, im = s_ad_eval(packed[_RC_HEADER + _RC_COLUMNS * 4 * (n - 1):],
+                                 math.sqrt(4.0 * (energy + 1.0) / 3.0))
+        return re, im, (1.0 - re * re - im * im - t_ad) / e2
+    # the stored tail coefficients are the last differences times x there: they decay as 1/x
+    x = math.sqrt(energy)
+    ph = _unitarity_phase(x)
+    mod = math.exp(-math.pi * S0)
+    fr, fi = 1.0 + packed[14] / x, packed[15] / x
+    c, s = math.cos(ph), math.sin(ph)
+    return mod * (c * fr - s * fi), mod * (s * fr + c * fi), (T_UNITARITY + packed[13] / x) / e2
+
+
+@numba.njit(cache=True)
 def recombination_eval(packed, energy):
     """(Re s_AD, Im s_AD, A/E^2, Re B/E^2, Im B/E^2, C/E^2, T_break/E^2, J>=1 sum/E^2)
-    at three-atom energy E m a^2/hbar^2 (0 < E <= the last grid point)."""
+    at three-atom energy E m a^2/hbar^2 > 0; above the grid the shallow-dimer columns
+    (A, B, C, J >= 1) are NaN."""
     n = int(packed[0])
     lnx0, h, e_first = packed[1], packed[2], packed[3]
+    if energy > packed[4]:
+        re, im, tb = _deep_above_grid(packed, n, energy)
+        return re, im, math.nan, math.nan, math.nan, math.nan, tb, math.nan
     below = energy <= e_first
     i, dx, r = 0, 0.0, math.sqrt(energy / e_first)
     if not below:
@@ -426,5 +480,5 @@ def load_recombination_table(path=None):
     """The shipped a > 0 three-body table (loaded once per process)."""
     path = path or table_path("recombination_positive_a.npz")
     if path not in _CACHE:
-        _CACHE[path] = RecombinationTable(path)
+        _CACHE[path] = RecombinationTable(path, load_atom_dimer_table())
     return _CACHE[path]
