@@ -2,9 +2,11 @@
 
 Top row a < 0, bottom row a > 0. Left: L3 against |a| at three temperatures for
 "threshold", "capped" (an approximation) and "zero-range". Right: log10 of
-capped / zero-range over (|a|, T); for a > 0 blank where the zero-range table ends
-(k_B T > 24 E_b). 133Cs, a_- = -1000 a0, eta = 0.05, a > 0 features tied universally
-(an invented parameter set).
+capped / zero-range over (|a|, T). For a > 0 the zero-range deep-dimer channel reaches
+unitarity, the shallow-dimer channel only k_B T <= 24 E_b: beyond that line (hatched) the
+map compares capped with the deep channel alone, and the curves continue as deep only.
+133Cs, a_- = -1000 a0, eta = 0.05, a > 0 features tied universally (an invented
+parameter set).
 
 Run: python benchmarks/model_comparison.py
 """
@@ -67,7 +69,7 @@ def main():
         a_m = a * sc.physical_constants["Bohr radius"][0]
         return sc.hbar ** 2 / (CS.mass * a_m ** 2 * sc.k) * 1e9
 
-    a = np.geomspace(200.0, 2e4, 300)
+    a = np.geomspace(200.0, 2e5, 300)
     cx.loglog(a, lf.l3_threshold(a, species=CS, efimov=EF), ":", color="k", label="threshold (any T)")
     for t, c in zip((10.0, 100.0, 1000.0), ("C0", "C1", "C2")):
         ok = t <= t_limit * binding_nk(a)
@@ -75,21 +77,29 @@ def main():
                   label=f"capped, {t:g} nK")
         cx.loglog(a[ok], lf.l3(a[ok], t, species=CS, efimov=EF, model="zero-range", rtol=1e-7), "-", color=c,
                   label=f"zero-range, {t:g} nK")
+        cx.loglog(a, lf.l3(a, t, species=CS, efimov=EF, model="zero-range", channel="deep", rtol=1e-7), "-.",
+                  color=c, lw=0.9, label=f"zero-range deep only, {t:g} nK")
+        # the a < 0 value at |a| = 2e5 a0: the deep channel is continuous through unitarity
+        cx.plot(a[-1], lf.l3(-a[-1], t, species=CS, efimov=EF, model="zero-range"), "o", color=c, ms=4)
     cx.axvline(EF.a_plus, color="0.6", lw=0.8)
-    cx.set_xlabel(r"$a$ ($a_0$), $a>0$ (grey: $a_+$)")
+    cx.set_xlabel(r"$a$ ($a_0$), $a>0$ (grey: $a_+$; dots: $L_3$ at $a=-2\times10^5\,a_0$)")
     cx.set_ylabel(r"$L_3$ (cm$^6$/s), shallow + deep")
-    cx.set_ylim(1e-28, 1e-20)
-    cx.legend(fontsize=7)
-    aa = np.geomspace(200.0, 2e4, 110)
+    cx.set_ylim(1e-28, 1e-19)
+    cx.legend(fontsize=6, ncol=2)
+    aa = np.geomspace(200.0, 2e5, 130)
     A, T = np.meshgrid(aa, tt)
     ok = T <= t_limit * binding_nk(A)
-    ratio = np.full(A.shape, np.nan)
-    ratio[ok] = (lf.l3(A[ok], T[ok], species=CS, efimov=EF, model="capped", rtol=1e-7)
-                 / lf.l3(A[ok], T[ok], species=CS, efimov=EF, model="zero-range", rtol=1e-7))
+    capped = lf.l3(A, T, species=CS, efimov=EF, model="capped", rtol=1e-7)
+    exact = lf.l3(A, T, species=CS, efimov=EF, model="zero-range", channel="deep", rtol=1e-7)
+    exact[ok] = lf.l3(A[ok], T[ok], species=CS, efimov=EF, model="zero-range", rtol=1e-7)
+    ratio = capped / exact
     _ratio_map(fig, dx, aa, tt, ratio, r"$a$ ($a_0$), $a>0$",
-               "log10( capped / zero-range ), blank: beyond the exact table")
+               "log10( capped / zero-range ); hatched: zero-range deep channel only")
+    dx.contourf(aa, tt, (~ok).astype(float), levels=[0.5, 1.5], colors="none", hatches=["//"])
+    dx.contour(aa, tt, ok.astype(float), levels=[0.5], colors="k", linewidths=0.8)
     fig.savefig(OUT, dpi=130)
-    print(f"a > 0: capped/zero-range ranges {np.nanmin(ratio):.3g} .. {np.nanmax(ratio):.3g}; "
+    print(f"a > 0: capped/zero-range ranges {ratio[ok].min():.3g} .. {ratio[ok].max():.3g} (total), "
+          f"{ratio[~ok].min():.3g} .. {ratio[~ok].max():.3g} (deep only); "
           f"wrote {os.path.abspath(OUT)}")
 
 
