@@ -32,6 +32,7 @@ far enough above l for double precision and normalised by Q_0(z) = atanh(1/z).
 
 __all__ = ["legendre_q", "legendre_p", "partial_wave_kernel", "PartialWaveSolver",
            "breakup_partial_wave"]
+# PartialWaveSolver.born_breakup is the large-J form used where the solves are not needed
 
 import cmath
 import math
@@ -213,6 +214,46 @@ class PartialWaveSolver:
                 kern = (-1.0) ** ell * qs[ell - part[0]].reshape(pq.shape) / pq
                 out[ell] = self._solve(ell, kern)[1]
         return np.array([out[int(v)] for v in ells])
+
+    def born_breakup(self, l_max):
+        """Breakup probabilities P_l of l = 1..l_max to second order in the exchange kernel.
+
+        With y = (1 - K)^-1 M(q, k0) replaced by its first term M(q, k0), the amplitude is
+        f = g M(k0, k0) + g sum_q w_q M(k0, q)^2 (g = 16/3) and, to the same order,
+
+            P_l = 1 - |S_l|^2 = 4 k0 Im f - 4 k0^2 |f|^2 ~ 4 k0 g Im sum_q w_q M(k0, q)^2 - 4 k0^2 g^2 M(k0, k0)^2
+
+        (M(k0, k0) is real: z = 5/4 + 1/k0^2 > 1). Large l probe large atom-dimer distances,
+        where the kernel is weak, so the form becomes exact as l grows; its accuracy against
+        the solves is measured in docs/stm.md section 7 (3e-3 at l = k_AD a/2, 2e-5 at
+        l = 1.5 k_AD a, for k_AD a = 36.5). One O(nodes) row per l, no linear solve.
+
+        Returns
+        -------
+        ndarray
+            P_l for l = 1..l_max.
+        """
+        l_max = int(l_max)
+        k0, energy, q, cw = self.kad, self.energy, self._q, self._cw
+        pq = k0 * q
+        z = (k0 * k0 + q * q - energy) / pq
+        qs = np.empty((l_max, z.size), dtype=complex)
+        _q_block(z, 1, l_max, qs)
+        # the on-shell row continued along the path, as _onshell_kernel does one l at a time
+        q0_path = _kernel_onshell(k0, q, energy) * pq
+        shift = 1j * math.pi * np.round((q0_path - np.arctanh(1.0 / z)).imag / math.pi)
+        moved = np.flatnonzero(shift != 0)
+        for i in moved:
+            qs[:, i] += shift[i] * np.array([_legendre_p_scalar(z[i], ell) for ell in range(1, l_max + 1)])
+        sign = (-1.0) ** np.arange(1, l_max + 1)
+        rows = sign[:, None] * qs / pq[None, :]
+        zkk = np.array([(2.0 * k0 * k0 - energy) / (k0 * k0) + 0j])
+        qkk = np.empty((l_max, 1), dtype=complex)
+        _q_block(zkk, 1, l_max, qkk)
+        mkk = sign * qkk[:, 0].real / (k0 * k0)
+        g = 16.0 / 3.0
+        second = (rows * rows) @ cw
+        return 4.0 * k0 * g * second.imag - 4.0 * k0 * k0 * g * g * mkk ** 2
 
     def _solve(self, ell, kernel):
         from scipy.linalg import lu_factor, lu_solve
