@@ -1,6 +1,6 @@
 """Coverage of the global decay-curve fit and of the two-stage route (too slow for CI).
 
-Invented scenario (``lossfit.curves.INVENTED_CAMPAIGN``, not measured data): for each
+Invented scenario (``lossfit.data.curves.INVENTED_CAMPAIGN``, not measured data): for each
 of ``--campaigns`` synthetic campaigns the Efimov truth is fixed (a_- = -900 a0,
 eta_- = 0.08) and the calibration truths are drawn from the priors the fits use
 (density scale ~ LogNormal(1, 0.2), temperature scale ~ LogNormal(1, 0.05)); the

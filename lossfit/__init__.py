@@ -35,14 +35,14 @@ __all__ = ["__version__", "errors", "S0", "SCALING_FACTOR", "LossfitError", "Los
 _LAZY = {name: "lossfit.inference" for name in
          ("fit", "FitResult", "LogUniform", "Uniform", "LogNormal", "Normal")}
 _LAZY.update({name: "lossfit.inference.curve_fits" for name in ("fit_curve", "spectrum_from_curves")})
-_LAZY.update({name: "lossfit.curves" for name in ("DecayCurve", "read_campaign", "read_curves_csv",
+_LAZY.update({name: "lossfit.data.curves" for name in ("DecayCurve", "read_campaign", "read_curves_csv",
                                                   "write_campaign")})
 _LAZY.update({name: "lossfit.data" for name in ("LossSpectrum", "read_csv", "read_spectra", "write_spectra")})
-_LAZY.update({name: "lossfit.decay" for name in ("TabulatedRate", "simulate_decay")})
-_LAZY.update({name: "lossfit.feshbach" for name in ("FeshbachResonance", "OverlappingResonances",
+_LAZY.update({name: "lossfit.experiment.decay" for name in ("TabulatedRate", "simulate_decay")})
+_LAZY.update({name: "lossfit.experiment.feshbach" for name in ("FeshbachResonance", "OverlappingResonances",
                                                     "ScatteringLengthTable", "average_over_field_noise",
                                                     "calibrate_from_binding_energies")})
-_LAZY["HarmonicTrap"] = "lossfit.trap"
+_LAZY["HarmonicTrap"] = "lossfit.experiment.trap"
 
 
 def __getattr__(name):

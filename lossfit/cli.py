@@ -4,7 +4,7 @@
     Fit the built-in invented scenario; writes data, job file, chain, summary, figures.
     ``--from-curves`` starts from invented raw decay curves (global fit).
 ``lossfit run JOB.toml --out DIR [--pool serial|processes|mpi] [--workers N] [--steps N]``
-    Run or resume a job (schema: :mod:`lossfit.jobs`); under MPI start it as
+    Run or resume a job (schema: :mod:`lossfit.batch.jobs`); under MPI start it as
     ``mpiexec -n N lossfit run JOB.toml --out DIR --pool mpi``.
 ``lossfit report DIR``
     Re-create summary and figures from the stored chain.
@@ -24,7 +24,7 @@ from .errors import LossfitValueError
 
 
 def _cmd_demo(args):
-    from .demo import run_curves_demo, run_demo
+    from .batch.demo import run_curves_demo, run_demo
     progress = None if not args.quiet else False
     if args.from_curves:
         run_curves_demo(args.out, walkers=args.walkers or 16, steps=args.steps or 1500, seed=args.seed,
@@ -36,14 +36,14 @@ def _cmd_demo(args):
 
 
 def _cmd_run(args):
-    from .runner import run_job
+    from .batch.runner import run_job
     run_job(args.job, args.out, pool=args.pool, workers=args.workers, steps=args.steps,
             overwrite=args.overwrite, progress=False if args.quiet else None)
     return 0
 
 
 def _cmd_report(args):
-    from .runner import report
+    from .batch.runner import report
     report(args.dir, overwrite=args.overwrite)
     return 0
 
@@ -82,8 +82,8 @@ def build_parser():
 def main(argv=None):
     parser = build_parser()
     args = parser.parse_args(argv)
+    from .batch.runner import EXIT_BAD_INPUT, EXIT_CONFLICT, EXIT_INTERRUPTED, OutputConflict
     from .inference.sampling import Interrupted
-    from .runner import EXIT_BAD_INPUT, EXIT_CONFLICT, EXIT_INTERRUPTED, OutputConflict
     try:
         return args.func(args)
     except LossfitValueError as err:

@@ -20,15 +20,15 @@ import warnings
 
 import numpy as np
 
-from .curves import KINDS, DecayCurve
-from .data import LossSpectrum
-from .decay import simulate_decay
+from .data.curves import KINDS, DecayCurve
+from .data.spectra import LossSpectrum
 from .efimov import Efimov
 from .errors import LossfitValueError, ValidityWarning
-from .feshbach import FeshbachResonance
+from .experiment.decay import simulate_decay
+from .experiment.feshbach import FeshbachResonance
+from .experiment.trap import as_trap
 from .rates import beta, l3
 from .species import species
-from .trap import as_trap
 
 SCENARIO = {
     "description": "invented demo scenario (not measured data): Cs-133 gas, "
@@ -82,7 +82,7 @@ def simulate_curve(t, *, species, trap_hz, efimov, n0, t0_nK, a=None, field=None
     """A synthetic loss curve from the forward model (for invented scenarios and tests).
 
     The true cloud (``n0`` atoms at ``t0_nK``) evolves under the theory L3 at the
-    instantaneous temperature (:func:`lossfit.decay.simulate_decay`); the "measured"
+    instantaneous temperature (:func:`lossfit.experiment.decay.simulate_decay`); the "measured"
     numbers are ``density_scale`` x N(t) and temperatures ``temperature_scale`` x T(t),
     scattered normally with the stated errors (relative to the measured model value,
     plus ``atoms_abs_err`` in quadrature). With ``kind="dimers"`` the mixture of
@@ -95,7 +95,7 @@ def simulate_curve(t, *, species, trap_hz, efimov, n0, t0_nK, a=None, field=None
     t : array_like
         Hold times in s.
     species, trap_hz, efimov, model, gamma, recombination_heating_nK
-        As in :func:`lossfit.decay.simulate_decay` (gamma in 1/s, T_h in nK).
+        As in :func:`lossfit.experiment.decay.simulate_decay` (gamma in 1/s, T_h in nK).
     n0 : float
         True initial atom number.
     t0_nK : float

@@ -53,8 +53,8 @@ os.environ.setdefault("OMP_NUM_THREADS", "1")
 from scipy.interpolate import CubicSpline  # noqa: E402
 from scipy.special import loggamma  # noqa: E402
 
+from lossfit.batch.provenance import git_revision  # noqa: E402
 from lossfit.constants import S0  # noqa: E402
-from lossfit.provenance import git_revision  # noqa: E402
 from lossfit.universal.solver import stm  # noqa: E402
 from lossfit.universal.solver.scattering import s11_unitarity  # noqa: E402
 

@@ -65,8 +65,8 @@ os.environ.setdefault("OMP_NUM_THREADS", "1")
 
 from scipy.special import loggamma  # noqa: E402
 
+from lossfit.batch.provenance import git_revision  # noqa: E402
 from lossfit.constants import S0  # noqa: E402
-from lossfit.provenance import git_revision  # noqa: E402
 from lossfit.universal.solver import stm  # noqa: E402
 from lossfit.universal.solver.partial_waves import PartialWaveSolver  # noqa: E402
 

@@ -46,7 +46,7 @@ HERE = os.path.dirname(os.path.abspath(__file__))
 ROOT = os.path.dirname(HERE)
 sys.path.insert(0, ROOT)
 
-from lossfit.provenance import git_revision  # noqa: E402
+from lossfit.batch.provenance import git_revision  # noqa: E402
 from lossfit.universal.solver.boundstates import (  # noqa: E402
     kappa_star_from_phase,
     trimer_branch_negative_a,

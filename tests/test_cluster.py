@@ -13,12 +13,12 @@ import time
 import numpy as np
 import pytest
 
+from lossfit.batch.demo import demo_job_text
+from lossfit.batch.jobs import JobError, load_job
+from lossfit.batch.runner import EXIT_CONFLICT, EXIT_INTERRUPTED
 from lossfit.data import write_spectra
-from lossfit.demo import demo_job_text
 from lossfit.inference.backends import read_chain_file
 from lossfit.inference.pools import find_mpiexec
-from lossfit.jobs import JobError, load_job
-from lossfit.runner import EXIT_CONFLICT, EXIT_INTERRUPTED
 from lossfit.simulate import demo_spectra
 
 
@@ -215,7 +215,7 @@ def test_bad_job_on_the_command_line_exits_2(tmp_path):
 
 @pytest.mark.slow
 def test_campaign_job_runs_the_global_fit(tmp_path):
-    from lossfit.curves import write_campaign
+    from lossfit.data.curves import write_campaign
     from lossfit.simulate import invented_campaign
     curves, resonance, truth = invented_campaign(seed=3, n_fields=4)
     write_campaign(tmp_path / "campaign.h5", curves, species="133Cs", resonance=resonance)

@@ -15,9 +15,9 @@ import pytest
 import scipy.constants as sc
 from scipy.integrate import solve_ivp
 
-from lossfit.curves import DecayCurve
+from lossfit.data.curves import DecayCurve
 from lossfit.errors import LossfitValueError
-from lossfit.feshbach import FeshbachResonance
+from lossfit.experiment.feshbach import FeshbachResonance
 from lossfit.inference.curve_fits import fit_curve, spectrum_from_curves
 from lossfit.species import species
 

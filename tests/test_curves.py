@@ -13,10 +13,10 @@ import numpy as np
 import pytest
 
 import lossfit as lf
-from lossfit.curves import DecayCurve, read_campaign, read_curves_csv, write_campaign
 from lossfit.data import LossSpectrum, write_spectra
+from lossfit.data.curves import DecayCurve, read_campaign, read_curves_csv, write_campaign
 from lossfit.errors import LossfitValueError
-from lossfit.feshbach import FeshbachResonance
+from lossfit.experiment.feshbach import FeshbachResonance
 from lossfit.simulate import invented_campaign
 
 TRAP = (40.0, 40.0, 8.0)

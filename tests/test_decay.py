@@ -1,4 +1,4 @@
-"""Tests of lossfit.decay: closed-form solutions, scipy.integrate.solve_ivp, energy balance.
+"""Tests of lossfit.experiment.decay: closed-form solutions, scipy.integrate.solve_ivp, energy balance.
 
 The density coefficient c (<n^2> = c N^2 / T^3) is recomputed here from scipy.constants
 with the closed form of docs/architecture.md, conventions (Weber et al., PRL 91, 123201 (2003)); the trap
@@ -13,9 +13,9 @@ import pytest
 import scipy.constants as sc
 from scipy.integrate import cubature, solve_ivp
 
-from lossfit import decay
-from lossfit.decay import DecayBatch, TabulatedRate, simulate_decay, simulate_decay_batch, tabulate_rate
 from lossfit.errors import LossfitValueError
+from lossfit.experiment import decay
+from lossfit.experiment.decay import DecayBatch, TabulatedRate, simulate_decay, simulate_decay_batch, tabulate_rate
 from lossfit.species import species
 
 SP = species("133Cs")
@@ -238,7 +238,7 @@ def test_atom_dimer_heating_from_energy_balance():
     assert u_lost == pytest.approx(1.5, rel=1e-8)
     # so each event removes 3 kT kinetic + 3/2 kT potential instead of 2 x 3 kT: the
     # remaining 3 (N_A + N_D) k heat capacity gains 3/2 kT per event
-    from lossfit.trap import HarmonicTrap
+    from lossfit.experiment.trap import HarmonicTrap
     trap = HarmonicTrap(FREQS, dimer_frequencies_hz=dimer_f)
     beta, nd0 = 2e-11, 4e4
     p = np.zeros(8)

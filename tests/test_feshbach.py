@@ -1,4 +1,4 @@
-"""Tests of lossfit.feshbach against closed forms, Monte Carlo and scipy quadrature.
+"""Tests of lossfit.experiment.feshbach against closed forms, Monte Carlo and scipy quadrature.
 
 Scenario (invented for these tests, not a real resonance): a broad resonance of 39K
 atoms at b0 = 350 G, width -45 G, a_bg = -25 a0, whose a > 0 branch lies below b0.
@@ -12,7 +12,7 @@ import scipy.constants as sc
 from scipy.integrate import quad
 
 from lossfit.errors import LossfitValueError
-from lossfit.feshbach import (
+from lossfit.experiment.feshbach import (
     FeshbachResonance,
     OverlappingResonances,
     ScatteringLengthTable,

@@ -7,7 +7,7 @@ References outside the project:
   the chord Gauss-Newton iteration approximates;
 * a(B) = a_bg (1 - width / (B - b0)) (Chin et al., RMP 82, 1225 (2010));
 * Monte Carlo truth: invented campaigns with known parameters (the scenario of
-  lossfit.curves.INVENTED_CAMPAIGN, not measured data) for recovery and coverage.
+  lossfit.data.curves.INVENTED_CAMPAIGN, not measured data) for recovery and coverage.
 """
 
 import math
@@ -147,7 +147,7 @@ def test_bad_input_is_named():
 
 @pytest.mark.slow
 def test_global_fit_recovers_the_truth_and_plots(tmp_path):
-    from lossfit.plotting_curves import curves_plot, derived_spectrum_plot
+    from lossfit.plotting.curves import curves_plot, derived_spectrum_plot
     curves, res, truth = invented_campaign(21, n_fields=8)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ConvergenceWarning)
@@ -208,10 +208,10 @@ def test_small_coverage_study_global_versus_two_stage():
 
 def _dimer_campaign(seed):
     """Invented atom-dimer mixtures at a > 0 (not measured data): beta from the theory,
-    the curves from lossfit.decay (itself tested against solve_ivp in test_decay.py)."""
-    from lossfit.curves import DecayCurve
-    from lossfit.decay import simulate_decay
-    from lossfit.trap import HarmonicTrap
+    the curves from lossfit.experiment.decay (itself tested against solve_ivp in test_decay.py)."""
+    from lossfit.data.curves import DecayCurve
+    from lossfit.experiment.decay import simulate_decay
+    from lossfit.experiment.trap import HarmonicTrap
     ef = lf.Efimov(a_star=950.0, eta_star=0.1)
     trap = HarmonicTrap((40.0, 40.0, 8.0))
     rng = np.random.default_rng(seed)
@@ -258,7 +258,7 @@ def test_correlated_resonance_prior_is_the_joint_normal():
     # Jacobian of the ln|value| sampling coordinates (d x = |x| d theta)
     from scipy.stats import multivariate_normal
 
-    from lossfit.feshbach import FeshbachResonance
+    from lossfit.experiment.feshbach import FeshbachResonance
     from lossfit.inference.global_fit import CampaignSpace, _systematic_priors
     from lossfit.inference.priors import LogUniform
     cov = np.array([[4e-4, 3e-4, -0.05], [3e-4, 9e-4, -0.02], [-0.05, -0.02, 25.0]])

@@ -1,4 +1,4 @@
-"""Tests of lossfit.trap against direct numerical quadrature of Boltzmann profiles.
+"""Tests of lossfit.experiment.trap against direct numerical quadrature of Boltzmann profiles.
 
 Reference profiles are built here from scipy.constants and the harmonic potential
 U = (m/2) sum omega_i^2 x_i^2 alone: n(r) = N exp(-U/k_B T) / Z with Z itself computed
@@ -13,8 +13,8 @@ import scipy.constants as sc
 from scipy.integrate import cubature, quad
 
 from lossfit.errors import LossfitValueError
+from lossfit.experiment.trap import HarmonicTrap, as_trap
 from lossfit.species import species
-from lossfit.trap import HarmonicTrap, as_trap
 
 FREQS = (95.0, 130.0, 17.0)          # Hz, a deliberately anisotropic crossed trap
 TEMP_NK = 250.0

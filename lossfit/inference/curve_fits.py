@@ -3,7 +3,7 @@
 Each curve is fitted on its own with a *constant* loss coefficient (L3 for atom
 curves, beta for dimer curves) and its nuisances -- initial number N0, initial
 temperature T0 and one-body loss rate Gamma -- through the rate equations of
-:mod:`lossfit.decay` with anti-evaporation and recombination heating (Weber et al.,
+:mod:`lossfit.experiment.decay` with anti-evaporation and recombination heating (Weber et al.,
 PRL 91, 123201 (2003)). The fit is weighted least squares
 (:func:`scipy.optimize.least_squares`, trust-region reflective so that Gamma >= 0);
 the covariance is (J^T J)^-1 at the optimum, J the Jacobian of the normalised
@@ -41,10 +41,10 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.optimize import least_squares
 
-from ..curves import DecayCurve, check_curves
-from ..data import LossSpectrum
-from ..decay import DecayBatch
+from ..data.curves import DecayCurve, check_curves
+from ..data.spectra import LossSpectrum
 from ..errors import ConvergenceWarning, LossfitValueError, check_positive
+from ..experiment.decay import DecayBatch
 from ..species import species as _lookup_species
 from .diagnostics import autocorrelation_times
 from .posterior import auto_burn

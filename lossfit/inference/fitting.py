@@ -7,8 +7,8 @@ import math
 import numpy as np
 from scipy.optimize import minimize
 
-from ..curves import DecayCurve
-from ..data import LossSpectrum
+from ..data.curves import DecayCurve
+from ..data.spectra import LossSpectrum
 from ..errors import LossfitValueError
 from ..species import species as _species
 from ..universal.models import DEFAULT_MODEL, get_model

@@ -42,9 +42,9 @@ through a table of the theory on a small, fixed grid of true temperatures per cu
 (``table_step`` in ln T, covering the curve's temperatures over the prior range of
 ``temperature_scale``); one thermal quadrature call evaluates all grid points of all
 curves, and a batched cubic spline in ln T (the interpolation of
-:class:`lossfit.decay.TabulatedRate`) feeds :class:`lossfit.decay.DecayBatch`. With
+:class:`lossfit.experiment.decay.TabulatedRate`) feeds :class:`lossfit.experiment.decay.DecayBatch`. With
 field noise, the rate is averaged over sigma_B by Gauss-Hermite quadrature in B
-(:func:`lossfit.feshbach.average_over_field_noise` uses the same rule) -- averaging
+(:func:`lossfit.experiment.feshbach.average_over_field_noise` uses the same rule) -- averaging
 the rate rather than the curves, which is exact to first order in the loss.
 """
 
@@ -58,11 +58,11 @@ import numpy as np
 from scipy.interpolate import CubicSpline
 from scipy.optimize import least_squares, minimize
 
-from ..curves import check_curves
-from ..data import LossSpectrum
-from ..decay import DecayBatch, TabulatedRate
+from ..data.curves import check_curves
+from ..data.spectra import LossSpectrum
 from ..errors import LossfitValueError, ValidityWarning
-from ..feshbach import FeshbachResonance, resonance_covariance, resonance_scattering_length
+from ..experiment.decay import DecayBatch, TabulatedRate
+from ..experiment.feshbach import FeshbachResonance, resonance_covariance, resonance_scattering_length
 from ..species import species as _lookup_species
 from ..universal.models import DEFAULT_MODEL, get_model
 from .curve_fits import fit_curve
@@ -745,7 +745,7 @@ def fit_curves(curves, *, species, free, model=None, priors=None, resonance=None
         ``density_scale`` / ``temperature_scale``: a width sigma meaning LogNormal(1, sigma);
         ``b0``, ``width``, ``a_bg``: a width meaning Normal(nominal, width) (G, G, a0);
         ``resonance``: ``True`` (the resonance's own ``covariance``, e.g. from
-        :func:`lossfit.feshbach.calibrate_from_binding_energies`) or a 3x3 covariance of
+        :func:`lossfit.experiment.feshbach.calibrate_from_binding_energies`) or a 3x3 covariance of
         (b0, width, a_bg) -- the three sampled with one correlated Normal prior;
         ``sigma_B``: a (lo, hi) range in G meaning LogUniform.
     fixed : dict, optional

@@ -13,7 +13,7 @@ import math
 import numba
 import numpy as np
 
-from ..data import LossSpectrum
+from ..data.spectra import LossSpectrum
 from ..errors import LossfitValueError
 from ..rates import natural_unit
 from ..species import species as _species

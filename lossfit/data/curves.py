@@ -37,11 +37,11 @@ from dataclasses import field as _dc_field
 
 import numpy as np
 
-from ._io import atomic_path, open_checked_h5, read_csv_table
-from ._version import __version__
-from .errors import LossfitValueError, check_finite, check_positive
-from .feshbach import FeshbachResonance
-from .trap import HarmonicTrap, as_trap
+from .._io import atomic_path, open_checked_h5, read_csv_table
+from .._version import __version__
+from ..errors import LossfitValueError, check_finite, check_positive
+from ..experiment.feshbach import FeshbachResonance
+from ..experiment.trap import HarmonicTrap, as_trap
 
 CAMPAIGN_SCHEMA = "lossfit.campaign"
 CAMPAIGN_SCHEMA_VERSION = 1
@@ -101,7 +101,7 @@ class DecayCurve:
     def __init__(self, *, t, atoms, atoms_err, temperature=None, temperature_err=None, field=None,
                  a=None, trap_hz=None, kind="atoms", partner_atoms=None, partner_atoms_err=None,
                  label=None):
-        from .decay import _times  # the integrator's own time validation
+        from ..experiment.decay import _times  # the integrator's own time validation
         if kind not in KINDS:
             raise LossfitValueError("kind", f"must be 'atoms' or 'dimers', got {kind!r}")
         self.t = _times(t).astype(float)

@@ -30,10 +30,10 @@ import numpy as np
 from scipy.interpolate import PchipInterpolator
 from scipy.optimize import brentq, least_squares
 
-from .constants import HBAR
-from .errors import LossfitValueError, ValidityWarning, check_finite, check_positive
-from .species import species as _lookup_species
-from .units import A0
+from ..constants import HBAR
+from ..errors import LossfitValueError, ValidityWarning, check_finite, check_positive
+from ..species import species as _lookup_species
+from ..units import A0
 
 _SIDES = ("above", "below")
 

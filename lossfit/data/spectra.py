@@ -19,9 +19,9 @@ import os
 
 import numpy as np
 
-from ._io import atomic_path, open_checked_h5, read_csv_table
-from ._version import __version__
-from .errors import LossfitValueError, check_finite, check_nonzero, check_positive
+from .._io import atomic_path, open_checked_h5, read_csv_table
+from .._version import __version__
+from ..errors import LossfitValueError, check_finite, check_nonzero, check_positive
 
 SCHEMA = "lossfit.spectra"
 SCHEMA_VERSION = 1

@@ -24,8 +24,8 @@ import sys
 import time
 import warnings
 
-from ._io import atomic_path
-from .errors import LossfitError, LossfitValueError, ValidityWarning
+from .._io import atomic_path
+from ..errors import LossfitError, LossfitValueError, ValidityWarning
 
 EXIT_OK = 0
 EXIT_BAD_INPUT = 2
@@ -112,7 +112,7 @@ def write_outputs(result, out_dir, provenance_info, *, truths=None):
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    from .plotting import corner_plot, spectrum_plot
+    from ..plotting.spectra import corner_plot, spectrum_plot
     summary = result.to_dict()
     summary["provenance"] = provenance_info
     _atomic_write_text(os.path.join(out_dir, "summary.json"), json.dumps(summary, indent=2, default=str))
@@ -132,9 +132,9 @@ def run_job(job_path, out_dir, *, pool="serial", workers=None, steps=None, overw
     overwritten, :class:`lossfit.inference.sampling.Interrupted` on SIGTERM/SIGINT
     after the chain is saved, and :class:`lossfit.errors.LossfitValueError` for bad input.
     """
-    from .inference.backends import read_chain_file
-    from .inference.fitting import fit
-    from .inference.pools import make_pool
+    from ..inference.backends import read_chain_file
+    from ..inference.fitting import fit
+    from ..inference.pools import make_pool
     from .jobs import load_job
     from .provenance import now_utc, provenance
     stream = stream or sys.stdout
@@ -190,9 +190,9 @@ def report(out_dir, *, overwrite=False, stream=None):
     """Re-create summary.json, corner.png and spectrum.png from the stored chain."""
     import numpy as np
 
-    from .inference.backends import read_chain_file
-    from .inference.fitting import prepare
-    from .inference.posterior import make_result
+    from ..inference.backends import read_chain_file
+    from ..inference.fitting import prepare
+    from ..inference.posterior import make_result
     from .jobs import parse_job
     stream = stream or sys.stdout
     out_dir = os.fspath(out_dir)
@@ -209,7 +209,7 @@ def report(out_dir, *, overwrite=False, stream=None):
         kw = job.fit_kwargs()
         common = {k: kw[k] for k in ("species", "free", "model", "priors", "fixed", "tie")}
         if job.campaign:
-            from .inference.global_fit import prepare_curves
+            from ..inference.global_fit import prepare_curves
             space, likelihood, _ = prepare_curves(data, resonance=kw["resonance"],
                                                   systematics=kw["systematics"], **common)
             # the chord reference of the nuisances sits at the best stored sample, as on resume

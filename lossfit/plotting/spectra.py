@@ -6,9 +6,9 @@ import os
 
 import numpy as np
 
-from .errors import LossfitValueError
-from .inference.likelihood import RateBlock
-from .inference.parameters import UNITS
+from ..errors import LossfitValueError
+from ..inference.likelihood import RateBlock
+from ..inference.parameters import UNITS
 
 _LABELS = {"a_minus": r"$a_-$", "a_star": r"$a_*$", "a_plus": r"$a_+$", "eta_minus": r"$\eta_-$",
            "eta_star": r"$\eta_*$", "eta_plus": r"$\eta_+$", "eta": r"$\eta$",

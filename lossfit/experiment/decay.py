@@ -3,7 +3,7 @@
 Atoms only (Weber, Herbig, Mark, Naegerl & Grimm, PRL 91, 123201 (2003)):
 
     dN/dt = -Gamma N - L3 <n^2> N,
-    dT/dt = (L3 <n^2> / 3) (T + T_h),          <n^2> = c N^2 / T^3  (lossfit.trap).
+    dT/dt = (L3 <n^2> / 3) (T + T_h),          <n^2> = c N^2 / T^3  (lossfit.experiment.trap).
 
 Why T/3 ("anti-evaporation"): in a 3D harmonic trap each atom carries on average
 3 k_B T (3/2 kinetic + 3/2 potential). Loss at rate proportional to n^3 picks atoms
@@ -48,9 +48,9 @@ import numba
 import numpy as np
 from scipy.interpolate import CubicSpline
 
-from ._bisect import interval_of
-from .errors import LossfitValueError, ValidityWarning, check_finite, check_positive
-from .species import species as _lookup_species
+from .._bisect import interval_of
+from ..errors import LossfitValueError, ValidityWarning, check_finite, check_positive
+from ..species import species as _lookup_species
 from .trap import as_trap
 
 # --- parameter vector layout of the kernels ------------------------------------------
@@ -443,7 +443,7 @@ class _RateSpec:
 def _theory_rate(kind, efimov, a, species, model):
     """Rate callable of T (nK) from the zero-range theory, imported lazily."""
     try:
-        from . import rates
+        from .. import rates
     except ImportError:
         raise LossfitValueError("efimov", "the theory module lossfit.rates is not available; "
                                 "pass l3=/beta= as a constant, table or callable") from None
@@ -540,7 +540,7 @@ def simulate_decay(t, *, species, trap_hz, n0, t0_nK, l3=None, efimov=None, a=No
     psd = float(trap.phase_space_density(n_a, temp0, sp))
     if psd > _PSD_WARN:
         warnings.warn(f"peak phase-space density {psd:.2g} at t = 0: the Boltzmann densities of "
-                      "lossfit.trap (and the thermal L3) are unreliable close to degeneracy",
+                      "lossfit.experiment.trap (and the thermal L3) are unreliable close to degeneracy",
                       ValidityWarning, stacklevel=2)
     l3_spec = _resolve_rate("l3", l3, efimov, a, "l3", sp, model, required=True)
     beta_spec = (_resolve_rate("beta", beta, efimov, a, "beta", sp, model, required=True)
@@ -631,7 +631,7 @@ def _pack_rates(name, value, m, column):
         return knots, coefs, k_off, c_off
     if callable(value):
         raise LossfitValueError(name, "callables are not accepted here; tabulate them once "
-                                "with lossfit.decay.tabulate_rate")
+                                "with lossfit.experiment.decay.tabulate_rate")
     column[:] = _per_curve_scalars(name, value, m)
     if m not in _NO_OFFSETS:
         _NO_OFFSETS[m] = np.zeros(m + 1, dtype=np.int64)

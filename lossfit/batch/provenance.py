@@ -8,7 +8,7 @@ import platform
 import socket
 import subprocess
 
-from ._version import __version__
+from .._version import __version__
 
 
 def now_utc():

@@ -8,7 +8,7 @@ error that names the key)::
     spectra = ["data.h5"]                  # lossfit.spectra HDF5 files (paths relative
                                            # to the job file)
     csv = [{ path = "run1.csv", kind = "l3", label = "run 1" }]   # optional CSV tables
-    # or, instead of spectra: raw decay curves fitted globally (lossfit.curves schema;
+    # or, instead of spectra: raw decay curves fitted globally (lossfit.data.curves schema;
     # its resonance is the nominal a(B)), with the campaign systematics density_scale,
     # temperature_scale, b0, width, a_bg, sigma_B allowed in [free]
     # campaign = "campaign.h5"
@@ -45,7 +45,7 @@ import dataclasses
 import math
 import os
 
-from .errors import LossfitValueError
+from ..errors import LossfitValueError
 
 try:
     import tomllib
@@ -107,9 +107,9 @@ class Job:
 
     def load_data(self):
         """The job's spectra (list of LossSpectrum) or decay curves (list of DecayCurve)."""
-        from .data import read_csv, read_spectra
+        from ..data.spectra import read_csv, read_spectra
         if self.campaign:
-            from .curves import read_campaign
+            from ..data.curves import read_campaign
             camp = read_campaign(os.path.join(self.base_dir, self.campaign))
             self._resonance = camp.resonance
             return list(camp.curves)
@@ -129,7 +129,7 @@ class Job:
                   burn=None if s["burn"] == "auto" else s["burn"], thin=s["thin"], seed=s["seed"],
                   fixed=self.fixed, tie=self.tie)
         if self.campaign:
-            from .inference.global_fit import SYSTEMATIC_NAMES
+            from ..inference.global_fit import SYSTEMATIC_NAMES
             kw["systematics"] = {n: p for n, p in self.priors.items() if n in SYSTEMATIC_NAMES}
             kw["priors"] = {n: p for n, p in self.priors.items() if n not in SYSTEMATIC_NAMES}
             kw["free"] = [n for n in self.free if n not in SYSTEMATIC_NAMES]
@@ -138,7 +138,7 @@ class Job:
 
 
 def _prior(key, spec):
-    from .inference.priors import LogNormal, LogUniform, Normal, Uniform
+    from ..inference.priors import LogNormal, LogUniform, Normal, Uniform
     if not isinstance(spec, dict) or "prior" not in spec:
         raise JobError(key, f"must be a table with a 'prior' key, got {spec!r}")
     kind = spec["prior"]
@@ -180,9 +180,9 @@ def load_job(path):
 
 def parse_job(text, path):
     """Validate job ``text``; relative data paths are taken from the folder of ``path``."""
-    from .inference.parameters import EFIMOV_NAMES, NUISANCE_NAMES
-    from .species import species as _species
-    from .universal.models import DEFAULT_MODEL, available_models
+    from ..inference.parameters import EFIMOV_NAMES, NUISANCE_NAMES
+    from ..species import species as _species
+    from ..universal.models import DEFAULT_MODEL, available_models
     try:
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as err:
@@ -238,7 +238,7 @@ def parse_job(text, path):
         raise JobError("model.tie", f"must be 'none' or 'universal', got {tie!r}")
     allowed_free = set(EFIMOV_NAMES) | {"eta"} | set(NUISANCE_NAMES)
     if campaign is not None:
-        from .inference.global_fit import SYSTEMATIC_NAMES
+        from ..inference.global_fit import SYSTEMATIC_NAMES
         allowed_free |= set(SYSTEMATIC_NAMES)
     free, priors = [], {}
     if not doc["free"]:

@@ -7,10 +7,10 @@ import os
 import time
 import warnings
 
-from .data import write_spectra
-from .errors import ValidityWarning
-from .simulate import INVENTED_CAMPAIGN, SCENARIO, demo_spectra, invented_campaign
-from .species import species
+from ..data.spectra import write_spectra
+from ..errors import ValidityWarning
+from ..simulate import INVENTED_CAMPAIGN, SCENARIO, demo_spectra, invented_campaign
+from ..species import species
 
 
 def _fresh_folder(out_dir, names, overwrite):
@@ -27,7 +27,7 @@ def _fresh_folder(out_dir, names, overwrite):
 
 
 def demo_job_text(walkers=32, steps=5000, seed=1):
-    """The job file the demo runs (TOML; see :mod:`lossfit.jobs`)."""
+    """The job file the demo runs (TOML; see :mod:`lossfit.batch.jobs`)."""
     return f"""# lossfit demo job: {SCENARIO['description']}
 [data]
 species = "{SCENARIO['species']}"
@@ -83,7 +83,7 @@ def run_curves_demo(out_dir, *, walkers=16, steps=1500, seed=1, n_fields=10, ove
     """The demo from raw data: invented decay curves -> per-curve fits -> global fit.
 
     Writes ``campaign.h5`` (the invented curves, campaign schema of
-    :mod:`lossfit.curves`), ``chains.h5``, ``summary.json``, ``curves.png`` (each curve
+    :mod:`lossfit.data.curves`), ``chains.h5``, ``summary.json``, ``curves.png`` (each curve
     with its global and per-curve fit and residuals), ``spectrum.png`` (the derived
     spectrum with the global posterior) and ``corner.png``; returns the FitResult.
     """
@@ -93,12 +93,12 @@ def run_curves_demo(out_dir, *, walkers=16, steps=1500, seed=1, n_fields=10, ove
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    from ._io import atomic_path
-    from .curves import write_campaign
-    from .inference.curve_fits import fit_curves_individually
-    from .inference.global_fit import fit_curves
-    from .plotting import corner_plot, save_figure
-    from .plotting_curves import curves_plot, derived_spectrum_plot
+    from .._io import atomic_path
+    from ..data.curves import write_campaign
+    from ..inference.curve_fits import fit_curves_individually
+    from ..inference.global_fit import fit_curves
+    from ..plotting.curves import curves_plot, derived_spectrum_plot
+    from ..plotting.spectra import corner_plot, save_figure
     from .provenance import provenance
     out_dir = os.fspath(out_dir)
     names = ["campaign.h5", "chains.h5", "summary.json", "curves.png", "spectrum.png", "corner.png"]

@@ -6,7 +6,7 @@ U(r) = (m/2) sum_i omega_i^2 x_i^2 has the Gaussian density
     n(r) = n_peak exp(-U(r) / k_B T),   n_peak = N (m omega_bar^2 / (2 pi k_B T))^(3/2),
 
 with omega_bar = (omega_x omega_y omega_z)^(1/3). The integrals that enter the rate
-equations of :mod:`lossfit.decay` follow from Gaussian integrals:
+equations of :mod:`lossfit.experiment.decay` follow from Gaussian integrals:
 
 * three-body loss, <n^2> = (1/N) int n^3 d^3r = n_peak^2 / 3^(3/2)
   (Weber, Herbig, Mark, Naegerl & Grimm, PRL 91, 123201 (2003));
@@ -22,7 +22,7 @@ n_peak,A (2/3)^(3/2). Users with a different dimer polarizability pass
 ``dimer_frequencies_hz``.
 
 The ``*_coefficient`` methods return the temperature and number scalings as plain
-floats so that the numba kernels of :mod:`lossfit.decay` never convert units.
+floats so that the numba kernels of :mod:`lossfit.experiment.decay` never convert units.
 """
 
 __all__ = ["HarmonicTrap", "as_trap"]
@@ -31,10 +31,10 @@ import math
 
 import numpy as np
 
-from .constants import HBAR, K_B
-from .errors import LossfitValueError, check_positive
-from .species import species as _lookup_species
-from .units import CM3, HZ_TO_RAD_S, NK
+from ..constants import HBAR, K_B
+from ..errors import LossfitValueError, check_positive
+from ..species import species as _lookup_species
+from ..units import CM3, HZ_TO_RAD_S, NK
 
 
 def _frequencies(name, value):

@@ -6,10 +6,10 @@ import math
 
 import numpy as np
 
-from .curves import check_curves
-from .decay import simulate_decay
-from .errors import LossfitValueError
-from .plotting import _tidy_log_axis, spectrum_plot
+from ..data.curves import check_curves
+from ..errors import LossfitValueError
+from ..experiment.decay import simulate_decay
+from .spectra import _tidy_log_axis, spectrum_plot
 
 
 def _global_models(result, t_fine):

@@ -1,0 +1,10 @@
+"""Figures: :mod:`.spectra` (loss spectra with posterior bands, corner plots) and
+:mod:`.curves` (decay curves with the fitted model, spectra derived from curves).
+The public names of both are re-exported here.
+"""
+
+from .curves import curves_plot, derived_spectrum_plot
+from .spectra import corner_plot, posterior_bands, save_figure, spectrum_plot
+
+__all__ = ["corner_plot", "spectrum_plot", "posterior_bands", "save_figure", "curves_plot",
+           "derived_spectrum_plot"]
