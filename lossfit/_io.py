@@ -1,9 +1,15 @@
-"""Atomic file replacement shared by every writer of results."""
+"""File plumbing shared by every reader and writer: atomic replacement, the HDF5 header
+(schema, version, writing lossfit version) and its check, CSV tables."""
 
 import contextlib
 import csv
 import os
 import tempfile
+
+import h5py
+
+from ._version import __version__
+from .errors import LossfitValueError
 
 
 def _umask():
@@ -19,7 +25,6 @@ def atomic_path(path, *, overwrite=True, argument="path"):
     A crash or an exception leaves any existing ``path`` untouched and removes the
     temporary file. With ``overwrite=False`` an existing ``path`` is an error.
     """
-    from .errors import LossfitValueError
     path = os.fspath(path)
     if not overwrite and os.path.exists(path):
         raise LossfitValueError(argument, f"{path!r} exists; pass overwrite=True to replace it")
@@ -37,6 +42,13 @@ def atomic_path(path, *, overwrite=True, argument="path"):
         raise
 
 
+def write_h5_header(h5, schema, version):
+    """Stamp an open HDF5 file with its schema, schema version and the writing lossfit."""
+    h5.attrs["schema"] = schema
+    h5.attrs["schema_version"] = version
+    h5.attrs["lossfit_version"] = __version__
+
+
 def open_checked_h5(path, schema, max_version, *, argument="path"):
     """Open a lossfit HDF5 file for reading after checking its schema and version.
 
@@ -44,9 +56,6 @@ def open_checked_h5(path, schema, max_version, *, argument="path"):
     :class:`lossfit.errors.LossfitValueError` naming ``argument``; the caller closes the
     returned :class:`h5py.File` (use it in a ``with`` block).
     """
-    import h5py
-
-    from .errors import LossfitValueError
     path = os.fspath(path)
     if not os.path.exists(path):
         raise LossfitValueError(argument, f"no such file {path!r}")
@@ -73,7 +82,6 @@ def read_csv_table(path, required):
     Blank lines and lines starting with ``#`` are skipped. Raises LossfitValueError
     naming ``path`` for a missing file or missing ``required`` columns.
     """
-    from .errors import LossfitValueError
     path = os.fspath(path)
     if not os.path.exists(path):
         raise LossfitValueError("path", f"no such file {path!r}")

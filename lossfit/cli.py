@@ -20,11 +20,13 @@ import argparse
 import sys
 
 from ._version import __version__
+from .batch.demo import run_curves_demo, run_demo
+from .batch.runner import EXIT_BAD_INPUT, EXIT_CONFLICT, EXIT_INTERRUPTED, OutputConflict, report, run_job
 from .errors import LossfitValueError
+from .inference.sampling import Interrupted
 
 
 def _cmd_demo(args):
-    from .batch.demo import run_curves_demo, run_demo
     progress = None if not args.quiet else False
     if args.from_curves:
         run_curves_demo(args.out, walkers=args.walkers or 16, steps=args.steps or 1500, seed=args.seed,
@@ -36,14 +38,12 @@ def _cmd_demo(args):
 
 
 def _cmd_run(args):
-    from .batch.runner import run_job
     run_job(args.job, args.out, pool=args.pool, workers=args.workers, steps=args.steps,
             overwrite=args.overwrite, progress=False if args.quiet else None)
     return 0
 
 
 def _cmd_report(args):
-    from .batch.runner import report
     report(args.dir, overwrite=args.overwrite)
     return 0
 
@@ -82,8 +82,6 @@ def build_parser():
 def main(argv=None):
     parser = build_parser()
     args = parser.parse_args(argv)
-    from .batch.runner import EXIT_BAD_INPUT, EXIT_CONFLICT, EXIT_INTERRUPTED, OutputConflict
-    from .inference.sampling import Interrupted
     try:
         return args.func(args)
     except LossfitValueError as err:

@@ -5,7 +5,7 @@ Every error that bad user input can trigger is a :class:`LossfitValueError`, a
 """
 
 __all__ = ["LossfitError", "LossfitValueError", "ConvergenceWarning", "ValidityWarning",
-           "check_finite", "check_positive", "check_nonzero", "is_real"]
+           "check_finite", "check_positive", "check_nonzero", "check_times", "is_real"]
 
 import numbers
 
@@ -59,6 +59,22 @@ def check_positive(name, value, *, allow_zero=False):
         word = "non-negative" if allow_zero else "positive"
         raise LossfitValueError(name, f"must be {word}, got {_describe(arr[bad])}")
     return arr
+
+
+def check_times(name, value):
+    """Return ``value`` as a contiguous float array of times in s: 1-d, non-empty, >= 0
+    (counted from the initial state at t = 0) and strictly increasing."""
+    arr = check_finite(name, value)
+    if arr.ndim != 1 or arr.size == 0:
+        raise LossfitValueError(name, f"must be a non-empty 1-d array of times in s, got shape {arr.shape}")
+    if arr[0] < 0:
+        raise LossfitValueError(name, f"times are counted from the initial state at t = 0 and must be "
+                                f">= 0, got {arr[0]!r}")
+    if np.any(np.diff(arr) <= 0):
+        i = int(np.argmax(np.diff(arr) <= 0))
+        raise LossfitValueError(name, f"must be strictly increasing, got {name}[{i}] = {arr[i]!r} "
+                                f"followed by {arr[i + 1]!r}")
+    return np.ascontiguousarray(arr)
 
 
 def check_nonzero(name, value):

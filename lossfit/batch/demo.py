@@ -3,20 +3,28 @@ write data, job file, chain, summary and figures. No laboratory's measurement is
 
 __all__ = ["run_demo", "run_curves_demo"]
 
+import json
 import os
 import time
 import warnings
 
+from .._io import atomic_path
+from ..data.curves import write_campaign
 from ..data.spectra import write_spectra
 from ..errors import ValidityWarning
+from ..inference.curve_fits import fit_curves_individually
+from ..inference.global_fit import fit_curves
+from ..plotting.curves import curves_plot, derived_spectrum_plot
+from ..plotting.spectra import corner_plot, save_figure
 from ..simulate import INVENTED_CAMPAIGN, SCENARIO, demo_spectra, invented_campaign
 from ..species import species
+from .provenance import provenance
+from .runner import OUTPUTS, OutputConflict, run_job
 
 
 def _fresh_folder(out_dir, names, overwrite):
     """Create ``out_dir``; refuse (OutputConflict) if it holds any of ``names`` unless
     ``overwrite``, in which case those files are removed first."""
-    from .runner import OutputConflict
     existing = [n for n in names if os.path.exists(os.path.join(out_dir, n))]
     if existing and not overwrite:
         raise OutputConflict(f"{out_dir!r} already holds {existing}; choose another folder or pass "
@@ -62,7 +70,6 @@ def run_demo(out_dir, *, walkers=32, steps=5000, seed=1, overwrite=False, progre
     --out OTHER`` reproduces the run), ``chains.h5``, ``summary.json``, ``corner.png``
     and ``spectrum.png``; returns the FitResult.
     """
-    from .runner import OUTPUTS, run_job
     out_dir = os.fspath(out_dir)
     names = ["data.h5", "job.toml", *OUTPUTS]
     _fresh_folder(out_dir, names, overwrite)
@@ -87,19 +94,12 @@ def run_curves_demo(out_dir, *, walkers=16, steps=1500, seed=1, n_fields=10, ove
     with its global and per-curve fit and residuals), ``spectrum.png`` (the derived
     spectrum with the global posterior) and ``corner.png``; returns the FitResult.
     """
-    import json
 
+    # matplotlib's backend must be chosen before pyplot loads: files only, no screen
     import matplotlib
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    from .._io import atomic_path
-    from ..data.curves import write_campaign
-    from ..inference.curve_fits import fit_curves_individually
-    from ..inference.global_fit import fit_curves
-    from ..plotting.curves import curves_plot, derived_spectrum_plot
-    from ..plotting.spectra import corner_plot, save_figure
-    from .provenance import provenance
     out_dir = os.fspath(out_dir)
     names = ["campaign.h5", "chains.h5", "summary.json", "curves.png", "spectrum.png", "corner.png"]
     _fresh_folder(out_dir, names, overwrite)

@@ -45,7 +45,15 @@ import dataclasses
 import math
 import os
 
+from ..data.curves import read_campaign
+from ..data.spectra import read_csv, read_spectra
 from ..errors import LossfitValueError
+from ..experiment.feshbach import FeshbachResonance
+from ..inference.global_fit import SYSTEMATIC_NAMES
+from ..inference.parameters import EFIMOV_NAMES, NUISANCE_NAMES
+from ..inference.priors import LogNormal, LogUniform, Normal, Uniform
+from ..species import species as _species
+from ..universal.models import DEFAULT_MODEL, available_models
 
 try:
     import tomllib
@@ -107,11 +115,9 @@ class Job:
 
     def load_data(self):
         """The job's spectra (list of LossSpectrum) or decay curves (list of DecayCurve)."""
-        from ..data.spectra import read_csv, read_spectra
         if self.campaign:
-            from ..data.curves import read_campaign
             camp = read_campaign(os.path.join(self.base_dir, self.campaign))
-            self._resonance = camp.resonance
+            self._resonance = None if camp.resonance is None else FeshbachResonance(**camp.resonance)
             return list(camp.curves)
         out = []
         for p in self.spectra:
@@ -129,7 +135,6 @@ class Job:
                   burn=None if s["burn"] == "auto" else s["burn"], thin=s["thin"], seed=s["seed"],
                   fixed=self.fixed, tie=self.tie)
         if self.campaign:
-            from ..inference.global_fit import SYSTEMATIC_NAMES
             kw["systematics"] = {n: p for n, p in self.priors.items() if n in SYSTEMATIC_NAMES}
             kw["priors"] = {n: p for n, p in self.priors.items() if n not in SYSTEMATIC_NAMES}
             kw["free"] = [n for n in self.free if n not in SYSTEMATIC_NAMES]
@@ -138,7 +143,6 @@ class Job:
 
 
 def _prior(key, spec):
-    from ..inference.priors import LogNormal, LogUniform, Normal, Uniform
     if not isinstance(spec, dict) or "prior" not in spec:
         raise JobError(key, f"must be a table with a 'prior' key, got {spec!r}")
     kind = spec["prior"]
@@ -180,9 +184,6 @@ def load_job(path):
 
 def parse_job(text, path):
     """Validate job ``text``; relative data paths are taken from the folder of ``path``."""
-    from ..inference.parameters import EFIMOV_NAMES, NUISANCE_NAMES
-    from ..species import species as _species
-    from ..universal.models import DEFAULT_MODEL, available_models
     try:
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as err:
@@ -238,7 +239,6 @@ def parse_job(text, path):
         raise JobError("model.tie", f"must be 'none' or 'universal', got {tie!r}")
     allowed_free = set(EFIMOV_NAMES) | {"eta"} | set(NUISANCE_NAMES)
     if campaign is not None:
-        from ..inference.global_fit import SYSTEMATIC_NAMES
         allowed_free |= set(SYSTEMATIC_NAMES)
     free, priors = [], {}
     if not doc["free"]:

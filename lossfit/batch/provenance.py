@@ -8,6 +8,12 @@ import platform
 import socket
 import subprocess
 
+import emcee
+import h5py
+import numba
+import numpy
+import scipy
+
 from .._version import __version__
 
 
@@ -35,11 +41,6 @@ def provenance(**extra):
     """Dict of lossfit version, git revision (when installed from a checkout), versions
     of numpy/scipy/numba/emcee/h5py, Python, host, process id and a UTC timestamp,
     updated with ``extra`` (job text, seed, ...)."""
-    import emcee
-    import h5py
-    import numba
-    import numpy
-    import scipy
     info = {"lossfit_version": __version__, "git_revision": git_revision(),
             "numpy": numpy.__version__, "scipy": scipy.__version__, "numba": numba.__version__,
             "emcee": emcee.__version__, "h5py": h5py.__version__, "python": platform.python_version(),

@@ -24,8 +24,18 @@ import sys
 import time
 import warnings
 
+import numpy as np
+
 from .._io import atomic_path
 from ..errors import LossfitError, LossfitValueError, ValidityWarning
+from ..inference.backends import read_chain_file
+from ..inference.fitting import fit, prepare
+from ..inference.global_fit import prepare_curves
+from ..inference.pools import make_pool
+from ..inference.posterior import make_result
+from ..plotting.spectra import corner_plot, spectrum_plot
+from .jobs import load_job, parse_job
+from .provenance import now_utc, provenance
 
 EXIT_OK = 0
 EXIT_BAD_INPUT = 2
@@ -108,11 +118,11 @@ def _atomic_savefig(fig, path):
 
 def write_outputs(result, out_dir, provenance_info, *, truths=None):
     """summary.json, corner.png and spectrum.png (each written atomically)."""
+    # matplotlib's backend must be chosen before pyplot loads: a batch job has no screen
     import matplotlib
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    from ..plotting.spectra import corner_plot, spectrum_plot
     summary = result.to_dict()
     summary["provenance"] = provenance_info
     _atomic_write_text(os.path.join(out_dir, "summary.json"), json.dumps(summary, indent=2, default=str))
@@ -132,11 +142,6 @@ def run_job(job_path, out_dir, *, pool="serial", workers=None, steps=None, overw
     overwritten, :class:`lossfit.inference.sampling.Interrupted` on SIGTERM/SIGINT
     after the chain is saved, and :class:`lossfit.errors.LossfitValueError` for bad input.
     """
-    from ..inference.backends import read_chain_file
-    from ..inference.fitting import fit
-    from ..inference.pools import make_pool
-    from .jobs import load_job
-    from .provenance import now_utc, provenance
     stream = stream or sys.stdout
     job = load_job(job_path)
     if steps is not None and (isinstance(steps, bool) or not isinstance(steps, int) or steps < 2):
@@ -188,12 +193,7 @@ def run_job(job_path, out_dir, *, pool="serial", workers=None, steps=None, overw
 
 def report(out_dir, *, overwrite=False, stream=None):
     """Re-create summary.json, corner.png and spectrum.png from the stored chain."""
-    import numpy as np
 
-    from ..inference.backends import read_chain_file
-    from ..inference.fitting import prepare
-    from ..inference.posterior import make_result
-    from .jobs import parse_job
     stream = stream or sys.stdout
     out_dir = os.fspath(out_dir)
     chains = os.path.join(out_dir, "chains.h5")
@@ -209,7 +209,6 @@ def report(out_dir, *, overwrite=False, stream=None):
         kw = job.fit_kwargs()
         common = {k: kw[k] for k in ("species", "free", "model", "priors", "fixed", "tie")}
         if job.campaign:
-            from ..inference.global_fit import prepare_curves
             space, likelihood, _ = prepare_curves(data, resonance=kw["resonance"],
                                                   systematics=kw["systematics"], **common)
             # the chord reference of the nuisances sits at the best stored sample, as on resume

@@ -35,13 +35,11 @@ import os
 from dataclasses import dataclass
 from dataclasses import field as _dc_field
 
+import h5py
 import numpy as np
 
-from .._io import atomic_path, open_checked_h5, read_csv_table
-from .._version import __version__
-from ..errors import LossfitValueError, check_finite, check_positive
-from ..experiment.feshbach import FeshbachResonance
-from ..experiment.trap import HarmonicTrap, as_trap
+from .._io import atomic_path, open_checked_h5, read_csv_table, write_h5_header
+from ..errors import LossfitValueError, check_finite, check_positive, check_times
 
 CAMPAIGN_SCHEMA = "lossfit.campaign"
 CAMPAIGN_SCHEMA_VERSION = 1
@@ -86,7 +84,10 @@ class DecayCurve:
     a : float, optional
         Scattering length in a0 (non-zero; > 0 for dimer curves).
     trap_hz : HarmonicTrap or sequence of 3 floats
-        Atomic trap frequencies in Hz (a HarmonicTrap also carries dimer frequencies).
+        Atomic trap frequencies in Hz (a HarmonicTrap also carries dimer frequencies);
+        kept as ``trap_hz`` and ``dimer_trap_hz`` (3 floats each, the dimers' equal to the
+        atoms' unless given), from which ``lossfit.experiment.trap.as_trap(curve)``
+        builds the trap.
     kind : {"atoms", "dimers"}
         ``"dimers"``: an atom-dimer mixture whose dimer number is in ``atoms``.
     partner_atoms : float or array_like, optional
@@ -101,10 +102,9 @@ class DecayCurve:
     def __init__(self, *, t, atoms, atoms_err, temperature=None, temperature_err=None, field=None,
                  a=None, trap_hz=None, kind="atoms", partner_atoms=None, partner_atoms_err=None,
                  label=None):
-        from ..experiment.decay import _times  # the integrator's own time validation
         if kind not in KINDS:
             raise LossfitValueError("kind", f"must be 'atoms' or 'dimers', got {kind!r}")
-        self.t = _times(t).astype(float)
+        self.t = check_times("t", t).astype(float)
         n = self.t.size
         self.atoms = _series("atoms", atoms, n)
         self.atoms_err = _series("atoms_err", atoms_err, n)
@@ -132,7 +132,7 @@ class DecayCurve:
             raise LossfitValueError("a", "must be non-zero (the zero-range theory needs |a| > 0)")
         if kind == "dimers" and self.a is not None and self.a <= 0:
             raise LossfitValueError("a", f"dimer curves need a > 0 (a shallow Feshbach dimer), got {self.a:g} a0")
-        self.trap = as_trap(trap_hz, "trap_hz")
+        self.trap_hz, self.dimer_trap_hz = _trap_frequencies(trap_hz)
         self.kind = kind
         if kind == "atoms":
             if partner_atoms is not None or partner_atoms_err is not None:
@@ -205,6 +205,27 @@ class DecayCurve:
         return a
 
 
+def _trap_frequencies(trap_hz):
+    """(atom, dimer) trap frequencies in Hz from 3 floats or a trap object that carries
+    both (``frequencies_hz``, ``dimer_frequencies_hz``, as lossfit.HarmonicTrap does)."""
+    if trap_hz is None:
+        raise LossfitValueError("trap_hz", "trap frequencies are required: give (f_x, f_y, f_z) in Hz "
+                                "or a HarmonicTrap")
+    atom = getattr(trap_hz, "frequencies_hz", trap_hz)
+    dimer = getattr(trap_hz, "dimer_frequencies_hz", atom)
+    out = []
+    for name, f in (("trap_hz", atom), ("trap_hz", dimer)):
+        try:
+            arr = np.asarray(f, dtype=float)
+        except (TypeError, ValueError):
+            raise LossfitValueError(name, f"must be 3 frequencies in Hz, got {f!r}") from None
+        if arr.shape != (3,):
+            raise LossfitValueError(name, f"must be 3 frequencies in Hz, got shape {arr.shape}")
+        out.append(np.array(check_positive(name, arr)))
+    _readonly(*out)
+    return out[0], out[1]
+
+
 def check_curves(curves, name="curves"):
     """Return ``curves`` as a non-empty list of DecayCurve (a single curve is accepted)."""
     curves = [curves] if isinstance(curves, DecayCurve) else list(curves)
@@ -221,14 +242,42 @@ class Campaign:
     ----------
     curves : list of DecayCurve
     species : str or None
-    resonance : FeshbachResonance or None
+    resonance : dict or None
+        The file's resonance as ``b0`` (G), ``width`` (G), ``a_bg`` (a0) and ``covariance``
+        (3 x 3 or None): ``lossfit.FeshbachResonance(**campaign.resonance)`` rebuilds it.
     metadata : dict
     """
 
     curves: list
     species: str | None = None
-    resonance: FeshbachResonance | None = None
+    resonance: dict | None = None
     metadata: dict = _dc_field(default_factory=dict)
+
+
+class _StoredTrap:
+    """Atom and dimer trap frequencies as read from a campaign file."""
+
+    def __init__(self, frequencies_hz, dimer_frequencies_hz):
+        self.frequencies_hz = frequencies_hz
+        self.dimer_frequencies_hz = dimer_frequencies_hz
+
+
+def _resonance_record(resonance):
+    """b0, width, a_bg (finite floats) and covariance (3 x 3 or None) of a resonance given as
+    an object or a mapping."""
+    get = resonance.get if isinstance(resonance, dict) else (lambda k, d=None: getattr(resonance, k, d))
+    record = {}
+    for name in ("b0", "width", "a_bg"):
+        value = get(name)
+        if value is None:
+            raise LossfitValueError("resonance", f"needs {name!r} (a FeshbachResonance or a dict with b0, "
+                                    f"width, a_bg, covariance); got {type(resonance).__name__}")
+        record[name] = float(check_finite(f"resonance.{name}", value))
+    cov = get("covariance")
+    record["covariance"] = None if cov is None else np.asarray(check_finite("resonance.covariance", cov))
+    if record["covariance"] is not None and record["covariance"].shape != (3, 3):
+        raise LossfitValueError("resonance", f"covariance must be 3 x 3, got {record['covariance'].shape}")
+    return record
 
 
 def _dataset(g, name, value, units):
@@ -247,35 +296,32 @@ def write_campaign(path, curves, *, species=None, resonance=None, metadata=None,
     curves : DecayCurve or sequence of DecayCurve
     species : str or Species, optional
         Recorded by name.
-    resonance : FeshbachResonance, optional
-        Recorded with its covariance, if any.
+    resonance : FeshbachResonance or dict, optional
+        Recorded with its covariance, if any (anything with ``b0``, ``width``, ``a_bg``
+        and ``covariance``, as attributes or keys).
     metadata : dict, optional
         JSON-serialisable notes (apparatus, date, scenario, ...).
     overwrite : bool
     """
     curves = check_curves(curves)
-    if resonance is not None and not isinstance(resonance, FeshbachResonance):
-        raise LossfitValueError("resonance", "the campaign schema stores a single FeshbachResonance; "
-                                f"got {type(resonance).__name__}")
+    if resonance is not None:
+        resonance = _resonance_record(resonance)
     sp_name = "" if species is None else getattr(species, "name", str(species))
     try:
         meta = json.dumps(metadata or {})
     except TypeError as err:
         raise LossfitValueError("metadata", f"must be JSON-serialisable ({err})") from None
-    import h5py
     with atomic_path(path, overwrite=overwrite) as tmp, h5py.File(tmp, "w") as h5:
-        h5.attrs["schema"] = CAMPAIGN_SCHEMA
-        h5.attrs["schema_version"] = CAMPAIGN_SCHEMA_VERSION
-        h5.attrs["lossfit_version"] = __version__
+        write_h5_header(h5, CAMPAIGN_SCHEMA, CAMPAIGN_SCHEMA_VERSION)
         h5.attrs["species"] = sp_name
         h5.attrs["metadata"] = meta
         if resonance is not None:
             r = h5.create_group("resonance")
-            _dataset(r, "b0", resonance.b0, "G")
-            _dataset(r, "width", resonance.width, "G")
-            _dataset(r, "a_bg", resonance.a_bg, "a0")
-            if resonance.covariance is not None:
-                _dataset(r, "covariance", resonance.covariance, "G,G,a0")
+            _dataset(r, "b0", resonance["b0"], "G")
+            _dataset(r, "width", resonance["width"], "G")
+            _dataset(r, "a_bg", resonance["a_bg"], "a0")
+            if resonance["covariance"] is not None:
+                _dataset(r, "covariance", resonance["covariance"], "G,G,a0")
         root = h5.create_group("curves")
         for i, c in enumerate(curves):
             g = root.create_group(f"{i:03d}")
@@ -286,8 +332,8 @@ def write_campaign(path, curves, *, species=None, resonance=None, metadata=None,
             _dataset(g, "atoms_err", c.atoms_err, "count")
             _dataset(g, "temperature", c.temperature, "nK")
             _dataset(g, "temperature_err", c.temperature_err, "nK")
-            _dataset(g, "trap_hz", c.trap.frequencies_hz, "Hz")
-            _dataset(g, "dimer_trap_hz", c.trap.dimer_frequencies_hz, "Hz")
+            _dataset(g, "trap_hz", c.trap_hz, "Hz")
+            _dataset(g, "dimer_trap_hz", c.dimer_trap_hz, "Hz")
             if c.field is not None:
                 _dataset(g, "field", c.field, "G")
             else:
@@ -334,10 +380,8 @@ def read_campaign(path):
             resonance = None
             if "resonance" in h5:
                 r = h5["resonance"]
-                resonance = FeshbachResonance(
-                    _get(r, "b0", path, "resonance"), _get(r, "width", path, "resonance"),
-                    _get(r, "a_bg", path, "resonance"),
-                    covariance=_get(r, "covariance", path, "resonance", optional=True))
+                resonance = {name: _get(r, name, path, "resonance") for name in ("b0", "width", "a_bg")}
+                resonance["covariance"] = _get(r, "covariance", path, "resonance", optional=True)
             if "curves" not in h5:
                 raise LossfitValueError("path", f"{path!r} has no /curves group (truncated file?)")
             curves = []
@@ -350,7 +394,7 @@ def read_campaign(path):
                     value = _get(g, name, path, where, optional=True)
                     if value is not None:
                         kw[name] = float(value) if np.ndim(value) == 0 and name in ("field", "a") else value
-                trap = HarmonicTrap(_get(g, "trap_hz", path, where), _get(g, "dimer_trap_hz", path, where))
+                trap = _StoredTrap(_get(g, "trap_hz", path, where), _get(g, "dimer_trap_hz", path, where))
                 curves.append(DecayCurve(trap_hz=trap, kind=str(g.attrs["kind"]),
                                          label=str(g.attrs["label"]), **kw))
         except (KeyError, OSError) as err:

@@ -17,10 +17,10 @@ __all__ = ["LossSpectrum", "write_spectra", "read_spectra", "read_csv", "SCHEMA"
 
 import os
 
+import h5py
 import numpy as np
 
-from .._io import atomic_path, open_checked_h5, read_csv_table
-from .._version import __version__
+from .._io import atomic_path, open_checked_h5, read_csv_table, write_h5_header
 from ..errors import LossfitValueError, check_finite, check_nonzero, check_positive
 
 SCHEMA = "lossfit.spectra"
@@ -114,9 +114,7 @@ def write_spectra(path, spectra, *, overwrite=False):
         raise LossfitValueError("spectra", "must be one or more LossSpectrum objects")
 
     def fill(h5):
-        h5.attrs["schema"] = SCHEMA
-        h5.attrs["schema_version"] = SCHEMA_VERSION
-        h5.attrs["lossfit_version"] = __version__
+        write_h5_header(h5, SCHEMA, SCHEMA_VERSION)
         root = h5.create_group("spectra")
         for i, s in enumerate(spectra):
             g = root.create_group(f"{i:03d}")
@@ -127,7 +125,6 @@ def write_spectra(path, spectra, *, overwrite=False):
                                     ("value", s.value, s.units), ("error", s.error, s.units)):
                 g.create_dataset(name, data=arr).attrs["units"] = unit
 
-    import h5py
     with atomic_path(path, overwrite=overwrite) as tmp:
         with h5py.File(tmp, "w") as h5:
             fill(h5)

@@ -48,8 +48,9 @@ import numba
 import numpy as np
 from scipy.interpolate import CubicSpline
 
+from .. import rates
 from .._bisect import interval_of
-from ..errors import LossfitValueError, ValidityWarning, check_finite, check_positive
+from ..errors import LossfitValueError, ValidityWarning, check_finite, check_positive, check_times
 from ..species import species as _lookup_species
 from .trap import as_trap
 
@@ -383,20 +384,6 @@ class DecaySolution:
     mean_n2: np.ndarray
 
 
-def _times(t):
-    arr = check_finite("t", t)
-    if arr.ndim != 1 or arr.size == 0:
-        raise LossfitValueError("t", f"must be a non-empty 1-d array of times in s, got shape {arr.shape}")
-    if arr[0] < 0:
-        raise LossfitValueError("t", f"times are counted from the initial state at t = 0 and must be "
-                                f">= 0, got {arr[0]!r}")
-    if np.any(np.diff(arr) <= 0):
-        i = int(np.argmax(np.diff(arr) <= 0))
-        raise LossfitValueError("t", f"must be strictly increasing, got t[{i}] = {arr[i]!r} "
-                                f"followed by {arr[i + 1]!r}")
-    return np.ascontiguousarray(arr)
-
-
 def _scalar(name, value, *, allow_zero=True):
     if isinstance(value, (float, int, np.floating, np.integer)) and not isinstance(value, bool):
         x = float(value)
@@ -441,12 +428,7 @@ class _RateSpec:
 
 
 def _theory_rate(kind, efimov, a, species, model):
-    """Rate callable of T (nK) from the zero-range theory, imported lazily."""
-    try:
-        from .. import rates
-    except ImportError:
-        raise LossfitValueError("efimov", "the theory module lossfit.rates is not available; "
-                                "pass l3=/beta= as a constant, table or callable") from None
+    """Rate callable of T (nK) from the zero-range theory."""
     kwargs = {} if model is None else {"model": model}
     func = getattr(rates, kind)
     return lambda temperature_nK: func(a, temperature_nK, species=species, efimov=efimov, **kwargs)
@@ -522,7 +504,7 @@ def simulate_decay(t, *, species, trap_hz, n0, t0_nK, l3=None, efimov=None, a=No
     -------
     DecaySolution
     """
-    times = _times(t)
+    times = check_times("t", t)
     sp = _lookup_species(species)
     trap = as_trap(trap_hz)
     n_a = _scalar("n0", n0)
@@ -663,7 +645,7 @@ class DecayBatch:
 
     def __init__(self, times, *, species, traps_hz, heating=True, recombination_heating_nK=0.0,
                  rtol=1e-6):
-        ts = [_times(x) for x in times]
+        ts = [check_times("t", x) for x in times]
         m = len(ts)
         if m == 0:
             raise LossfitValueError("times", "need at least one curve")

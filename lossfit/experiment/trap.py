@@ -260,9 +260,12 @@ class HarmonicTrap:
 
 
 def as_trap(trap_hz, name="trap_hz"):
-    """Return ``trap_hz`` as a :class:`HarmonicTrap` (accepts a trap or 3 frequencies in Hz)."""
+    """Return ``trap_hz`` as a :class:`HarmonicTrap`: a trap, 3 frequencies in Hz, or a
+    decay curve (its ``trap_hz`` and ``dimer_trap_hz``)."""
     if isinstance(trap_hz, HarmonicTrap):
         return trap_hz
+    if hasattr(trap_hz, "dimer_trap_hz"):
+        return HarmonicTrap(trap_hz.trap_hz, trap_hz.dimer_trap_hz)
     if trap_hz is None:
         raise LossfitValueError(name, "trap frequencies are required: give (f_x, f_y, f_z) in Hz "
                                 "or a HarmonicTrap")

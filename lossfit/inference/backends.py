@@ -20,6 +20,7 @@ import json
 import os
 
 import emcee
+import h5py
 import numpy as np
 
 from .._io import atomic_path
@@ -30,7 +31,6 @@ CHAIN_SCHEMA_VERSION = 1
 
 
 def _open_checked(path):
-    import h5py
     try:
         h5 = h5py.File(path, "r")
     except OSError as err:
@@ -122,7 +122,6 @@ class CheckpointBackend(emcee.backends.Backend):
 
     def flush(self):
         """Write the chain so far to the file (temporary file, then atomic rename)."""
-        import h5py
         if not self.initialized:
             return
         n = self.iteration

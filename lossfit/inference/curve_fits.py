@@ -45,6 +45,7 @@ from ..data.curves import DecayCurve, check_curves
 from ..data.spectra import LossSpectrum
 from ..errors import ConvergenceWarning, LossfitValueError, check_positive
 from ..experiment.decay import DecayBatch
+from ..experiment.trap import as_trap
 from ..species import species as _lookup_species
 from .diagnostics import autocorrelation_times
 from .posterior import auto_burn
@@ -125,7 +126,7 @@ class _CurveModel:
     def __init__(self, curve, sp, heating, recombination_heating_nK, gamma, rtol):
         self.curve = curve
         self.dimers = curve.kind == "dimers"
-        self.batch = DecayBatch([curve.t], species=sp, traps_hz=curve.trap, heating=heating,
+        self.batch = DecayBatch([curve.t], species=sp, traps_hz=as_trap(curve), heating=heating,
                                 recombination_heating_nK=recombination_heating_nK, rtol=rtol)
         self.t_max = float(curve.t[-1])
         self.gamma_fixed = gamma
@@ -300,7 +301,7 @@ def fit_curve(curve, *, species, resonance=None, heating=True, recombination_hea
     if gamma is not None:
         gamma = float(check_positive("gamma", gamma, allow_zero=True))
     model = _CurveModel(curve, sp, heating, recombination_heating_nK, gamma, rtol)
-    x0 = _initial_guess(curve, model, curve.trap, sp)
+    x0 = _initial_guess(curve, model, as_trap(curve), sp)
     # the loss coefficient is fitted linearly (in units of its first guess), bounded by 0,
     # so that a curve without detectable loss gives 0 +- error instead of a log running away
     model.value_scale, x0[0] = x0[0], 1.0

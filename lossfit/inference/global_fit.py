@@ -63,6 +63,7 @@ from ..data.spectra import LossSpectrum
 from ..errors import LossfitValueError, ValidityWarning
 from ..experiment.decay import DecayBatch, TabulatedRate
 from ..experiment.feshbach import FeshbachResonance, resonance_covariance, resonance_scattering_length
+from ..experiment.trap import as_trap
 from ..species import species as _lookup_species
 from ..universal.models import DEFAULT_MODEL, get_model
 from .curve_fits import fit_curve
@@ -226,7 +227,7 @@ class CurvesLikelihood:
         self.n_points = sum(len(c) for c in self.curves)
         self.dimers = np.array([c.kind == "dimers" for c in self.curves])
         self.batch = DecayBatch([c.t for c in self.curves], species=self.species,
-                                traps_hz=[c.trap for c in self.curves], heating=heating,
+                                traps_hz=[as_trap(c) for c in self.curves], heating=heating,
                                 recombination_heating_nK=recombination_heating_nK, rtol=_INTEGRATOR_RTOL)
         self.offsets = self.batch.offsets
         self.recombination_heating = np.broadcast_to(np.asarray(recombination_heating_nK, dtype=float),

@@ -44,7 +44,7 @@ class MPIPool:
 
     def __init__(self, comm=None):
         try:
-            from mpi4py import MPI
+            from mpi4py import MPI  # optional dependency: only the MPI pool needs it
         except ImportError as err:
             raise LossfitValueError("pool", "the MPI pool needs mpi4py: pip install 'lossfit[mpi]'") from err
         self.comm = comm if comm is not None else MPI.COMM_WORLD

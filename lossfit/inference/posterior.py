@@ -32,7 +32,7 @@ class Posterior:
 def interactive():
     """True in a notebook or a terminal (progress bars on), False in batch jobs."""
     try:
-        from IPython import get_ipython
+        from IPython import get_ipython  # optional: present only in notebooks and IPython
         if get_ipython() is not None:
             return True
     except ImportError:

@@ -4,12 +4,15 @@ __all__ = ["curves_plot", "derived_spectrum_plot"]
 
 import math
 
+import matplotlib.pyplot as plt
 import numpy as np
 
 from ..data.curves import check_curves
 from ..errors import LossfitValueError
 from ..experiment.decay import simulate_decay
-from .spectra import _tidy_log_axis, spectrum_plot
+from ..experiment.trap import as_trap
+from ._axes import tidy_log_axis
+from .spectra import spectrum_plot
 
 
 def _global_models(result, t_fine):
@@ -22,7 +25,7 @@ def _global_models(result, t_fine):
     out = []
     for j, (c, p) in enumerate(zip(lik.curves, nuis)):
         s_t = p["temperature_scale"]
-        kw = dict(species=lik.species, trap_hz=c.trap, t0_nK=p["t0_nK"] / s_t,
+        kw = dict(species=lik.species, trap_hz=as_trap(c), t0_nK=p["t0_nK"] / s_t,
                   recombination_heating_nK=float(lik.recombination_heating[j]))
         if c.kind == "dimers":
             kw.update(n0=p["n_atoms0"], n_dimers0=p["n0"], l3=0.0, beta=p["table"], gamma_dimer=p["gamma"])
@@ -40,7 +43,7 @@ def _curve_models(fits, t_fine, species):
     out = []
     for f, tf in zip(fits, t_fine):
         c, p = f.curve, f.params
-        kw = dict(species=species, trap_hz=c.trap, t0_nK=p["t0_nK"],
+        kw = dict(species=species, trap_hz=as_trap(c), t0_nK=p["t0_nK"],
                   recombination_heating_nK=f.recombination_heating_nK)
         if c.kind == "dimers":
             kw.update(n0=p["n_atoms0"], n_dimers0=p["n0"], l3=0.0, beta=p["value"], gamma_dimer=p["gamma"])
@@ -75,7 +78,6 @@ def curves_plot(curves=None, *, fits=None, result=None, species=None, ncols=5, m
     -------
     matplotlib.figure.Figure
     """
-    import matplotlib.pyplot as plt
     if fits is None and result is None:
         raise LossfitValueError("fits", "give per-curve fits, a global result, or both")
     if curves is None:
@@ -143,7 +145,6 @@ def derived_spectrum_plot(spectra=None, *, result=None, fig=None, **kwargs):
     -------
     matplotlib.figure.Figure
     """
-    import matplotlib.pyplot as plt
     if result is not None:
         return spectrum_plot(result, fig=fig, **kwargs)
     if not spectra:
@@ -156,7 +157,7 @@ def derived_spectrum_plot(spectra=None, *, result=None, fig=None, **kwargs):
         ax.errorbar(np.abs(s.a), s.value, yerr=s.error, fmt="none", ecolor="0.4", elinewidth=0.7, zorder=2)
         ax.set_xscale("log")
         ax.set_yscale("log")
-        _tidy_log_axis(ax.xaxis)
+        tidy_log_axis(ax.xaxis)
         side = "a < 0" if (s.a < 0).all() else "a > 0" if (s.a > 0).all() else "both sides"
         ax.set_xlabel(r"$|a|$ ($a_0$), " + side)
         ax.set_ylabel(r"$L_3$ (cm$^6$/s)" if s.kind == "l3" else r"$\beta$ (cm$^3$/s)")

@@ -4,11 +4,14 @@ __all__ = ["corner_plot", "spectrum_plot", "posterior_bands", "save_figure"]
 
 import os
 
+import corner
+import matplotlib.pyplot as plt
 import numpy as np
 
 from ..errors import LossfitValueError
 from ..inference.likelihood import RateBlock
 from ..inference.parameters import UNITS
+from ._axes import tidy_log_axis
 
 _LABELS = {"a_minus": r"$a_-$", "a_star": r"$a_*$", "a_plus": r"$a_+$", "eta_minus": r"$\eta_-$",
            "eta_star": r"$\eta_*$", "eta_plus": r"$\eta_+$", "eta": r"$\eta$",
@@ -37,7 +40,6 @@ def corner_plot(result, *, truths=None, fig=None, **corner_kwargs):
     -------
     matplotlib.figure.Figure
     """
-    import corner
     x = np.column_stack([result.samples[n] for n in result.names])
     kw = dict(labels=[_label(n) for n in result.names], quantiles=[0.16, 0.5, 0.84],
               show_titles=True, title_fmt=".3g", levels=(0.68, 0.95), plot_datapoints=False)
@@ -87,15 +89,6 @@ def _panels(spectra):
     return panels
 
 
-def _tidy_log_axis(axis):
-    # Label 2x and 5x minor ticks only: the default labels every minor tick of a short
-    # log axis and the labels collide.
-    from matplotlib import ticker
-    axis.set_minor_locator(ticker.LogLocator(subs=(2.0, 5.0)))
-    axis.set_minor_formatter(ticker.LogFormatterSciNotation(labelOnlyBase=False,
-                                                           minor_thresholds=(np.inf, np.inf)))
-
-
 def spectrum_plot(result, *, draws=200, points=160, seed=0, fig=None):
     """Data with error bars, the posterior median model and 68/95 % bands on log axes.
 
@@ -107,7 +100,6 @@ def spectrum_plot(result, *, draws=200, points=160, seed=0, fig=None):
     -------
     matplotlib.figure.Figure
     """
-    import matplotlib.pyplot as plt
     spectra = result.likelihood.spectra
     panels = _panels(spectra)
     if fig is None:
@@ -132,7 +124,7 @@ def spectrum_plot(result, *, draws=200, points=160, seed=0, fig=None):
                                 color=c, mec="k", mew=0.4, elinewidth=0.8, capsize=2)
         ax.set_xscale("log")
         ax.set_yscale("log")
-        _tidy_log_axis(ax.xaxis)
+        tidy_log_axis(ax.xaxis)
         ax.set_xlabel(r"$|a|$ ($a_0$)" + (", $a<0$" if sign < 0 else ", $a>0$"))
         ax.set_ylabel(r"$L_3$ (cm$^6$/s)" if kind == "l3" else r"$\beta$ (cm$^3$/s)")
         ax.set_title(title, fontsize=10)

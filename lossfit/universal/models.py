@@ -66,7 +66,17 @@ from ..thermal import (
 )
 from ..units import A0
 from . import averages
-from .tables import recombination_eval
+from .tables import (
+    atom_dimer_grid_points,
+    grid_limits,
+    load_atom_dimer_table,
+    load_recombination_table,
+    load_s11_table,
+    recombination_eval,
+    recombination_grid_points,
+    s11_eval,
+    s_ad_eval,
+)
 from .threshold import beta_coefficient_unchecked, l3_coefficient_unchecked
 
 # (shallow-dimer, deep-dimer) weights of the recombination channels; a < 0 has only deep
@@ -415,12 +425,10 @@ class ZeroRangeModel(EnergyModel):
 
     @property
     def table(self):
-        from .tables import load_s11_table
         return load_s11_table()
 
     @property
     def recombination_table(self):
-        from .tables import load_recombination_table
         return load_recombination_table()
 
     @property
@@ -428,7 +436,6 @@ class ZeroRangeModel(EnergyModel):
         # Compiled on first use and not cached on disk: the tables are baked into the
         # machine code, and a cache would not notice a regenerated table.
         if self._kernel is None:
-            from .tables import grid_limits, recombination_grid_points, s11_eval
             packed = self.table.packed
             pref = self.table.k3_prefactor
             packed_pos = self.recombination_table.packed
@@ -534,7 +541,6 @@ class ZeroRangeModel(EnergyModel):
 
     @property
     def atom_dimer_table(self):
-        from .tables import load_atom_dimer_table
         return load_atom_dimer_table()
 
     @property
@@ -546,7 +552,6 @@ class ZeroRangeModel(EnergyModel):
     def atom_dimer_kernel(self):
         # as for the three-body kernel: the table is baked in, so no disk cache
         if self._ad_kernel is None:
-            from .tables import atom_dimer_grid_points, recombination_grid_points, s_ad_eval
             packed = self.atom_dimer_table.packed
             packed_pos = self.recombination_table.packed
 

@@ -20,13 +20,14 @@ import math
 
 import numpy as np
 
-from .propagate import S0, down_amplitude, inward_logderivative
-from .scattering import _ARG_GAMMA, s11_point
+from ...constants import ARG_GAMMA_S0
+from .propagate import S0, down_amplitude, inward_from_outer, inward_logderivative, kv_logder, sector_setup
+from .scattering import s11_point
 
 
 def kappa_star_from_phase(delta, n=0):
     """kappa* |a| on branch n from the reflection phase delta (radians)."""
-    return math.sqrt(2.0) * np.exp((_ARG_GAMMA + (math.pi - np.asarray(delta)) / 2 + n * math.pi) / S0)
+    return math.sqrt(2.0) * np.exp((ARG_GAMMA_S0 + (math.pi - np.asarray(delta)) / 2 + n * math.pi) / S0)
 
 
 def _rho(k2, inv_a, nchan, r0, rm, refine, h, c_osc, outer):
@@ -95,7 +96,7 @@ def trimer_branch_negative_a(kappa_abs_a_values, nchan=12, **kw):
     ph = np.unwrap(ph)
     # Anchor: at unitarity delta_B = pi - 2 s0 ln(kappa|a|/sqrt2) + 2 arg Gamma(1 + i s0)
     # (n = 0 branch); pick the 2 pi multiple matching it at the first (largest) point.
-    ref = math.pi - 2 * S0 * math.log(ka[0] / math.sqrt(2)) + 2 * _ARG_GAMMA
+    ref = math.pi - 2 * S0 * math.log(ka[0] / math.sqrt(2)) + 2 * ARG_GAMMA_S0
     ph = ph + 2 * math.pi * round((ref - ph[0]) / (2 * math.pi))
     kstar = kappa_star_from_phase(ph, 0)
     return -1.0 / kstar, ka / kstar
@@ -103,7 +104,6 @@ def trimer_branch_negative_a(kappa_abs_a_values, nchan=12, **kw):
 
 def _positive_a_phase(k2, nchan, rm, r0, h, c_osc, ch0_logder):
     """Richardson-extrapolated rho phase for a > 0, given the channel-0 outer log-derivative."""
-    from .propagate import inward_from_outer, kv_logder, sector_setup
     out = []
     for refine in (1, 2):
         # Every channel decays (or, at threshold, is flat), so sectors need not resolve
@@ -141,7 +141,6 @@ def bound_phase_positive_a(kappa_a, nchan=48, rm=16.0, r0=1e-6, h=0.04, c_osc=0.
     atom-dimer motion); the others as K_{s_n}.  Near the threshold (q R_m small) the
     result inherits the slow convergence of a*_0.
     """
-    from .propagate import kv_logder
     q = math.sqrt(2.0 * (kappa_a ** 2 - 1.0))
     k2 = -2.0 * kappa_a ** 2
     # Free atom-dimer relative motion, F ~ sqrt(R) K_{1/2}(q R) ~ e^{-qR}: the -1/(4R^2) of
@@ -165,7 +164,7 @@ def trimer_branch_positive_a(kappa_a_values, nchan=48, rm=16.0):
     """
     ka = np.asarray(kappa_a_values, dtype=float)
     ph = np.unwrap(np.array([bound_phase_positive_a(float(k), nchan, rm)[0] for k in ka]))
-    ref = math.pi - 2 * S0 * math.log(ka[0] / math.sqrt(2)) + 2 * _ARG_GAMMA
+    ref = math.pi - 2 * S0 * math.log(ka[0] / math.sqrt(2)) + 2 * ARG_GAMMA_S0
     ph = ph + 2 * math.pi * round((ref - ph[0]) / (2 * math.pi))
     kstar = kappa_star_from_phase(ph, 0)
     return 1.0 / kstar, ka / kstar

@@ -39,8 +39,9 @@ import math
 
 import numba
 import numpy as np
+from scipy.linalg import lu_factor, lu_solve
 
-from .stm import _kernel_onshell, atom_dimer_contour
+from .stm import atom_dimer_contour, kernel_onshell
 
 
 @numba.njit(cache=True)
@@ -150,11 +151,11 @@ def partial_wave_kernel(ell, p, q, energy):
 
 def _onshell_kernel(ell, k0, q, energy):
     """M_ell(k0, q) for real k0 and q along the contour, on the branch continued along the
-    path (as :func:`.stm._kernel_onshell` does for l = 0): the continued Q_0 differs from
+    path (as :func:`.stm.kernel_onshell` does for l = 0): the continued Q_0 differs from
     the principal one by i pi n, and Q_l = P_l Q_0 - W_(l-1) moves by i pi n P_l."""
     pq = k0 * q
     z = (k0 * k0 + q * q - energy) / pq
-    q0_path = _kernel_onshell(k0, q, energy) * pq
+    q0_path = kernel_onshell(k0, q, energy) * pq
     q0_principal = np.arctanh(1.0 / z)
     # the branches differ by exactly i pi n; rounding keeps P_l (~ z^l at small q) from
     # amplifying the rounding noise of the difference
@@ -240,7 +241,7 @@ class PartialWaveSolver:
         qs = np.empty((l_max, z.size), dtype=complex)
         _q_block(z, 1, l_max, qs)
         # the on-shell row continued along the path, as _onshell_kernel does one l at a time
-        q0_path = _kernel_onshell(k0, q, energy) * pq
+        q0_path = kernel_onshell(k0, q, energy) * pq
         shift = 1j * math.pi * np.round((q0_path - np.arctanh(1.0 / z)).imag / math.pi)
         moved = np.flatnonzero(shift != 0)
         for i in moved:
@@ -256,7 +257,6 @@ class PartialWaveSolver:
         return 4.0 * k0 * g * second.imag - 4.0 * k0 * k0 * g * g * mkk ** 2
 
     def _solve(self, ell, kernel):
-        from scipy.linalg import lu_factor, lu_solve
 
         k0, energy, q, cw = self.kad, self.energy, self._q, self._cw
         kmat = -kernel * cw[None, :]

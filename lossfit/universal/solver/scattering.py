@@ -29,13 +29,12 @@ __all__ = ["S0", "DEFAULTS", "s11_components", "s11_point", "s11_unitarity", "s1
 import math
 
 import numpy as np
-from scipy.special import loggamma
 
+from ...constants import ARG_GAMMA_S0
 from .propagate import S0, down_amplitude, inward_logderivative
 
 #: 72 sqrt(3) pi^2: K3 = K3_PREFACTOR * hbar/(m k^4) * (absorption probability).
 K3_PREFACTOR = 72.0 * math.sqrt(3.0) * math.pi ** 2
-_ARG_GAMMA = float(np.imag(loggamma(1 + 1j * S0)))
 
 #: default numerical parameters (see docs/solver.md for the convergence study)
 DEFAULTS = dict(nchan=16, r0_factor=1e-6, c_out=160.0, h=0.04, c_osc=0.25)
@@ -43,7 +42,7 @@ DEFAULTS = dict(nchan=16, r0_factor=1e-6, c_out=160.0, h=0.04, c_osc=0.25)
 
 def phase_phi(kappa_star_abs_a):
     """Phi = s0 ln(kappa* |a| / sqrt 2) - arg Gamma(1 + i s0) (radians)."""
-    return S0 * np.log(np.asarray(kappa_star_abs_a, dtype=float) / math.sqrt(2.0)) - _ARG_GAMMA
+    return S0 * np.log(np.asarray(kappa_star_abs_a, dtype=float) / math.sqrt(2.0)) - ARG_GAMMA_S0
 
 
 def s11_unitarity(k_over_l):
@@ -53,7 +52,7 @@ def s11_unitarity(k_over_l):
     from the outgoing solution sqrt(R) H^(1)_{i s0}(K R) (derivation in docs/solver.md).
     """
     kk = math.sqrt(2.0) * np.asarray(k_over_l, dtype=float)
-    return -np.exp(-math.pi * S0) * np.exp(-2j * S0 * np.log(kk / 2) + 2j * _ARG_GAMMA)
+    return -np.exp(-math.pi * S0) * np.exp(-2j * S0 * np.log(kk / 2) + 2j * ARG_GAMMA_S0)
 
 
 def _s11_raw(k2, inv_a, nchan, r0, rm, refine, h, c_osc, outer="outgoing"):

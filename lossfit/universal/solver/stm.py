@@ -50,7 +50,7 @@ E = 0) is taken by subtraction with an extra node at the pole, which is also a p
 edge (M. I. Haftel & F. Tabakin, Nucl. Phys. A 158, 1 (1970)).
 """
 
-__all__ = ["kernel_log", "momentum_grid", "three_body_force", "atom_dimer_length",
+__all__ = ["kernel_log", "kernel_onshell", "momentum_grid", "three_body_force", "atom_dimer_length",
            "atom_dimer_amplitude", "relaxation_beta", "recombination_shallow",
            "recombination_deep", "kappa_a_minus", "above_breakup",
            "fit_atom_dimer_universal", "AtomDimerRankOne", "s_ad_from_stm", "s_ad_fit",
@@ -60,8 +60,11 @@ __all__ = ["kernel_log", "momentum_grid", "three_body_force", "atom_dimer_length
 import math
 
 import numpy as np
+from scipy.linalg import lu_factor, lu_solve
+from scipy.optimize import brentq
 
-from lossfit.constants import S0
+from ...constants import S0
+from .scattering import phase_phi
 
 _BOSON = 1.0
 _FERMION = -0.5
@@ -369,7 +372,6 @@ def kappa_a_minus(cutoff=1e6, **grid):
     float
         kappa* a_- (negative).
     """
-    from scipy.optimize import brentq
 
     q, w = momentum_grid(cutoff, **grid)
     c = (4.0 / math.pi) * w * q * q / (1.0 + math.sqrt(3.0) / 2.0 * q)
@@ -402,7 +404,6 @@ def fit_atom_dimer_universal(cutoff=1e6, npoints=15, **grid):
     dict
         kappa_a_star, A, B, C_beta = 3 pi B, max_residual.
     """
-    from scipy.optimize import brentq
 
     def inv(lk):
         return 1.0 / atom_dimer_length(math.exp(lk), 0.0, cutoff, **grid).real
@@ -447,7 +448,7 @@ def _kernel_contour(p, q, energy):
     return np.log1p(2.0 * pq / (p * p - pq + q * q - energy)) / (2.0 * pq)
 
 
-def _kernel_onshell(k0, q, energy):
+def kernel_onshell(k0, q, energy):
     """M(k0, q) for real k0 and q along the contour, with each logarithm continued
     along the path from q -> 0 (where both arguments are k0^2 - E > 0)."""
     zp = k0 * k0 + k0 * q + q * q - energy
@@ -501,7 +502,7 @@ def above_breakup(energy, kappa_a, eta=0.0, cutoff=1e6, phi=None, per_decade=48,
     q, w = _contour(cutoff, phi, q_factor * max(k0, 1.0), per_decade, narc)
     cw = (4.0 / math.pi) * w * q * q / (-1.0 + np.sqrt(3.0 * q * q / 4.0 - energy))
     kmat = (_kernel_contour(q, q, energy) + h) * cw[None, :]
-    mv = _kernel_onshell(k0, q, energy)
+    mv = kernel_onshell(k0, q, energy)
     amp = np.linalg.solve(np.eye(len(q)) - kmat, (16.0 / 3.0) * (mv + h))
     mkk = math.log((3.0 * k0 * k0 - energy) / (k0 * k0 - energy)) / (2.0 * k0 * k0)
     f = complex((16.0 / 3.0) * (mkk + h) + np.sum((mv + h) * cw * amp))
@@ -612,7 +613,6 @@ class AtomDimerRankOne:
         self.nodes = q.size
         # 1 - K0 built in row blocks (memory), factorised in place as the Fortran-ordered
         # transpose (scipy getrf without a copy), solved with trans=1.
-        from scipy.linalg import lu_factor, lu_solve
 
         n = q.size
         kmt = np.empty((n, n), dtype=complex)
@@ -621,7 +621,7 @@ class AtomDimerRankOne:
             blk = -_kernel_contour(q[i0:i1], q, energy) * cw[None, :]
             blk[np.arange(i1 - i0), np.arange(i0, i1)] += 1.0
             kmt[i0:i1] = blk
-        mv = _kernel_onshell(k0, q, energy)
+        mv = kernel_onshell(k0, q, energy)
         lu = lu_factor(kmt.T, overwrite_a=True, check_finite=False)
         xy = lu_solve(lu, np.stack([mv, np.ones_like(mv)], axis=1), trans=1,
                       check_finite=False)
@@ -671,7 +671,6 @@ def s_ad_fit(solver, etas=(0.1, 0.4), nphi=6, kappa0=0.15, cutoff=1e7, h_grid=No
         s_ad, t_ad (T_AD), one_minus_abs_s2 (1 - |s_AD|^2), modulus_check
         (a1 T_AD - |s|^2), max_rel_residual of the linear fit, coef (a0..a3).
     """
-    from .scattering import phase_phi
 
     kap = kappa0 * np.exp(np.arange(nphi) * math.pi / (nphi * S0))
     kk = np.tile(kap, len(etas))
@@ -706,7 +705,6 @@ def s_ad_fit(solver, etas=(0.1, 0.4), nphi=6, kappa0=0.15, cutoff=1e7, h_grid=No
 
 def breakup_probability(s_ad, a_, b_, c_, kappa_a, eta):
     """P_break = (A + 2 Re(B w) + C |w|^2)/|1 + s_AD w|^2, w = e^{2 i Phi - 2 eta}."""
-    from .scattering import phase_phi
 
     w = np.exp(2j * np.asarray(phase_phi(kappa_a), dtype=float) - 2.0 * eta)
     return (a_ + 2.0 * np.real(b_ * w) + c_ * np.abs(w) ** 2) / np.abs(1.0 + s_ad * w) ** 2
@@ -715,7 +713,6 @@ def breakup_probability(s_ad, a_, b_, c_, kappa_a, eta):
 def relaxation_probability_general(s_ad, t_ad, kappa_a, eta):
     """P_deep = T_AD (1 - e^{-4 eta}) / |1 + s_AD e^{2 i Phi - 2 eta}|^2 (above and below
     breakup; T_AD = 1 - |s_AD|^2 below)."""
-    from .scattering import phase_phi
 
     w = np.exp(2j * np.asarray(phase_phi(kappa_a), dtype=float) - 2.0 * eta)
     return t_ad * (1.0 - math.exp(-4.0 * eta)) / np.abs(1.0 + s_ad * w) ** 2
@@ -782,7 +779,6 @@ def threshold_recombination_form(s_threshold, etas=(0.1, 0.4), nphi=6, kappa0=0.
         alpha, b (complex), c, tau, shallow_max_rel_residual, deep_spread (max relative
         deviation of the per-point tau from their mean).
     """
-    from .scattering import phase_phi
 
     kap = kappa0 * np.exp(np.arange(nphi) * math.pi / (nphi * S0))
     kk = np.tile(kap, len(etas))
