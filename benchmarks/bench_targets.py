@@ -31,7 +31,7 @@ import numpy as np
 from scipy.integrate import quad
 
 import lossfit as lf
-from lossfit.inference.global_fit import CurvesLikelihood
+from lossfit.inference.curves_likelihood import CurvesLikelihood
 from lossfit.inference.likelihood import SpectrumLikelihood
 from lossfit.units import NK
 from lossfit.universal.models import get_model, scale_wavenumber_a0

@@ -259,11 +259,11 @@ def test_correlated_resonance_prior_is_the_joint_normal():
     from scipy.stats import multivariate_normal
 
     from lossfit.experiment.feshbach import FeshbachResonance
-    from lossfit.inference.global_fit import CampaignSpace, _systematic_priors
+    from lossfit.inference.campaign_space import CampaignSpace, systematic_priors
     from lossfit.inference.priors import LogUniform
     cov = np.array([[4e-4, 3e-4, -0.05], [3e-4, 9e-4, -0.02], [-0.05, -0.02, 25.0]])
     res = FeshbachResonance(b0=550.0, width=10.0, a_bg=200.0, covariance=cov)
-    priors, corr = _systematic_priors({"resonance": True}, res)
+    priors, corr = systematic_priors({"resonance": True}, res)
     space = CampaignSpace(["a_minus", "b0", "width", "a_bg"], {"a_minus": LogUniform(-1e4, -100.0), **priors},
                           correlated=corr)
     mvn = multivariate_normal(mean=[550.0, 10.0, 200.0], cov=cov)
@@ -272,8 +272,8 @@ def test_correlated_resonance_prior_is_the_joint_normal():
     ref = [mvn.logpdf(p[1:]) + np.sum(np.log(np.abs(p[1:]))) for p in points]
     assert np.diff(lp) == pytest.approx(np.diff(ref), abs=1e-9)
     with pytest.raises(LossfitValueError) as info:
-        _systematic_priors({"resonance": True}, FeshbachResonance(b0=550.0, width=10.0, a_bg=200.0))
+        systematic_priors({"resonance": True}, FeshbachResonance(b0=550.0, width=10.0, a_bg=200.0))
     assert info.value.argument == "systematics['resonance']"
     with pytest.raises(LossfitValueError) as info:
-        _systematic_priors({"resonance": True, "b0": 0.01}, res)
+        systematic_priors({"resonance": True, "b0": 0.01}, res)
     assert info.value.argument == "systematics['resonance']"

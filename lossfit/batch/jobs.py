@@ -49,7 +49,7 @@ from ..data.curves import read_campaign
 from ..data.spectra import read_csv, read_spectra
 from ..errors import LossfitValueError
 from ..experiment.feshbach import FeshbachResonance
-from ..inference.global_fit import SYSTEMATIC_NAMES
+from ..inference.campaign_space import SYSTEMATIC_NAMES
 from ..inference.parameters import EFIMOV_NAMES, NUISANCE_NAMES
 from ..inference.priors import LogNormal, LogUniform, Normal, Uniform
 from ..species import species as _species

@@ -1,0 +1,533 @@
+"""The likelihood of the global fit: raw decay curves given Efimov parameters and systematics.
+
+Every curve of a campaign is fitted at once with
+
+* shared Efimov parameters (any of those of :func:`lossfit.fit`, or the universal tie),
+* per-curve nuisances: initial number N0, initial temperature T0 and one-body loss
+  rate Gamma (dimer curves: N_D0, N_A0, T0, Gamma_D),
+* campaign-wide systematic nuisances with priors: ``density_scale`` (number/density
+  calibration s: L3 acts as L3_true / s^2 and beta as beta_true / s on measured numbers,
+  the convention of :mod:`lossfit.inference.parameters`), ``temperature_scale``
+  (thermometry s_T: measured T = s_T T_true; the theory and the densities use T_true),
+  the resonance parameters ``b0``, ``width``, ``a_bg`` of a(B) (Chin et al., RMP 82,
+  1225 (2010)) and the field noise ``sigma_B`` (G).
+
+Treatment of the per-curve nuisances (why the sampler stays efficient)
+---------------------------------------------------------------------
+Sampling 3 nuisances per curve would give emcee 120+ dimensions for 40 curves, far
+beyond what an affine-invariant ensemble handles (Goodman & Weare 2010; Huijser,
+Goodman & Brewer, ANZ J. Stat. 64, 34 (2022)). Instead they are eliminated inside the
+likelihood by a Laplace approximation (Tierney & Kadane, JASA 81, 82 (1986)) with flat
+priors: log L(theta) = -chi2_min(theta)/2 - (1/2) sum_j ln det H_j + const. Curves are
+independent given theta, so the inner problem splits into 40 problems of 3 unknowns.
+They are solved by *chord Gauss-Newton* (a Newton-type iteration with a frozen
+Jacobian, e.g. Kelley, Iterative Methods for Linear and Nonlinear Equations, SIAM
+1995, ch. 5). Before sampling, the posterior mode is located and every curve's
+nuisances are solved exactly there (:meth:`CurvesLikelihood.refresh`: one
+:func:`scipy.optimize.least_squares` problem with block-diagonal Jacobian sparsity, so
+that its finite differences perturb one coordinate of *every* curve in the same
+batched integration); the per-curve Jacobians J_j of the normalised residuals are
+frozen at that reference. Each likelihood call then starts every curve from its
+reference nuisances, takes ``inner_steps`` (default 1) steps
+x <- x - (J^T J)^-1 J^T r(x) -- projected onto Gamma = 0 for a curve whose step would
+make Gamma negative -- and evaluates chi2 *exactly* at the result (an upper bound of
+the profile minimum). With the curvature frozen, ln det H_j is a constant and drops
+out, so marginal and profile likelihood coincide up to a constant. Starting every
+call from the same reference keeps log L a deterministic function of theta (a warm
+start from the previous call would make it depend on the walker's history and break
+detailed balance). Measured accuracy, cost and coverage: docs/global-fit.md.
+
+L3(T) and beta(T) at each curve's scattering length enter the rate equations only
+through a table of the theory on a small, fixed grid of true temperatures per curve
+(``table_step`` in ln T, covering the curve's temperatures over the prior range of
+``temperature_scale``); one thermal quadrature call evaluates all grid points of all
+curves, and a batched cubic spline in ln T (the interpolation of
+:class:`lossfit.experiment.decay.TabulatedRate`) feeds :class:`lossfit.experiment.decay.DecayBatch`. With
+field noise, the rate is averaged over sigma_B by Gauss-Hermite quadrature in B
+(:func:`lossfit.experiment.feshbach.average_over_field_noise` uses the same rule) -- averaging
+the rate rather than the curves, which is exact to first order in the loss.
+"""
+
+__all__ = ["CurvesLikelihood", "display_spectra"]
+
+
+import math
+
+import numpy as np
+from scipy.interpolate import CubicSpline
+from scipy.optimize import least_squares
+
+from ..data.curves import check_curves
+from ..data.spectra import LossSpectrum
+from ..errors import LossfitValueError
+from ..experiment.decay import DecayBatch, TabulatedRate
+from ..experiment.feshbach import resonance_scattering_length
+from ..experiment.trap import as_trap
+from ..species import species as _lookup_species
+from ..universal.models import get_model
+from .campaign_space import RESONANCE_NAMES
+from .likelihood import RateBlock
+
+# The decay integrator's tolerance: 1e-6 relative is far below counting noise and keeps a
+# batched call of 40 curves near 0.5 ms.
+_INTEGRATOR_RTOL = 1e-6
+
+
+class _FastTable(TabulatedRate):
+    """A TabulatedRate built from precomputed spline coefficients (no re-validation:
+    the likelihood produces them from finite, positive theory values)."""
+
+    def __init__(self, knots, coefs, temps, values):
+        self._knots = knots
+        self._coefs = coefs
+        self.temperature_nK = temps
+        self.values = values
+
+
+def _temperature_groups(temps, ratio=1.3):
+    """Cluster temperatures: a new group starts above ``ratio`` x the group's first member."""
+    order = np.argsort(temps)
+    labels = np.empty(len(temps), dtype=int)
+    start, g = None, -1
+    for i in order:
+        if start is None or temps[i] > ratio * start:
+            g += 1
+            start = temps[i]
+        labels[i] = g
+    return labels
+
+
+def display_spectra(spectra):
+    """Two-stage spectra split into groups of similar temperature, each point at the
+    group's median temperature (for figures only; fits use the exact temperatures)."""
+    out = []
+    for s in spectra:
+        labels = _temperature_groups(s.temperature)
+        for g in np.unique(labels):
+            m = labels == g
+            t = float(np.median(s.temperature[m]))
+            out.append(LossSpectrum(s.a[m], t, s.value[m], s.error[m], kind=s.kind,
+                                    label=f"{s.kind}, ~{t:.3g} nK (per-curve fits)", species=s.species))
+    return out
+
+
+class CurvesLikelihood:
+    """log L of raw decay curves given Efimov parameters and campaign systematics.
+
+    Parameters
+    ----------
+    curves : sequence of DecayCurve
+    species : str or Species
+    model : str or EnergyModel
+    resonance : FeshbachResonance, optional
+        Nominal a(B); needed for curves given by field (and for resonance systematics).
+    reference_fits : list of CurveFit
+        Per-curve fits providing the initial reference nuisances.
+    heating : bool
+    recombination_heating_nK : float or array (one per curve)
+    temperature_scale_range : (float, float)
+        Range of ``temperature_scale`` the T tables must cover.
+    field_noise : bool
+        Average rates over Gaussian field noise (sigma_B free or fixed > 0).
+    field_noise_nodes : int
+        Gauss-Hermite nodes of that average.
+    inner_steps : int
+        Chord Gauss-Newton steps per call (module docstring); 0 uses the linearised chi2.
+    table_step : float
+        Knot spacing of the T tables in ln T.
+    rtol : float, optional
+        None: the model's fast thermal averages; a number: the adaptive reference
+        quadrature at this tolerance (slow; for checks).
+
+    Attributes
+    ----------
+    species, model, curves
+    spectra : list of LossSpectrum
+        Two-stage spectra grouped by temperature (for :func:`lossfit.plotting.spectrum_plot`).
+    two_stage_spectra : list of LossSpectrum
+        Per-curve fits with exact temperatures.
+    """
+
+    def __init__(self, curves, species, model, *, resonance=None, reference_fits, heating=True,
+                 recombination_heating_nK=0.0, temperature_scale_range=(1.0, 1.0), field_noise=False,
+                 field_noise_nodes=7, inner_steps=1, table_step=0.16, rtol=None):
+        self.curves = check_curves(curves)
+        self.species = _lookup_species(species)
+        self.model = get_model(model)
+        self.resonance = resonance
+        self.rtol = rtol
+        if not (isinstance(inner_steps, (int, np.integer)) and 0 <= inner_steps <= 10):
+            raise LossfitValueError("inner_steps", f"must be an integer in 0..10, got {inner_steps!r}")
+        self.inner_steps = int(inner_steps)
+        m = len(self.curves)
+        self.n_curves = m
+        self.n_points = sum(len(c) for c in self.curves)
+        self.dimers = np.array([c.kind == "dimers" for c in self.curves])
+        self.batch = DecayBatch([c.t for c in self.curves], species=self.species,
+                                traps_hz=[as_trap(c) for c in self.curves], heating=heating,
+                                recombination_heating_nK=recombination_heating_nK, rtol=_INTEGRATOR_RTOL)
+        self.offsets = self.batch.offsets
+        self.recombination_heating = np.broadcast_to(np.asarray(recombination_heating_nK, dtype=float),
+                                                     (m,)).copy()
+        self.t_max = np.array([c.t[-1] for c in self.curves])
+        self.fields = np.array([np.nan if c.field is None else c.field for c in self.curves])
+        self.by_field = np.isfinite(self.fields)
+        if self.by_field.any() and resonance is None:
+            raise LossfitValueError("resonance", "some curves are given by field; pass resonance=")
+        self.a_nominal = np.array([c.scattering_length(resonance) for c in self.curves])
+        self.signs = np.sign(self.a_nominal)
+        self._setup_data()
+        self._setup_tables(reference_fits, temperature_scale_range, table_step, field_noise,
+                           field_noise_nodes)
+        self._set_reference(np.array([self._coords_of_fit(f) for f in reference_fits]),
+                            self._jacobian_of_fits(reference_fits))
+        self.two_stage_spectra = []
+        for kind in ("l3", "beta"):
+            sel = [f for f in reference_fits if f.kind == kind]
+            if sel:
+                self.two_stage_spectra.append(LossSpectrum(
+                    [f.a for f in sel], [f.temperature for f in sel], [f.value for f in sel],
+                    [f.error for f in sel], kind=kind, label=f"{kind} (per-curve fits)",
+                    species=self.species.name))
+        self.spectra = display_spectra(self.two_stage_spectra)
+
+    # -- setup ------------------------------------------------------------------------
+    def _setup_data(self):
+        cs = self.curves
+        self.main = np.concatenate([c.atoms for c in cs])
+        self.main_err = np.concatenate([c.atoms_err for c in cs])
+        self.t_mask = np.concatenate([np.full(len(c), c.temperature_series) for c in cs])
+        self.t_data = np.concatenate([c.temperature for c in cs if c.temperature_series] or [np.empty(0)])
+        self.t_err = np.concatenate([c.temperature_err for c in cs if c.temperature_series] or [np.empty(0)])
+        self.p_mask = np.concatenate([np.full(len(c), c.kind == "dimers" and c.partner_atoms.ndim == 1)
+                                      for c in cs])
+        self.p_data = np.concatenate([c.partner_atoms for c in cs if self._partner_series(c)] or [np.empty(0)])
+        self.p_err = np.concatenate([c.partner_atoms_err for c in cs if self._partner_series(c)] or [np.empty(0)])
+        # single measurements of initial values act as Gaussian constraints
+        self.t0_curves = np.array([j for j, c in enumerate(cs) if not c.temperature_series], dtype=int)
+        self.t0_data = np.array([float(cs[j].temperature) for j in self.t0_curves])
+        self.t0_err = np.array([float(cs[j].temperature_err) for j in self.t0_curves])
+        self.na_curves = np.array([j for j, c in enumerate(cs) if c.kind == "dimers" and c.partner_atoms.ndim == 0
+                                   and c.partner_atoms_err is not None], dtype=int)
+        self.na_data = np.array([float(cs[j].partner_atoms) for j in self.na_curves])
+        self.na_err = np.array([float(cs[j].partner_atoms_err) for j in self.na_curves])
+        # coordinates per curve: ln n0, ln n_atoms0 (dimers), ln t0, gamma t_max  (k = 4, padded)
+        self._point_is_dimer = np.repeat(self.dimers, [len(c) for c in cs])
+        self.k = 4
+        self.active = np.ones((self.n_curves, self.k), dtype=bool)
+        self.active[~self.dimers, 1] = False
+        # residual index of every curve's residuals (padded with a pointer to a zero)
+        owner = []
+        for j, c in enumerate(cs):
+            owner += [j] * len(c)
+        owner = np.array(owner)
+        parts = [owner, owner[self.t_mask], owner[self.p_mask], self.t0_curves, self.na_curves]
+        res_owner = np.concatenate(parts)
+        self.n_res = res_owner.size
+        lists = [np.flatnonzero(res_owner == j) for j in range(self.n_curves)]
+        width = max(len(x) for x in lists)
+        self.res_index = np.full((self.n_curves, width), self.n_res, dtype=np.int64)
+        for j, x in enumerate(lists):
+            self.res_index[j, :len(x)] = x
+
+    @staticmethod
+    def _partner_series(c):
+        return c.kind == "dimers" and c.partner_atoms.ndim == 1
+
+    def _setup_tables(self, fits, s_range, step, field_noise, nodes):
+        lo_s, hi_s = s_range
+        lo, hi = np.empty(self.n_curves), np.empty(self.n_curves)
+        for j, (c, f) in enumerate(zip(self.curves, fits)):
+            # measured range +- 4 sigma and the per-curve model; T(t) outside the table at
+            # some theta means a heating far beyond anything measured: zero likelihood there
+            t_meas = np.concatenate([np.atleast_1d(c.temperature + 4 * c.temperature_err), f.model_temperature])
+            low = np.atleast_1d(c.temperature - 4 * c.temperature_err).clip(min=0.5 * c.initial_temperature)
+            t_min = min(np.min(low), np.min(f.model_temperature))
+            lo[j] = 0.9 * t_min / hi_s
+            hi[j] = 1.3 * np.max(t_meas) / lo_s
+        span = float(np.max(np.log(hi / lo)))
+        n_knots = max(5, int(math.ceil(span / step)) + 1)
+        self.rel_knots = np.linspace(0.0, span, n_knots)           # ln(T / T_lo,j)
+        self.t_lo = lo
+        self.grid = lo[:, None] * np.exp(self.rel_knots)[None, :]   # true T, (m, n_knots)
+        self.n_knots = n_knots
+        if field_noise:
+            x, w = np.polynomial.hermite.hermgauss(int(nodes))
+            self.gh_x, self.gh_w = math.sqrt(2.0) * x, w / math.sqrt(math.pi)
+        else:
+            self.gh_x, self.gh_w = np.zeros(1), np.ones(1)
+        nh = self.gh_x.size
+        # one rows block per kind; rows ordered (curve, knot, node); noise nodes only matter
+        # for curves given by field, but the layout is uniform for simplicity
+        self.blocks = {}
+        for kind, sel in (("l3", ~self.dimers), ("beta", self.dimers)):
+            idx = np.flatnonzero(sel)
+            if idx.size == 0:
+                continue
+            a = np.repeat(self.a_nominal[idx], n_knots * nh)
+            temps = np.repeat(self.grid[idx].ravel(), nh)
+            block = RateBlock(kind, a, temps, self.species, self.model, rtol=self.rtol)
+            self.blocks[kind] = (idx, block)
+        self._knots_all = np.log(self.t_lo)[:, None] + self.rel_knots[None, :]
+        # not-a-knot cubic spline of ln rate in ln T (as TabulatedRate): coefficients of the
+        # unit vectors, so that any table's coefficients are M @ values
+        self._spline_matrix = CubicSpline(self.rel_knots, np.eye(n_knots)).c   # (4, n-1, n)
+
+    def _coords_of_fit(self, f):
+        x = np.zeros(self.k)
+        x[0] = math.log(f.params["n0"])
+        x[1] = math.log(f.params["n_atoms0"]) if f.kind == "beta" else 0.0
+        x[2] = math.log(f.params["t0_nK"])
+        x[3] = f.params["gamma"] * f.curve.t[-1]
+        return x
+
+    def _jacobian_of_fits(self, fits):
+        # the per-curve fits use the same nuisance coordinates and residual order, plus the
+        # loss coefficient in column 0: their Jacobians seed the chord iteration
+        jac = np.zeros((self.n_curves, self.res_index.shape[1], self.k))
+        for j, f in enumerate(fits):
+            cols = np.flatnonzero(self.active[j])
+            if f.jacobian.shape[1] - 1 < cols.size:      # gamma held fixed: no gamma column
+                cols = cols[:f.jacobian.shape[1] - 1]
+            n = f.jacobian.shape[0]
+            jac[j, :n][:, cols] = f.jacobian[:, 1:1 + cols.size]
+        return jac
+
+    def _set_reference(self, x_ref, jac=None):
+        self.x_ref = np.array(x_ref, dtype=float)
+        self.jac_ready = jac is not None
+        if jac is None:
+            return
+        # pseudo-inverse per curve restricted to the active coordinates: P_j = (J^T J)^-1 J^T
+        self.jac = jac
+        # P_j = (J^T J)^-1 J^T, and the same with Gamma held fixed (for steps that would
+        # take Gamma below its bound 0, where the model is flat in Gamma: projected step)
+        width = self.res_index.shape[1]
+        self.pinv = np.zeros((self.n_curves, self.k, width))
+        self.pinv_fixed_gamma = np.zeros((self.n_curves, self.k, width))
+        for j in range(self.n_curves):
+            for target, act in ((self.pinv, self.active[j]),
+                                (self.pinv_fixed_gamma, self.active[j] & (np.arange(self.k) != 3))):
+                target[j][act] = np.linalg.pinv(jac[j][:, act])
+
+    def set_eta_min(self, eta_min):
+        """Make the prepared thermal averages resolve every eta >= ``eta_min`` (the lower
+        edge of the eta priors; default 0.005)."""
+        for _, block in self.blocks.values():
+            block.eta_min = eta_min
+
+    # -- evaluation -----------------------------------------------------------------------
+    def scattering_lengths(self, values):
+        """Scattering length of every curve (a0) under the resonance systematics in ``values``."""
+        if not self.by_field.any() or not any(n in values for n in RESONANCE_NAMES):
+            return self.a_nominal
+        r = self.resonance
+        b0, width, a_bg = (values.get(n, getattr(r, n)) for n in RESONANCE_NAMES)
+        a = self.a_nominal.copy()
+        a[self.by_field] = resonance_scattering_length(self.fields[self.by_field], b0, width, a_bg)
+        return a
+
+    def tables(self, efimov, values):
+        """Per-curve rate tables (cm^6/s or cm^3/s, on measured numbers) or None if invalid."""
+        a = self.scattering_lengths(values)
+        if np.any(np.sign(a) != self.signs):
+            return None            # a resonance shift moved a curve across the pole
+        s_n = values.get("density_scale", 1.0)
+        sigma_b = values.get("sigma_B", 0.0)
+        nh = self.gh_x.size
+        logv = np.empty((self.n_curves, self.n_knots))
+        for kind, (idx, block) in self.blocks.items():
+            a_block = None
+            if nh > 1 or a is not self.a_nominal:
+                a_rows = np.repeat(a[idx], self.n_knots * nh).reshape(idx.size, self.n_knots, nh)
+                if nh > 1 and sigma_b > 0:
+                    fld = self.by_field[idx]
+                    b = self.fields[idx][fld][:, None] + sigma_b * self.gh_x[None, :]
+                    r = self.resonance
+                    b0, width, a_bg = (values.get(n, getattr(r, n)) for n in RESONANCE_NAMES)
+                    a_nodes = resonance_scattering_length(b, b0, width, a_bg)
+                    if np.any(np.sign(a_nodes) != self.signs[idx][fld][:, None]):
+                        return None
+                    a_rows[fld] = a_nodes[:, None, :]
+                a_block = a_rows.ravel()
+            pred = block.predict(efimov, a=a_block).reshape(idx.size, self.n_knots, nh) @ self.gh_w
+            if not np.all(np.isfinite(pred)) or np.any(pred <= 0):
+                return None
+            power = 2.0 if kind == "l3" else 1.0
+            logv[idx] = np.log(pred) - power * math.log(s_n)
+        # spline coefficients are linear in the tabulated values: one matrix product
+        coefs = np.einsum("pin,mn->mpi", self._spline_matrix, logv)      # (m, 4, n_knots - 1)
+        return [_FastTable(self._knots_all[j], coefs[j], self.grid[j], None)
+                for j in range(self.n_curves)]
+
+    def _solve(self, x, tables, s_t):
+        n0 = np.exp(x[:, 0])
+        t0_true = np.exp(x[:, 2]) / s_t
+        gamma = np.maximum(x[:, 3], 0.0) / self.t_max
+        d = self.dimers
+        if not d.any():
+            return self.batch(n0, t0_true, tables, gamma)
+        atoms0 = np.where(d, np.exp(x[:, 1]), n0)
+        l3 = [_ZERO if d[j] else tab for j, tab in enumerate(tables)]
+        beta = [tab if d[j] else _ZERO for j, tab in enumerate(tables)]
+        return self.batch(atoms0, t0_true, l3 if (~d).any() else 0.0, np.where(d, 0.0, gamma),
+                          n_dimers0=np.where(d, n0, 0.0), beta=beta, gamma_dimer=np.where(d, gamma, 0.0))
+
+    def residuals(self, x, tables, s_t):
+        """Normalised residuals of all curves for nuisance coordinates ``x`` (m, 4)."""
+        res = self._solve(x, tables, s_t)
+        main = np.where(self._point_is_dimer, res.dimers, res.atoms) if self.dimers.any() else res.atoms
+        parts = [(main - self.main) / self.main_err,
+                 (s_t * res.temperature[self.t_mask] - self.t_data) / self.t_err,
+                 (res.atoms[self.p_mask] - self.p_data) / self.p_err,
+                 (np.exp(x[self.t0_curves, 2]) - self.t0_data) / self.t0_err,
+                 (np.exp(x[self.na_curves, 1]) - self.na_data) / self.na_err]
+        return np.concatenate(parts + [np.zeros(1)]), res
+
+    def _chord_step(self, x, r):
+        per_curve = r[self.res_index]                              # (m, width)
+        new = x - np.einsum("jkn,jn->jk", self.pinv, per_curve)
+        low = new[:, 3] < 0.0
+        if low.any():
+            # Gamma would turn negative: put it on its bound and re-solve the others
+            fixed = x[low].copy()
+            fixed[:, 3] = 0.0
+            # residuals at Gamma = 0, linearised: r + J_gamma (0 - gamma)
+            r_fixed = per_curve[low] - self.jac[low][:, :, 3] * x[low, 3][:, None]
+            fixed -= np.einsum("jkn,jn->jk", self.pinv_fixed_gamma[low], r_fixed)
+            fixed[:, 3] = 0.0
+            new[low] = fixed
+        return new
+
+    def given_values(self, efimov, values):
+        """log L for the Efimov set and a dict of every parameter value (nuisances)."""
+        return self(efimov, values)
+
+    def __call__(self, efimov, values):
+        tables = self.tables(efimov, values)
+        if tables is None:
+            return -math.inf
+        s_t = values.get("temperature_scale", 1.0)
+        try:
+            x = self.x_ref
+            r, _ = self.residuals(x, tables, s_t)
+            if self.inner_steps == 0:
+                step = self._chord_step(x, r)
+                lin = r[:-1] + np.einsum("jnk,jk->jn", self.jac, step - x)[self._flat_owner()]
+                chi2 = float(lin @ lin)
+            else:
+                for _ in range(self.inner_steps):
+                    x = self._chord_step(x, r)
+                    r, _ = self.residuals(x, tables, s_t)
+                chi2 = float(r @ r)
+        except LossfitValueError:
+            return -math.inf     # T(t) left the table or the integrator failed: outside support
+        return -0.5 * chi2 if math.isfinite(chi2) else -math.inf
+
+    def _flat_owner(self):
+        # (curve, slot) pairs of the padded residual layout, in residual order
+        if not hasattr(self, "_flat"):
+            j, n = np.nonzero(self.res_index < self.n_res)
+            order = np.argsort(self.res_index[j, n])
+            self._flat = (j[order], n[order])
+        return self._flat
+
+    # -- reference point ------------------------------------------------------------------
+    def jacobian(self, x, tables, s_t, h=1e-3):
+        """Finite-difference Jacobians of every curve's residuals, shape (m, width, 4).
+
+        One coordinate of all curves is perturbed per batched integration (curves are
+        independent), so the cost is 5 batch calls whatever the number of curves.
+        """
+        r0, _ = self.residuals(x, tables, s_t)
+        jac = np.zeros((self.n_curves, self.res_index.shape[1], self.k))
+        for i in range(self.k):
+            if not self.active[:, i].any():
+                continue
+            xp = x.copy()
+            xp[:, i] += h
+            rp, _ = self.residuals(xp, tables, s_t)
+            jac[:, :, i] = (rp - r0)[self.res_index] / h
+        jac[self.res_index == self.n_res] = 0.0
+        return jac
+
+    def _solve_inner(self, efimov, values):
+        """Exact per-curve nuisances at (efimov, values): (x, chi2_min, tables, s_t).
+
+        One :func:`scipy.optimize.least_squares` problem over all curves' nuisances with
+        the block-diagonal Jacobian sparsity declared, so that its finite differences
+        perturb all curves at once (Curtis, Powell & Reid, IMA J. Appl. Math. 13, 117
+        (1974)); Gamma is bounded below by 0.
+        """
+        tables = self.tables(efimov, values)
+        if tables is None:
+            raise LossfitValueError("values", "zero likelihood at these parameters")
+        s_t = values.get("temperature_scale", 1.0)
+        act = self.active
+        base = self.x_ref.copy()
+
+        def fun(z):
+            x = base.copy()
+            x[act] = z
+            try:
+                return self.residuals(x, tables, s_t)[0][:-1]
+            except LossfitValueError:
+                return np.full(self.n_res, 1e4)      # trial step outside the table: go back
+
+        owner_of_res = np.full(self.n_res, -1)
+        for j in range(self.n_curves):
+            row = self.res_index[j]
+            owner_of_res[row[row < self.n_res]] = j
+        owner_of_coord = np.nonzero(act)[0]
+        sparsity = (owner_of_res[:, None] == owner_of_coord[None, :]).astype(int)
+        lower = np.where(np.nonzero(act)[1] == 3, 0.0, -np.inf)
+        z0 = np.maximum(base[act], lower)
+        sol = least_squares(fun, z0, jac_sparsity=sparsity, bounds=(lower, np.inf), method="trf",
+                            xtol=1e-10, ftol=1e-10, gtol=1e-10, max_nfev=200)
+        x = base.copy()
+        x[act] = sol.x
+        return x, 2.0 * float(sol.cost), tables, s_t
+
+    def profile_chi2(self, efimov, values):
+        """Exact minimum over every curve's nuisances of chi2 (what the chord step approximates)."""
+        return self._solve_inner(efimov, values)[1]
+
+    def refresh(self, efimov, values):
+        """Solve every curve's nuisances exactly at (efimov, values) and make that the
+        reference point, with fresh Jacobians frozen there."""
+        try:
+            x, _, tables, s_t = self._solve_inner(efimov, values)
+        except LossfitValueError:
+            raise LossfitValueError("initial", "the reference point has zero likelihood") from None
+        self._set_reference(x, self.jacobian(x, tables, s_t))
+
+    def nuisances(self, efimov, values):
+        """Per-curve nuisances at (efimov, values) after the chord steps: list of dicts
+        with ``n0``, ``t0_nK`` (measured scale), ``gamma`` (1/s), ``n_atoms0`` (dimers)
+        and ``table`` (the rate table on true temperatures, measured-number units)."""
+        tables = self.tables(efimov, values)
+        if tables is None:
+            raise LossfitValueError("values", "zero likelihood at these parameters")
+        s_t = values.get("temperature_scale", 1.0)
+        x = self.x_ref
+        for _ in range(max(self.inner_steps, 1)):
+            r, _ = self.residuals(x, tables, s_t)
+            x = self._chord_step(x, r)
+        out = []
+        for j in range(self.n_curves):
+            d = {"n0": math.exp(x[j, 0]), "t0_nK": math.exp(x[j, 2]),
+                 "gamma": max(x[j, 3], 0.0) / self.t_max[j], "table": tables[j],
+                 "temperature_scale": s_t}
+            if self.dimers[j]:
+                d["n_atoms0"] = math.exp(x[j, 1])
+            out.append(d)
+        return out
+
+
+def _zero_table():
+    """A negligible constant rate for the other process of a curve (the batch needs a
+    table for every curve once any curve has one)."""
+    return TabulatedRate(np.geomspace(1e-6, 1e9, 6), np.full(6, 1e-300))
+
+
+_ZERO = _zero_table()
