@@ -13,6 +13,7 @@ import pytest
 
 from lossfit.constants import S0, SCALING_FACTOR
 from lossfit.universal.solver import stm
+from lossfit.universal.tables import table_path
 
 CUT = 1e6          # Lambda a: finite-cutoff shifts below 1e-5 relative (docs/stm.md)
 
@@ -265,8 +266,7 @@ def test_born_terms():
 #   P_deep = T_AD (1 - e^{-4 eta}) / |1 + s_AD w|^2,  T_AD = 1 - |s_AD|^2 below breakup,
 #   P_break = (A + 2 Re(B w) + C |w|^2) / |1 + s_AD w|^2 above breakup.
 
-TABLE = os.path.join(os.path.dirname(os.path.dirname(os.path.abspath(__file__))),
-                     "lossfit", "universal", "data", "s_ad_positive_a.npz")
+TABLE = table_path("s_ad_positive_a.npz")
 KB = 2 / math.sqrt(3)
 
 

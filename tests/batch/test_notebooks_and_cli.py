@@ -10,7 +10,7 @@ import nbformat
 import pytest
 from nbclient import NotebookClient
 
-ROOT = pathlib.Path(__file__).resolve().parents[1]
+ROOT = pathlib.Path(__file__).resolve().parents[2]
 NOTEBOOKS = sorted((ROOT / "notebooks").glob("*.ipynb"))
 
 
