@@ -76,7 +76,7 @@ _A_ROWS = np.array([[_A21, 0.0, 0.0, 0.0, 0.0],
                     [_A51, _A52, _A53, _A54, 0.0],
                     [_A61, _A62, _A63, _A64, _A65]])
 # continuous extension (dense output) of the pair, coefficients of Hairer's DOPRI5
-# (Hairer, Norsett & Wanner 1993, sec. II.6; checked in tests/test_decay.py against
+# (Hairer, Norsett & Wanner 1993, sec. II.6; checked in tests/experiment/test_decay.py against
 # analytic solutions between steps)
 _D1, _D3, _D4 = -12715105075.0 / 11282082432.0, 87487479700.0 / 32700410799.0, -10690763975.0 / 1880347072.0
 _D5, _D6, _D7 = 701980252875.0 / 199316789632.0, -1453857185.0 / 822651844.0, 69997945.0 / 29380423.0

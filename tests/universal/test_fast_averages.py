@@ -2,7 +2,7 @@
 
 Reference: lossfit's adaptive Gauss-Kronrod engine (QUADPACK's qk15 rule, Piessens et
 al. 1983) run at rtol 1e-12 over the same energy-resolved kernels, itself checked
-against scipy.integrate.quad in tests/test_thermal.py and tests/test_zero_range.py.
+against scipy.integrate.quad in tests/test_thermal.py and tests/universal/test_zero_range.py.
 Requirement (docs/thermal-averages.md): <= 1e-6 relative over the working range,
 eta 0.005-2, |a| 5 r_vdW-1e6 a0 (a < 0) and up to the table reach (a > 0),
 T 1 nK-3 uK, every channel, 133Cs and 7Li.

@@ -4,7 +4,7 @@ Every law is written out again here, independently of the library. Shapes: E. Br
 H.-W. Hammer, Phys. Rep. 428, 259 (2006); constants: the exact zero-range values
 (docs/conventions.md; the shallow-dimer prefactor 128 pi^2 (4 pi - 3 sqrt 3) is
 analytic, Braaten & Hammer 2006; 64 pi^2 (4 pi - 3 sqrt 3) coth(pi s0) and 19.4935 are
-the project's solver values, confirmed to 1e-6 by tests/test_zero_range.py's T -> 0
+the project's solver values, confirmed to 1e-6 by tests/universal/test_zero_range.py's T -> 0
 limits of the solver tables):
 
 * a < 0:  K3 = C(a) hbar a^4/m,  C = C_- sinh(2 eta) / (sin^2[s0 ln(a/a_-)] + sinh^2 eta)
@@ -339,7 +339,7 @@ def test_universal_fills_every_feature():
     assert ef.eta_minus == ef.eta_star == ef.eta_plus == 0.08
     assert ef.a_minus == -900.0
     # kappa* a_+ = 0.316472: the project's STM solver, checked against the shipped table's
-    # own recombination minimum in tests/test_zero_range_recombination.py
+    # own recombination minimum in tests/universal/test_zero_range_recombination.py
     kappa = -1.50763 / ef.a_minus
     assert ef.a_plus * kappa == pytest.approx(0.316472, abs=1e-6)
     # Both laws can be evaluated everywhere.

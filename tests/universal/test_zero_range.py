@@ -1,6 +1,6 @@
 """model="zero-range" at run time: table interpolation, thermal averages, limits.
 
-The universal function s11(k|a|) comes from the project's solver (tests/test_solver.py
+The universal function s11(k|a|) comes from the project's solver (tests/universal/test_solver.py
 checks the solver itself); these tests check what the runtime library does with it.
 """
 
