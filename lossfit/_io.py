@@ -28,6 +28,14 @@ def atomic_path(path, *, overwrite=True, argument="path"):
     path = os.fspath(path)
     if not overwrite and os.path.exists(path):
         raise LossfitValueError(argument, f"{path!r} exists; pass overwrite=True to replace it")
+    folder = os.path.dirname(os.path.abspath(path))
+    if os.path.isdir(path):
+        raise LossfitValueError(argument, f"{path!r} is a folder; give a file name")
+    if not os.path.isdir(folder):
+        raise LossfitValueError(argument, f"the folder {folder!r} does not exist (lossfit creates no folders "
+                                "for a file)")
+    if not os.access(folder, os.W_OK):
+        raise LossfitValueError(argument, f"the folder {folder!r} is not writable")
     ext = os.path.splitext(path)[1]
     fd, tmp = tempfile.mkstemp(suffix=ext + ".tmp" if ext not in (".png", ".pdf") else ext,
                                dir=os.path.dirname(os.path.abspath(path)))
@@ -76,6 +84,11 @@ def open_checked_h5(path, schema, max_version, *, argument="path"):
     return h5
 
 
+def _is_hdf5(path):
+    with open(path, "rb") as fh:
+        return fh.read(8) == b"\x89HDF\r\n\x1a\n"
+
+
 def read_csv_table(path, required):
     """Rows (dicts of stripped strings) and column names of a CSV file with a header.
 
@@ -85,8 +98,16 @@ def read_csv_table(path, required):
     path = os.fspath(path)
     if not os.path.exists(path):
         raise LossfitValueError("path", f"no such file {path!r}")
-    with open(path, newline="") as fh:
-        lines = [ln for ln in fh if ln.strip() and not ln.lstrip().startswith("#")]
+    if os.path.isdir(path):
+        raise LossfitValueError("path", f"{path!r} is a folder, not a CSV file")
+    try:
+        # utf-8-sig: spreadsheet programs start their CSV files with a byte-order mark
+        with open(path, newline="", encoding="utf-8-sig") as fh:
+            lines = [ln for ln in fh if ln.strip() and not ln.lstrip().startswith("#")]
+    except UnicodeDecodeError:
+        kind = "an HDF5 file" if _is_hdf5(path) else "not a text file"
+        raise LossfitValueError("path", f"{path!r} is {kind}, not a CSV table"
+                                + (" (use read_spectra or read_campaign)" if kind == "an HDF5 file" else "")) from None
     reader = csv.DictReader(lines, skipinitialspace=True)
     rows = [{(k or "").strip(): (v or "").strip() for k, v in r.items()} for r in reader]
     columns = [c.strip() for c in (reader.fieldnames or [])]

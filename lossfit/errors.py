@@ -5,7 +5,7 @@ Every error that bad user input can trigger is a :class:`LossfitValueError`, a
 """
 
 __all__ = ["LossfitError", "LossfitValueError", "ConvergenceWarning", "ValidityWarning",
-           "check_finite", "check_positive", "check_nonzero", "check_times", "is_real"]
+           "as_real_array", "check_finite", "check_positive", "check_nonzero", "check_times", "is_real"]
 
 import numbers
 
@@ -42,9 +42,33 @@ def _describe(values):
     return repr(values.item()) if values.size == 1 else f"array with bad entries {values[:5]!r}"
 
 
+def as_real_array(name, value):
+    """Return ``value`` as a float array; booleans, strings, None and complex numbers are
+    not numbers here (``True`` would otherwise read as 1 nK, ``"5"`` as 5 a0)."""
+    if value is None:
+        raise LossfitValueError(name, "is required, got None")
+    try:
+        arr = np.asarray(value)
+    except ValueError as err:             # ragged nested sequences
+        raise LossfitValueError(name, f"must be a number or an array of numbers ({err})") from None
+    kind = arr.dtype.kind
+    if kind == "O":
+        items = arr.ravel().tolist()
+        if not all(is_real(v) for v in items):
+            bad = next(v for v in items if not is_real(v))
+            raise LossfitValueError(name, f"must contain real numbers only, got {bad!r}")
+        return arr.astype(float)
+    if kind not in "iuf":
+        what = {"b": "booleans", "U": "strings", "S": "strings", "c": "complex numbers"}.get(kind, arr.dtype.name)
+        raise LossfitValueError(name, f"must be a real number or an array of real numbers, got {what} "
+                                f"({_describe(arr)})")
+    return arr.astype(float, copy=False)
+
+
 def check_finite(name, value):
-    """Return ``value`` as a float array, raising if any entry is NaN or infinite."""
-    arr = np.asarray(value, dtype=float)
+    """Return ``value`` as a float array, raising if any entry is not a real number (see
+    :func:`as_real_array`) or is NaN or infinite."""
+    arr = as_real_array(name, value)
     bad = ~np.isfinite(arr)
     if bad.any():
         raise LossfitValueError(name, f"must be finite, got {_describe(arr[bad])}")

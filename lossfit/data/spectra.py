@@ -139,16 +139,26 @@ def read_spectra(path):
     """
     path = os.fspath(path)
     with open_checked_h5(path, SCHEMA, SCHEMA_VERSION) as h5:
+        if "spectra" not in h5:
+            raise LossfitValueError("path", f"{path!r} has no /spectra group (truncated file?)")
         out = []
         for key in sorted(h5["spectra"]):
             g = h5["spectra"][key]
-            kind = g.attrs["kind"]
-            for name in ("value", "error"):
-                if g[name].attrs.get("units") != KINDS[kind]:
+            kind = g.attrs.get("kind")
+            if kind not in KINDS:
+                raise LossfitValueError("path", f"{path!r}: spectra/{key} has kind {kind!r}; the schema "
+                                        f"allows {sorted(KINDS)} (lower case)")
+            units = {"a": "a0", "temperature": "nK", "value": KINDS[kind], "error": KINDS[kind]}
+            for name, unit in units.items():
+                if name not in g:
+                    raise LossfitValueError("path", f"{path!r}: spectra/{key} lacks the dataset {name!r}")
+                if g[name].attrs.get("units") != unit:
                     raise LossfitValueError("path", f"{path!r}: spectra/{key}/{name} has units "
-                                            f"{g[name].attrs.get('units')!r}, expected {KINDS[kind]!r}")
+                                            f"{g[name].attrs.get('units')!r}, expected {unit!r} (lossfit "
+                                            "converts nothing on reading)")
             out.append(LossSpectrum(g["a"][()], g["temperature"][()], g["value"][()], g["error"][()],
-                                    kind=kind, label=g.attrs["label"], species=g.attrs["species"] or None))
+                                    kind=kind, label=g.attrs.get("label", key),
+                                    species=g.attrs.get("species", "") or None))
         return out
 
 

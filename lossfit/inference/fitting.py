@@ -15,7 +15,7 @@ from ..universal.models import DEFAULT_MODEL, get_model
 from .global_fit import fit_curves
 from .likelihood import SpectrumLikelihood
 from .parameters import ParameterSpace, default_priors
-from .posterior import Posterior, coerce_priors, interactive, make_result, walker_ball
+from .posterior import Posterior, check_run_settings, coerce_priors, interactive, make_result, walker_ball
 from .sampling import open_backend, sample
 
 
@@ -158,9 +158,7 @@ def fit(data, *, species, free, model=None, priors=None, walkers=32, steps=3000,
         raise LossfitValueError(sorted(curve_options)[0], "is an option of decay-curve fits only")
     if any(isinstance(d, DecayCurve) for d in items):
         raise LossfitValueError("data", "mixes decay curves and spectra; fit one kind at a time")
-    for name, value, lo in (("walkers", walkers, 2), ("steps", steps, 2), ("thin", thin, 1)):
-        if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < lo:
-            raise LossfitValueError(name, f"must be an integer >= {lo}, got {value!r}")
+    check_run_settings(walkers, steps, burn, thin, seed)
     n_free = 1 if isinstance(free, str) else len(list(free))
     if walkers < 2 * n_free:
         raise LossfitValueError("walkers", f"must be at least twice the number of free parameters "

@@ -24,7 +24,7 @@ from .campaign_space import EXTRA_NAMES, SYSTEMATIC_NAMES, CampaignSpace, system
 from .curve_fits import fit_curve
 from .curves_likelihood import CurvesLikelihood
 from .parameters import default_priors
-from .posterior import Posterior, coerce_priors, interactive, make_result, walker_ball
+from .posterior import Posterior, check_run_settings, coerce_priors, interactive, make_result, walker_ball
 from .priors import Normal
 from .sampling import open_backend, sample
 
@@ -160,9 +160,7 @@ def fit_curves(curves, *, species, free, model=None, priors=None, resonance=None
         Its ``likelihood`` is a :class:`CurvesLikelihood` (``.spectra``: the two-stage
         spectra grouped by temperature, for the spectrum plot).
     """
-    for name, value, lo in (("walkers", walkers, 2), ("steps", steps, 2), ("thin", thin, 1)):
-        if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < lo:
-            raise LossfitValueError(name, f"must be an integer >= {lo}, got {value!r}")
+    check_run_settings(walkers, steps, burn, thin, seed)
     space, likelihood, posterior = prepare_curves(
         curves, species=species, free=free, model=model, priors=priors, resonance=resonance,
         systematics=systematics, fixed=fixed, tie=tie, heating=heating,

@@ -1,7 +1,7 @@
 """What the spectrum fit and the global curve fit share: the log posterior, prior
 shorthands, the walker ball around a start point, the default burn-in and the result."""
 
-__all__ = ["Posterior", "coerce_priors", "interactive", "walker_ball", "auto_burn", "make_result"]
+__all__ = ["check_run_settings", "Posterior", "coerce_priors", "interactive", "walker_ball", "auto_burn", "make_result"]
 
 import math
 import sys
@@ -76,6 +76,23 @@ def auto_burn(chain):
     # a very short chain can give no finite tau at all: fall back on steps/5
     tau_max = float(np.max(tau[np.isfinite(tau)])) if np.isfinite(tau).any() else 0.0
     return int(min(max(3 * tau_max, chain.shape[0] / 5), chain.shape[0] / 2))
+
+
+def _is_int(value):
+    return isinstance(value, (int, np.integer)) and not isinstance(value, (bool, np.bool_))
+
+
+def check_run_settings(walkers, steps, burn=None, thin=1, seed=None):
+    """Validate a sampler run's settings before any work is done: integers (not booleans),
+    walkers >= 2, steps >= 2, thin >= 1, burn (if given) in [0, steps - 2], seed None or a
+    non-negative integer. A burn-in as long as the chain is caught here, not after it ran."""
+    for name, value, lo in (("walkers", walkers, 2), ("steps", steps, 2), ("thin", thin, 1)):
+        if not _is_int(value) or value < lo:
+            raise LossfitValueError(name, f"must be an integer >= {lo}, got {value!r}")
+    if burn is not None and (not _is_int(burn) or not 0 <= burn <= steps - 2):
+        raise LossfitValueError("burn", f"must be an integer in [0, steps - 2] = [0, {steps - 2}], got {burn!r}")
+    if seed is not None and (not _is_int(seed) or seed < 0):
+        raise LossfitValueError("seed", f"must be None or a non-negative integer, got {seed!r}")
 
 
 def make_result(space, likelihood, chain, log_prob, acceptance, *, burn=None, thin=1, settings=None):
