@@ -17,13 +17,23 @@ Exit codes: 0 success; 2 bad input (the message names the argument or job key);
 __all__ = ["main"]
 
 import argparse
+import signal
 import sys
+import warnings
 
 from ._version import __version__
 from .batch.demo import run_curves_demo, run_demo
-from .batch.runner import EXIT_BAD_INPUT, EXIT_CONFLICT, EXIT_INTERRUPTED, OutputConflict, report, run_job
+from .batch.runner import EXIT_BAD_INPUT, EXIT_CONFLICT, EXIT_INTERRUPTED, EXIT_OK, OutputConflict, report, run_job
 from .errors import LossfitValueError
+from .inference.pools import mpi_size
 from .inference.sampling import Interrupted
+
+EXIT_CODES = f"""exit codes:
+  {EXIT_OK}   success
+  {EXIT_BAD_INPUT}   bad input: the message names the argument or job key
+  {EXIT_CONFLICT}   the output folder is locked, or holds results that need --overwrite
+  {EXIT_INTERRUPTED}  stopped by SIGTERM/SIGINT (after saving the chain, if sampling had begun):
+       run the same command again to resume"""
 
 
 def _cmd_demo(args):
@@ -37,9 +47,24 @@ def _cmd_demo(args):
     return 0
 
 
+def _notice(args, text):
+    if not args.quiet:
+        print(f"lossfit: {text}", file=sys.stderr)
+
+
 def _cmd_run(args):
-    run_job(args.job, args.out, pool=args.pool, workers=args.workers, steps=args.steps,
-            overwrite=args.overwrite, progress=False if args.quiet else None)
+    if args.workers is not None and args.pool != "processes":
+        _notice(args, f"--workers is ignored with --pool {args.pool} (it sets the processes of --pool processes)")
+    if args.pool == "mpi":
+        size = mpi_size()
+        if size == 1:
+            _notice(args, "--pool mpi on a single MPI rank runs serially; start it as "
+                    "'mpiexec -n N lossfit run ... --pool mpi' to use N ranks")
+    with warnings.catch_warnings():
+        if args.quiet:
+            warnings.simplefilter("ignore")
+        run_job(args.job, args.out, pool=args.pool, workers=args.workers, steps=args.steps,
+                overwrite=args.overwrite, progress=False if args.quiet else None, quiet=args.quiet)
     return 0
 
 
@@ -50,10 +75,12 @@ def _cmd_report(args):
 
 def build_parser():
     parser = argparse.ArgumentParser(prog="lossfit", description="Thermally averaged zero-range fits "
-                                     "of three-body and atom-dimer loss spectra (Efimov parameters).")
+                                     "of three-body and atom-dimer loss spectra (Efimov parameters).",
+                                     epilog=EXIT_CODES, formatter_class=argparse.RawDescriptionHelpFormatter)
     parser.add_argument("--version", action="version", version=f"lossfit {__version__}")
     sub = parser.add_subparsers(dest="command", required=True)
-    demo = sub.add_parser("demo", help="fit the built-in invented demo scenario and write all outputs")
+    demo = sub.add_parser("demo", help="fit the built-in invented demo scenario and write all outputs",
+                          epilog=EXIT_CODES, formatter_class=argparse.RawDescriptionHelpFormatter)
     demo.add_argument("--out", required=True, help="output folder (created; existing results are kept)")
     demo.add_argument("--from-curves", action="store_true",
                       help="start from invented raw decay curves (global fit) instead of spectra")
@@ -63,25 +90,35 @@ def build_parser():
     demo.add_argument("--overwrite", action="store_true", help="replace results already in --out")
     demo.add_argument("--quiet", action="store_true", help="no progress bar")
     demo.set_defaults(func=_cmd_demo)
-    run = sub.add_parser("run", help="run or resume a job file (TOML)")
+    run = sub.add_parser("run", help="run or resume a job file (TOML)", epilog=EXIT_CODES,
+                         formatter_class=argparse.RawDescriptionHelpFormatter)
     run.add_argument("job", help="job file")
     run.add_argument("--out", required=True, help="output folder")
     run.add_argument("--pool", choices=("serial", "processes", "mpi"), default="serial")
     run.add_argument("--workers", type=int, default=None, help="processes for --pool processes")
     run.add_argument("--steps", type=int, default=None, help="override the job's number of steps")
     run.add_argument("--overwrite", action="store_true", help="discard results already in --out")
-    run.add_argument("--quiet", action="store_true", help="no progress bar")
+    run.add_argument("--quiet", action="store_true", help="print nothing but errors (warnings are kept in "
+                     "summary.json)")
     run.set_defaults(func=_cmd_run)
-    rep = sub.add_parser("report", help="re-create summary and figures from stored chains")
+    rep = sub.add_parser("report", help="re-create summary and figures from stored chains", epilog=EXIT_CODES,
+                         formatter_class=argparse.RawDescriptionHelpFormatter)
     rep.add_argument("dir", help="output folder of a run")
     rep.add_argument("--overwrite", action="store_true", help="replace existing summary and figures")
     rep.set_defaults(func=_cmd_report)
     return parser
 
 
+def _stop_during_startup(signum, frame):
+    # before sampling starts there is no chain to save: stop cleanly (no traceback, no
+    # empty output folder) with the same exit code as a stop during sampling
+    raise Interrupted(signum, 0, saved=False)
+
+
 def main(argv=None):
     parser = build_parser()
     args = parser.parse_args(argv)
+    previous = signal.signal(signal.SIGTERM, _stop_during_startup)
     try:
         return args.func(args)
     except LossfitValueError as err:
@@ -93,6 +130,8 @@ def main(argv=None):
     except Interrupted as err:
         print(f"lossfit: {err}", file=sys.stderr)
         return EXIT_INTERRUPTED
+    finally:
+        signal.signal(signal.SIGTERM, previous)
 
 
 if __name__ == "__main__":

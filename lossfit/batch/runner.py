@@ -32,9 +32,9 @@ from ..inference.backends import read_chain_file
 from ..inference.fitting import fit, prepare
 from ..inference.global_fit import prepare_curves
 from ..inference.pools import make_pool
-from ..inference.posterior import make_result
+from ..inference.posterior import check_run_settings, make_result
 from ..plotting.spectra import corner_plot, spectrum_plot
-from .jobs import load_job, parse_job
+from .jobs import JobError, load_job, parse_job
 from .provenance import now_utc, provenance
 
 EXIT_OK = 0
@@ -134,28 +134,65 @@ def write_outputs(result, out_dir, provenance_info, *, truths=None):
     plt.close(fig)
 
 
+def check_output_folder(out_dir, argument="out"):
+    """Refuse an output path that is a file, lies under a file, or cannot be written,
+    before anything is created (the message names ``argument``)."""
+    out_dir = os.path.abspath(os.fspath(out_dir))
+    if os.path.exists(out_dir):
+        if not os.path.isdir(out_dir):
+            raise LossfitValueError(argument, f"{out_dir!r} is a file, not a folder")
+        if not os.access(out_dir, os.W_OK | os.X_OK):
+            raise LossfitValueError(argument, f"the folder {out_dir!r} is not writable")
+        return out_dir
+    parent = out_dir
+    while not os.path.exists(parent):
+        parent = os.path.dirname(parent)
+    if not os.path.isdir(parent):
+        raise LossfitValueError(argument, f"{out_dir!r} lies under {parent!r}, which is a file")
+    if not os.access(parent, os.W_OK | os.X_OK):
+        raise LossfitValueError(argument, f"cannot create {out_dir!r}: {parent!r} is not writable")
+    return out_dir
+
+
+def _remove_if_empty(folder, created):
+    # a rejected or stopped job leaves no empty folder behind
+    if created and os.path.isdir(folder) and not os.listdir(folder):
+        os.rmdir(folder)
+
+
 def run_job(job_path, out_dir, *, pool="serial", workers=None, steps=None, overwrite=False,
-            progress=None, truths=None, stream=None):
+            progress=None, truths=None, stream=None, quiet=False):
     """Run (or resume) a job file into ``out_dir``; returns the FitResult (None on MPI workers).
+
+    The whole job (its keys, data files, sampler settings with ``steps``) and the output
+    path are checked before any folder is made or any step is sampled.
 
     Raises :class:`OutputConflict` for a locked folder or results that would be
     overwritten, :class:`lossfit.inference.sampling.Interrupted` on SIGTERM/SIGINT
     after the chain is saved, and :class:`lossfit.errors.LossfitValueError` for bad input.
+    ``quiet`` prints nothing (no log lines, no table).
     """
-    stream = stream or sys.stdout
+    stream = open(os.devnull, "w") if quiet else (stream or sys.stdout)
     job = load_job(job_path)
     if steps is not None and (isinstance(steps, bool) or not isinstance(steps, int) or steps < 2):
         raise LossfitValueError("steps", f"must be an integer >= 2, got {steps!r}")
+    want_steps = steps or job.sampler["steps"]
+    data = job.load_data()
+    kw = job.fit_kwargs(steps=want_steps)
+    try:
+        check_run_settings(kw["walkers"], want_steps, kw["burn"], kw["thin"], kw["seed"])
+    except LossfitValueError as err:
+        raise JobError(f"sampler.{err.argument}", str(err).split(": ", 1)[1]) from None
+    out_dir = check_output_folder(out_dir)
     pool_obj = make_pool(pool, workers)
     if pool == "mpi" and not pool_obj.is_master():
         pool_obj.wait()
         return None
+    created = not os.path.exists(out_dir)
     try:
-        out_dir = os.fspath(out_dir)
         os.makedirs(out_dir, exist_ok=True)
         with FolderLock(out_dir):
             chains = os.path.join(out_dir, "chains.h5")
-            want_steps = steps or job.sampler["steps"]
             if os.path.exists(chains) and not overwrite:
                 stored = read_chain_file(chains)
                 if stored["metadata"].get("job_text") != job.text:
@@ -176,15 +213,16 @@ def run_job(job_path, out_dir, *, pool="serial", workers=None, steps=None, overw
             interactive = sys.stderr.isatty() if progress is None else progress
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore", ValidityWarning)
-                result = fit(job.load_data(), **job.fit_kwargs(steps=want_steps), backend=chains,
+                result = fit(data, **kw, backend=chains,
                              pool=None if pool == "serial" else pool_obj, progress=interactive,
-                             log_every=None if interactive else job.sampler["log_every"],
+                             log_every=None if interactive or quiet else job.sampler["log_every"],
                              checkpoint_every=job.sampler["checkpoint_every"], metadata=info)
             info["finished_utc"] = now_utc()
             write_outputs(result, out_dir, info, truths=truths)
             print(result.table(), file=stream)
             return result
     finally:
+        _remove_if_empty(out_dir, created)
         if hasattr(pool_obj, "close"):
             pool_obj.close()
         if hasattr(pool_obj, "join"):

@@ -5,7 +5,7 @@ work per call is (walkers / 2) likelihoods; parallelism pays once one likelihood
 costs well above the messaging overhead (about 0.1 ms for MPI on one node).
 """
 
-__all__ = ["SerialPool", "MPIPool", "make_pool", "find_mpiexec"]
+__all__ = ["mpi_size", "SerialPool", "MPIPool", "make_pool", "find_mpiexec"]
 
 import multiprocessing
 import os
@@ -98,6 +98,15 @@ def make_pool(kind, workers=None):
     if kind == "mpi":
         return MPIPool()
     raise LossfitValueError("pool", f"must be 'serial', 'processes' or 'mpi', got {kind!r}")
+
+
+def mpi_size():
+    """Number of MPI ranks this process runs among: 1 without mpi4py or outside mpiexec."""
+    try:
+        from mpi4py import MPI  # optional dependency: only the MPI pool needs it
+    except ImportError:
+        return 1
+    return MPI.COMM_WORLD.Get_size()
 
 
 def find_mpiexec():

@@ -25,11 +25,14 @@ from .backends import CheckpointBackend
 class Interrupted(LossfitError):
     """Sampling stopped on a signal after the chain was checkpointed (resumable)."""
 
-    def __init__(self, signum, iteration):
+    def __init__(self, signum, iteration, saved=True):
         self.signum = signum
         self.iteration = iteration
-        super().__init__(f"stopped by signal {signum} at step {iteration}; the chain is saved and "
-                         "the run resumes from there")
+        if saved:
+            text = f"stopped by signal {signum} at step {iteration}; the chain is saved and the run resumes from there"
+        else:
+            text = f"stopped by signal {signum} before sampling began; nothing was saved"
+        super().__init__(text)
 
 
 @dataclass

@@ -61,7 +61,7 @@ def _wait_for_steps(path, steps, timeout=120):
 @pytest.fixture(scope="module")
 def uninterrupted(campaign):
     out = campaign / "whole"
-    proc = _run("run", campaign / "job.toml", "--out", out, "--quiet")
+    proc = _run("run", campaign / "job.toml", "--out", out)
     assert proc.returncode == 0, proc.stderr
     # no terminal: periodic log lines with step, acceptance, autocorrelation and ETA
     assert "[lossfit] step 500/2500  acceptance" in proc.stderr and "ETA" in proc.stderr

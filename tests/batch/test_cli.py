@@ -1,0 +1,83 @@
+"""The command line refuses bad jobs and paths before any work, with the documented exit
+codes and no traceback, leaves no empty folders, and is quiet when asked."""
+
+import os
+import subprocess
+import sys
+
+import pytest
+
+from lossfit.batch.demo import demo_job_text
+from lossfit.data import write_spectra
+from lossfit.simulate import demo_spectra
+
+
+def _run(*args, cwd=None):
+    env = dict(os.environ, MPLBACKEND="Agg")
+    return subprocess.run([sys.executable, "-m", "lossfit.cli", *map(str, args)], capture_output=True,
+                          text=True, env=env, cwd=cwd, timeout=300)
+
+
+@pytest.fixture(scope="module")
+def job(tmp_path_factory):
+    d = tmp_path_factory.mktemp("job")
+    spectra, _ = demo_spectra()
+    write_spectra(d / "data.h5", spectra)
+    (d / "job.toml").write_text(demo_job_text(walkers=10, steps=40, seed=2))
+    return d
+
+
+def _job_with(job, tmp_path, old, new):
+    text = (job / "job.toml").read_text()
+    assert old in text
+    path = job / f"edited-{tmp_path.name}.toml"
+    path.write_text(text.replace(old, new))
+    return path
+
+
+def _refused(proc, key):
+    assert proc.returncode == 2, proc.stderr
+    assert "Traceback" not in proc.stderr
+    assert f"error: {key}" in proc.stderr, proc.stderr
+
+
+def test_help_lists_the_exit_codes():
+    proc = _run("run", "--help")
+    assert proc.returncode == 0
+    for code in ("0", "2", "3", "75"):
+        assert f"\n  {code} " in proc.stdout
+
+
+def test_output_path_that_is_a_file_is_refused_before_anything(job, tmp_path):
+    target = tmp_path / "results"
+    target.write_text("not a folder")
+    _refused(_run("run", job / "job.toml", "--out", target), "out")
+    _refused(_run("run", job / "job.toml", "--out", target / "below"), "out")
+    assert target.read_text() == "not a folder"
+
+
+def test_burn_longer_than_the_chain_is_refused_before_sampling(job, tmp_path):
+    path = _job_with(job, tmp_path, 'burn = "auto"', "burn = 60")
+    out = tmp_path / "out"
+    _refused(_run("run", path, "--out", out), "sampler.burn")
+    assert not out.exists()                      # no empty folder from a rejected job
+
+
+def test_rejected_job_leaves_no_folder(job, tmp_path):
+    path = _job_with(job, tmp_path, 'spectra = ["data.h5"]', 'spectra = ["missing.h5"]')
+    out = tmp_path / "out"
+    proc = _run("run", path, "--out", out)
+    assert proc.returncode == 2 and "Traceback" not in proc.stderr
+    assert not out.exists()
+
+
+def test_quiet_prints_nothing_and_ignored_options_are_named(job, tmp_path):
+    out = tmp_path / "quiet"
+    proc = _run("run", job / "job.toml", "--out", out, "--quiet", "--workers", "3")
+    assert proc.returncode == 0, proc.stderr
+    assert proc.stdout == "" and proc.stderr == ""
+    assert (out / "summary.json").exists()
+    loud = _run("run", job / "job.toml", "--out", tmp_path / "loud", "--workers", "3")
+    assert loud.returncode == 0, loud.stderr
+    assert "--workers is ignored with --pool serial" in loud.stderr
+    assert "a_minus" in loud.stdout                 # the result table
