@@ -4,7 +4,7 @@ Every error that bad user input can trigger is a :class:`LossfitValueError`, a
 ``ValueError`` subclass whose message names the offending argument and value.
 """
 
-__all__ = ["LossfitError", "LossfitValueError", "ConvergenceWarning", "ValidityWarning",
+__all__ = ["LossfitError", "LossfitValueError", "ConvergenceWarning", "FitCheckWarning", "ValidityWarning",
            "as_real_array", "check_finite", "check_positive", "check_nonzero", "check_times", "is_real"]
 
 import numbers
@@ -31,6 +31,11 @@ class LossfitValueError(LossfitError, ValueError):
 
 class ConvergenceWarning(UserWarning):
     """A Markov chain is too short for its autocorrelation time."""
+
+
+class FitCheckWarning(UserWarning):
+    """A finished fit fails a check: poor goodness of fit, a posterior piled on a prior
+    bound, or inputs whose magnitude suggests a unit slip (lossfit.inference.fit_checks)."""
 
 
 class ValidityWarning(UserWarning):

@@ -6,8 +6,8 @@ nK (energy as E/k_B), L3 and K3 in cm^6/s (lossfit convention, see
 :mod:`lossfit.universal.threshold`), beta in cm^3/s.
 """
 
-__all__ = ["k3", "beta_energy", "l3", "beta", "natural_unit", "validity_flags", "MIN_ABS_A_OVER_RVDW",
-           "MAX_ENERGY_OVER_VDW"]
+__all__ = ["k3", "beta_energy", "l3", "beta", "natural_unit", "unitarity_bound", "validity_flags",
+           "MIN_ABS_A_OVER_RVDW", "MAX_ENERGY_OVER_VDW"]
 
 import math
 import warnings
@@ -22,7 +22,13 @@ from .species import Species
 from .species import species as _species
 from .thermal import ATOM_DIMER, KERNEL_SIGNATURE, THREE_BODY, U_MAX, LazyCompiled, compiled
 from .units import A0, CM3_PER_S, CM6_PER_S, NK
-from .universal.models import DEFAULT_MODEL, get_model, scale_wavenumber_a0
+from .universal.models import (
+    DEFAULT_MODEL,
+    UNITARITY_ATOM_DIMER,
+    UNITARITY_THREE_BODY,
+    get_model,
+    scale_wavenumber_a0,
+)
 
 #: Below this |a|/r_vdW the zero-range theory is outside its validity range (warning only).
 MIN_ABS_A_OVER_RVDW = 5.0
@@ -123,6 +129,28 @@ def natural_unit(process, scale_nk, mass):
     if process == THREE_BODY:
         return HBAR / (mass * k_s ** 4) / CM6_PER_S
     return HBAR / (mass * k_s) / CM3_PER_S
+
+
+def unitarity_bound(kind, temperature_nk, species):
+    """The J = 0 unitarity bound of the thermally averaged coefficient at |a| = infinity,
+    without the Efimov modulation: L3 = 36 sqrt3 pi^2 hbar^5/(m^3 (k_B T)^2) in cm^6/s
+    (Rem et al., PRL 110, 163202 (2013)) or beta = (2/sqrt pi) 3 sqrt3 pi hbar/(4 m k_T)
+    in cm^3/s, the limits of the "capped" model (docs/conventions.md).
+
+    Parameters
+    ----------
+    kind : {"l3", "beta"}
+    temperature_nk : array_like
+        Temperature in nK.
+    species : Species or str
+    """
+    sp = species if isinstance(species, Species) else _species(species)
+    t = check_positive("temperature", temperature_nk)
+    if kind == "l3":
+        return 0.5 * UNITARITY_THREE_BODY * natural_unit(THREE_BODY, t, sp.mass).reshape(t.shape)
+    if kind == "beta":
+        return 2.0 / math.sqrt(math.pi) * UNITARITY_ATOM_DIMER * natural_unit(ATOM_DIMER, t, sp.mass).reshape(t.shape)
+    raise LossfitValueError("kind", f"must be 'l3' or 'beta', got {kind!r}")
 
 
 def three_body_rows(a, scale_nk, species, efimov, model, stacklevel=4, scale_name="temperature",

@@ -12,9 +12,11 @@ import numpy as np
 from .._io import atomic_path
 from ..constants import KAPPA_A_MINUS, KAPPA_A_PLUS, UNIVERSAL_A_STAR_OVER_A_MINUS, VDW_A_MINUS_OVER_RVDW
 from ..efimov import Efimov
-from ..errors import ConvergenceWarning
+from ..errors import ConvergenceWarning, FitCheckWarning
 from ..rates import validity_flags
 from .diagnostics import MIN_STEPS_PER_TAU, autocorrelation_times, split_rhat
+from .fit_checks import goodness_of_fit, input_plausibility, prior_bound_pileup
+from .likelihood import SpectrumLikelihood
 from .parameters import UNITS
 
 #: Reference values printed beside the derived ratios.
@@ -69,6 +71,13 @@ class FitResult:
     outside_validity : list of dict
         Data points outside the zero-range theory's range: spectrum index, point index,
         a (a0), T (nK) and reasons ("|a| < 5 r_vdW", "k_B T > 0.1 E_vdW").
+    fit_checks : dict
+        Spectrum fits: ``chi2``, ``dof``, ``chi2_per_dof``, ``p_chi2`` at the posterior
+        medians, the posterior-predictive ``ppp`` and the standardized ``residuals`` per
+        spectrum (:mod:`lossfit.inference.fit_checks`); empty for decay-curve fits.
+    check_warnings : list of str
+        Failed fit checks (poor fit, posterior on a prior bound, implausible inputs),
+        also in ``warnings`` and issued as FitCheckWarning.
     """
 
     def __init__(self, *, space, chain, log_prob, acceptance, burn, thin, likelihood, species,
@@ -113,7 +122,32 @@ class FitResult:
             self.warnings.append(f"acceptance fraction {self.acceptance_fraction:.2f} outside 0.15-0.8")
         for w in self.warnings:
             warnings.warn(w, ConvergenceWarning, stacklevel=3)
+        self.check_warnings = self._run_checks()
+        for w in self.check_warnings:
+            warnings.warn(w, FitCheckWarning, stacklevel=3)
+        self.warnings += self.check_warnings
         self.derived = self._derived_samples()
+
+    def _run_checks(self):
+        out = prior_bound_pileup(self.space, self._kept_theta)
+        self.fit_checks = {}
+        if isinstance(self.likelihood, SpectrumLikelihood):
+            out = input_plausibility(self.likelihood.spectra, self.species) + out
+            self.fit_checks = goodness_of_fit(self.likelihood, self.space, self._kept_theta, self.median_values())
+            g = self.fit_checks
+            if g["dof"] > 0 and (g["p_chi2"] < 1e-3 or g["ppp"] < 0.01):
+                out.append(f"poor fit: chi2/dof = {g['chi2_per_dof']:.3g} ({g['dof']} dof, p = {g['p_chi2']:.2g}), "
+                           f"posterior-predictive p = {g['ppp']:.2g}: the model does not describe these data "
+                           "(check units, temperatures, species and error bars)")
+        return out
+
+    def _fit_line(self):
+        g = self.fit_checks
+        if not g:
+            return ""
+        return (f"fit check: chi2/dof = {g['chi2_per_dof']:.3g} ({g['dof']} dof, p = {g['p_chi2']:.2g}); "
+                f"posterior-predictive p = {g['ppp']:.2f}; largest |residual| "
+                f"{max(float(np.max(np.abs(r))) for r in g['residuals']):.2g} sigma")
 
     # ---- derived quantities -------------------------------------------------------
     def _values_per_sample(self):
@@ -206,6 +240,8 @@ class FitResult:
             lines.append("correlation matrix (" + ", ".join(self.names) + "):")
             for n, row in zip(self.names, self.correlation()):
                 lines.append(f"  {n:<{w - 2}}" + " ".join(f"{v:+.2f}" for v in row))
+        if self.fit_checks:
+            lines.append(self._fit_line())
         for w in self.warnings:
             lines.append(f"WARNING: {w}")
         return "\n".join(lines)
@@ -231,7 +267,7 @@ class FitResult:
                 f"{self.chain.shape[1]} walkers × {self.chain.shape[0]} steps (burn-in {self.burn}); "
                 f"acceptance {self.acceptance_fraction:.2f}</p><table><tr><th>parameter</th><th>units</th>"
                 f"<th>median</th><th>68 %</th><th>95 %</th><th>τ</th><th>ESS</th><th>R̂</th></tr>"
-                + "".join(rows) + f"</table>{warn}</div>")
+                + "".join(rows) + f"</table><p>{esc(self._fit_line())}</p>{warn}</div>")
 
     def to_dict(self):
         """JSON-ready summary: settings, summary rows, correlation, diagnostics, warnings."""
@@ -248,7 +284,9 @@ class FitResult:
                 "summary": [{k: clean(v) for k, v in r.items()} for r in self.summary()],
                 "correlation": {"names": self.names, "matrix": self.correlation().tolist()},
                 "fixed": self.space.fixed, "tie": self.space.tie, "warnings": self.warnings,
-                "outside_validity": self.outside_validity}
+                "outside_validity": self.outside_validity,
+                "fit_checks": {k: ([r.tolist() for r in v] if k == "residuals" else clean(v))
+                               for k, v in self.fit_checks.items()}}
 
     def write_json(self, path, *, overwrite=False):
         """Write :meth:`to_dict` atomically (temporary file, then rename)."""
