@@ -85,7 +85,7 @@ def _points(n, side, rng):
     if side == "neg":
         a = -np.exp(rng.uniform(math.log(5 * CS.r_vdw), math.log(1e6), n))
     else:
-        # a > 0 up to the three-body table's reach at each temperature (E <= 1000 E_b)
+        # a > 0 up to the three-body table's reach at each temperature (its last grid energy)
         reach = np.sqrt(1000.0 / 42.25) / scale_wavenumber_a0(t * NK, CS.mass)
         a = np.exp(rng.uniform(math.log(5 * CS.r_vdw), np.log(0.99 * reach)))
     return a, t

@@ -25,13 +25,15 @@ import numpy as np  # noqa: E402
 import lossfit as lf  # noqa: E402
 from lossfit.constants import HBAR, K_B  # noqa: E402
 from lossfit.units import A0  # noqa: E402
+from lossfit.universal.tables import load_recombination_table  # noqa: E402
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 
 
 def _reach(sp, t_nk):
-    # a > 0 three-body table: E <= 1000 hbar^2/(m a^2) up to E = 42.25 k_B T
-    return math.sqrt(1000.0 / 42.25 * HBAR ** 2 / (sp.mass * K_B * t_nk * 1e-9)) / A0
+    # a > 0 total (shallow) channel: the three-body table's last energy, reached at E = 42.25 k_B T
+    e_max = load_recombination_table().energy_max
+    return math.sqrt(e_max / 42.25 * HBAR ** 2 / (sp.mass * K_B * t_nk * 1e-9)) / A0
 
 
 def panels(sp):

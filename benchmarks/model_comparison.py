@@ -3,7 +3,7 @@
 Top row a < 0, bottom row a > 0. Left: L3 against |a| at three temperatures for
 "threshold", "capped" (an approximation) and "zero-range". Right: log10 of
 capped / zero-range over (|a|, T). For a > 0 the zero-range deep-dimer channel reaches
-unitarity, the shallow-dimer channel only k_B T <= 24 E_b: beyond that line (hatched) the
+unitarity, the shallow-dimer channel only k_B T <= 240 E_b: beyond that line (hatched) the
 map compares capped with the deep channel alone, and the curves continue as deep only.
 133Cs, a_- = -1000 a0, eta = 0.05, a > 0 features tied universally (an invented
 parameter set).
@@ -60,7 +60,7 @@ def main():
     _ratio_map(fig, bx, -aa, tt, ratio, r"$|a|$ ($a_0$), $a<0$", "log10( capped / zero-range )")
     print(f"a < 0: capped/zero-range ranges {ratio.min():.3g} .. {ratio.max():.3g}")
 
-    # a > 0: only where the exact three-body table reaches (k_B T <= ~24 E_b)
+    # a > 0: only where the exact three-body table reaches (k_B T <= ~240 E_b)
     from lossfit.thermal import U_MAX
     from lossfit.universal.tables import load_recombination_table
     t_limit = load_recombination_table().energy_max / U_MAX ** 2        # k_B T / E_b

@@ -398,7 +398,7 @@ class ZeroRangeModel(EnergyModel):
     positions. The deep-dimer channel reaches any a at a > 0: above the three-body table
     the atom-dimer table and, beyond k_AD a = 1e3, the exact |a| = infinity solution with
     its measured 1/(k a) approach carry it (:mod:`.tables`). The other tables are not
-    extrapolated: requests beyond them (the shallow-dimer channel above k_B T ~ 24 E_b,
+    extrapolated: requests beyond them (the shallow-dimer channel above k_B T ~ 240 E_b,
     relaxation above k_AD a = 1e3) raise, naming ``a``.
     """
 

@@ -219,10 +219,10 @@ def test_shallow_channel_beyond_its_table_raises_naming_a():
     ef = lf.Efimov.universal(-1000.0, 0.05)
     for channel in ("total", "shallow"):
         with pytest.raises(LossfitValueError, match="shallow-dimer channel") as info:
-            lf.l3(2e4, 400.0, species=CS, efimov=ef, model="zero-range", channel=channel)
+            lf.l3(5e4, 400.0, species=CS, efimov=ef, model="zero-range", channel=channel)
         assert info.value.argument == "a"
-    assert lf.l3(2e4, 400.0, species=CS, efimov=ef, model="zero-range", channel="deep") > 0
-    v = load_recombination_table().evaluate(np.array([900.0, 1100.0]))
+    assert lf.l3(5e4, 400.0, species=CS, efimov=ef, model="zero-range", channel="deep") > 0
+    v = load_recombination_table().evaluate(np.array([9000.0, 11000.0]))
     assert np.all(np.isfinite(v[0])) and np.all(np.isnan(v[1, 2:6])) and np.isnan(v[1, 7])
 
 
