@@ -80,7 +80,7 @@ def test_kill_9_then_resume_gives_the_uninterrupted_chain(campaign, uninterrupte
     partial = read_chain_file(out / "chains.h5")
     assert 0 < partial["iteration"] < 2500          # killed mid-run, file still complete
     assert (out / ".lossfit.lock").exists()          # stale lock of the dead process
-    again = _run("run", campaign / "job.toml", "--out", out, "--quiet")
+    again = _run("run", campaign / "job.toml", "--out", out)
     assert again.returncode == 0, again.stderr
     assert "resuming" in again.stdout and "dead process" in again.stderr
     final = read_chain_file(out / "chains.h5")
@@ -126,7 +126,7 @@ def test_mpiexec_two_ranks_end_to_end(campaign, uninterrupted):
 def test_finished_results_are_never_overwritten(campaign, uninterrupted):
     out = campaign / "whole"
     before = {n: (out / n).read_bytes() for n in ("chains.h5", "summary.json")}
-    same = _run("run", campaign / "job.toml", "--out", out, "--quiet")
+    same = _run("run", campaign / "job.toml", "--out", out)
     assert same.returncode == 0 and "nothing to do" in same.stdout
     other = campaign / "other.toml"
     other.write_text((campaign / "job.toml").read_text().replace("seed = 5", "seed = 6"))
