@@ -5,7 +5,8 @@ Every error that bad user input can trigger is a :class:`LossfitValueError`, a
 """
 
 __all__ = ["LossfitError", "LossfitValueError", "ConvergenceWarning", "FitCheckWarning", "ValidityWarning",
-           "as_real_array", "check_finite", "check_positive", "check_nonzero", "check_times", "is_real"]
+           "as_real_array", "check_finite", "check_positive", "check_nonzero", "check_times", "check_table",
+           "is_real"]
 
 import numbers
 
@@ -104,6 +105,17 @@ def check_times(name, value):
         raise LossfitValueError(name, f"must be strictly increasing, got {name}[{i}] = {arr[i]!r} "
                                 f"followed by {arr[i + 1]!r}")
     return np.ascontiguousarray(arr)
+
+
+def check_table(x_name, x, y_name, y, min_points):
+    """Check a tabulated function: 1-d ``x`` and ``y`` arrays of equal length >= ``min_points``
+    with ``x`` strictly increasing (both already converted by the caller's checks)."""
+    if x.ndim != 1 or x.shape != y.shape or x.size < min_points:
+        raise LossfitValueError(y_name, f"need 1-d {x_name} and {y_name} of equal length >= {min_points}, "
+                                f"got shapes {x.shape} and {y.shape}")
+    if np.any(np.diff(x) <= 0):
+        raise LossfitValueError(x_name, "must be strictly increasing")
+    return x, y
 
 
 def check_nonzero(name, value):

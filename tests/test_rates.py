@@ -22,20 +22,13 @@ import warnings
 
 import numpy as np
 import pytest
-import scipy.constants as sc
+from independent import A0, HBAR, KB, S0, SQRT_PI
 from scipy.integrate import quad
-from scipy.optimize import brentq
 from scipy.special import gammainc
 
 import lossfit as lf
 from lossfit.errors import LossfitValueError, ValidityWarning
 
-HBAR = sc.hbar
-KB = sc.k
-A0 = sc.physical_constants["Bohr radius"][0]
-SQRT_PI = math.sqrt(math.pi)
-S0 = brentq(lambda s: s * math.cosh(math.pi * s / 2) - 8 / math.sqrt(3) * math.sinh(math.pi * s / 6),
-            0.9, 1.1, xtol=1e-16, rtol=4 * np.finfo(float).eps)
 UNITARITY_3 = 72 * math.sqrt(3) * math.pi ** 2
 
 CS = lf.species("133Cs")

@@ -22,21 +22,14 @@ import math
 import numba
 import numpy as np
 import pytest
-import scipy.constants as sc
+from independent import A0, HBAR, KB, S0, SQRT_PI
 from scipy.integrate import quad
-from scipy.optimize import brentq
 from scipy.special import exp1, gamma, gammainc, gammaincc, roots_genlaguerre
 
 import lossfit as lf
 from lossfit.thermal import ATOM_DIMER, THREE_BODY, boltzmann_weight, thermal_average
 from lossfit.universal.models import get_model
 
-HBAR = sc.hbar
-KB = sc.k
-A0 = sc.physical_constants["Bohr radius"][0]
-SQRT_PI = math.sqrt(math.pi)
-S0 = brentq(lambda s: s * math.cosh(math.pi * s / 2) - 8 / math.sqrt(3) * math.sinh(math.pi * s / 6),
-            0.9, 1.1, xtol=1e-16, rtol=4 * np.finfo(float).eps)
 LAMBDA = math.exp(math.pi / S0)
 U3 = 72 * math.sqrt(3) * math.pi ** 2      # three-body J=0 bound, natural units (models.py)
 U2 = 3 * math.sqrt(3) * math.pi / 4        # atom-dimer s-wave bound, natural units

@@ -50,7 +50,7 @@ from scipy.interpolate import CubicSpline
 
 from .. import rates
 from .._bisect import interval_of
-from ..errors import LossfitValueError, ValidityWarning, check_finite, check_positive, check_times
+from ..errors import LossfitValueError, ValidityWarning, check_finite, check_positive, check_table, check_times
 from ..species import species as _lookup_species
 from .trap import as_trap
 
@@ -273,13 +273,8 @@ class TabulatedRate:
     """
 
     def __init__(self, temperature_nK, values):
-        t = check_positive("temperature_nK", temperature_nK)
-        v = check_positive("values", values)
-        if t.ndim != 1 or t.shape != v.shape or t.size < 4:
-            raise LossfitValueError("values", "need 1-d temperature_nK and values of equal length >= 4, "
-                                    f"got shapes {t.shape} and {v.shape}")
-        if np.any(np.diff(t) <= 0):
-            raise LossfitValueError("temperature_nK", "must be strictly increasing")
+        t, v = check_table("temperature_nK", check_positive("temperature_nK", temperature_nK),
+                           "values", check_positive("values", values), 4)
         self.temperature_nK = t
         self.values = v
         spline = CubicSpline(np.log(t), np.log(v))

@@ -31,7 +31,7 @@ from scipy.interpolate import PchipInterpolator
 from scipy.optimize import brentq, least_squares
 
 from ..constants import HBAR
-from ..errors import LossfitValueError, ValidityWarning, check_finite, check_positive
+from ..errors import LossfitValueError, ValidityWarning, check_finite, check_positive, check_table
 from ..species import species as _lookup_species
 from ..units import A0
 
@@ -372,13 +372,7 @@ class ScatteringLengthTable(_ScatteringLengthModel):
     """
 
     def __init__(self, B, a):
-        b = _field_array(B)
-        av = check_finite("a", a)
-        if b.ndim != 1 or b.shape != av.shape or b.size < 2:
-            raise LossfitValueError("a", "need 1-d B and a of equal length >= 2, "
-                                    f"got shapes {b.shape}, {av.shape}")
-        if np.any(np.diff(b) <= 0):
-            raise LossfitValueError("B", "must be strictly increasing")
+        b, av = check_table("B", _field_array(B), "a", check_finite("a", a), 2)
         da = np.diff(av)
         if not (np.all(da > 0) or np.all(da < 0)):
             raise LossfitValueError("a", "must be strictly monotonic in B (one branch of a(B); "

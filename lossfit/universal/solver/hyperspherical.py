@@ -31,7 +31,7 @@ returned: G is regular there.  Lengths are in units of |a|; ``inv_a`` is +1, -1
 (a > 0 or a < 0) or 0 (unitarity).
 """
 
-__all__ = ["efimov_s0", "g_function", "g_nu", "pole_list", "adiabatic_nu",
+__all__ = ["g_function", "g_nu", "pole_list", "adiabatic_nu",
            "coupling_matrix", "adiabatic_data"]
 
 import cmath
@@ -39,24 +39,11 @@ import math
 
 import numba
 import numpy as np
-from scipy.optimize import brentq
 
 _C8 = 8.0 / math.sqrt(3.0)
 _SQRT2 = math.sqrt(2.0)
 # G(s = 4) from the expansion about the removable singularity (see _g_complex).
 _G_AT_4 = -(2.0 / math.pi) * (1.0 + 2.0 * math.pi / (3.0 * math.sqrt(3.0)))
-
-
-def efimov_s0():
-    """Efimov exponent s0 solving s cosh(pi s/2) = (8/sqrt 3) sinh(pi s/6).
-
-    Returns
-    -------
-    float
-        s0 = 1.00623782... (Braaten & Hammer 2006), to ~1e-15.
-    """
-    f = lambda s: s * math.cosh(math.pi * s / 2) - _C8 * math.sinh(math.pi * s / 6)
-    return brentq(f, 0.5, 1.5, xtol=1e-16, rtol=1e-15)
 
 
 def _g_complex(s):

@@ -31,9 +31,8 @@ import numba
 import numpy as np
 import scipy.special as sp
 
-from .hyperspherical import adiabatic_nu, coupling_matrix, efimov_s0
-
-S0 = efimov_s0()
+from ...constants import S0
+from .hyperspherical import adiabatic_nu, coupling_matrix
 
 
 def make_t_grid(t0, t1, kabs, h, c_osc, refine=1):
