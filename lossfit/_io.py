@@ -89,11 +89,12 @@ def _is_hdf5(path):
         return fh.read(8) == b"\x89HDF\r\n\x1a\n"
 
 
-def read_csv_table(path, required):
+def read_csv_table(path, required, rename=None):
     """Rows (dicts of stripped strings) and column names of a CSV file with a header.
 
-    Blank lines and lines starting with ``#`` are skipped. Raises LossfitValueError
-    naming ``path`` for a missing file or missing ``required`` columns.
+    Blank lines and lines starting with ``#`` are skipped; ``rename`` maps each stripped
+    header to the name the rows use. Raises LossfitValueError naming ``path`` for a
+    missing file or missing ``required`` columns.
     """
     path = os.fspath(path)
     if not os.path.exists(path):
@@ -109,8 +110,9 @@ def read_csv_table(path, required):
         raise LossfitValueError("path", f"{path!r} is {kind}, not a CSV table"
                                 + (" (use read_spectra or read_campaign)" if kind == "an HDF5 file" else "")) from None
     reader = csv.DictReader(lines, skipinitialspace=True)
-    rows = [{(k or "").strip(): (v or "").strip() for k, v in r.items()} for r in reader]
-    columns = [c.strip() for c in (reader.fieldnames or [])]
+    rename = rename or (lambda c: c)
+    rows = [{rename((k or "").strip()): (v or "").strip() for k, v in r.items()} for r in reader]
+    columns = [rename(c.strip()) for c in (reader.fieldnames or [])]
     missing = [c for c in required if c not in columns]
     if missing:
         raise LossfitValueError("path", f"{path!r} lacks column(s) {missing}; header is {columns}")

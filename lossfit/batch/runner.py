@@ -15,7 +15,7 @@ the *same* job is resumed; one holding a different job, or finished results, is 
 overwritten without ``overwrite=True``.
 """
 
-__all__ = ["run_job", "report", "EXIT_OK", "EXIT_BAD_INPUT", "EXIT_CONFLICT", "EXIT_INTERRUPTED"]
+__all__ = ["run_job", "report", "load_result", "EXIT_OK", "EXIT_BAD_INPUT", "EXIT_CONFLICT", "EXIT_INTERRUPTED"]
 
 import json
 import os
@@ -229,19 +229,35 @@ def run_job(job_path, out_dir, *, pool="serial", workers=None, steps=None, overw
             pool_obj.join()
 
 
-def report(out_dir, *, overwrite=False, stream=None):
-    """Re-create summary.json, corner.png and spectrum.png from the stored chain."""
+def load_result(run_dir):
+    """The FitResult of a ``lossfit run`` folder, rebuilt from its chain and the job stored
+    with it (finished or stopped runs; the data files must still be where the job names them).
 
-    stream = stream or sys.stdout
-    out_dir = os.fspath(out_dir)
-    chains = os.path.join(out_dir, "chains.h5")
+    Parameters
+    ----------
+    run_dir : str or path-like
+        Output folder of ``lossfit run`` or ``lossfit demo``.
+
+    Returns
+    -------
+    FitResult
+        Its ``to_dict()`` equals the folder's ``summary.json`` without ``provenance``.
+    """
+    run_dir = os.fspath(run_dir)
+    chains = os.path.join(run_dir, "chains.h5")
+    if not os.path.isfile(chains):
+        raise LossfitValueError("run_dir", f"{run_dir!r} holds no chains.h5 (not a lossfit run folder?)")
     stored = read_chain_file(chains)
-    present = [n for n in OUTPUTS[1:] if os.path.exists(os.path.join(out_dir, n))]
-    if present and not overwrite:
-        raise OutputConflict(f"{out_dir!r} already holds {present}; pass --overwrite to re-create them")
     meta = stored["metadata"]
+    if "job_text" not in meta:
+        raise LossfitValueError("run_dir", f"{chains!r} carries no job (not written by lossfit run)")
     job = parse_job(meta["job_text"], meta["job_path"])
-    with FolderLock(out_dir), warnings.catch_warnings():
+    summary_path = os.path.join(run_dir, "summary.json")
+    recorded = None
+    if os.path.isfile(summary_path):
+        with open(summary_path) as fh:
+            recorded = json.load(fh).get("settings")
+    with warnings.catch_warnings():
         warnings.simplefilter("ignore", ValidityWarning)
         data = job.load_data()
         kw = job.fit_kwargs()
@@ -256,10 +272,22 @@ def report(out_dir, *, overwrite=False, stream=None):
             likelihood.refresh(space.efimov(vals), vals)
         else:
             space, likelihood, _ = prepare(data, **common)
-        result = make_result(space, likelihood, stored["chain"], stored["log_prob"],
-                             stored["accepted"] / max(stored["iteration"], 1), burn=kw["burn"],
-                             thin=kw["thin"], settings={"walkers": kw["walkers"], "seed": kw["seed"],
-                                                        "steps": stored["iteration"]})
-        write_outputs(result, out_dir, meta)
+        # the run's own record of its settings where it has one (they are not recomputed)
+        settings = recorded or {"walkers": kw["walkers"], "seed": kw["seed"], "steps": stored["iteration"]}
+        return make_result(space, likelihood, stored["chain"], stored["log_prob"],
+                           stored["accepted"] / max(stored["iteration"], 1), burn=kw["burn"],
+                           thin=kw["thin"], settings=settings)
+
+
+def report(out_dir, *, overwrite=False, stream=None):
+    """Re-create summary.json, corner.png and spectrum.png from the stored chain."""
+    stream = stream or sys.stdout
+    out_dir = os.fspath(out_dir)
+    present = [n for n in OUTPUTS[1:] if os.path.exists(os.path.join(out_dir, n))]
+    if present and not overwrite:
+        raise OutputConflict(f"{out_dir!r} already holds {present}; pass --overwrite to re-create them")
+    with FolderLock(out_dir):
+        result = load_result(out_dir)
+        write_outputs(result, out_dir, read_chain_file(os.path.join(out_dir, "chains.h5"))["metadata"])
     print(result.table(), file=stream)
     return result

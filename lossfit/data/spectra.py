@@ -10,18 +10,24 @@ File attributes: ``schema = "lossfit.spectra"``, ``schema_version = 1``,
 unknown schema or a newer version.
 
 CSV import: a header line naming the columns ``a``, ``temperature``, ``value``,
-``error`` (any order, extra columns ignored); ``#`` starts a comment line.
+``error`` (any order, extra columns ignored; ``L3``/``beta`` and ``L3_err``/``beta_err``
+stand for value and error); ``#`` starts a comment line. A header may give its unit in
+parentheses, ``a (nm)``, ``temperature (uK)``, ``L3 (m^6/s)`` (:data:`lossfit.units.COLUMN_UNITS`),
+and the values are converted to a0, nK and cm^6/s or cm^3/s; an unknown unit is an error.
+A byte-order mark (spreadsheet programs write one) is ignored.
 """
 
 __all__ = ["LossSpectrum", "write_spectra", "read_spectra", "read_csv", "SCHEMA", "SCHEMA_VERSION"]
 
 import os
+import re
 
 import h5py
 import numpy as np
 
 from .._io import atomic_path, open_checked_h5, read_csv_table, write_h5_header
 from ..errors import LossfitValueError, check_finite, check_nonzero, check_positive
+from ..units import COLUMN_UNITS
 
 SCHEMA = "lossfit.spectra"
 SCHEMA_VERSION = 1
@@ -168,11 +174,29 @@ def read_csv(path, *, kind="l3", label=None, species=None):
     Units as in :class:`LossSpectrum` (a0, nK, cm^6/s or cm^3/s).
     """
     path = os.fspath(path)
-    rows, _ = read_csv_table(path, ("a", "temperature", "value", "error"))
+    if kind not in KINDS:
+        raise LossfitValueError("kind", f"must be one of {sorted(KINDS)}, got {kind!r}")
+    factors = {}
+    aliases = {kind: "value", f"{kind}_err": "error"}
+
+    def rename(header):
+        m = re.fullmatch(r"\s*([^()]*?)\s*(?:\(([^()]*)\))?\s*", header)
+        name, unit = m.group(1), m.group(2)
+        canonical = aliases.get(name.lower(), name)
+        if unit is not None and canonical in ("a", "temperature", "value", "error"):
+            table = COLUMN_UNITS["a" if canonical == "a" else "temperature" if canonical == "temperature" else kind]
+            key = unit.strip().lower().replace(" ", "")
+            if key not in table:
+                raise LossfitValueError("path", f"{path!r}: column {header!r} has unit {unit!r}; known: "
+                                        f"{sorted(table)}")
+            factors[canonical] = table[key]
+        return canonical
+
+    rows, _ = read_csv_table(path, ("a", "temperature", "value", "error"), rename=rename)
     cols = {}
     for c in ("a", "temperature", "value", "error"):
         try:
-            cols[c] = [float(r[c]) for r in rows]
+            cols[c] = [float(r[c]) * factors.get(c, 1.0) for r in rows]
         except (TypeError, ValueError) as err:
             raise LossfitValueError("path", f"{path!r}: column {c!r} has a non-numeric entry ({err})") from None
     return LossSpectrum(cols["a"], cols["temperature"], cols["value"], cols["error"], kind=kind,

@@ -5,6 +5,7 @@ __all__ = ["FitResult"]
 import html
 import json
 import math
+import os
 import warnings
 
 import numpy as np
@@ -287,6 +288,67 @@ class FitResult:
                 "outside_validity": self.outside_validity,
                 "fit_checks": {k: ([r.tolist() for r in v] if k == "residuals" else clean(v))
                                for k, v in self.fit_checks.items()}}
+
+    # ---- exports --------------------------------------------------------------------
+    def _kept_physical(self):
+        """Kept samples in physical units, shape (steps kept, walkers, ndim), and their steps."""
+        kept = self.chain[self.burn::self.thin]
+        phys = self.space.physical(kept.reshape(-1, kept.shape[2])).reshape(kept.shape)
+        return phys, np.arange(self.burn, self.chain.shape[0], self.thin)
+
+    def to_dataframe(self):
+        """The kept posterior samples as a pandas DataFrame: columns ``walker``, ``step``
+        and one per free parameter (physical units; rows in the order of ``samples``).
+        Needs pandas (``pip install 'lossfit[arviz]'`` brings it)."""
+        import pandas as pd  # optional dependency: only this export needs it
+
+        phys, steps = self._kept_physical()
+        n_steps, n_walkers, _ = phys.shape
+        columns = {"walker": np.tile(np.arange(n_walkers), n_steps), "step": np.repeat(steps, n_walkers)}
+        columns.update({n: phys[:, :, i].ravel() for i, n in enumerate(self.names)})
+        return pd.DataFrame(columns)
+
+    def to_arviz(self, *, predictive=True, seed=0):
+        """ArviZ's data object for the installed ArviZ (InferenceData; a DataTree from ArviZ
+        1.0 on): the posterior with one chain per walker, ``sample_stats.lp``, and for
+        spectrum fits the observed data, the pointwise log likelihood and a posterior
+        predictive draw per sample (data = model + error x N(0, 1), seeded), so that ArviZ's
+        diagnostics, LOO and plots work. Needs ArviZ (``pip install 'lossfit[arviz]'``)."""
+        import arviz as az  # optional dependency: only this export needs it
+
+        phys, steps = self._kept_physical()
+        groups = {"posterior": {n: phys[:, :, i].T for i, n in enumerate(self.names)},
+                  "sample_stats": {"lp": self.log_prob[self.burn::self.thin].T}}
+        dims, coords = {}, {"draw": steps}
+        if predictive and isinstance(self.likelihood, SpectrumLikelihood):
+            spectra = self.likelihood.spectra
+            value = np.concatenate([s.value for s in spectra])
+            error = np.concatenate([s.error for s in spectra])
+            kept = self.chain[self.burn::self.thin]
+            mu = np.empty(kept.shape[:2] + (value.size,))
+            for j in range(kept.shape[0]):
+                for w in range(kept.shape[1]):
+                    vals = self.space.values(kept[j, w])
+                    mu[j, w] = np.concatenate(self.likelihood.predict(self.space.efimov(vals),
+                                                                      vals.get("density_scale", 1.0)))
+            mu = mu.transpose(1, 0, 2)
+            z = (value - mu) / error
+            rng = np.random.default_rng(seed)
+            groups["observed_data"] = {"y": value}
+            groups["posterior_predictive"] = {"y": mu + error * rng.standard_normal(mu.shape)}
+            groups["log_likelihood"] = {"y": -0.5 * z * z - np.log(error * math.sqrt(2.0 * math.pi))}
+            dims = {"y": ["point"]}
+            coords["point"] = np.arange(value.size)
+        if int(az.__version__.split(".")[0]) >= 1:
+            return az.from_dict(groups, dims=dims, coords=coords)
+        return az.from_dict(**groups, dims=dims, coords=coords)
+
+    def to_netcdf(self, path, *, overwrite=False):
+        """Write :meth:`to_arviz` to a netCDF file (ArviZ's format), atomically."""
+        data = self.to_arviz()
+        with atomic_path(path, overwrite=overwrite) as tmp:
+            data.to_netcdf(tmp)
+        return os.fspath(path)
 
     def write_json(self, path, *, overwrite=False):
         """Write :meth:`to_dict` atomically (temporary file, then rename)."""

@@ -117,3 +117,16 @@ def test_csv_import(tmp_path):
     worse.write_text("a,temperature,value,error\n-500,fifty,1e-24,1e-25\n")
     with pytest.raises(LossfitValueError, match="non-numeric"):
         lf.read_csv(worse)
+
+
+def test_csv_units_in_headers_are_converted(tmp_path):
+    # "a (nm)", "temperature (uK)", "L3 (m^6/s)": converted to a0, nK, cm^6/s
+    # (1 nm = 18.8973 a0, CODATA; 1 m^6/s = 1e12 cm^6/s)
+    path = tmp_path / "units.csv"
+    path.write_text("a (nm),temperature (uK),L3 (m^6/s),L3_err (m^6/s)\n-50,0.05,1e-36,1e-37\n")
+    s = lf.read_csv(path)
+    assert s.a[0] == pytest.approx(-50 * 18.8972612, rel=1e-8)
+    assert s.temperature[0] == pytest.approx(50.0) and s.value[0] == pytest.approx(1e-24)
+    path.write_text("a (furlong),temperature,value,error\n-50,50,1e-24,1e-25\n")
+    with pytest.raises(lf.LossfitValueError, match="furlong"):
+        lf.read_csv(path)
