@@ -22,7 +22,7 @@ import sys
 import warnings
 
 from ._version import __version__
-from .batch.demo import run_curves_demo, run_demo
+from .batch.demo import CURVES_DEMO_STEPS, run_curves_demo, run_demo
 from .batch.runner import EXIT_BAD_INPUT, EXIT_CONFLICT, EXIT_INTERRUPTED, EXIT_OK, OutputConflict, report, run_job
 from .errors import LossfitValueError
 from .inference.pools import mpi_size
@@ -38,12 +38,15 @@ EXIT_CODES = f"""exit codes:
 
 def _cmd_demo(args):
     progress = None if not args.quiet else False
-    if args.from_curves:
-        run_curves_demo(args.out, walkers=args.walkers or 16, steps=args.steps or 1500, seed=args.seed,
-                        overwrite=args.overwrite, progress=progress)
-    else:
-        run_demo(args.out, walkers=args.walkers or 32, steps=args.steps or 5000, seed=args.seed,
-                 overwrite=args.overwrite, progress=progress)
+    with warnings.catch_warnings():
+        if args.quiet:
+            warnings.simplefilter("ignore")
+        if args.from_curves:
+            run_curves_demo(args.out, walkers=args.walkers or 16, steps=args.steps or CURVES_DEMO_STEPS, seed=args.seed,
+                            overwrite=args.overwrite, progress=progress, quiet=args.quiet)
+        else:
+            run_demo(args.out, walkers=args.walkers or 32, steps=args.steps or 5000, seed=args.seed,
+                     overwrite=args.overwrite, progress=progress, quiet=args.quiet)
     return 0
 
 
@@ -85,10 +88,11 @@ def build_parser():
     demo.add_argument("--from-curves", action="store_true",
                       help="start from invented raw decay curves (global fit) instead of spectra")
     demo.add_argument("--walkers", type=int, default=None, help="default 32 (16 with --from-curves)")
-    demo.add_argument("--steps", type=int, default=None, help="default 5000 (1500 with --from-curves)")
+    demo.add_argument("--steps", type=int, default=None, help=f"default 5000 ({CURVES_DEMO_STEPS} with --from-curves)")
     demo.add_argument("--seed", type=int, default=1)
     demo.add_argument("--overwrite", action="store_true", help="replace results already in --out")
-    demo.add_argument("--quiet", action="store_true", help="no progress bar")
+    demo.add_argument("--quiet", action="store_true", help="print nothing but errors (warnings are kept in "
+                      "summary.json)")
     demo.set_defaults(func=_cmd_demo)
     run = sub.add_parser("run", help="run or resume a job file (TOML)", epilog=EXIT_CODES,
                          formatter_class=argparse.RawDescriptionHelpFormatter)

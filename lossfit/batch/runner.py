@@ -24,6 +24,7 @@ import sys
 import time
 import warnings
 
+import matplotlib.pyplot as plt
 import numpy as np
 
 from .._io import atomic_path
@@ -118,11 +119,7 @@ def _atomic_savefig(fig, path):
 
 def write_outputs(result, out_dir, provenance_info, *, truths=None):
     """summary.json, corner.png and spectrum.png (each written atomically)."""
-    # matplotlib's backend must be chosen before pyplot loads: a batch job has no screen
-    import matplotlib
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
+    # figures are only saved: any backend does (matplotlib picks Agg where there is no screen)
     summary = result.to_dict()
     summary["provenance"] = provenance_info
     _atomic_write_text(os.path.join(out_dir, "summary.json"), json.dumps(summary, indent=2, default=str))

@@ -6,6 +6,7 @@ import math
 
 import matplotlib.pyplot as plt
 import numpy as np
+from matplotlib.ticker import MaxNLocator
 
 from ..data.curves import check_curves
 from ..errors import LossfitValueError
@@ -113,16 +114,19 @@ def curves_plot(curves=None, *, fits=None, result=None, species=None, ncols=5, m
             axr.plot(c.t, (c.atoms - at_data) / c.atoms_err, "o", ms=2.5, color=line.get_color())
         axr.axhline(0.0, color="0.5", lw=0.7)
         axr.set_ylim(-4, 4)
-        ax.set_title(c.label, fontsize=7)
-        ax.tick_params(labelsize=6, labelbottom=False)
-        axr.tick_params(labelsize=6)
+        ax.set_title(c.label, fontsize=9)
+        ax.tick_params(labelsize=8, labelbottom=False)
+        axr.tick_params(labelsize=8)
+        # at most 4 time ticks: the hold-time labels of neighbouring panels must not collide
+        axr.xaxis.set_major_locator(MaxNLocator(nbins=4, prune="upper"))
+        ax.yaxis.get_offset_text().set_fontsize(8)
         if j % ncols == 0:
-            ax.set_ylabel("dimers" if c.kind == "dimers" else "atoms", fontsize=7)
-            axr.set_ylabel("resid. (σ)", fontsize=7)
+            ax.set_ylabel("dimers" if c.kind == "dimers" else "atoms", fontsize=9)
+            axr.set_ylabel("resid. (σ)", fontsize=9)
         if j // ncols == nrows - 1 or j + ncols >= n:
-            axr.set_xlabel("hold time (s)", fontsize=7)
+            axr.set_xlabel("hold time (s)", fontsize=9)
         if j == 0:
-            ax.legend(fontsize=6)
+            ax.legend(fontsize=8)
     return fig
 
 

@@ -7,6 +7,7 @@ import os
 import corner
 import matplotlib.pyplot as plt
 import numpy as np
+from matplotlib.lines import Line2D
 
 from ..errors import LossfitValueError
 from ..inference.likelihood import RateBlock
@@ -19,9 +20,30 @@ _LABELS = {"a_minus": r"$a_-$", "a_star": r"$a_*$", "a_plus": r"$a_+$", "eta_min
            "b0": r"$B_0$", "width": r"$\Delta$", "a_bg": r"$a_\mathrm{bg}$", "sigma_B": r"$\sigma_B$"}
 
 
+_UNIT_LABELS = {"a0": r"$a_0$", "G": "G"}
+
+
 def _label(name):
     unit = UNITS.get(name, "")
-    return _LABELS.get(name, name) + (f" ({unit})" if unit else "")
+    return _LABELS.get(name, name) + (f" ({_UNIT_LABELS.get(unit, unit)})" if unit else "")
+
+
+def _title(name, samples):
+    """``name = median^{+hi}_{-lo} unit`` with the errors to two significant digits and the
+    median to the same decimal place (no exponent notation for lab-sized numbers)."""
+    q16, q50, q84 = np.percentile(samples, [16, 50, 84])
+    lo, hi = q50 - q16, q84 - q50
+    smallest = min(v for v in (lo, hi, abs(q50)) if v > 0) if any(v > 0 for v in (lo, hi, abs(q50))) else 1.0
+    decimals = max(0, 1 - int(np.floor(np.log10(smallest))))
+    body = f"{q50:.{decimals}f}^{{+{hi:.{decimals}f}}}_{{-{lo:.{decimals}f}}}"
+    symbol = _LABELS.get(name, name)
+    if symbol.startswith("$"):
+        symbol = symbol.strip("$")
+    else:
+        symbol = r"\mathrm{" + symbol.replace(" ", r"\ ") + "}"
+    unit = UNITS.get(name, "")
+    unit = {"a0": r"\,a_0", "G": r"\,\mathrm{G}"}.get(unit, "")
+    return f"${symbol} = {body}{unit}$"
 
 
 def corner_plot(result, *, truths=None, fig=None, **corner_kwargs):
@@ -42,11 +64,20 @@ def corner_plot(result, *, truths=None, fig=None, **corner_kwargs):
     """
     x = np.column_stack([result.samples[n] for n in result.names])
     kw = dict(labels=[_label(n) for n in result.names], quantiles=[0.16, 0.5, 0.84],
-              show_titles=True, title_fmt=".3g", levels=(0.68, 0.95), plot_datapoints=False)
+              show_titles=False, levels=(0.68, 0.95), plot_datapoints=False, labelpad=0.05)
     if truths is not None:
         kw["truths"] = [truths.get(n) for n in result.names]
     kw.update(corner_kwargs)
-    return corner.corner(x, fig=fig, **kw)
+    fig = corner.corner(x, fig=fig, **kw)
+    n = len(result.names)
+    diagonal = [fig.axes[i * (n + 1)] for i in range(n)]
+    for ax, name in zip(diagonal, result.names):
+        ax.set_title(_title(name, result.samples[name]), fontsize=10)
+    handles = [Line2D([], [], color="k", ls="--", lw=1, label="16, 50, 84 % quantiles")]
+    if truths is not None:
+        handles.append(Line2D([], [], color=kw.get("truth_color", "#4682b4"), lw=1.5, label="true values"))
+    fig.legend(handles=handles, loc="upper right", fontsize=10, frameon=False)
+    return fig
 
 
 def posterior_bands(result, a, temperature, kind, *, draws=200, seed=0):
@@ -89,6 +120,14 @@ def _panels(spectra):
     return panels
 
 
+def _temperature_label(t):
+    """A temperature as given (15 -> "15 nK"); a derived one such as a group median to
+    three digits (90.2559 -> "≈90.3 nK")."""
+    given = f"{t:g}"
+    digits = sum(ch.isdigit() for ch in given.lstrip("0.").split("e")[0])
+    return f"{given} nK" if digits <= 4 else f"≈{t:.3g} nK"
+
+
 def spectrum_plot(result, *, draws=200, points=160, seed=0, fig=None):
     """Data with error bars, the posterior median model and 68/95 % bands on log axes.
 
@@ -116,7 +155,7 @@ def spectrum_plot(result, *, draws=200, points=160, seed=0, fig=None):
             band = posterior_bands(result, sign * grid, t, kind, draws=draws, seed=seed)
             ax.fill_between(grid, band["lo95"], band["hi95"], color=c, alpha=0.15, lw=0)
             ax.fill_between(grid, band["lo68"], band["hi68"], color=c, alpha=0.3, lw=0)
-            ax.plot(grid, band["median"], color=c, lw=1.5, label=f"{t:g} nK")
+            ax.plot(grid, band["median"], color=c, lw=1.5, label=_temperature_label(t))
             for s, m in members:
                 sel = m & (s.temperature == t)
                 if sel.any():

@@ -36,7 +36,7 @@ def _lossfit(*args, **kw):
 @pytest.mark.slow
 def test_demo_writes_all_outputs_and_refuses_to_overwrite(tmp_path):
     out = tmp_path / "demo"
-    proc = _lossfit("demo", "--out", str(out), "--steps", "600", "--quiet")
+    proc = _lossfit("demo", "--out", str(out), "--steps", "600")
     assert proc.returncode == 0, proc.stderr
     for name in ("data.h5", "chains.h5", "summary.json", "corner.png", "spectrum.png"):
         assert (out / name).stat().st_size > 0
@@ -60,9 +60,13 @@ def test_demo_from_raw_curves(tmp_path):
     out = tmp_path / "curves-demo"
     proc = _lossfit("demo", "--from-curves", "--out", str(out), "--steps", "300", "--walkers", "12", "--quiet")
     assert proc.returncode == 0, proc.stderr
-    for name in ("campaign.h5", "chains.h5", "summary.json", "curves.png", "spectrum.png", "corner.png"):
+    for name in ("campaign.h5", "job.toml", "chains.h5", "summary.json", "curves.png", "spectrum.png", "corner.png"):
         assert (out / name).stat().st_size > 0
+    assert proc.stdout == ""                             # --quiet: nothing but errors
     summary = json.loads((out / "summary.json").read_text())
-    assert "invented" in summary["provenance"]["scenario"]
+    # the demo wrote its campaign job and ran it as lossfit run does
+    assert (out / "job.toml").read_text() == summary["provenance"]["job_text"]
+    job_text = summary["provenance"]["job_text"]
+    assert "invented" in job_text and 'campaign = "campaign.h5"' in job_text
     assert {r["name"] for r in summary["summary"]} >= {"a_minus", "eta_minus", "density_scale",
                                                        "temperature_scale"}

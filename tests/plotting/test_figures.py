@@ -89,6 +89,11 @@ def test_corner_plot(spectrum_result, tmp_path):
     result, truth = spectrum_result
     fig = corner_plot(result, truths={"a_minus": truth["a_minus"], "eta_minus": truth["eta_minus"]})
     assert len(fig.axes) == 4
+    # readable titles: typeset symbol and unit, no exponent notation; truths in a legend
+    title = fig.axes[0].get_title()
+    assert title.startswith("$a_- = -9") and r"\,a_0$" in title and "e+" not in title
+    assert r"($a_0$)" in fig.axes[2].get_xlabel()
+    assert "true values" in [t.get_text() for t in fig.legends[0].get_texts()]
     _check(fig, "corner_plot", tmp_path)
 
 
