@@ -1,9 +1,12 @@
-"""Reference values computed independently of lossfit, shared by the tests at this level:
-CODATA constants from scipy and s0 from its transcendental equation by scipy's brentq
-(Braaten & Hammer, Phys. Rep. 428, 259 (2006): s cosh(pi s/2) = (8/sqrt 3) sinh(pi s/6))."""
+"""Reference values computed independently of lossfit, shared by the tests at this level
+and the benchmarks (benchmarks/_reference.py): CODATA constants from scipy, s0 from its
+transcendental equation by scipy's brentq (Braaten & Hammer, Phys. Rep. 428, 259 (2006):
+s cosh(pi s/2) = (8/sqrt 3) sinh(pi s/6)), and probe kernels for the quadrature engine
+(a Breit-Wigner line of unit area, with and without its feature points)."""
 
 import math
 
+import numba
 import numpy as np
 import scipy.constants as sc
 from scipy.optimize import brentq
@@ -14,3 +17,23 @@ A0 = sc.physical_constants["Bohr radius"][0]
 SQRT_PI = math.sqrt(math.pi)
 S0 = brentq(lambda s: s * math.cosh(math.pi * s / 2) - 8 / math.sqrt(3) * math.sinh(math.pi * s / 6),
             0.9, 1.1, xtol=1e-16, rtol=4 * np.finfo(float).eps)
+
+
+@numba.njit
+def no_features(p, out):
+    return 0
+
+
+@numba.njit
+def k_lorentz(x, p):
+    # Breit-Wigner line in energy, unit area in x: (g/pi) / ((x - c)^2 + g^2); p = [c, g].
+    d = x - p[0]
+    return p[1] / math.pi / (d * d + p[1] * p[1])
+
+
+@numba.njit
+def lorentz_features(p, out):
+    out[0] = p[0] - p[1]
+    out[1] = p[0]
+    out[2] = p[0] + p[1]
+    return 3

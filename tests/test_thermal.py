@@ -22,7 +22,7 @@ import math
 import numba
 import numpy as np
 import pytest
-from independent import A0, HBAR, KB, S0, SQRT_PI
+from independent import A0, HBAR, KB, S0, SQRT_PI, k_lorentz, lorentz_features, no_features
 from scipy.integrate import quad
 from scipy.special import exp1, gamma, gammainc, gammaincc, roots_genlaguerre
 
@@ -80,11 +80,6 @@ def k_power(x, p):
 
 
 @numba.njit
-def no_features(p, out):
-    return 0
-
-
-@numba.njit
 def k_step(x, p):
     # p = [x0, below, above]
     return p[1] if x < p[0] else p[2]
@@ -94,21 +89,6 @@ def k_step(x, p):
 def step_features(p, out):
     out[0] = p[0]
     return 1
-
-
-@numba.njit
-def k_lorentz(x, p):
-    # Breit-Wigner line in energy, unit area in x: (g/pi) / ((x - c)^2 + g^2); p = [c, g].
-    d = x - p[0]
-    return p[1] / math.pi / (d * d + p[1] * p[1])
-
-
-@numba.njit
-def lorentz_features(p, out):
-    out[0] = p[0] - p[1]
-    out[1] = p[0]
-    out[2] = p[0] + p[1]
-    return 3
 
 
 def lorentz_py(c, g):
