@@ -66,6 +66,7 @@ from ..experiment.trap import as_trap
 from ..species import species as _lookup_species
 from ..universal.models import get_model
 from .campaign_space import RESONANCE_NAMES
+from .fit_checks import chi2_summary, poor_fit_message, temperature_plausibility
 from .likelihood import RateBlock
 
 # The decay integrator's tolerance: 1e-6 relative is far below counting noise and keeps a
@@ -423,6 +424,19 @@ class CurvesLikelihood:
         except LossfitValueError:
             return -math.inf     # T(t) left the table or the integrator failed: outside support
         return -0.5 * chi2 if math.isfinite(chi2) else -math.inf
+
+    def fit_check(self, space, kept_theta, median_values):
+        """(checks dict, messages) of a finished fit: chi^2 of the curves (and the initial-value
+        constraints) at the posterior medians with the nuisances re-solved there, per degree
+        of freedom (residuals minus nuisances minus sampled parameters), and the temperatures'
+        plausibility. No posterior-predictive p here: replicating raw curves would need the
+        nuisances of every draw (:mod:`lossfit.inference.fit_checks`)."""
+        chi2 = -2.0 * self.given_values(space.efimov(median_values), median_values)
+        checks = chi2_summary(chi2, self.n_res - int(self.active.sum()) - space.ndim)
+        messages = [m for m in (temperature_plausibility(f"curve {j} ({c.label})", c.temperature)
+                                for j, c in enumerate(self.curves)) if m]
+        poor = poor_fit_message(checks)
+        return checks, messages + ([poor] if poor else [])
 
     def _flat_owner(self):
         # (curve, slot) pairs of the padded residual layout, in residual order

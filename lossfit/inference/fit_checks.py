@@ -1,9 +1,11 @@
 """Checks of a finished fit against its data and its inputs.
 
-* **Goodness of fit** (spectrum fits): chi^2 of the data at the posterior medians per
-  degree of freedom (points minus free parameters), its chi^2 tail probability, and the
-  standardized residuals (data - model)/error of every point.
-* **Posterior-predictive p-value** (Gelman, Meng & Stern, Statistica Sinica 6, 733
+* **Goodness of fit**: chi^2 of the data at the posterior medians per degree of freedom,
+  its chi^2 tail probability, and (spectrum fits) the standardized residuals
+  (data - model)/error of every point. Spectrum fits: points minus free parameters;
+  decay-curve fits (:meth:`CurvesLikelihood.fit_check`): residuals minus per-curve
+  nuisances minus sampled parameters, with the nuisances re-solved at the medians.
+* **Posterior-predictive p-value** (spectrum fits; Gelman, Meng & Stern, Statistica Sinica 6, 733
   (1996)): for posterior draws theta_j, replicated data y_rep = mu(theta_j) + error x N(0, 1)
   and the discrepancy T = sum((y - mu(theta_j))/error)^2; p = P(T(y_rep) >= T(y)). A p
   near 0 says the model (or the error bars) cannot produce data like these.
@@ -16,12 +18,13 @@
   as cm^6/s is far below it, one in cm^6/s at a temperature 1000x too low far above), and a
   data file recorded for another species than the fit's.
 
-Each check returns plain numbers and messages; :class:`lossfit.inference.result.FitResult`
-shows them in its table, HTML view and ``to_dict``.
+Each likelihood's ``fit_check`` runs the checks that apply to it and returns plain numbers
+and messages; :class:`lossfit.inference.result.FitResult` shows them in its table, HTML
+view and ``to_dict``.
 """
 
-__all__ = ["goodness_of_fit", "prior_bound_pileup", "input_plausibility", "PILEUP_FRACTION",
-           "PILEUP_EDGE", "TEMPERATURE_RANGE_NK", "UNITARITY_MARGIN"]
+__all__ = ["goodness_of_fit", "chi2_summary", "poor_fit_message", "prior_bound_pileup", "input_plausibility",
+           "temperature_plausibility", "PILEUP_FRACTION", "PILEUP_EDGE", "TEMPERATURE_RANGE_NK", "UNITARITY_MARGIN"]
 
 import math
 
@@ -79,9 +82,34 @@ def goodness_of_fit(likelihood, space, kept_theta, median_values, *, draws=200, 
         t_obs = sum(float(np.sum(((v - m) / e) ** 2)) for v, m, e in zip(value, mu, error))
         t_rep = float(np.sum(rng.standard_normal(n) ** 2))
         exceed += t_rep >= t_obs
-    return {"chi2": chi2, "dof": dof, "chi2_per_dof": chi2 / dof if dof > 0 else math.nan,
-            "p_chi2": float(chdtrc(dof, chi2)) if dof > 0 else math.nan,
-            "ppp": exceed / idx.size, "residuals": residuals}
+    return dict(chi2_summary(chi2, dof), ppp=exceed / idx.size, residuals=residuals)
+
+
+def chi2_summary(chi2, dof):
+    """chi^2, degrees of freedom, chi^2 per degree of freedom and its tail probability."""
+    return {"chi2": float(chi2), "dof": int(dof), "chi2_per_dof": chi2 / dof if dof > 0 else math.nan,
+            "p_chi2": float(chdtrc(dof, chi2)) if dof > 0 else math.nan}
+
+
+def poor_fit_message(checks):
+    """The warning for a goodness of fit that the model cannot produce, or None."""
+    ppp = checks.get("ppp", math.nan)
+    if checks["dof"] > 0 and (checks["p_chi2"] < 1e-3 or ppp < 0.01):
+        predictive = f", posterior-predictive p = {ppp:.2g}" if math.isfinite(ppp) else ""
+        return (f"poor fit: chi2/dof = {checks['chi2_per_dof']:.3g} ({checks['dof']} dof, p = "
+                f"{checks['p_chi2']:.2g}){predictive}: the model does not describe these data (check units, "
+                "temperatures, species and error bars)")
+    return None
+
+
+def temperature_plausibility(label, temperature_nk):
+    """A message if temperatures lie outside :data:`TEMPERATURE_RANGE_NK`, else None."""
+    lo, hi = TEMPERATURE_RANGE_NK
+    t = np.asarray(temperature_nk, dtype=float)
+    if np.any(t < lo) or np.any(t > hi):
+        return (f"{label}: temperatures {t.min():.3g}..{t.max():.3g} nK lie outside {lo:g}..{hi:g} nK; "
+                "lossfit takes nK (a value in uK reads 1000x too cold)")
+    return None
 
 
 def prior_bound_pileup(space, kept_theta):
@@ -108,13 +136,12 @@ def prior_bound_pileup(space, kept_theta):
 def input_plausibility(spectra, species):
     """Messages for inputs whose magnitude suggests a unit slip, and for a species mismatch."""
     out = []
-    lo, hi = TEMPERATURE_RANGE_NK
     for i, s in enumerate(spectra):
         label = f"spectrum {i} ({s.label})"
         t = np.broadcast_to(s.temperature, s.a.shape)
-        if np.any(t < lo) or np.any(t > hi):
-            out.append(f"{label}: temperatures {t.min():.3g}..{t.max():.3g} nK lie outside {lo:g}..{hi:g} nK; "
-                       "lossfit takes nK (a value in uK reads 1000x too cold)")
+        message = temperature_plausibility(label, t)
+        if message:
+            out.append(message)
         check = s.a < 0 if s.kind == "l3" else np.ones(s.a.shape, dtype=bool)
         if np.any(check):
             ratio = s.value[check] / unitarity_bound(s.kind, t[check], species)

@@ -21,6 +21,7 @@ from ..thermal import ATOM_DIMER, THREE_BODY
 from ..units import NK
 from ..universal.averages import ETA_MIN
 from ..universal.models import get_model, scale_wavenumber_a0
+from .fit_checks import goodness_of_fit, input_plausibility, poor_fit_message
 
 
 class RateBlock:
@@ -148,6 +149,13 @@ class SpectrumLikelihood:
     def given_values(self, efimov, values):
         """log L for the Efimov set and a dict of every parameter value (nuisances)."""
         return self(efimov, values.get("density_scale", 1.0))
+
+    def fit_check(self, space, kept_theta, median_values):
+        """(checks dict, messages) of a finished fit (:mod:`lossfit.inference.fit_checks`)."""
+        checks = goodness_of_fit(self, space, kept_theta, median_values)
+        messages = input_plausibility(self.spectra, self.species)
+        poor = poor_fit_message(checks)
+        return checks, messages + ([poor] if poor else [])
 
     def __call__(self, efimov, density_scale=1.0):
         total = 0.0

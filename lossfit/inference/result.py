@@ -16,7 +16,7 @@ from ..efimov import Efimov
 from ..errors import ConvergenceWarning, FitCheckWarning
 from ..rates import validity_flags
 from .diagnostics import MIN_STEPS_PER_TAU, autocorrelation_times, split_rhat
-from .fit_checks import goodness_of_fit, input_plausibility, prior_bound_pileup
+from .fit_checks import prior_bound_pileup
 from .likelihood import SpectrumLikelihood
 from .parameters import UNITS
 
@@ -73,9 +73,9 @@ class FitResult:
         Data points outside the zero-range theory's range: spectrum index, point index,
         a (a0), T (nK) and reasons ("|a| < 5 r_vdW", "k_B T > 0.1 E_vdW").
     fit_checks : dict
-        Spectrum fits: ``chi2``, ``dof``, ``chi2_per_dof``, ``p_chi2`` at the posterior
-        medians, the posterior-predictive ``ppp`` and the standardized ``residuals`` per
-        spectrum (:mod:`lossfit.inference.fit_checks`); empty for decay-curve fits.
+        ``chi2``, ``dof``, ``chi2_per_dof``, ``p_chi2`` at the posterior medians; spectrum
+        fits add the posterior-predictive ``ppp`` and the standardized ``residuals`` per
+        spectrum (:mod:`lossfit.inference.fit_checks`).
     check_warnings : list of str
         Failed fit checks (poor fit, posterior on a prior bound, implausible inputs),
         also in ``warnings`` and issued as FitCheckWarning.
@@ -130,25 +130,22 @@ class FitResult:
         self.derived = self._derived_samples()
 
     def _run_checks(self):
-        out = prior_bound_pileup(self.space, self._kept_theta)
-        self.fit_checks = {}
-        if isinstance(self.likelihood, SpectrumLikelihood):
-            out = input_plausibility(self.likelihood.spectra, self.species) + out
-            self.fit_checks = goodness_of_fit(self.likelihood, self.space, self._kept_theta, self.median_values())
-            g = self.fit_checks
-            if g["dof"] > 0 and (g["p_chi2"] < 1e-3 or g["ppp"] < 0.01):
-                out.append(f"poor fit: chi2/dof = {g['chi2_per_dof']:.3g} ({g['dof']} dof, p = {g['p_chi2']:.2g}), "
-                           f"posterior-predictive p = {g['ppp']:.2g}: the model does not describe these data "
-                           "(check units, temperatures, species and error bars)")
-        return out
+        self.fit_checks, messages = {}, []
+        check = getattr(self.likelihood, "fit_check", None)      # a likelihood may offer none
+        if check is not None:
+            self.fit_checks, messages = check(self.space, self._kept_theta, self.median_values())
+        return messages + prior_bound_pileup(self.space, self._kept_theta)
 
     def _fit_line(self):
         g = self.fit_checks
         if not g:
             return ""
-        return (f"fit check: chi2/dof = {g['chi2_per_dof']:.3g} ({g['dof']} dof, p = {g['p_chi2']:.2g}); "
-                f"posterior-predictive p = {g['ppp']:.2f}; largest |residual| "
-                f"{max(float(np.max(np.abs(r))) for r in g['residuals']):.2g} sigma")
+        line = f"fit check: chi2/dof = {g['chi2_per_dof']:.3g} ({g['dof']} dof, p = {g['p_chi2']:.2g})"
+        if "ppp" in g:
+            line += f"; posterior-predictive p = {g['ppp']:.2f}"
+        if g.get("residuals"):
+            line += f"; largest |residual| {max(float(np.max(np.abs(r))) for r in g['residuals']):.2g} sigma"
+        return line
 
     # ---- derived quantities -------------------------------------------------------
     def _values_per_sample(self):

@@ -160,6 +160,9 @@ def test_global_fit_recovers_the_truth_and_plots(tmp_path):
         assert rows[name]["lo95"] <= truth[name] <= rows[name]["hi95"], name
     assert rows["b0"]["lo95"] <= 550.0 <= rows["b0"]["hi95"]
     assert "a_minus/r_vdw" in result.derived
+    # the fit check of the curves: chi2 per degree of freedom near 1 on data from the model
+    assert 0.7 < result.fit_checks["chi2_per_dof"] < 1.5 and result.fit_checks["p_chi2"] > 1e-3
+    assert not result.check_warnings
     fits = fit_curves_individually(curves, species=SP, resonance=res)
     fig = curves_plot(fits=fits, result=result, species=SP, max_curves=4)
     assert len(fig.axes) == 8
