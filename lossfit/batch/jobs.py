@@ -44,12 +44,14 @@ __all__ = ["Job", "load_job", "parse_job", "JobError"]
 import dataclasses
 import math
 import os
+import warnings
 
 from ..data.curves import read_campaign
 from ..data.spectra import read_csv, read_spectra
-from ..errors import LossfitValueError
+from ..errors import FitCheckWarning, LossfitValueError
 from ..experiment.feshbach import FeshbachResonance
 from ..inference.campaign_space import SYSTEMATIC_NAMES
+from ..inference.fit_checks import same_species
 from ..inference.parameters import EFIMOV_NAMES, NUISANCE_NAMES
 from ..inference.priors import LogNormal, LogUniform, Normal, Uniform
 from ..species import species as _species
@@ -117,6 +119,9 @@ class Job:
         """The job's spectra (list of LossSpectrum) or decay curves (list of DecayCurve)."""
         if self.campaign:
             camp = read_campaign(os.path.join(self.base_dir, self.campaign))
+            if camp.species and not same_species(camp.species, self.species):
+                warnings.warn(f"{self.campaign}: the campaign was recorded for {camp.species}, the job fits "
+                              f"{self.species}", FitCheckWarning, stacklevel=2)
             self._resonance = None if camp.resonance is None else FeshbachResonance(**camp.resonance)
             return list(camp.curves)
         out = []

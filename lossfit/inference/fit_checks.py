@@ -24,7 +24,8 @@ view and ``to_dict``.
 """
 
 __all__ = ["goodness_of_fit", "chi2_summary", "poor_fit_message", "prior_bound_pileup", "input_plausibility",
-           "temperature_plausibility", "PILEUP_FRACTION", "PILEUP_EDGE", "TEMPERATURE_RANGE_NK", "UNITARITY_MARGIN"]
+           "temperature_plausibility", "same_species", "PILEUP_FRACTION", "PILEUP_EDGE", "TEMPERATURE_RANGE_NK",
+           "UNITARITY_MARGIN"]
 
 import math
 
@@ -149,12 +150,12 @@ def input_plausibility(spectra, species):
                 units = "cm^6/s" if s.kind == "l3" else "cm^3/s"
                 out.append(f"{label}: values up to {np.max(ratio):.3g}x the unitarity bound at their "
                            f"temperatures; check the units ({units}) and the temperatures (nK)")
-        if s.species and getattr(species, "name", None) and not _same_species(s.species, species.name):
+        if s.species and getattr(species, "name", None) and not same_species(s.species, species.name):
             out.append(f"{label}: the data were recorded for {s.species}, the fit uses {species.name}")
     return out
 
 
-def _same_species(a, b):
+def same_species(a, b):
     """133Cs, Cs133, cs-133 and Cs-133 name the same species."""
     def key(name):
         letters = "".join(c for c in name if c.isalpha()).lower()

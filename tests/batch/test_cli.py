@@ -81,3 +81,22 @@ def test_quiet_prints_nothing_and_ignored_options_are_named(job, tmp_path):
     assert loud.returncode == 0, loud.stderr
     assert "--workers is ignored with --pool serial" in loud.stderr
     assert "a_minus" in loud.stdout                 # the result table
+
+
+def test_campaign_recorded_for_another_species_warns(tmp_path):
+    import warnings
+
+    from lossfit.batch.jobs import parse_job
+    from lossfit.data import write_campaign
+    from lossfit.errors import FitCheckWarning
+    from lossfit.simulate import invented_campaign
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        curves, resonance, _ = invented_campaign(seed=3, n_fields=2)
+    write_campaign(tmp_path / "campaign.h5", curves, species="133Cs", resonance=resonance)
+    text = ('[data]\nspecies = "7Li"\ncampaign = "campaign.h5"\n[model]\nname = "capped"\n[free]\n'
+            'a_minus = { prior = "default" }\n[sampler]\nwalkers = 8\nsteps = 60\n')
+    job = parse_job(text, str(tmp_path / "job.toml"))
+    with pytest.warns(FitCheckWarning, match="recorded for 133Cs, the job fits 7Li"):
+        job.load_data()
