@@ -15,7 +15,7 @@ from ..errors import ValidityWarning
 from ..inference.curve_fits import fit_curves_individually
 from ..plotting.curves import curves_plot
 from ..plotting.spectra import save_figure
-from ..simulate import INVENTED_CAMPAIGN, SCENARIO, demo_spectra, invented_campaign
+from ..simulate import DEMO_CAMPAIGN, SCENARIO, demo_spectra, invented_campaign
 from ..species import species
 from .runner import OUTPUTS, OutputConflict, run_job
 
@@ -67,9 +67,9 @@ log_every = 500
 
 def curves_job_text(walkers=16, steps=CURVES_DEMO_STEPS, seed=1):
     """The job file the demo from raw decay curves runs (a campaign job, :mod:`lossfit.batch.jobs`)."""
-    return f"""# lossfit demo job from raw decay curves: {INVENTED_CAMPAIGN['description']}
+    return f"""# lossfit demo job from raw decay curves: {DEMO_CAMPAIGN['description']}
 [data]
-species = "{INVENTED_CAMPAIGN['species']}"
+species = "{DEMO_CAMPAIGN['species']}"
 campaign = "campaign.h5"   # its resonance is the nominal a(B)
 
 [model]
@@ -134,14 +134,14 @@ def run_curves_demo(out_dir, *, walkers=16, steps=CURVES_DEMO_STEPS, seed=1, n_f
     out_dir = os.fspath(out_dir)
     names = ["campaign.h5", "job.toml", *OUTPUTS, "curves.png"]
     _fresh_folder(out_dir, names, overwrite)
-    say(f"lossfit demo from raw decay curves — {INVENTED_CAMPAIGN['description']}")
+    say(f"lossfit demo from raw decay curves — {DEMO_CAMPAIGN['description']}")
     t0 = time.perf_counter()
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ValidityWarning)
-        curves, resonance, truth = invented_campaign(seed=seed, n_fields=n_fields)
-    sp = species(INVENTED_CAMPAIGN["species"])
+        curves, resonance, truth = invented_campaign(seed=seed, n_fields=n_fields, scenario=DEMO_CAMPAIGN)
+    sp = species(DEMO_CAMPAIGN["species"])
     write_campaign(os.path.join(out_dir, "campaign.h5"), curves, species=sp, resonance=resonance,
-                   metadata={"scenario": INVENTED_CAMPAIGN["description"]})
+                   metadata={"scenario": DEMO_CAMPAIGN["description"]})
     with open(os.path.join(out_dir, "job.toml"), "w") as fh:
         fh.write(curves_job_text(walkers, steps, seed))
     say(f"{len(curves)} invented curves written; per-curve fits and the global fit follow")
