@@ -100,3 +100,16 @@ def test_campaign_recorded_for_another_species_warns(tmp_path):
     job = parse_job(text, str(tmp_path / "job.toml"))
     with pytest.warns(FitCheckWarning, match="recorded for 133Cs, the job fits 7Li"):
         job.load_data()
+
+
+def test_unwritable_output_folder_is_refused(tmp_path, monkeypatch):
+    # root may write anywhere, so the permission is simulated: os.access says no
+    from lossfit.batch import runner
+    from lossfit.errors import LossfitValueError
+
+    monkeypatch.setattr(runner.os, "access", lambda path, mode: False)
+    with pytest.raises(LossfitValueError, match="not writable") as info:
+        runner.check_output_folder(tmp_path)
+    assert info.value.argument == "out"
+    with pytest.raises(LossfitValueError, match="not writable"):
+        runner.check_output_folder(tmp_path / "new" / "deeper")
