@@ -1,10 +1,12 @@
 """Figures: :mod:`.spectra` (loss spectra with posterior bands, corner plots) and
-:mod:`.curves` (decay curves with the fitted model, spectra derived from curves).
+:mod:`.curves` (decay curves with the fitted model, spectra derived from curves) and
+:mod:`.efimov` (the universal trimer spectrum with the fitted features).
 The public names of both are re-exported here.
 """
 
 from .curves import curves_plot, derived_spectrum_plot
+from .efimov import efimov_spectrum_plot
 from .spectra import corner_plot, posterior_bands, save_figure, spectrum_plot
 
 __all__ = ["corner_plot", "spectrum_plot", "posterior_bands", "save_figure", "curves_plot",
-           "derived_spectrum_plot"]
+           "derived_spectrum_plot", "efimov_spectrum_plot"]

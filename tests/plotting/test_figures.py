@@ -20,11 +20,12 @@ from matplotlib.testing.compare import compare_images
 from matplotlib.testing.decorators import remove_ticks_and_titles
 from matplotlib.text import Text
 
+import lossfit as lf
 from lossfit.errors import ConvergenceWarning
 from lossfit.inference.curve_fits import fit_curves_individually, spectrum_from_curves
 from lossfit.inference.fitting import prepare
 from lossfit.inference.posterior import make_result
-from lossfit.plotting import corner_plot, curves_plot, derived_spectrum_plot, spectrum_plot
+from lossfit.plotting import corner_plot, curves_plot, derived_spectrum_plot, efimov_spectrum_plot, spectrum_plot
 from lossfit.simulate import demo_spectra, invented_campaign
 
 REFERENCE = os.path.join(os.path.dirname(os.path.abspath(__file__)), "reference")
@@ -109,3 +110,16 @@ def test_derived_spectrum_plot(curve_fits, tmp_path):
     fig = derived_spectrum_plot(spectrum_from_curves(curves, species="133Cs", resonance=resonance, fits=fits))
     assert fig.axes[0].get_xscale() == "log"
     _check(fig, "derived_spectrum_plot", tmp_path)
+
+
+def test_efimov_spectrum_plot(spectrum_result, tmp_path):
+    result, _ = spectrum_result
+    fig = efimov_spectrum_plot(lf.Efimov.universal(-900.0, 0.1), branches=3)
+    ax = fig.axes[0]
+    assert "|^{-1/2}" in ax.get_xlabel() and "^{1/4}" in ax.get_ylabel()      # the scaling is stated
+    assert [t.get_text() for t in ax.texts] == ["$a_-$", "$a_*$", "$a_+$"]
+    _check(fig, "efimov_spectrum_plot", tmp_path)
+    # from a fit: the features carry their 68 % bands
+    fig = efimov_spectrum_plot(result)
+    assert len(fig.axes[0].patches) == 1                   # a_- only was fitted
+    plt.close(fig)

@@ -1,0 +1,80 @@
+"""The Efimov spectrum figure: trimer branches against 1/a, the three-atom and atom-dimer
+thresholds, and the features (a_-, a*, a_+) of an Efimov parameter set or a fit."""
+
+__all__ = ["efimov_spectrum_plot"]
+
+import matplotlib.pyplot as plt
+import numpy as np
+
+from ..constants import SCALING_FACTOR
+from ..efimov import Efimov
+from ..errors import LossfitValueError
+from ..universal.spectrum import kappa_star, load_trimer_table
+
+_FEATURES = (("a_minus", r"$a_-$", "C3"), ("a_star", r"$a_*$", "C2"), ("a_plus", r"$a_+$", "C4"))
+
+
+def _scaled(x):
+    """Horizontal axis: sign(1/a) |1/(kappa* a)|^(1/2)."""
+    return np.sign(x) * np.sqrt(np.abs(x))
+
+
+def efimov_spectrum_plot(source, *, branches=3, fig=None):
+    """Trimer energies against 1/a with the thresholds and the Efimov features.
+
+    Both axes are powers of the zero-range variables chosen so that every branch has the
+    same shape, each lambda^(1/2) = 4.76 times smaller than the one before: horizontal
+    sign(1/a) |1/(kappa* a)|^(1/2), vertical -|E/(hbar^2 kappa*^2/m)|^(1/4) (the
+    atom-dimer threshold E = -hbar^2/(m a^2) is then the line -|horizontal|).
+
+    Parameters
+    ----------
+    source : FitResult or Efimov
+        A fit (its posterior medians fix kappa*; a_-, a*, a_+ are drawn with their 68 %
+        intervals) or an Efimov parameter set (the features as lines).
+    branches : int
+        Trimer branches to draw (from the one that meets the three-atom threshold at a_-).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    samples = getattr(source, "samples", None)
+    efimov = source.efimov() if samples is not None else source
+    if not isinstance(efimov, Efimov):
+        raise LossfitValueError("source", f"must be a FitResult or a lossfit.Efimov, got {type(source).__name__}")
+    if isinstance(branches, bool) or not isinstance(branches, (int, np.integer)) or not 1 <= branches <= 6:
+        raise LossfitValueError("branches", f"must be an integer from 1 to 6, got {branches!r}")
+    k_star = kappa_star(efimov)
+    table = load_trimer_table()
+    if fig is None:
+        fig = plt.figure(figsize=(7.0, 5.0), layout="constrained")
+    ax = fig.add_subplot()
+    for n in range(int(branches)):
+        scale = SCALING_FACTOR ** n
+        ax.plot(_scaled(table.x / scale), -np.abs(table.energy / scale ** 2) ** 0.25, lw=1.8,
+                label=f"trimer branch {n}" + (" (meets the three-atom threshold at $a_-$)" if n == 0 else ""))
+    x_hi = _scaled(table.x_star) * 1.05
+    ax.axhline(0.0, color="k", lw=1.0, label="three-atom threshold")
+    xs = np.linspace(0.0, x_hi, 200)
+    ax.plot(xs, -xs, color="0.35", lw=1.0, ls="--", label=r"atom-dimer threshold $E=-\hbar^2/(m a^2)$")
+    for name, symbol, colour in _FEATURES:
+        value = getattr(efimov, name)
+        if value is None:
+            continue
+        if samples is not None and name in samples:
+            lo, med, hi = np.percentile(1.0 / (k_star * samples[name]), [16, 50, 84])
+            ax.axvspan(_scaled(lo), _scaled(hi), color=colour, alpha=0.25, lw=0)
+            position = _scaled(med)
+        else:
+            position = _scaled(1.0 / (k_star * value))
+        ax.axvline(position, color=colour, lw=1.2, ls=":")
+        ax.text(position, 0.06, symbol, color=colour, ha="center", va="bottom", fontsize=12)
+    ax.set_xlim(_scaled(table.x_minus) * 1.25, x_hi)
+    ax.set_ylim(-_scaled(table.x_star) * 1.02, 0.25)
+    ax.set_xlabel(r"$\mathrm{sign}(a)\,|\kappa_* a|^{-1/2}$")
+    ax.set_ylabel(r"$-\,|E\,/\,(\hbar^2\kappa_*^2/m)|^{1/4}$")
+    source_text = "posterior medians, 68 % bands" if samples is not None else "given parameters"
+    ax.set_title(rf"universal Efimov spectrum, $\kappa_*$ from {source_text}", fontsize=10)
+    ax.legend(fontsize=8, loc="lower left")
+    return fig
