@@ -1,8 +1,8 @@
 #!/usr/bin/env python
 """Write lossfit/universal/data/trimer_spectrum.npz: the universal Efimov trimer spectrum.
 
-Deterministic (no timestamps, no random numbers; the only run-dependent metadata is the
-git commit of the code). The reference trimer branch -- the one whose binding wave number
+Deterministic (no timestamps, no random numbers; the only run-dependent metadata are the
+git commit of the code and the run time in seconds). The reference trimer branch -- the one whose binding wave number
 at unitarity is kappa* (its definition) -- is followed with the hyperspherical bound-state
 solver (lossfit/universal/solver/boundstates.py, docs/solver.md) from near unitarity to
 the three-atom threshold on the a < 0 side (kappa |a| from 60 down to 0.004) and to the
