@@ -28,6 +28,8 @@ REFERENCES = {
                        "zero-range, same branch (kappa* a_+ = 0.316472, the project's solver)"),
     "a_minus/r_vdw": (VDW_A_MINUS_OVER_RVDW,
                       "van der Waals universality (Wang, D'Incao, Esry & Greene 2012)"),
+    "eta_star/eta_minus": (1.0, "one eta for every feature (zero range with one three-body inelasticity)"),
+    "eta_plus/eta_minus": (1.0, "one eta for every feature (zero range with one three-body inelasticity)"),
 }
 
 
@@ -169,8 +171,13 @@ class FitResult:
                     if name in vals:
                         out[f"{name}/a_minus"] = vals[name] / a_minus
             out["a_minus/r_vdw"] = a_minus / self.species.r_vdw
+        if "eta_minus" in self.names:
+            # the widths of the features against each other: 1 if one eta serves all
+            for name in ("eta_star", "eta_plus"):
+                if name in self.names:
+                    out[f"{name}/eta_minus"] = vals[name] / vals["eta_minus"]
         return {k: np.broadcast_to(v, (n,)).copy() for k, v in out.items()
-                if any(p in self.names for p in ("a_minus", "a_star", "a_plus"))}
+                if any(p in self.names for p in ("a_minus", "a_star", "a_plus", "eta_minus"))}
 
     # ---- summaries ----------------------------------------------------------------
     def summary(self):
