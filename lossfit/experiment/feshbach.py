@@ -20,7 +20,7 @@ energies as E_b / h in kHz.
 
 __all__ = ["FeshbachResonance", "OverlappingResonances", "ScatteringLengthTable",
            "average_over_field_noise", "calibrate_from_binding_energies", "BindingEnergyFit",
-           "binding_energy_khz", "resonance_scattering_length", "resonance_covariance"]
+           "binding_energy_khz", "resonance_scattering_length", "resonance_covariance", "compare_binding_models"]
 
 import math
 import warnings
@@ -30,10 +30,9 @@ import numpy as np
 from scipy.interpolate import PchipInterpolator
 from scipy.optimize import brentq, least_squares
 
-from ..constants import HBAR
 from ..errors import LossfitValueError, ValidityWarning, check_finite, check_positive, check_table
 from ..species import species as _lookup_species
-from ..units import A0
+from .binding import BINDING_MODELS, binding_energy_khz
 
 _SIDES = ("above", "below")
 
@@ -476,35 +475,6 @@ def average_over_field_noise(func_of_B, B, sigma_B, *, n_nodes=40):
 
 # --- binding-energy calibration -------------------------------------------------------
 
-def _binding_prefactor_khz(sp):
-    """hbar^2 / (m a0^2) / h in kHz, so that E_b / h = prefactor / ((a - abar)/a0)^2."""
-    return HBAR / (2.0 * math.pi * sp.mass * A0 ** 2) / 1e3     # Hz -> kHz
-
-
-def binding_energy_khz(a, species):
-    """Near-threshold Feshbach dimer binding energy E_b / h = hbar^2 / (m (a - abar)^2) / h.
-
-    (Gribakin & Flambaum, PRA 48, 546 (1993); Chin et al., RMP 82, 1225 (2010).)
-    Valid for a well above abar; m is the atomic mass (reduced mass m/2).
-
-    Parameters
-    ----------
-    a : float or array
-        Scattering length in a0 (> abar).
-    species : str or Species
-
-    Returns
-    -------
-    float or ndarray
-        E_b / h in kHz.
-    """
-    sp = _lookup_species(species)
-    arr = check_finite("a", a)
-    if np.any(arr <= sp.abar):
-        raise LossfitValueError("a", f"the near-threshold formula needs a > abar = {sp.abar:.2f} a0")
-    return _binding_prefactor_khz(sp) / (arr - sp.abar) ** 2
-
-
 @dataclass(frozen=True)
 class BindingEnergyFit:
     """Result of :func:`calibrate_from_binding_energies`.
@@ -523,6 +493,11 @@ class BindingEnergyFit:
         Degrees of freedom (points - 3).
     residuals : ndarray
         (model - data) / error per point.
+    model : str
+        The binding-energy model (:data:`lossfit.experiment.binding.BINDING_MODELS`).
+    aic : float
+        Akaike's criterion chi2 + 2 x 3 (Akaike, IEEE Trans. Autom. Control 19, 716 (1974)):
+        with the same three fitted parameters the models compare by chi2.
     """
 
     resonance: FeshbachResonance
@@ -531,6 +506,8 @@ class BindingEnergyFit:
     chi2: float
     dof: int
     residuals: np.ndarray
+    model: str = "universal"
+    aic: float = float("nan")
 
     @property
     def errors(self):
@@ -538,11 +515,15 @@ class BindingEnergyFit:
         return np.sqrt(np.diag(self.covariance))
 
 
-def calibrate_from_binding_energies(B, E_b_kHz, E_b_err, species, guess, *, absolute_sigma=True):
+def calibrate_from_binding_energies(B, E_b_kHz, E_b_err, species, guess, *, absolute_sigma=True,
+                                    model="universal", r_star=None):
     """Fit (b0, width, a_bg) to measured Feshbach-dimer binding energies.
 
-    Model: E_b / h = hbar^2 / (m (a(B) - abar)^2) / h with a(B) = a_bg (1 - width / (B - b0))
-    (Chin et al. 2010; Gribakin & Flambaum 1993). Weighted least squares
+    Model: a(B) = a_bg (1 - width / (B - b0)) (Chin et al. 2010) and E_b(a) from
+    :func:`lossfit.experiment.binding.binding_energy_khz` with ``model`` -- ``"universal"``
+    (hbar^2/(m (a - abar)^2), Gribakin & Flambaum 1993), ``"effective-range"`` (a narrow
+    resonance with effective range ``r_star`` in a0, Petrov 2004) or ``"van-der-waals"``
+    (the -C6/r^6 bound state). :func:`compare_binding_models` fits all of them. Weighted least squares
     (trust-region reflective, :func:`scipy.optimize.least_squares`); the covariance is
     (J^T J)^-1 at the optimum, scaled by chi2/dof unless ``absolute_sigma``.
 
@@ -563,6 +544,9 @@ def calibrate_from_binding_energies(B, E_b_kHz, E_b_err, species, guess, *, abso
         Starting values in (G, G, a0); b0 must lie outside the range of ``B``.
     absolute_sigma : bool
         Treat ``E_b_err`` as absolute (True) or as relative weights (False).
+    model : {"universal", "effective-range", "van-der-waals"}
+    r_star : float, optional
+        Effective range R* in a0 (``model="effective-range"``).
 
     Returns
     -------
@@ -585,19 +569,26 @@ def calibrate_from_binding_energies(B, E_b_kHz, E_b_err, species, guess, *, abso
     if not (np.all(b > g[0]) or np.all(b < g[0])):
         raise LossfitValueError("B", f"all fields must lie on one side of the guessed b0 = {g[0]:g} G "
                                 "(binding energies exist only on the a > 0 side)")
-    pref = _binding_prefactor_khz(sp)
+    if model not in BINDING_MODELS:
+        raise LossfitValueError("model", f"must be one of {list(BINDING_MODELS)}, got {model!r}")
+    binding_energy_khz(1e4, sp, model=model, r_star=r_star)          # checks model and r_star
     abar = sp.abar
+    floor = 0.0 if model == "effective-range" else abar
 
     def a_of(params):
         return resonance_scattering_length(b, *params)
 
-    # Stage 1: scattering lengths implied by each energy, errors propagated linearly.
-    a_data = abar + np.sqrt(pref / e)
+    # Stage 1: scattering lengths implied by each energy through the universal law (a
+    # smooth, branch-free start for every model), errors propagated linearly.
+    a_data = abar + np.sqrt(binding_energy_khz(1e4, sp) * (1e4 - abar) ** 2 / e)
     a_err = 0.5 * (a_data - abar) * err / e
     first = least_squares(lambda p: (a_of(p) - a_data) / a_err, g, x_scale="jac", method="lm")
 
     def energy_residuals(params):
-        return (pref / (a_of(params) - abar) ** 2 - e) / err
+        a_model = a_of(params)
+        if np.any(a_model <= floor * 1.0001):
+            return np.full(b.size, 1e6)        # off the dimer's side: a large, finite penalty
+        return (binding_energy_khz(a_model, sp, model=model, r_star=r_star) - e) / err
 
     fit = least_squares(energy_residuals, first.x, x_scale="jac", method="lm",
                         xtol=1e-15, ftol=1e-15, gtol=1e-15)
@@ -624,4 +615,41 @@ def calibrate_from_binding_energies(B, E_b_kHz, E_b_err, species, guess, *, abso
                       "approximate (Chin et al. 2010)", ValidityWarning, stacklevel=2)
     res = FeshbachResonance(*params, covariance=cov)
     return BindingEnergyFit(resonance=res, params=params.copy(), covariance=cov, chi2=chi2, dof=dof,
-                            residuals=fit.fun.copy())
+                            residuals=fit.fun.copy(), model=model, aic=chi2 + 6.0)
+
+
+def compare_binding_models(B, E_b_kHz, E_b_err, species, guess, *, r_star=None, absolute_sigma=True):
+    """Fit the binding energies with every model and say which the data prefer.
+
+    The three models have the same three fitted parameters (b0, width, a_bg; R* is given),
+    so Akaike's criterion orders them by chi2; a difference below 2 does not separate
+    them (Burnham & Anderson, Model Selection and Multimodel Inference (2002)).
+
+    Parameters
+    ----------
+    B, E_b_kHz, E_b_err, species, guess, absolute_sigma
+        As in :func:`calibrate_from_binding_energies`.
+    r_star : float, optional
+        Effective range in a0; without it the effective-range model is left out.
+
+    Returns
+    -------
+    (fits, preferred) : (list of BindingEnergyFit, str or None)
+        Fits ordered by AIC; the preferred model's name, or None if the best two lie
+        within 2 of each other.
+    """
+    models = [m for m in BINDING_MODELS if m != "effective-range" or r_star is not None]
+    fits = []
+    for m in models:
+        try:
+            fits.append(calibrate_from_binding_energies(B, E_b_kHz, E_b_err, species, guess, model=m,
+                                                        r_star=r_star if m == "effective-range" else None,
+                                                        absolute_sigma=absolute_sigma))
+        except LossfitValueError as err:
+            if err.argument not in ("guess", "a"):
+                raise
+    if not fits:
+        raise LossfitValueError("guess", "no binding-energy model could be fitted; try a better guess")
+    fits.sort(key=lambda f: f.aic)
+    preferred = fits[0].model if len(fits) == 1 or fits[1].aic - fits[0].aic > 2.0 else None
+    return fits, preferred
