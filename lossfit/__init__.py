@@ -27,7 +27,8 @@ __all__ = ["__version__", "errors", "S0", "SCALING_FACTOR", "LossfitError", "Los
            "HarmonicTrap", "simulate_decay", "TabulatedRate", "FeshbachResonance",
            "OverlappingResonances", "ScatteringLengthTable", "average_over_field_noise",
            "calibrate_from_binding_energies", "DecayCurve", "write_campaign", "read_campaign",
-           "read_curves_csv", "fit_curve", "spectrum_from_curves", "load_result", "trimer_energies", "compare_models"]
+           "read_curves_csv", "fit_curve", "spectrum_from_curves", "load_result", "trimer_energies", "compare_models",
+           "temperature_study"]
 
 # Everything beyond the rates (data files and h5py, decay curves and scipy.optimize,
 # the inference layer with emcee: together more than a second) loads on first use, so
@@ -46,6 +47,7 @@ _LAZY["HarmonicTrap"] = "lossfit.experiment.trap"
 _LAZY["load_result"] = "lossfit.batch.runner"
 _LAZY["trimer_energies"] = "lossfit.universal.spectrum"
 _LAZY["compare_models"] = "lossfit.inference.model_comparison"
+_LAZY["temperature_study"] = "lossfit.inference.temperature_study"
 
 
 def __getattr__(name):
