@@ -36,10 +36,16 @@ error that names the key)::
     checkpoint_every = 100                 # steps between chain checkpoints
     log_every = 250                        # steps between log lines in batch mode
 
+    [study]                                # optional: an analysis instead of one fit
+    kind = "temperature"                   # each temperature with the zero-energy law and the
+    feature = "a_minus"                    # exact model, then jointly ("a_minus" or "a_star");
+    # kind = "model-comparison"            # or PSIS-LOO of variants of the [free] fit:
+    # compare = ["free", "shared-eta", "universal"]   # as given / one eta / the universal tie
+
 Units follow the library: lengths in a0, temperatures in nK.
 """
 
-__all__ = ["Job", "load_job", "parse_job", "JobError"]
+__all__ = ["Job", "load_job", "parse_job", "JobError", "STUDY_KINDS", "COMPARE_VARIANTS"]
 
 import dataclasses
 import math
@@ -69,7 +75,8 @@ class JobError(LossfitValueError):
 
 _SECTIONS = {"data": {"species", "spectra", "csv", "campaign"}, "model": {"name", "tie"}, "free": None,
              "fixed": None, "sampler": {"walkers", "steps", "seed", "burn", "thin", "checkpoint_every",
-                                        "log_every"}}
+                                        "log_every"},
+             "study": {"kind", "feature", "compare"}}
 _PRIOR_KEYS = {"log-uniform": {"lo", "hi"}, "uniform": {"lo", "hi"}, "log-normal": {"median", "sigma"},
                "normal": {"mu", "sigma"}, "default": set()}
 _SAMPLER_DEFAULTS = {"walkers": 32, "steps": 5000, "seed": 0, "burn": "auto", "thin": 1,
@@ -104,6 +111,7 @@ class Job:
     priors: dict
     fixed: dict
     sampler: dict
+    study: object = None
 
     @property
     def base_dir(self):
@@ -131,6 +139,21 @@ class Job:
             out.append(read_csv(os.path.join(self.base_dir, c["path"]), kind=c.get("kind", "l3"),
                                 label=c.get("label"), species=self.species))
         return out
+
+    def variant_kwargs(self, variant, steps=None):
+        """Keyword arguments of :func:`lossfit.fit` for a model-comparison variant: "free"
+        (the job as written), "shared-eta" (every eta_* of [free] replaced by one eta) or
+        "universal" (the universal tie: a_minus and one eta)."""
+        kw = self.fit_kwargs(steps=steps)
+        etas = [n for n in kw["free"] if n.startswith("eta")]
+        others = [n for n in kw["free"] if not n.startswith("eta")]
+        priors = {n: p for n, p in (kw["priors"] or {}).items() if not n.startswith("eta")}
+        if variant == "shared-eta":
+            kw.update(free=others + (["eta"] if etas else []), priors=priors)
+        elif variant == "universal":
+            kw.update(free=["a_minus", "eta"] + [n for n in others if n in NUISANCE_NAMES], priors=priors,
+                      tie="universal")
+        return kw
 
     def fit_kwargs(self, steps=None):
         """Keyword arguments of :func:`lossfit.fit` for this job."""
@@ -274,5 +297,38 @@ def parse_job(text, path):
         if par in ("density_scale", "temperature_scale", "b0", "width", "a_bg", "sigma_B") \
                 and par not in priors:
             raise JobError(f"free.{par}", "needs an explicit prior (e.g. log-normal, sigma = 0.2)")
+    study = _study(doc.get("study"), campaign, free)
     return Job(path=path, text=text, species=sp, spectra=spectra, csv=csv, campaign=campaign, model=name,
-               tie=None if tie == "none" else tie, free=free, priors=priors, fixed=fixed, sampler=sampler)
+               tie=None if tie == "none" else tie, free=free, priors=priors, fixed=fixed, sampler=sampler,
+               study=study)
+
+
+STUDY_KINDS = ("temperature", "model-comparison")
+COMPARE_VARIANTS = ("free", "shared-eta", "universal")
+
+
+def _study(spec, campaign, free):
+    """The validated [study] section, or None."""
+    if spec is None:
+        return None
+    kind = spec.get("kind")
+    if kind not in STUDY_KINDS:
+        raise JobError("study.kind", f"must be one of {list(STUDY_KINDS)}, got {kind!r}")
+    if campaign is not None:
+        raise JobError("study.kind", "studies run on spectra; a campaign job fits curves globally")
+    if kind == "temperature":
+        if "compare" in spec:
+            raise JobError("study.compare", "belongs to kind = 'model-comparison'")
+        feature = spec.get("feature", "a_minus")
+        if feature not in ("a_minus", "a_star"):
+            raise JobError("study.feature", f"must be 'a_minus' or 'a_star', got {feature!r}")
+        return {"kind": kind, "feature": feature}
+    if "feature" in spec:
+        raise JobError("study.feature", "belongs to kind = 'temperature'")
+    compare = spec.get("compare", list(COMPARE_VARIANTS))
+    if not isinstance(compare, list) or len(compare) < 2 or any(c not in COMPARE_VARIANTS for c in compare) \
+            or len(set(compare)) != len(compare):
+        raise JobError("study.compare", f"must list two or more of {list(COMPARE_VARIANTS)}, got {compare!r}")
+    if "universal" in compare and "a_minus" not in free:
+        raise JobError("study.compare", "the universal tie needs a_minus in [free]")
+    return {"kind": kind, "compare": compare}

@@ -32,9 +32,13 @@ from ..errors import LossfitError, LossfitValueError, ValidityWarning
 from ..inference.backends import read_chain_file
 from ..inference.fitting import fit, prepare
 from ..inference.global_fit import prepare_curves
+from ..inference.model_comparison import compare_models
 from ..inference.pools import make_pool
 from ..inference.posterior import check_run_settings, make_result
+from ..inference.temperature_study import temperature_study
+from ..plotting.efimov import efimov_spectrum_plot
 from ..plotting.spectra import corner_plot, spectrum_plot
+from ..plotting.studies import temperature_study_plot
 from .jobs import JobError, load_job, parse_job
 from .provenance import now_utc, provenance
 
@@ -189,6 +193,8 @@ def run_job(job_path, out_dir, *, pool="serial", workers=None, steps=None, overw
     try:
         os.makedirs(out_dir, exist_ok=True)
         with FolderLock(out_dir):
+            if job.study is not None:
+                return _run_study(job, data, want_steps, out_dir, overwrite, stream, progress=interactive_of(progress))
             chains = os.path.join(out_dir, "chains.h5")
             if os.path.exists(chains) and not overwrite:
                 stored = read_chain_file(chains)
@@ -207,7 +213,7 @@ def run_job(job_path, out_dir, *, pool="serial", workers=None, steps=None, overw
             info = provenance(job_text=job.text, job_path=os.path.abspath(job.path),
                               data_paths=job.data_paths(), seed=job.sampler["seed"], pool=pool,
                               workers=getattr(pool_obj, "size", workers), started_utc=now_utc())
-            interactive = sys.stderr.isatty() if progress is None else progress
+            interactive = interactive_of(progress)
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore", ValidityWarning)
                 result = fit(data, **kw, backend=chains,
@@ -274,6 +280,50 @@ def load_result(run_dir):
         return make_result(space, likelihood, stored["chain"], stored["log_prob"],
                            stored["accepted"] / max(stored["iteration"], 1), burn=kw["burn"],
                            thin=kw["thin"], settings=settings)
+
+
+def interactive_of(progress):
+    """Progress bars on a terminal unless asked otherwise."""
+    return sys.stderr.isatty() if progress is None else progress
+
+
+STUDY_OUTPUTS = ("study.json", "study.png")
+
+
+def _run_study(job, data, steps, out_dir, overwrite, stream, progress):
+    """The job's [study]: study.json (the table as data) and study.png, written atomically."""
+    present = [n for n in STUDY_OUTPUTS if os.path.exists(os.path.join(out_dir, n))]
+    if present and not overwrite:
+        raise OutputConflict(f"{out_dir!r} already holds {present}; pass --overwrite to re-run the study")
+    kw = job.fit_kwargs(steps=steps)
+    sampler = dict(walkers=kw["walkers"], steps=kw["steps"], seed=kw["seed"] or 0, progress=progress)
+    info = provenance(job_text=job.text, job_path=os.path.abspath(job.path), data_paths=job.data_paths(),
+                      seed=job.sampler["seed"], started_utc=now_utc())
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ValidityWarning)
+        if job.study["kind"] == "temperature":
+            study = temperature_study(data, species=kw["species"], feature=job.study["feature"], **sampler)
+            record = {"kind": "temperature", "feature": study.feature, "rows": study.rows, "joint": study.joint,
+                      "chi2": study.chi2, "dof": study.dof, "p_value": study.p_value, "consistent": study.consistent}
+            fig, text = temperature_study_plot(study), study.table()
+        else:
+            fits = {}
+            for variant in job.study["compare"]:
+                vkw = job.variant_kwargs(variant, steps=steps)
+                vkw.update(progress=progress)
+                fits[variant] = fit(data, **vkw)
+            comparison = compare_models(fits)
+            record = {"kind": "model-comparison", "rows": comparison.rows, "best": comparison.best,
+                      "preferred": comparison.preferred(),
+                      "fits": {name: r.to_dict() for name, r in fits.items()}}
+            fig, text = efimov_spectrum_plot(fits[comparison.best]), comparison.table()
+    info["finished_utc"] = now_utc()
+    record["provenance"] = info
+    _atomic_write_text(os.path.join(out_dir, "study.json"), json.dumps(record, indent=2, default=str))
+    _atomic_savefig(fig, os.path.join(out_dir, "study.png"))
+    plt.close(fig)
+    print(text, file=stream)
+    return record
 
 
 def report(out_dir, *, overwrite=False, stream=None):

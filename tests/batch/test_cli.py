@@ -113,3 +113,35 @@ def test_unwritable_output_folder_is_refused(tmp_path, monkeypatch):
     assert info.value.argument == "out"
     with pytest.raises(LossfitValueError, match="not writable"):
         runner.check_output_folder(tmp_path / "new" / "deeper")
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("study", ['kind = "temperature"\nfeature = "a_minus"',
+                                   'kind = "model-comparison"\ncompare = ["free", "shared-eta", "universal"]'])
+def test_job_files_run_the_studies(job, tmp_path, study):
+    text = (job / "job.toml").read_text().replace("steps = 40", "steps = 400") + f"\n[study]\n{study}\n"
+    path = job / f"study-{tmp_path.name}.toml"
+    path.write_text(text)
+    out = tmp_path / "out"
+    proc = _run("run", path, "--out", out)
+    assert proc.returncode == 0, proc.stderr
+    import json
+    record = json.loads((out / "study.json").read_text())
+    assert (out / "study.png").stat().st_size > 0 and record["provenance"]["job_text"] == text
+    if "temperature" in study:
+        assert [r["temperature_nK"] for r in record["rows"]] == [15.0, 60.0, 250.0]
+        assert {"apparent", "thermal"} <= set(record["rows"][0])
+    else:
+        assert {r["name"] for r in record["rows"]} == {"free", "shared-eta", "universal"}
+    again = _run("run", path, "--out", out)
+    assert again.returncode == 3                      # a finished study is not overwritten
+
+
+@pytest.mark.parametrize("study, key", [('kind = "sweep"', "study.kind"),
+                                        ('kind = "temperature"\nfeature = "a_plus"', "study.feature"),
+                                        ('kind = "model-comparison"\ncompare = ["free"]', "study.compare"),
+                                        ('kind = "temperature"\nfoo = 1', "study.foo")])
+def test_bad_study_sections_name_the_key(job, tmp_path, study, key):
+    path = job / f"bad-{tmp_path.name}.toml"
+    path.write_text((job / "job.toml").read_text() + f"\n[study]\n{study}\n")
+    _refused(_run("run", path, "--out", tmp_path / "out"), key)
