@@ -495,6 +495,8 @@ class BindingEnergyFit:
         (model - data) / error per point.
     model : str
         The binding-energy model (:data:`lossfit.experiment.binding.BINDING_MODELS`).
+    r_star : float or None
+        The effective range used (a0; ``model="effective-range"``).
     aic : float
         Akaike's criterion chi2 + 2 x 3 (Akaike, IEEE Trans. Autom. Control 19, 716 (1974)):
         with the same three fitted parameters the models compare by chi2.
@@ -508,6 +510,7 @@ class BindingEnergyFit:
     residuals: np.ndarray
     model: str = "universal"
     aic: float = float("nan")
+    r_star: float | None = None
 
     @property
     def errors(self):
@@ -615,7 +618,7 @@ def calibrate_from_binding_energies(B, E_b_kHz, E_b_err, species, guess, *, abso
                       "approximate (Chin et al. 2010)", ValidityWarning, stacklevel=2)
     res = FeshbachResonance(*params, covariance=cov)
     return BindingEnergyFit(resonance=res, params=params.copy(), covariance=cov, chi2=chi2, dof=dof,
-                            residuals=fit.fun.copy(), model=model, aic=chi2 + 6.0)
+                            residuals=fit.fun.copy(), model=model, aic=chi2 + 6.0, r_star=r_star)
 
 
 def compare_binding_models(B, E_b_kHz, E_b_err, species, guess, *, r_star=None, absolute_sigma=True):

@@ -7,8 +7,8 @@ The public names of both are re-exported here.
 from .curves import curves_plot, derived_spectrum_plot
 from .efimov import efimov_spectrum_plot
 from .spectra import corner_plot, posterior_bands, save_figure, spectrum_plot
-from .studies import temperature_study_plot
+from .studies import binding_energy_plot, temperature_study_plot
 
 __all__ = ["corner_plot", "spectrum_plot", "posterior_bands", "save_figure", "curves_plot",
            "derived_spectrum_plot", "efimov_spectrum_plot",
-           "temperature_study_plot"]
+           "temperature_study_plot", "binding_energy_plot"]

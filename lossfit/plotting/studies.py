@@ -1,10 +1,12 @@
-"""Figures of the analysis studies: the temperature study of a fitted feature."""
+"""Figures of the analysis studies: the temperature study of a fitted feature and the
+field calibration from dimer binding energies."""
 
-__all__ = ["temperature_study_plot"]
+__all__ = ["temperature_study_plot", "binding_energy_plot"]
 
 import matplotlib.pyplot as plt
 import numpy as np
 
+from ..experiment.binding import binding_energy_khz
 from ._axes import tidy_log_axis
 
 _SYMBOLS = {"a_minus": r"$a_-$", "a_star": r"$a_*$"}
@@ -45,4 +47,45 @@ def temperature_study_plot(study, *, fig=None):
     ax.set_title(rf"{symbol} against temperature; consistency $\chi^2$ = {study.chi2:.2f} ({study.dof} dof, "
                  rf"p = {study.p_value:.2f})", fontsize=9)
     ax.legend(fontsize=8)
+    return fig
+
+
+def binding_energy_plot(fits, B, E_b_kHz, E_b_err, *, species, fig=None):
+    """Measured binding energies against the field with every fitted binding-energy model
+    (top, log scale) and the normalised residuals of each (bottom).
+
+    Parameters
+    ----------
+    fits : list of BindingEnergyFit
+        From :func:`lossfit.experiment.feshbach.compare_binding_models` (best first).
+    B, E_b_kHz, E_b_err : array_like
+        The data: fields (G), E_b/h and its error (kHz).
+    species : str or Species
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    b = np.asarray(B, dtype=float)
+    e = np.asarray(E_b_kHz, dtype=float)
+    err = np.asarray(E_b_err, dtype=float)
+    if fig is None:
+        fig = plt.figure(figsize=(6.0, 5.2), layout="constrained")
+    ax, axr = fig.subplots(2, 1, sharex=True, height_ratios=(3, 1))
+    ax.errorbar(b, e, yerr=err, fmt="o", ms=4, color="k", capsize=2, label="data", zorder=3)
+    fine = np.linspace(b.min(), b.max(), 300)
+    for i, f in enumerate(fits):
+        a_fine = f.resonance.a(fine)
+        r_star = f.r_star if f.model == "effective-range" else None
+        ax.plot(fine, binding_energy_khz(a_fine, species, model=f.model, r_star=r_star), color=f"C{i}",
+                lw=1.4, label=f"{f.model}: $\\chi^2$ = {f.chi2:.1f} ({f.dof} dof)")
+        axr.plot(b, f.residuals, "o", ms=3, color=f"C{i}")
+    ax.set_yscale("log")
+    ax.set_ylabel(r"$E_b/h$ (kHz)")
+    ax.legend(fontsize=8)
+    axr.axhline(0.0, color="0.5", lw=0.7)
+    axr.set_xlabel("magnetic field $B$ (G)")
+    axr.set_ylabel(r"(model $-$ data)/$\sigma$")
+    best = fits[0]
+    ax.set_title(rf"best: {best.model}, $B_0$ = {best.params[0]:.4f}({1e4 * best.errors[0]:.0f}) G", fontsize=9)
     return fig
