@@ -41,6 +41,11 @@ error that names the key)::
     feature = "a_minus"                    # exact model, then jointly ("a_minus" or "a_star");
     # kind = "model-comparison"            # or PSIS-LOO of variants of the [free] fit:
     # compare = ["free", "shared-eta", "universal"]   # as given / one eta / the universal tie
+    # kind = "spectrum"                    # or the [free] fit drawn on the Efimov spectrum
+    # kind = "calibration"                 # or a(B) from binding energies, every model:
+    # guess = [549.9, -9.0, 190.0]         # (b0 G, width G, a_bg a0); optional r_star (a0);
+    #                                      # data: [data] binding_energies = "binding.csv"
+    #                                      # (lossfit.data.calibration), no [free] needed
 
 Units follow the library: lengths in a0, temperatures in nK.
 """
@@ -52,6 +57,7 @@ import math
 import os
 import warnings
 
+from ..data.calibration import read_binding_energies
 from ..data.curves import read_campaign
 from ..data.spectra import read_csv, read_spectra
 from ..errors import FitCheckWarning, LossfitValueError
@@ -73,10 +79,11 @@ class JobError(LossfitValueError):
     """A job file is malformed; ``argument`` is the offending key."""
 
 
-_SECTIONS = {"data": {"species", "spectra", "csv", "campaign"}, "model": {"name", "tie"}, "free": None,
+_SECTIONS = {"data": {"species", "spectra", "csv", "campaign", "binding_energies"}, "model": {"name", "tie"},
+             "free": None,
              "fixed": None, "sampler": {"walkers", "steps", "seed", "burn", "thin", "checkpoint_every",
                                         "log_every"},
-             "study": {"kind", "feature", "compare"}}
+             "study": {"kind", "feature", "compare", "guess", "r_star"}}
 _PRIOR_KEYS = {"log-uniform": {"lo", "hi"}, "uniform": {"lo", "hi"}, "log-normal": {"median", "sigma"},
                "normal": {"mu", "sigma"}, "default": set()}
 _SAMPLER_DEFAULTS = {"walkers": 32, "steps": 5000, "seed": 0, "burn": "auto", "thin": 1,
@@ -112,6 +119,7 @@ class Job:
     fixed: dict
     sampler: dict
     study: object = None
+    binding_energies: object = None
 
     @property
     def base_dir(self):
@@ -121,10 +129,14 @@ class Job:
         """Absolute paths of every data file."""
         return [os.path.join(self.base_dir, p) for p in self.spectra] + \
                [os.path.join(self.base_dir, c["path"]) for c in self.csv] + \
-               ([os.path.join(self.base_dir, self.campaign)] if self.campaign else [])
+               ([os.path.join(self.base_dir, self.campaign)] if self.campaign else []) + \
+               ([os.path.join(self.base_dir, self.binding_energies)] if self.binding_energies else [])
 
     def load_data(self):
-        """The job's spectra (list of LossSpectrum) or decay curves (list of DecayCurve)."""
+        """The job's spectra (list of LossSpectrum), decay curves (list of DecayCurve) or, for a
+        calibration, binding energies (B, E_b, E_b_err)."""
+        if self.binding_energies:
+            return read_binding_energies(os.path.join(self.base_dir, self.binding_energies))
         if self.campaign:
             camp = read_campaign(os.path.join(self.base_dir, self.campaign))
             if camp.species and not same_species(camp.species, self.species):
@@ -225,7 +237,8 @@ def parse_job(text, path):
         for key in doc[section]:
             if allowed is not None and key not in allowed:
                 raise JobError(f"{section}.{key}", f"unknown key; known: {sorted(allowed)}")
-    for section in ("data", "free"):
+    calibration = isinstance(doc.get("study"), dict) and doc["study"].get("kind") == "calibration"
+    for section in ("data",) if calibration else ("data", "free"):
         if section not in doc:
             raise JobError(section, "missing section")
     data = doc["data"]
@@ -249,7 +262,16 @@ def parse_job(text, path):
     campaign = data.get("campaign")
     if campaign is not None and (not isinstance(campaign, str) or spectra or csv):
         raise JobError("data.campaign", "must be one file name, and spectra/csv must then be absent")
-    if not spectra and not csv and campaign is None:
+    binding = data.get("binding_energies")
+    if calibration:
+        if not isinstance(binding, str) or spectra or csv or campaign is not None:
+            raise JobError("data.binding_energies", "a calibration job names one binding-energy CSV file "
+                           "and no other data")
+        if not os.path.isfile(os.path.join(os.path.dirname(os.path.abspath(path)), binding)):
+            raise JobError("data.binding_energies", f"no such file {binding!r}")
+    elif binding is not None:
+        raise JobError("data.binding_energies", "belongs to [study] kind = 'calibration'")
+    elif not spectra and not csv and campaign is None:
         raise JobError("data.spectra", "the job names no data file")
     if campaign is not None and not os.path.isfile(os.path.join(os.path.dirname(os.path.abspath(path)), campaign)):
         raise JobError("data.campaign", f"no such file {campaign!r}")
@@ -269,9 +291,9 @@ def parse_job(text, path):
     if campaign is not None:
         allowed_free |= set(SYSTEMATIC_NAMES)
     free, priors = [], {}
-    if not doc["free"]:
+    if not calibration and not doc["free"]:
         raise JobError("free", "name at least one parameter")
-    for key, spec in doc["free"].items():
+    for key, spec in doc.get("free", {}).items():
         if key not in allowed_free:
             raise JobError(f"free.{key}", f"unknown parameter; known: {sorted(allowed_free)}")
         prior = _prior(f"free.{key}", spec)
@@ -300,10 +322,10 @@ def parse_job(text, path):
     study = _study(doc.get("study"), campaign, free)
     return Job(path=path, text=text, species=sp, spectra=spectra, csv=csv, campaign=campaign, model=name,
                tie=None if tie == "none" else tie, free=free, priors=priors, fixed=fixed, sampler=sampler,
-               study=study)
+               study=study, binding_energies=binding)
 
 
-STUDY_KINDS = ("temperature", "model-comparison")
+STUDY_KINDS = ("temperature", "model-comparison", "spectrum", "calibration")
 COMPARE_VARIANTS = ("free", "shared-eta", "universal")
 
 
@@ -316,6 +338,20 @@ def _study(spec, campaign, free):
         raise JobError("study.kind", f"must be one of {list(STUDY_KINDS)}, got {kind!r}")
     if campaign is not None:
         raise JobError("study.kind", "studies run on spectra; a campaign job fits curves globally")
+    extra = set(spec) - {"kind"} - {"temperature": {"feature"}, "model-comparison": {"compare"}, "spectrum": set(),
+                                    "calibration": {"guess", "r_star"}}[kind]
+    if extra:
+        raise JobError(f"study.{sorted(extra)[0]}", f"is not a key of kind = {kind!r}")
+    if kind == "spectrum":
+        return {"kind": kind}
+    if kind == "calibration":
+        guess = spec.get("guess")
+        if not isinstance(guess, list) or len(guess) != 3:
+            raise JobError("study.guess", f"must be [b0 (G), width (G), a_bg (a0)], got {guess!r}")
+        out = {"kind": kind, "guess": [_number(f"study.guess[{i}]", v) for i, v in enumerate(guess)]}
+        if "r_star" in spec:
+            out["r_star"] = _number("study.r_star", spec["r_star"])
+        return out
     if kind == "temperature":
         if "compare" in spec:
             raise JobError("study.compare", "belongs to kind = 'model-comparison'")

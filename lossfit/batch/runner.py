@@ -29,6 +29,7 @@ import numpy as np
 
 from .._io import atomic_path
 from ..errors import LossfitError, LossfitValueError, ValidityWarning
+from ..experiment.feshbach import compare_binding_models
 from ..inference.backends import read_chain_file
 from ..inference.fitting import fit, prepare
 from ..inference.global_fit import prepare_curves
@@ -38,7 +39,8 @@ from ..inference.posterior import check_run_settings, make_result
 from ..inference.temperature_study import temperature_study
 from ..plotting.efimov import efimov_spectrum_plot
 from ..plotting.spectra import corner_plot, spectrum_plot
-from ..plotting.studies import temperature_study_plot
+from ..plotting.studies import binding_energy_plot, temperature_study_plot
+from ..universal.spectrum import kappa_star
 from .jobs import JobError, load_job, parse_job
 from .provenance import now_utc, provenance
 
@@ -301,7 +303,22 @@ def _run_study(job, data, steps, out_dir, overwrite, stream, progress):
                       seed=job.sampler["seed"], started_utc=now_utc())
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ValidityWarning)
-        if job.study["kind"] == "temperature":
+        if job.study["kind"] == "calibration":
+            b, e, err = data
+            fits, preferred = compare_binding_models(b, e, err, kw["species"], job.study["guess"],
+                                                     r_star=job.study.get("r_star"))
+            record = {"kind": "calibration", "preferred": preferred,
+                      "fits": [{"model": f.model, "params": f.params.tolist(), "covariance": f.covariance.tolist(),
+                                "chi2": f.chi2, "dof": f.dof, "aic": f.aic, "r_star": f.r_star} for f in fits]}
+            fig = binding_energy_plot(fits, b, e, err, species=kw["species"])
+            text = "\n".join(f"{f.model:16s} chi2 = {f.chi2:9.2f} ({f.dof} dof)  b0 = {f.params[0]:.5f} G  "
+                              f"width = {f.params[1]:.4f} G  a_bg = {f.params[2]:.2f} a0" for f in fits)
+            text += f"\npreferred: {preferred or 'none (within 2 in AIC)'}"
+        elif job.study["kind"] == "spectrum":
+            result = fit(data, **dict(kw, progress=progress))
+            record = {"kind": "spectrum", "fit": result.to_dict(), "kappa_star_per_a0": kappa_star(result.efimov())}
+            fig, text = efimov_spectrum_plot(result), result.table()
+        elif job.study["kind"] == "temperature":
             study = temperature_study(data, species=kw["species"], feature=job.study["feature"], **sampler)
             record = {"kind": "temperature", "feature": study.feature, "rows": study.rows, "joint": study.joint,
                       "chi2": study.chi2, "dof": study.dof, "p_value": study.p_value, "consistent": study.consistent}

@@ -145,3 +145,35 @@ def test_bad_study_sections_name_the_key(job, tmp_path, study, key):
     path = job / f"bad-{tmp_path.name}.toml"
     path.write_text((job / "job.toml").read_text() + f"\n[study]\n{study}\n")
     _refused(_run("run", path, "--out", tmp_path / "out"), key)
+
+
+@pytest.mark.slow
+def test_job_files_run_the_calibration_and_the_spectrum(job, tmp_path):
+    import json
+
+    import numpy as np
+
+    from lossfit.experiment.binding import binding_energy_khz
+    from lossfit.experiment.feshbach import resonance_scattering_length
+
+    # invented binding energies (not measured): van der Waals model, b0 = 550 G
+    b = 550.0 + np.geomspace(0.025, 9.0, 12)
+    e = binding_energy_khz(resonance_scattering_length(b, 550.0, -10.0, 200.0), "133Cs", model="van-der-waals")
+    e_meas = e * (1 + 0.005 * np.random.default_rng(4).standard_normal(e.size))
+    lines = ["# invented (not measured)", "B,E_b,E_b_err"] + [f"{x:.6f},{y:.8g},{0.005 * z:.4g}"
+                                                            for x, y, z in zip(b, e_meas, e)]
+    (tmp_path / "binding.csv").write_text("\n".join(lines) + "\n")
+    (tmp_path / "cal.toml").write_text('[data]\nspecies = "133Cs"\nbinding_energies = "binding.csv"\n[study]\n'
+                                       'kind = "calibration"\nguess = [549.9, -9.0, 190.0]\n')
+    proc = _run("run", tmp_path / "cal.toml", "--out", tmp_path / "cal")
+    assert proc.returncode == 0, proc.stderr
+    record = json.loads((tmp_path / "cal" / "study.json").read_text())
+    assert record["preferred"] == "van-der-waals"
+    assert abs(record["fits"][0]["params"][0] - 550.0) < 0.01
+    spec = (job / "job.toml").read_text().replace("steps = 40", "steps = 300") + '\n[study]\nkind = "spectrum"\n'
+    (job / f"spectrum-{tmp_path.name}.toml").write_text(spec)
+    proc = _run("run", job / f"spectrum-{tmp_path.name}.toml", "--out", tmp_path / "spec")
+    assert proc.returncode == 0, proc.stderr
+    record = json.loads((tmp_path / "spec" / "study.json").read_text())
+    assert record["kind"] == "spectrum" and record["kappa_star_per_a0"] > 0
+    assert (tmp_path / "spec" / "study.png").stat().st_size > 0
