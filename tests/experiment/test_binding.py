@@ -67,6 +67,7 @@ def test_van_der_waals_mean_scattering_length():
     assert CS.abar == pytest.approx(2 * ABAR_BETA6 * CS.r_vdw, rel=1e-6)
 
 
+@pytest.mark.slow
 def test_van_der_waals_tends_to_the_universal_law_and_is_converged():
     a = np.array([300.0, 1000.0, 3000.0, 1e4])
     ratio = binding_energy_khz(a, CS, model="van-der-waals") / binding_energy_khz(a, CS) - 1.0

@@ -99,6 +99,7 @@ def test_breakup_falls_off_with_angular_momentum():
     assert np.all(ratios < 0.6) and np.all(ratios > 0.3)
 
 
+@pytest.mark.slow
 def test_born_form_agrees_with_solves_at_large_j():
     # The second-order form of the exchange kernel (PartialWaveSolver.born_breakup) is the
     # large-J form of the table: it must agree with the solves where both exist, better
