@@ -96,7 +96,7 @@ def test_recovers_known_parameters_from_synthetic_spectra():
         if row["name"] in truth:
             assert row["lo95"] <= truth[row["name"]] <= row["hi95"], row
     assert res.correlation().shape == (4, 4)
-    assert set(res.derived) == {"a_star/a_minus", "a_minus/r_vdw"}
+    assert set(res.derived) == {"a_star/a_minus", "a_minus/r_vdw", "eta_star/eta_minus"}
     assert np.median(res.derived["a_minus/r_vdw"]) == pytest.approx(-850.0 / CS.r_vdw, rel=0.02)
     d = res.to_dict()
     json.dumps(d)
