@@ -116,6 +116,11 @@ class FeshbachResonance(_ScatteringLengthModel):
         """(b0, width, a_bg) in (G, G, a0)."""
         return np.array([self.b0, self.width, self.a_bg])
 
+    def binding_energy_khz(self, B, species, *, model="universal", r_star=None):
+        """Feshbach-dimer binding energy E_b/h (kHz) at fields ``B`` (G) on the a > 0 side, with
+        a binding-energy model of :func:`lossfit.experiment.binding.binding_energy_khz`."""
+        return binding_energy_khz(self.a(B), species, model=model, r_star=r_star)
+
     @property
     def zero_crossing(self):
         """Field where a = 0, b0 + width, in G."""

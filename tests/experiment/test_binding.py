@@ -105,3 +105,11 @@ def test_calibration_prefers_the_generating_model(truth, r_star):
     assert best.model == truth and best.chi2 < 3 * best.dof
     np.testing.assert_allclose(best.params, [550.0, -10.0, 200.0], rtol=0.02)
     assert best.covariance.shape == (3, 3)
+
+
+def test_resonance_gives_binding_energies_with_each_model():
+    res = lf.FeshbachResonance(550.0, -10.0, 200.0)
+    b = np.array([550.5, 552.0])
+    for model, r_star in (("universal", None), ("effective-range", 300.0), ("van-der-waals", None)):
+        np.testing.assert_allclose(res.binding_energy_khz(b, CS, model=model, r_star=r_star),
+                                   binding_energy_khz(res.a(b), CS, model=model, r_star=r_star), rtol=1e-14)
