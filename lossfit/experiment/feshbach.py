@@ -30,7 +30,7 @@ import numpy as np
 from scipy.interpolate import PchipInterpolator
 from scipy.optimize import brentq, least_squares
 
-from ..errors import LossfitValueError, ValidityWarning, check_finite, check_positive, check_table
+from ..errors import FitCheckWarning, LossfitValueError, ValidityWarning, check_finite, check_positive, check_table
 from ..species import species as _lookup_species
 from .binding import BINDING_MODELS, binding_energy_khz
 
@@ -656,6 +656,9 @@ def compare_binding_models(B, E_b_kHz, E_b_err, species, guess, *, r_star=None, 
         except LossfitValueError as err:
             if err.argument not in ("guess", "a"):
                 raise
+            # a model that cannot describe the data at all is left out, and said so
+            warnings.warn(f"binding-energy model {m!r} could not be fitted ({err}); it is left out of the "
+                          "comparison", FitCheckWarning, stacklevel=2)
     if not fits:
         raise LossfitValueError("guess", "no binding-energy model could be fitted; try a better guess")
     fits.sort(key=lambda f: f.aic)
