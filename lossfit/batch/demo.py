@@ -36,6 +36,12 @@ def _fresh_folder(out_dir, names, overwrite):
         os.remove(os.path.join(out_dir, n))
 
 
+def _sampler_section(walkers, steps, seed, log_every):
+    """The [sampler] section both demo jobs share."""
+    return (f"[sampler]\nwalkers = {walkers}\nsteps = {steps}\nseed = {seed}\nburn = \"auto\"\nthin = 1\n"
+            f"checkpoint_every = 250\nlog_every = {log_every}\n")
+
+
 def demo_job_text(walkers=32, steps=5000, seed=1):
     """The job file the demo runs (TOML; see :mod:`lossfit.batch.jobs`)."""
     return f"""# lossfit demo job: {SCENARIO['description']}
@@ -54,15 +60,7 @@ a_star = {{ prior = "default" }}
 eta_star = {{ prior = "default" }}
 density_scale = {{ prior = "log-normal", median = 1.0, sigma = 0.2 }}
 
-[sampler]
-walkers = {walkers}
-steps = {steps}
-seed = {seed}
-burn = "auto"
-thin = 1
-checkpoint_every = 250
-log_every = 500
-"""
+""" + _sampler_section(walkers, steps, seed, log_every=500)
 
 
 def curves_job_text(walkers=16, steps=CURVES_DEMO_STEPS, seed=1):
@@ -81,15 +79,7 @@ eta_minus = {{ prior = "default" }}
 density_scale = {{ prior = "log-normal", median = 1.0, sigma = 0.2 }}
 temperature_scale = {{ prior = "log-normal", median = 1.0, sigma = 0.05 }}
 
-[sampler]
-walkers = {walkers}
-steps = {steps}
-seed = {seed}
-burn = "auto"
-thin = 1
-checkpoint_every = 250
-log_every = 250
-"""
+""" + _sampler_section(walkers, steps, seed, log_every=250)
 
 
 def _say(quiet):
