@@ -4,7 +4,6 @@ __all__ = ["corner_plot", "spectrum_plot", "posterior_bands", "save_figure"]
 
 import os
 
-import corner
 import matplotlib.pyplot as plt
 import numpy as np
 from matplotlib.lines import Line2D
@@ -62,6 +61,9 @@ def corner_plot(result, *, truths=None, fig=None, **corner_kwargs):
     -------
     matplotlib.figure.Figure
     """
+    # corner imports ArviZ whenever it is installed (0.8 s): only this figure needs corner
+    import corner
+
     x = np.column_stack([result.samples[n] for n in result.names])
     kw = dict(labels=[_label(n) for n in result.names], quantiles=[0.16, 0.5, 0.84],
               show_titles=False, levels=(0.68, 0.95), plot_datapoints=False, labelpad=0.05)
