@@ -148,7 +148,7 @@ def test_j0_probabilities_obey_unitarity():
     # From the three-atom side: the deep-dimer probability T_break (1 - |w|^2)/|1 + s w|^2
     # cannot exceed 1 either.
     tab = load_recombination_table()
-    e = np.geomspace(0.02, 200.0, 60)
+    e = np.geomspace(0.02, tab.energy_max, 90)          # the whole table, to E = 1e4 E_b
     cols = tab.evaluate(e)
     s = cols[:, 0] + 1j * cols[:, 1]
     b = cols[:, 3] + 1j * cols[:, 4]
@@ -165,6 +165,24 @@ def test_j0_probabilities_obey_unitarity():
             assert np.all(p_break >= -1e-9)
             assert np.all(p_break + p_relax <= 1 + 1e-9)
             assert np.all(p_deep <= 1 + 1e-9)
+    # every tabulated J >= 1 breakup probability is a probability
+    with np.load(lf.universal.tables.table_path("recombination_positive_a.npz")) as d:
+        assert np.all(d["p_break_j"] >= -1e-9) and np.all(d["p_break_j"] <= 1 + 1e-9)
+
+
+def test_deep_channel_obeys_unitarity_up_to_unitarity():
+    # above the three-body grid (atom-dimer table, then the |a| = infinity tail): the
+    # three-atom -> Efimov-channel transmission and the deep-dimer probability stay <= 1
+    tab = load_recombination_table()
+    e = np.geomspace(1.01 * tab.energy_max, 1e10, 60)
+    cols = tab.evaluate(e)
+    s = cols[:, 0] + 1j * cols[:, 1]
+    t_break = e ** 2 * cols[:, 6]
+    assert np.all(t_break > 0) and np.all(t_break <= 1 - np.abs(s) ** 2 + 1e-12)
+    for eta in (0.0, 0.05, 0.5):
+        for phi in np.linspace(0, math.pi, 13):
+            w = np.exp(2j * phi - 2 * eta)
+            assert np.all(t_break * (1 - abs(w) ** 2) / np.abs(1 + s * w) ** 2 <= 1 + 1e-9)
 
 
 def test_channels_add_up_and_a_negative_has_no_shallow_dimer():
