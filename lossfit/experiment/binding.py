@@ -21,7 +21,8 @@
 Masses: m is the atomic mass (the dimer's reduced mass is m/2).
 """
 
-__all__ = ["binding_energy_khz", "BINDING_MODELS", "vdw_scattering_length", "vdw_kappa"]
+__all__ = ["binding_energy_khz", "universal_scattering_length", "check_binding_model", "BINDING_MODELS",
+           "vdw_scattering_length", "vdw_kappa"]
 
 import functools
 import math
@@ -103,6 +104,27 @@ def vdw_kappa(a_beta6, x_short=X_SHORT, rtol=RTOL):
     raise LossfitValueError("a", f"no weakly bound van der Waals state found for a = {a_beta6:g} beta6")
 
 
+def check_binding_model(model, r_star):
+    """Validate a binding-energy model and its R* (a0, effective-range model only); returns
+    R* as a float, or None."""
+    if model not in BINDING_MODELS:
+        raise LossfitValueError("model", f"must be one of {list(BINDING_MODELS)}, got {model!r}")
+    if (r_star is not None) != (model == "effective-range"):
+        raise LossfitValueError("r_star", "is the effective range of model='effective-range' (a0) and only of it")
+    if r_star is None:
+        return None
+    r = float(check_finite("r_star", r_star))
+    if r < 0:
+        raise LossfitValueError("r_star", f"must be >= 0 a0, got {r!r}")
+    return r
+
+
+def universal_scattering_length(E_b_kHz, species):
+    """The inverse of the universal law: a = abar + hbar / sqrt(m E_b), in a0 (E_b/h in kHz)."""
+    sp = _lookup_species(species)
+    return sp.abar + np.sqrt(_prefactor_khz(sp) / np.asarray(E_b_kHz, dtype=float))
+
+
 def binding_energy_khz(a, species, *, model="universal", r_star=None):
     """Feshbach-dimer binding energy E_b / h in kHz at scattering length ``a``.
 
@@ -124,15 +146,9 @@ def binding_energy_khz(a, species, *, model="universal", r_star=None):
     """
     sp = _lookup_species(species)
     arr = check_finite("a", a)
-    if model not in BINDING_MODELS:
-        raise LossfitValueError("model", f"must be one of {list(BINDING_MODELS)}, got {model!r}")
-    if (r_star is not None) != (model == "effective-range"):
-        raise LossfitValueError("r_star", "is the effective range of model='effective-range' (a0) and only of it")
+    r = check_binding_model(model, r_star)
     pref = _prefactor_khz(sp)
     if model == "effective-range":
-        r = float(check_finite("r_star", r_star))
-        if r < 0:
-            raise LossfitValueError("r_star", f"must be >= 0 a0, got {r!r}")
         if np.any(arr <= 0):
             raise LossfitValueError("a", "a dimer needs a > 0")
         kappa = 1.0 / arr if r == 0 else (np.sqrt(1.0 + 4.0 * r / arr) - 1.0) / (2.0 * r)   # 1/a0

@@ -32,7 +32,7 @@ from scipy.optimize import brentq, least_squares
 
 from ..errors import FitCheckWarning, LossfitValueError, ValidityWarning, check_finite, check_positive, check_table
 from ..species import species as _lookup_species
-from .binding import BINDING_MODELS, binding_energy_khz
+from .binding import BINDING_MODELS, binding_energy_khz, check_binding_model, universal_scattering_length
 
 _SIDES = ("above", "below")
 
@@ -577,9 +577,7 @@ def calibrate_from_binding_energies(B, E_b_kHz, E_b_err, species, guess, *, abso
     if not (np.all(b > g[0]) or np.all(b < g[0])):
         raise LossfitValueError("B", f"all fields must lie on one side of the guessed b0 = {g[0]:g} G "
                                 "(binding energies exist only on the a > 0 side)")
-    if model not in BINDING_MODELS:
-        raise LossfitValueError("model", f"must be one of {list(BINDING_MODELS)}, got {model!r}")
-    binding_energy_khz(1e4, sp, model=model, r_star=r_star)          # checks model and r_star
+    check_binding_model(model, r_star)
     abar = sp.abar
     floor = 0.0 if model == "effective-range" else abar
 
@@ -588,7 +586,7 @@ def calibrate_from_binding_energies(B, E_b_kHz, E_b_err, species, guess, *, abso
 
     # Stage 1: scattering lengths implied by each energy through the universal law (a
     # smooth, branch-free start for every model), errors propagated linearly.
-    a_data = abar + np.sqrt(binding_energy_khz(1e4, sp) * (1e4 - abar) ** 2 / e)
+    a_data = universal_scattering_length(e, sp)
     a_err = 0.5 * (a_data - abar) * err / e
     first = least_squares(lambda p: (a_of(p) - a_data) / a_err, g, x_scale="jac", method="lm")
 

@@ -14,7 +14,13 @@ import pytest
 from scipy.integrate import solve_ivp
 
 import lossfit as lf
-from lossfit.experiment.binding import ABAR_BETA6, binding_energy_khz, vdw_kappa
+from lossfit.experiment.binding import (
+    ABAR_BETA6,
+    binding_energy_khz,
+    universal_scattering_length,
+    vdw_kappa,
+    vdw_scattering_length,
+)
 from lossfit.experiment.feshbach import compare_binding_models, resonance_scattering_length
 
 CS = lf.species("133Cs")
@@ -113,3 +119,14 @@ def test_resonance_gives_binding_energies_with_each_model():
     for model, r_star in (("universal", None), ("effective-range", 300.0), ("van-der-waals", None)):
         np.testing.assert_allclose(res.binding_energy_khz(b, CS, model=model, r_star=r_star),
                                    binding_energy_khz(res.a(b), CS, model=model, r_star=r_star), rtol=1e-14)
+
+
+def test_van_der_waals_boundary_condition_returns_its_scattering_length():
+    # integrating the short-range condition set for a at E = 0 gives a back (docs/feshbach.md)
+    for v in (0.6, 3.0, 30.0):
+        assert vdw_scattering_length(v) == pytest.approx(v, rel=1e-7)
+
+
+def test_universal_inverse():
+    a = np.array([300.0, 3000.0])
+    np.testing.assert_allclose(universal_scattering_length(binding_energy_khz(a, CS), CS), a, rtol=1e-13)
