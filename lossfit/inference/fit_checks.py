@@ -69,7 +69,7 @@ def goodness_of_fit(likelihood, space, kept_theta, median_values, *, draws=200, 
     spectra = likelihood.spectra
     value = [s.value for s in spectra]
     error = [s.error for s in spectra]
-    model = likelihood.predict(space.efimov(median_values), median_values.get("density_scale", 1.0))
+    model = likelihood.predict_values(space, median_values)
     residuals = [(v - m) / e for v, m, e in zip(value, model, error)]
     chi2 = float(sum(np.sum(r * r) for r in residuals))
     n = int(sum(r.size for r in residuals))
@@ -78,8 +78,7 @@ def goodness_of_fit(likelihood, space, kept_theta, median_values, *, draws=200, 
     idx = rng.choice(kept_theta.shape[0], size=min(draws, kept_theta.shape[0]), replace=False)
     exceed = 0
     for i in idx:
-        vals = space.values(kept_theta[i])
-        mu = likelihood.predict(space.efimov(vals), vals.get("density_scale", 1.0))
+        mu = likelihood.predict_values(space, space.values(kept_theta[i]))
         t_obs = sum(float(np.sum(((v - m) / e) ** 2)) for v, m, e in zip(value, mu, error))
         t_rep = float(np.sum(rng.standard_normal(n) ** 2))
         exceed += t_rep >= t_obs

@@ -150,6 +150,11 @@ class SpectrumLikelihood:
         """log L for the Efimov set and a dict of every parameter value (nuisances)."""
         return self(efimov, values.get("density_scale", 1.0))
 
+    def predict_values(self, space, values):
+        """Model values as the data would report them (one array per spectrum) at a dict of
+        every parameter value of ``space``."""
+        return self.predict(space.efimov(values), values.get("density_scale", 1.0))
+
     def fit_check(self, space, kept_theta, median_values):
         """(checks dict, messages) of a finished fit (:mod:`lossfit.inference.fit_checks`)."""
         checks = goodness_of_fit(self, space, kept_theta, median_values)

@@ -295,10 +295,11 @@ class FitResult:
 
     # ---- exports --------------------------------------------------------------------
     def _kept_physical(self):
-        """Kept samples in physical units, shape (steps kept, walkers, ndim), and their steps."""
-        kept = self.chain[self.burn::self.thin]
-        phys = self.space.physical(kept.reshape(-1, kept.shape[2])).reshape(kept.shape)
-        return phys, np.arange(self.burn, self.chain.shape[0], self.thin)
+        """``samples`` as an array of shape (steps kept, walkers, ndim), and their steps (the
+        samples run step by step, walkers within a step)."""
+        steps = np.arange(self.burn, self.chain.shape[0], self.thin)
+        phys = np.stack([self.samples[n] for n in self.names], axis=-1)
+        return phys.reshape(steps.size, self.chain.shape[1], len(self.names)), steps
 
     def to_dataframe(self):
         """The kept posterior samples as a pandas DataFrame: columns ``walker``, ``step``
@@ -328,14 +329,9 @@ class FitResult:
             spectra = self.likelihood.spectra
             value = np.concatenate([s.value for s in spectra])
             error = np.concatenate([s.error for s in spectra])
-            kept = self.chain[self.burn::self.thin]
-            mu = np.empty(kept.shape[:2] + (value.size,))
-            for j in range(kept.shape[0]):
-                for w in range(kept.shape[1]):
-                    vals = self.space.values(kept[j, w])
-                    mu[j, w] = np.concatenate(self.likelihood.predict(self.space.efimov(vals),
-                                                                      vals.get("density_scale", 1.0)))
-            mu = mu.transpose(1, 0, 2)
+            mu = np.array([np.concatenate(self.likelihood.predict_values(self.space, self.space.values(theta)))
+                           for theta in self._kept_theta])
+            mu = mu.reshape(steps.size, self.chain.shape[1], value.size).transpose(1, 0, 2)
             z = (value - mu) / error
             rng = np.random.default_rng(seed)
             groups["observed_data"] = {"y": value}
