@@ -88,6 +88,8 @@ class DecayCurve:
         kept as ``trap_hz`` and ``dimer_trap_hz`` (3 floats each, the dimers' equal to the
         atoms' unless given), from which ``lossfit.experiment.trap.as_trap(curve)``
         builds the trap.
+    dimer_trap_hz : sequence of 3 floats, optional
+        Dimer trap frequencies in Hz, when ``trap_hz`` is a plain triple.
     kind : {"atoms", "dimers"}
         ``"dimers"``: an atom-dimer mixture whose dimer number is in ``atoms``.
     partner_atoms : float or array_like, optional
@@ -100,7 +102,8 @@ class DecayCurve:
     """
 
     def __init__(self, *, t, atoms, atoms_err, temperature=None, temperature_err=None, field=None,
-                 a=None, trap_hz=None, kind="atoms", partner_atoms=None, partner_atoms_err=None,
+                 a=None, trap_hz=None, dimer_trap_hz=None, kind="atoms", partner_atoms=None,
+                 partner_atoms_err=None,
                  label=None):
         if kind not in KINDS:
             raise LossfitValueError("kind", f"must be 'atoms' or 'dimers', got {kind!r}")
@@ -132,7 +135,7 @@ class DecayCurve:
             raise LossfitValueError("a", "must be non-zero (the zero-range theory needs |a| > 0)")
         if kind == "dimers" and self.a is not None and self.a <= 0:
             raise LossfitValueError("a", f"dimer curves need a > 0 (a shallow Feshbach dimer), got {self.a:g} a0")
-        self.trap_hz, self.dimer_trap_hz = _trap_frequencies(trap_hz)
+        self.trap_hz, self.dimer_trap_hz = _trap_frequencies(trap_hz, dimer_trap_hz)
         self.kind = kind
         if kind == "atoms":
             if partner_atoms is not None or partner_atoms_err is not None:
@@ -205,16 +208,17 @@ class DecayCurve:
         return a
 
 
-def _trap_frequencies(trap_hz):
-    """(atom, dimer) trap frequencies in Hz from 3 floats or a trap object that carries
-    both (``frequencies_hz``, ``dimer_frequencies_hz``, as lossfit.HarmonicTrap does)."""
+def _trap_frequencies(trap_hz, dimer_trap_hz):
+    """(atom, dimer) trap frequencies in Hz from 3 floats each (the dimers' default: the
+    atoms') or a trap object that carries both (``frequencies_hz``,
+    ``dimer_frequencies_hz``, as lossfit.HarmonicTrap does)."""
     if trap_hz is None:
         raise LossfitValueError("trap_hz", "trap frequencies are required: give (f_x, f_y, f_z) in Hz "
                                 "or a HarmonicTrap")
     atom = getattr(trap_hz, "frequencies_hz", trap_hz)
-    dimer = getattr(trap_hz, "dimer_frequencies_hz", atom)
+    dimer = getattr(trap_hz, "dimer_frequencies_hz", atom) if dimer_trap_hz is None else dimer_trap_hz
     out = []
-    for name, f in (("trap_hz", atom), ("trap_hz", dimer)):
+    for name, f in (("trap_hz", atom), ("dimer_trap_hz", dimer)):
         try:
             arr = np.asarray(f, dtype=float)
         except (TypeError, ValueError):
@@ -252,14 +256,6 @@ class Campaign:
     species: str | None = None
     resonance: dict | None = None
     metadata: dict = _dc_field(default_factory=dict)
-
-
-class _StoredTrap:
-    """Atom and dimer trap frequencies as read from a campaign file."""
-
-    def __init__(self, frequencies_hz, dimer_frequencies_hz):
-        self.frequencies_hz = frequencies_hz
-        self.dimer_frequencies_hz = dimer_frequencies_hz
 
 
 def _resonance_record(resonance):
@@ -394,8 +390,8 @@ def read_campaign(path):
                     value = _get(g, name, path, where, optional=True)
                     if value is not None:
                         kw[name] = float(value) if np.ndim(value) == 0 and name in ("field", "a") else value
-                trap = _StoredTrap(_get(g, "trap_hz", path, where), _get(g, "dimer_trap_hz", path, where))
-                curves.append(DecayCurve(trap_hz=trap, kind=str(g.attrs["kind"]),
+                curves.append(DecayCurve(trap_hz=_get(g, "trap_hz", path, where),
+                                         dimer_trap_hz=_get(g, "dimer_trap_hz", path, where), kind=str(g.attrs["kind"]),
                                          label=str(g.attrs["label"]), **kw))
         except (KeyError, OSError) as err:
             raise LossfitValueError("path", f"{path!r} is damaged ({err})") from None
