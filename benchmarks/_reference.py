@@ -14,8 +14,9 @@ from independent import (  # noqa: E402,F401
     KB,
     S0,
     SQRT_PI,
+    k_gauss,
     k_lorentz,
-    lorentz_features,
+    line_features,
     no_features,
 )
 

@@ -33,8 +33,20 @@ from scipy.special import gammainc, roots_genlaguerre
 sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), ".."))
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 
-import numba  # noqa: E402
-from _reference import A0, HBAR, KB, LAMBDA, S0, SQRT_PI, U2, U3, k_lorentz, lorentz_features, no_features  # noqa: E402,F401,E501
+from _reference import (  # noqa: E402,F401
+    A0,
+    HBAR,
+    KB,
+    LAMBDA,
+    S0,
+    SQRT_PI,
+    U2,
+    U3,
+    k_gauss,
+    k_lorentz,
+    line_features,
+    no_features,
+)
 
 import lossfit as lf  # noqa: E402
 from lossfit.thermal import ATOM_DIMER, THREE_BODY, thermal_average  # noqa: E402
@@ -42,12 +54,6 @@ from lossfit.universal.models import get_model  # noqa: E402
 
 ETAS = [0.005, 0.05, 0.5, 2.0]
 KW = dict(epsabs=0.0, epsrel=1e-12, limit=500)
-
-
-@numba.njit
-def _gauss(x, p):
-    d = (x - p[0]) / p[1]
-    return math.exp(-0.5 * d * d) / (p[1] * math.sqrt(2 * math.pi))
 
 
 # Probe coefficients of the capped kernels: the early published fits (4590, 67.1, 16.8, 20.3,
@@ -151,7 +157,7 @@ def lorentz_map(weight):
             f = lambda x, c=c, g=g: g / math.pi / ((x - c) ** 2 + g * g)
             ref = quad_avg(f, weight, [c + k * g for k in (-100, -10, -1, 0, 1, 10, 100)])
             row = np.array([[c, g]])
-            v = thermal_average(k_lorentz, lorentz_features, row, weight)[0][0]
+            v = thermal_average(k_lorentz, line_features, row, weight)[0][0]
             v0 = thermal_average(k_lorentz, no_features, row, weight)[0][0]
             vgl = norm * np.sum(w * (g / math.pi / ((x - c) ** 2 + g * g)))
             worst = max(worst, abs(v / ref - 1))
@@ -169,7 +175,7 @@ def gauss_map():
         w = 0.0
         for c in np.geomspace(0.05, 20.0, 10):
             exact = 0.5 * math.exp(-c + sig * sig / 2) * ((c - sig * sig) ** 2 + sig * sig)
-            v = thermal_average(_gauss, lorentz_features, np.array([[c, sig]]), THREE_BODY)[0][0]
+            v = thermal_average(k_gauss, line_features, np.array([[c, sig]]), THREE_BODY)[0][0]
             w = max(w, abs(v / exact - 1))
         worst[sig] = w
     return worst

@@ -2,7 +2,7 @@
 and the benchmarks (benchmarks/_reference.py): CODATA constants from scipy, s0 from its
 transcendental equation by scipy's brentq (Braaten & Hammer, Phys. Rep. 428, 259 (2006):
 s cosh(pi s/2) = (8/sqrt 3) sinh(pi s/6)), and probe kernels for the quadrature engine
-(a Breit-Wigner line of unit area, with and without its feature points)."""
+(Breit-Wigner and Gaussian lines of unit area, with and without their feature points)."""
 
 import math
 
@@ -32,7 +32,15 @@ def k_lorentz(x, p):
 
 
 @numba.njit
-def lorentz_features(p, out):
+def k_gauss(x, p):
+    # Gaussian line of unit area, centre p[0], standard deviation p[1].
+    d = (x - p[0]) / p[1]
+    return math.exp(-0.5 * d * d) / (p[1] * math.sqrt(2 * math.pi))
+
+
+@numba.njit
+def line_features(p, out):
+    # the centre p[0] and the points one width p[1] either side: what thermal.py asks of a line
     out[0] = p[0] - p[1]
     out[1] = p[0]
     out[2] = p[0] + p[1]

@@ -22,7 +22,7 @@ import math
 import numba
 import numpy as np
 import pytest
-from independent import A0, HBAR, KB, S0, SQRT_PI, k_lorentz, lorentz_features, no_features
+from independent import A0, HBAR, KB, S0, SQRT_PI, k_gauss, k_lorentz, line_features, no_features
 from scipy.integrate import quad
 from scipy.special import exp1, gamma, gammainc, gammaincc, roots_genlaguerre
 
@@ -198,7 +198,7 @@ def test_narrow_breit_wigner(weight, g):
     worst = 0.0
     for c in CENTRES:
         ref = quad_average(lorentz_py(c, g), weight, lorentz_points(c, g))
-        value = average(k_lorentz, lorentz_features, [[c, g]], weight)
+        value = average(k_lorentz, line_features, [[c, g]], weight)
         worst = max(worst, rel(value[0], ref))
     assert worst < TOL
 
@@ -213,24 +213,8 @@ def test_fixed_gauss_laguerre_misses_narrow_resonance():
         gl = 0.5 * np.sum(w * lorentz_py(c, g)(x))
         ref = quad_average(lorentz_py(c, g), THREE_BODY, lorentz_points(c, g))
         assert rel(gl, ref) > 0.01
-        value = average(k_lorentz, lorentz_features, [[c, g]], THREE_BODY)
+        value = average(k_lorentz, line_features, [[c, g]], THREE_BODY)
         assert rel(value[0], ref) < TOL
-
-
-@numba.njit
-def k_gauss(x, p):
-    # Gaussian line of unit area, centre p[0], standard deviation p[1].
-    d = (x - p[0]) / p[1]
-    return math.exp(-0.5 * d * d) / (p[1] * math.sqrt(2 * math.pi))
-
-
-@numba.njit
-def gauss_features(p, out):
-    # Exactly what the thermal.py contract asks for: the centre and the half-widths.
-    out[0] = p[0] - p[1]
-    out[1] = p[0]
-    out[2] = p[0] + p[1]
-    return 3
 
 
 @pytest.mark.parametrize("c, g", [(1.37, 1e-3), (4.1, 1e-3), (0.37, 1e-4)])
@@ -242,14 +226,14 @@ def test_narrow_gaussian_line_with_documented_features(c, g):
     f = lambda x: math.exp(-0.5 * ((x - c) / g) ** 2) / (g * math.sqrt(2 * math.pi))
     ref = quad_average(f, THREE_BODY, [c + k * g for k in range(-8, 9)])
     assert rel(ref, exact) < 1e-9
-    value = average(k_gauss, gauss_features, [[c, g]], THREE_BODY)
+    value = average(k_gauss, line_features, [[c, g]], THREE_BODY)
     assert rel(value[0], exact) < TOL
 
 
 def test_many_rows_in_one_call_match_single_rows():
     rows = np.array([[c, g] for c in CENTRES for g in WIDTHS])
-    together = average(k_lorentz, lorentz_features, rows, THREE_BODY)
-    single = np.array([average(k_lorentz, lorentz_features, [r], THREE_BODY)[0] for r in rows])
+    together = average(k_lorentz, line_features, rows, THREE_BODY)
+    single = np.array([average(k_lorentz, line_features, [r], THREE_BODY)[0] for r in rows])
     assert np.array_equal(together, single)
 
 
