@@ -22,6 +22,7 @@ evaluated in numba. Outside the grid the known limits take over:
 __all__ = ["S11Table", "AtomDimerTable", "RecombinationTable", "load_s11_table", "load_atom_dimer_table",
            "load_recombination_table", "table_path", "spline_coefficients"]
 
+import cmath
 import json
 import math
 import os
@@ -397,12 +398,11 @@ class RecombinationTable:
         x_last = math.sqrt(self.deep_energy_switch)
         t_ad, s_last = atom_dimer.evaluate(np.array([atom_dimer.kad_max]))
         t_break = 1.0 - abs(s_last[0]) ** 2 - t_ad[0]
-        s_unit = math.exp(-math.pi * S0) * complex(math.cos(_unitarity_phase(x_last)),
-                                                   math.sin(_unitarity_phase(x_last)))
+        s_unit = math.exp(-math.pi * S0) * cmath.exp(1j * _unitarity_phase(x_last))
         tail_s = (s_last[0] / s_unit - 1.0) * x_last
         self.unitarity_tail = {"t_break": (t_break - T_UNITARITY) * x_last, "s": tail_s}
         head = np.array([energy.size, lnx[0], lnx[1] - lnx[0], energy[0], energy[-1]] + limits[:7]
-                        + [self.deep_energy_switch, (t_break - T_UNITARITY) * x_last, tail_s.real, tail_s.imag])
+                        + [self.deep_energy_switch, self.unitarity_tail["t_break"], tail_s.real, tail_s.imag])
         assert head.size == _RC_HEADER
         splines = [spline_coefficients(lnx, c).T.ravel() for c in columns]
         self.packed = np.concatenate([head] + splines + [atom_dimer.packed])
