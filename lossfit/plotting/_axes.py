@@ -1,9 +1,15 @@
-"""Axis formatting shared by the figures."""
+"""Axis formatting and parameter symbols shared by the figures."""
 
-__all__ = ["tidy_log_axis"]
+__all__ = ["tidy_log_axis", "SYMBOLS"]
 
 import numpy as np
 from matplotlib import ticker
+
+#: Typeset symbols of the parameters.
+SYMBOLS = {"a_minus": r"$a_-$", "a_star": r"$a_*$", "a_plus": r"$a_+$", "eta_minus": r"$\eta_-$",
+           "eta_star": r"$\eta_*$", "eta_plus": r"$\eta_+$", "eta": r"$\eta$",
+           "density_scale": r"density scale", "temperature_scale": r"temperature scale",
+           "b0": r"$B_0$", "width": r"$\Delta$", "a_bg": r"$a_\mathrm{bg}$", "sigma_B": r"$\sigma_B$"}
 
 
 def tidy_log_axis(axis):

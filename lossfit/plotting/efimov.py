@@ -10,8 +10,9 @@ from ..constants import SCALING_FACTOR
 from ..efimov import Efimov
 from ..errors import LossfitValueError
 from ..universal.spectrum import kappa_star, load_trimer_table
+from ._axes import SYMBOLS
 
-_FEATURES = (("a_minus", r"$a_-$", "C3"), ("a_star", r"$a_*$", "C2"), ("a_plus", r"$a_+$", "C4"))
+_FEATURE_COLOURS = (("a_minus", "C3"), ("a_star", "C2"), ("a_plus", "C4"))
 
 
 def _scaled(x):
@@ -58,7 +59,8 @@ def efimov_spectrum_plot(source, *, branches=3, fig=None):
     ax.axhline(0.0, color="k", lw=1.0, label="three-atom threshold")
     xs = np.linspace(0.0, x_hi, 200)
     ax.plot(xs, -xs, color="0.35", lw=1.0, ls="--", label=r"atom-dimer threshold $E=-\hbar^2/(m a^2)$")
-    for name, symbol, colour in _FEATURES:
+    for name, colour in _FEATURE_COLOURS:
+        symbol = SYMBOLS[name]
         value = getattr(efimov, name)
         if value is None:
             continue

@@ -11,20 +11,14 @@ from matplotlib.lines import Line2D
 from ..errors import LossfitValueError
 from ..inference.likelihood import RateBlock
 from ..inference.parameters import UNITS
-from ._axes import tidy_log_axis
-
-_LABELS = {"a_minus": r"$a_-$", "a_star": r"$a_*$", "a_plus": r"$a_+$", "eta_minus": r"$\eta_-$",
-           "eta_star": r"$\eta_*$", "eta_plus": r"$\eta_+$", "eta": r"$\eta$",
-           "density_scale": r"density scale", "temperature_scale": r"temperature scale",
-           "b0": r"$B_0$", "width": r"$\Delta$", "a_bg": r"$a_\mathrm{bg}$", "sigma_B": r"$\sigma_B$"}
-
+from ._axes import SYMBOLS, tidy_log_axis
 
 _UNIT_LABELS = {"a0": r"$a_0$", "G": "G"}
 
 
 def _label(name):
     unit = UNITS.get(name, "")
-    return _LABELS.get(name, name) + (f" ({_UNIT_LABELS.get(unit, unit)})" if unit else "")
+    return SYMBOLS.get(name, name) + (f" ({_UNIT_LABELS.get(unit, unit)})" if unit else "")
 
 
 def _title(name, samples):
@@ -35,7 +29,7 @@ def _title(name, samples):
     smallest = min(v for v in (lo, hi, abs(q50)) if v > 0) if any(v > 0 for v in (lo, hi, abs(q50))) else 1.0
     decimals = max(0, 1 - int(np.floor(np.log10(smallest))))
     body = f"{q50:.{decimals}f}^{{+{hi:.{decimals}f}}}_{{-{lo:.{decimals}f}}}"
-    symbol = _LABELS.get(name, name)
+    symbol = SYMBOLS.get(name, name)
     if symbol.startswith("$"):
         symbol = symbol.strip("$")
     else:

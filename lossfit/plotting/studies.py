@@ -7,9 +7,7 @@ import matplotlib.pyplot as plt
 import numpy as np
 
 from ..experiment.binding import binding_energy_khz
-from ._axes import tidy_log_axis
-
-_SYMBOLS = {"a_minus": r"$a_-$", "a_star": r"$a_*$"}
+from ._axes import SYMBOLS, tidy_log_axis
 
 
 def temperature_study_plot(study, *, fig=None):
@@ -41,7 +39,7 @@ def temperature_study_plot(study, *, fig=None):
     ax.axhline(j[0], color="C0", lw=1.0)
     ax.set_xscale("log")
     tidy_log_axis(ax.xaxis)
-    symbol = _SYMBOLS.get(study.feature, study.feature)
+    symbol = SYMBOLS.get(study.feature, study.feature)
     ax.set_xlabel("temperature (nK)")
     ax.set_ylabel(rf"$|${symbol}$|$ ($a_0$)")
     ax.set_title(rf"{symbol} against temperature; consistency $\chi^2$ = {study.chi2:.2f} ({study.dof} dof, "
