@@ -13,7 +13,7 @@ import numpy as np
 from .._io import atomic_path
 from ..constants import KAPPA_A_MINUS, KAPPA_A_PLUS, UNIVERSAL_A_STAR_OVER_A_MINUS, VDW_A_MINUS_OVER_RVDW
 from ..efimov import Efimov
-from ..errors import ConvergenceWarning, FitCheckWarning
+from ..errors import ConvergenceWarning, FitCheckWarning, LossfitValueError
 from ..rates import validity_flags
 from .diagnostics import MIN_STEPS_PER_TAU, autocorrelation_times, split_rhat
 from .fit_checks import prior_bound_pileup
@@ -192,6 +192,14 @@ class FitResult:
             ref, source = REFERENCES[n]
             rows.append({"name": n, "units": "", **_quantiles(x), "reference": ref, "reference_source": source})
         return rows
+
+    def interval(self, name):
+        """(median, lo68, hi68) of a free parameter or derived quantity, as in :meth:`summary`."""
+        samples = self.samples.get(name, self.derived.get(name))
+        if samples is None:
+            raise LossfitValueError("name", f"no parameter {name!r}; have {self.names + list(self.derived)}")
+        q = _quantiles(samples)
+        return float(q["median"]), float(q["lo68"]), float(q["hi68"])
 
     def correlation(self):
         """Correlation matrix of the free parameters (physical units), rows in ``names`` order."""

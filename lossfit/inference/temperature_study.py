@@ -26,11 +26,6 @@ from .fitting import fit
 _FEATURES = {"a_minus": ("l3", "eta_minus"), "a_star": ("beta", "eta_star")}
 
 
-def _interval(samples):
-    lo, med, hi = np.percentile(samples, [16, 50, 84])
-    return float(med), float(lo), float(hi)
-
-
 @dataclass
 class TemperatureStudy:
     """Result of :func:`temperature_study`.
@@ -123,8 +118,8 @@ def temperature_study(spectra, *, species, feature="a_minus", walkers=32, steps=
         for t in sorted(groups):
             fits[("apparent", t)] = fit(groups[t], model="threshold", **kw)
             fits[("thermal", t)] = fit(groups[t], model="zero-range", **kw)
-            rows.append({"temperature_nK": t, "apparent": _interval(fits[("apparent", t)].samples[feature]),
-                         "thermal": _interval(fits[("thermal", t)].samples[feature])})
+            rows.append({"temperature_nK": t, "apparent": fits[("apparent", t)].interval(feature),
+                         "thermal": fits[("thermal", t)].interval(feature)})
         fits["joint"] = fit([s for t in sorted(groups) for s in groups[t]], model="zero-range", **kw)
     med = np.array([r["thermal"][0] for r in rows])
     sig = np.array([0.5 * (r["thermal"][2] - r["thermal"][1]) for r in rows])
@@ -132,5 +127,5 @@ def temperature_study(spectra, *, species, feature="a_minus", walkers=32, steps=
     mean = float(np.sum(w * med) / np.sum(w))
     chi2 = float(np.sum(((med - mean) / sig) ** 2))
     dof = len(rows) - 1
-    return TemperatureStudy(feature=feature, rows=rows, joint=_interval(fits["joint"].samples[feature]), chi2=chi2,
+    return TemperatureStudy(feature=feature, rows=rows, joint=fits["joint"].interval(feature), chi2=chi2,
                             dof=dof, p_value=float(chdtrc(dof, chi2)), fits=fits)

@@ -21,10 +21,11 @@ def _label(name):
     return SYMBOLS.get(name, name) + (f" ({_UNIT_LABELS.get(unit, unit)})" if unit else "")
 
 
-def _title(name, samples):
-    """``name = median^{+hi}_{-lo} unit`` with the errors to two significant digits and the
-    median to the same decimal place (no exponent notation for lab-sized numbers)."""
-    q16, q50, q84 = np.percentile(samples, [16, 50, 84])
+def _title(name, interval):
+    """``name = median^{+hi}_{-lo} unit`` from (median, lo68, hi68), with the errors to two
+    significant digits and the median to the same decimal place (no exponent notation for
+    lab-sized numbers)."""
+    q50, q16, q84 = interval
     lo, hi = q50 - q16, q84 - q50
     smallest = min(v for v in (lo, hi, abs(q50)) if v > 0) if any(v > 0 for v in (lo, hi, abs(q50))) else 1.0
     decimals = max(0, 1 - int(np.floor(np.log10(smallest))))
@@ -68,7 +69,7 @@ def corner_plot(result, *, truths=None, fig=None, **corner_kwargs):
     n = len(result.names)
     diagonal = [fig.axes[i * (n + 1)] for i in range(n)]
     for ax, name in zip(diagonal, result.names):
-        ax.set_title(_title(name, result.samples[name]), fontsize=10)
+        ax.set_title(_title(name, result.interval(name)), fontsize=10)
     handles = [Line2D([], [], color="k", ls="--", lw=1, label="16, 50, 84 % quantiles")]
     if truths is not None:
         handles.append(Line2D([], [], color=kw.get("truth_color", "#4682b4"), lw=1.5, label="true values"))
