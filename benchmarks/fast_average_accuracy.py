@@ -31,7 +31,7 @@ HERE = os.path.dirname(os.path.abspath(__file__))
 
 
 def _reach(sp, t_nk):
-    # a > 0 total (shallow) channel: the three-body table's last energy, reached at E = 42.25 k_B T
+    # a where the thermal average (to E = 42.25 k_B T) reaches the three-body table's last energy
     e_max = load_recombination_table().energy_max
     return math.sqrt(e_max / 42.25 * HBAR ** 2 / (sp.mass * K_B * t_nk * 1e-9)) / A0
 
@@ -41,9 +41,9 @@ def panels(sp):
     return [
         ("L3, a < 0", lf.l3, "total", lambda t: -np.geomspace(5 * r, 1e6, 120),
          lambda e: lf.Efimov(a_minus=-math.sqrt(5 * r * 1e4), eta_minus=e)),
-        ("L3, a > 0, total", lf.l3, "total", lambda t: np.geomspace(5 * r, 0.999 * _reach(sp, t), 60),
+        ("L3, a > 0, total", lf.l3, "total", lambda t: np.geomspace(5 * r, 1e6, 80),
          lambda e: lf.Efimov(a_plus=8 * r, eta_plus=e)),
-        ("L3, a > 0, shallow", lf.l3, "shallow", lambda t: np.geomspace(5 * r, 0.999 * _reach(sp, t), 60),
+        ("L3, a > 0, shallow", lf.l3, "shallow", lambda t: np.geomspace(5 * r, 1e6, 80),
          lambda e: lf.Efimov(a_plus=8 * r, eta_plus=e)),
         ("beta, relaxation", lf.beta, "relaxation", lambda t: np.geomspace(5 * r, 2e4, 80),
          lambda e: lf.Efimov(a_star=math.sqrt(5 * r * 2e4), eta_star=e)),

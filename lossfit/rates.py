@@ -51,12 +51,19 @@ def validity_flags(a, scale_nk, species):
     Returns
     -------
     dict of bool arrays
-        ``"short_a"``: |a| < 5 r_vdW; ``"hot"``: k_B T > 0.1 hbar^2/(m r_vdW^2).
+        ``"short_a"``: |a| < 5 r_vdW; ``"hot"``: k_B T > 0.1 hbar^2/(m r_vdW^2);
+        ``"weak_dimer"``: a > 0 with k_B T above the dimer binding energy hbar^2/(m a^2),
+        where the theory holds but shallow dimers formed by three-body recombination are
+        not lost on formation (they dissociate again), so ``channel="total"`` may count
+        loss that the experiment does not see.
     """
     sp = species if isinstance(species, Species) else _species(species)
     a_b, s_b = np.broadcast_arrays(np.asarray(a, dtype=float), np.asarray(scale_nk, dtype=float))
+    # (k_B T/E_b) = (a k_s)^2 with k_s = sqrt(m k_B T)/hbar
+    q = a_b * scale_wavenumber_a0(np.maximum(s_b, 0.0) * NK, sp.mass)
     return {"short_a": np.abs(a_b) < MIN_ABS_A_OVER_RVDW * sp.r_vdw,
-            "hot": s_b > MAX_ENERGY_OVER_VDW * sp.vdw_energy_nK}
+            "hot": s_b > MAX_ENERGY_OVER_VDW * sp.vdw_energy_nK,
+            "weak_dimer": (a_b > 0) & (q * q > 1.0)}
 
 
 def _evaluate_rows_py(kernel, params, x, out):

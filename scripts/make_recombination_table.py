@@ -114,7 +114,8 @@ def _born_sum(sol, j0_total):
         l_max *= 2
 
 
-def solve_higher_j(kad, cut_j, dfac, per_decade, narc, phi_scale, j0_total, **_):
+def solve_higher_j(kad, cut_j, dfac, per_decade, narc, phi_scale, j0_total, j_cap=J_CAP,
+                   block=J_BLOCK, log=None, **_):
     phi = _phi(kad, phi_scale)
     dmax = dfac * kad * math.tan(phi) if kad > 4.0 else None
     sol = PartialWaveSolver(kad, cutoff=cut_j * max(1.0, kad), phi=phi,
@@ -122,12 +123,14 @@ def solve_higher_j(kad, cut_j, dfac, per_decade, narc, phi_scale, j0_total, **_)
     born, beyond = _born_sum(sol, j0_total)
     p = born.copy()
     js_all = np.arange(1, born.size + 1)
-    for lo in range(1, J_CAP + 1, J_BLOCK):
-        js = list(range(lo, min(lo + J_BLOCK, J_CAP + 1)))
-        p[lo - 1:js[-1]] = 1.0 - np.abs(sol.amplitudes(js, block=J_BLOCK)) ** 2
+    for lo in range(1, j_cap + 1, block):
+        js = list(range(lo, min(lo + block, j_cap + 1)))
+        p[lo - 1:js[-1]] = 1.0 - np.abs(sol.amplitudes(js, block=block)) ** 2
         total = j0_total + np.sum((2 * js_all + 1) * p)
         born_part = np.sum((2 * js_all[js[-1]:] + 1) * born[js[-1]:])
         rel = abs(born[js[-1] - 1] / p[js[-1] - 1] - 1.0) if p[js[-1] - 1] else 0.0
+        if log:
+            log(f"k_AD a = {kad:.4g}: solved J <= {js[-1]}, Born error there {rel:.2e}")
         # the Born form's relative error falls with J (measured, docs/stm.md section 7):
         # bounded by its value at the last solved J times the Born part
         if born_part < J_REL_TOL * total or rel * born_part < BORN_TOL * total:

@@ -111,7 +111,7 @@ class FitResult:
         if self.outside_validity:
             reasons = sorted({r for p in self.outside_validity for r in p["reasons"]})
             self.warnings.append(f"{len(self.outside_validity)} data point(s) outside the zero-range validity "
-                                 f"range ({', '.join(reasons)}); see outside_validity")
+                                 f"range or its loss interpretation ({'; '.join(reasons)}); see outside_validity")
         steps_kept = chain.shape[0] - self.burn
         tau_max = float(np.nanmax(tau)) if np.isfinite(tau).any() else float("nan")
         if not math.isfinite(tau_max) or steps_kept < MIN_STEPS_PER_TAU * tau_max:
@@ -365,14 +365,17 @@ class FitResult:
 
 
 def _outside_validity(spectra, species):
-    """Points of the fitted spectra outside the zero-range validity range."""
+    """Points of the fitted spectra outside the zero-range validity range, and L3 points
+    at a > 0 where the shallow dimer is bound by less than k_B T."""
+    texts = (("short_a", "|a| < 5 r_vdW"), ("hot", "k_B T > 0.1 E_vdW"),
+             ("weak_dimer", "k_B T > E_b: shallow dimers not lost on formation"))
     out = []
     for i, spec in enumerate(spectra):
         flags = validity_flags(spec.a, spec.temperature, species)
-        for j in np.flatnonzero(flags["short_a"] | flags["hot"]):
-            reasons = [text for key, text in (("short_a", "|a| < 5 r_vdW"), ("hot", "k_B T > 0.1 E_vdW"))
-                       if flags[key][j]]
+        if spec.kind != "l3":
+            flags["weak_dimer"][...] = False
+        for j in np.flatnonzero(flags["short_a"] | flags["hot"] | flags["weak_dimer"]):
             out.append({"spectrum": i, "point": int(j), "a": float(spec.a[j]),
                         "temperature_nK": float(np.broadcast_to(spec.temperature, spec.a.shape)[j]),
-                        "reasons": reasons})
+                        "reasons": [text for key, text in texts if flags[key][j]]})
     return out

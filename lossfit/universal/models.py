@@ -300,7 +300,7 @@ def _recombination_over_e2(packed_pos, energy, cos2phi, sin2phi, e2eta):
     """a > 0, three-atom energy E (hbar^2/(m a^2)) > 0: (P_shallow / E^2, T_break / (E^2
     |1 + s_AD w|^2)) with w = e^{2 i Phi - 2 eta}; P_shallow is the breakup probability of
     an atom-dimer pair at the same total energy, summed over J with weights 2J + 1."""
-    re, im, ca, cbr, cbi, cc, tb, hj = recombination_eval(packed_pos, energy)   # shallow: NaN above the grid
+    re, im, ca, cbr, cbi, cc, tb, hj = recombination_eval(packed_pos, energy)
     wr, wi = e2eta * cos2phi, e2eta * sin2phi
     w2 = e2eta * e2eta
     den = 1.0 + 2.0 * (re * wr - im * wi) + (re * re + im * im) * w2
@@ -456,7 +456,7 @@ class ZeroRangeModel(EnergyModel):
                 shallow, deep = _recombination_over_e2(packed_pos, q2 * x, p[1], p[2], p[3])
                 out = p[6] * deep * p[4]
                 if p[5] != 0.0:
-                    out += p[5] * shallow          # NaN above the table: the reach check refuses that
+                    out += p[5] * shallow
                 return pref * q2 * q2 * out
 
             lo, hi = grid_limits(packed)
@@ -484,31 +484,13 @@ class ZeroRangeModel(EnergyModel):
             raise LossfitValueError("channel", f"must be one of {list(table)}, got {channel!r}")
         return weights
 
-    def _check_three_body_reach(self, q_positive, x_max, shallow):
-        # the deep channel reaches any a; the shallow one is not extrapolated beyond its table
-        table = self.recombination_table
-        reach = q_positive ** 2 * x_max
-        if shallow and np.any(reach > table.energy_max):
-            raise LossfitValueError(
-                "a", f"three-atom energies up to {reach.max():.3g} hbar^2/(m a^2) are needed, beyond the "
-                f"shallow-dimer channel of the zero-range a > 0 table (E <= {table.energy_max:g} hbar^2/(m a^2), "
-                f"i.e. k_B T up to about {table.energy_max / U_MAX ** 2:.2g} E_b in thermal averages); "
-                "channel='deep' reaches any a, or lower a or T, or use model='capped' (an approximation)")
-
-    def _check_atom_dimer_reach(self, kad_at_scale, x_max, breakup):
-        # neither the atom-dimer nor (for breakup) the three-body table is extrapolated
+    def _check_atom_dimer_reach(self, kad_at_scale, x_max):
+        # the atom-dimer table is not extrapolated
         table = self.atom_dimer_table
         reach = kad_at_scale * math.sqrt(x_max)
         if np.any(reach > table.kad_max):
             raise LossfitValueError("a", f"k_AD a up to {reach.max():.3g} is needed, beyond the zero-range "
                                     f"atom-dimer table (k_AD a <= {table.kad_max:g}); lower |a| or T")
-        if breakup:
-            e_reach = 0.75 * reach ** 2 - 1.0
-            e_max = self.recombination_table.energy_max
-            if np.any(e_reach > e_max):
-                raise LossfitValueError(
-                    "a", f"dimer breakup up to three-atom energies {e_reach.max():.3g} hbar^2/(m a^2) is needed, "
-                    f"beyond the zero-range breakup table (<= {e_max:g}); lower a or T")
 
     def three_body_rows(self, a, efimov, q, channel="total", x_max=U_MAX ** 2):
         weights = self._channel_weights(_CHANNEL_WEIGHTS, channel)
@@ -523,7 +505,6 @@ class ZeroRangeModel(EnergyModel):
             eta[neg] = eta_minus
         if (~neg).any():
             a_plus, eta_plus = efimov.require("a_plus", "eta_plus")
-            self._check_three_body_reach(q[~neg], x_max, weights[0])
             kappa[~neg] = self.recombination_table.kappa_star_a_plus / a_plus
             eta[~neg] = eta_plus
         two_phi = 2.0 * (S0 * np.log(kappa * np.abs(a) / math.sqrt(2.0)) - ARG_GAMMA_S0)
@@ -601,7 +582,7 @@ class ZeroRangeModel(EnergyModel):
         # E = 3 hbar^2 k_AD^2 / (4 m) and x = E / E_s with E_s = hbar^2 k_s^2 / m:
         # k_AD a = (2/sqrt 3) q sqrt(x)
         rows[:, 0] = (2.0 / math.sqrt(3.0)) * np.abs(q).ravel()
-        self._check_atom_dimer_reach(rows[:, 0], x_max, weights[1])
+        self._check_atom_dimer_reach(rows[:, 0], x_max)
         two_phi = 2.0 * (S0 * np.log(kappa * np.asarray(a, dtype=float).ravel() / math.sqrt(2.0)) - ARG_GAMMA_S0)
         rows[:, 1] = np.cos(two_phi)
         rows[:, 2] = np.sin(two_phi)
@@ -616,8 +597,6 @@ class ZeroRangeModel(EnergyModel):
         a, q, scale = np.ravel(a), np.abs(np.ravel(q)), np.ravel(scale)
         neg = a < 0
         n_neg = int(np.count_nonzero(neg))
-        if n_neg < a.size:
-            self._check_three_body_reach(q[~neg] if n_neg else q, U_MAX ** 2, shallow)
         if n_neg in (0, a.size):
             family = averages.NEGATIVE_A if n_neg else averages.POSITIVE_A
             return averages.general_average(family, a, q, efimov, scale, weights=(shallow, deep))
@@ -629,7 +608,7 @@ class ZeroRangeModel(EnergyModel):
     def thermal_atom_dimer(self, a, q, efimov, scale, channel="relaxation"):
         weights = self._channel_weights(_ATOM_DIMER_CHANNEL_WEIGHTS, channel)
         kad = (2.0 / math.sqrt(3.0)) * np.abs(np.ravel(q))
-        self._check_atom_dimer_reach(kad, U_MAX ** 2, weights[1])
+        self._check_atom_dimer_reach(kad, U_MAX ** 2)
         parts = tuple(p for p in (0, 1) if weights[p])
         return averages.general_average(averages.ATOM_DIMER_A, np.ravel(a), kad, efimov, np.ravel(scale),
                                         weights=weights, parts=parts)
@@ -637,14 +616,12 @@ class ZeroRangeModel(EnergyModel):
     def three_body_plan(self, a, q, scale, channel="total", eta_min=averages.ETA_MIN):
         shallow, deep = self._channel_weights(_CHANNEL_WEIGHTS, channel)
         a, q = np.ravel(a), np.abs(np.ravel(q))
-        if (a > 0).any():
-            self._check_three_body_reach(q[a > 0], U_MAX ** 2, shallow)
         return averages.three_body_plan(a, q, np.ravel(scale), shallow=shallow, deep=deep, eta_min=eta_min)
 
     def atom_dimer_plan(self, a, q, scale, channel="relaxation", eta_min=averages.ETA_MIN):
         relaxation, breakup = self._channel_weights(_ATOM_DIMER_CHANNEL_WEIGHTS, channel)
         q = np.abs(np.ravel(q))
-        self._check_atom_dimer_reach((2.0 / math.sqrt(3.0)) * q, U_MAX ** 2, breakup)
+        self._check_atom_dimer_reach((2.0 / math.sqrt(3.0)) * q, U_MAX ** 2)
         return averages.atom_dimer_plan(np.ravel(a), q, np.ravel(scale), relaxation=relaxation, breakup=breakup,
                                         eta_min=eta_min)
 

@@ -217,6 +217,7 @@ def load_s11_table(path=None):
 
 _AD_HEADER = 10
 _AD_SPLINES = 3          # ln T_AD, Re s_AD, Im s_AD
+_AD_BREAKUP = 4          # A, Re B, Im B, C above breakup (after both segments' splines)
 
 
 class AtomDimerTable:
@@ -240,6 +241,8 @@ class AtomDimerTable:
             kad = np.array(d["kad"])
             s_ad = np.array(d["s_ad"])
             columns = [np.array(d["log_transmission"]), s_ad.real.copy(), s_ad.imag.copy()]
+            b = np.array(d["breakup_B"])
+            breakup = [np.array(d["breakup_A"]), b.real.copy(), b.imag.copy(), np.array(d["breakup_C"])]
             phase0 = float(np.array(d["phase"])[0])
             j = int(d["junction_index"])
             c1, delta0 = float(d["threshold_c1"]), float(d["threshold_phase"])
@@ -262,7 +265,10 @@ class AtomDimerTable:
         assert head.size == _AD_HEADER
         self.kad = kad
         self.kad_max = float(kad[-1])
-        self.packed = np.concatenate([head] + [c.T.ravel() for c in sp1 + sp2])
+        # the J = 0 breakup coefficients, above breakup only (the three-body table's J = 0
+        # columns beyond its grid)
+        sp_breakup = [spline_coefficients(lnx2, col[j:]) for col in breakup]
+        self.packed = np.concatenate([head] + [c.T.ravel() for c in sp1 + sp2 + sp_breakup])
 
     def evaluate(self, kad):
         """(T_AD, s_AD) at k_AD a (arrays), evaluated as the runtime kernel does."""
@@ -320,6 +326,20 @@ def s_ad_eval(packed, kad):
     return _ad_segment(packed, offset, n, i, lnx - (base + i * h))
 
 
+@numba.njit(cache=True)
+def breakup_coefficients_eval(packed, kad):
+    """(A, Re B, Im B, C) of J = 0 dimer breakup at k_AD a between the breakup threshold
+    and the last grid point: P_break = (A + 2 Re(B w) + C |w|^2)/|1 + s_AD w|^2."""
+    n1, n2 = int(packed[0]), int(packed[3])
+    base, h = packed[4], packed[5]
+    offset = _AD_HEADER + _AD_SPLINES * 4 * (n1 - 1 + n2 - 1)
+    i = min(max(int((math.log(kad) - base) / h), 0), n2 - 2)
+    dx = math.log(kad) - (base + i * h)
+    stride = 4 * (n2 - 1)
+    return (_spline(packed, offset, i, dx), _spline(packed, offset + stride, i, dx),
+            _spline(packed, offset + 2 * stride, i, dx), _spline(packed, offset + 3 * stride, i, dx))
+
+
 def load_atom_dimer_table(path=None):
     """The shipped a > 0 atom-dimer table (loaded once per process)."""
     path = path or table_path("s_ad_positive_a.npz")
@@ -340,16 +360,16 @@ def load_atom_dimer_table(path=None):
 # dimer propagator); the J >= 1 sum runs like E^2 (its measured threshold behaviour,
 # dominated by J = 2).
 #
-# Above the grid only the deep-dimer columns are known (Re s, Im s, T_break/E^2); the
-# shallow-dimer columns are NaN there, so that no rate can be extrapolated silently (the
-# J >= 1 sum needs J up to ~ k a, docs/stm.md section 7). T_break = 1 - |s_AD|^2 - T_AD
-# and s_AD come from the atom-dimer table (the same solver; the two agree to 1e-6 at this
-# grid's last point) up to its end, k_AD a = 1e3 (E = 7.5e5), and beyond it from the exact
-# |a| = infinity solution plus the atom-dimer table's last difference from it, decaying like
-# 1/x with x = sqrt(E) (measured over 1e3 <= E <= 7.5e5: (T_break - T_UNITARITY) x moves
-# from -3.98 to -4.24 and (s/s_unitarity - 1) x from -2.06 to -2.12; docs/stm.md).
+# Above the grid (E > 1e4) every J = 0 quantity depends on k_AD a = sqrt(4 (E + 1)/3) only
+# and comes from the atom-dimer table (the same solver; the two agree to 1.5e-6 at this
+# grid's points) up to its end, k_AD a = 1e3 (E = 7.5e5), and beyond it from the exact
+# |a| = infinity solution (s_AD, T_break) or zero (A, B, C) plus the atom-dimer table's
+# last difference from it, decaying like 1/x with x = sqrt(E) (docs/stm.md sections 7b, 7c).
+# The J >= 1 sum comes from ``data/recombination_high_energy.npz``
+# (``scripts/make_recombination_tail.py``, docs/stm.md section 7c) up to its grid end
+# (E = 1e8) and from the asymptotic form c0 + c1/x + c2/x^2 fitted there beyond.
 
-_RC_HEADER = 16       # grid, E -> 0 limits, the deep channel's switch to unitarity and its tail
+_RC_HEADER = 27       # grid, E -> 0 limits, the switch to unitarity and its tails, the J >= 1 tail
 _RC_COLUMNS = 8       # Re s, Im s, A/E^2, Re B/E^2, Im B/E^2, C/E^2, T_break/E^2, J>=1 sum/E^2
 
 
@@ -360,19 +380,21 @@ class RecombinationTable:
     ----------
     packed : ndarray
         1-D float array consumed by :func:`recombination_eval`: this table's splines and,
-        for the deep-dimer channel above its grid, the atom-dimer table and the unitarity tail.
+        above its grid, the J >= 1 sum's extension, the atom-dimer table and the
+        unitarity tails.
     energy_min, energy_max : float
-        Grid ends in E m a^2 / hbar^2; above ``energy_max`` only the deep-dimer channel is
-        known (the shallow-dimer columns are NaN).
+        Ends of the three-body grid in E m a^2 / hbar^2 (where the interpolants change).
+    high_energy_max : float
+        End of the J >= 1 sum's extension grid; the asymptotic form beyond.
     deep_energy_switch : float
-        E m a^2/hbar^2 where the deep channel passes from the atom-dimer table to the
+        E m a^2/hbar^2 where the J = 0 quantities pass from the atom-dimer table to the
         |a| = infinity solution (k_AD a = the atom-dimer table's last point).
     kappa_star_a_plus : float
         kappa* a_+ where the eta -> 0 threshold shallow-dimer rate vanishes.
-    metadata : dict
+    metadata, high_energy_metadata : dict
     """
 
-    def __init__(self, path, atom_dimer):
+    def __init__(self, path, atom_dimer, high_energy_path):
         with _open_table(path) as d:
             energy = np.array(d["energy"])
             s_ad = np.array(d["s_ad"])
@@ -386,31 +408,48 @@ class RecombinationTable:
                       float(d["threshold_c"]), float(d["threshold_tau"]), 0.0]
             self.kappa_star_a_plus = float(d["kappa_star_a_plus"])
             self.metadata = json.loads(str(d["metadata"]))
+        with _open_table(high_energy_path) as d:
+            he_energy = np.array(d["energy"])
+            he_sum = np.array(d["higher_j"])
+            asymptote = [float(v) for v in d["asymptote"]]
+            self.high_energy_metadata = json.loads(str(d["metadata"]))
         lnx = np.log(energy)
-        if not np.allclose(np.diff(lnx), lnx[1] - lnx[0], rtol=1e-9, atol=0):
-            raise LossfitError(f"{path!r}: the energy grid is not uniform in ln E")
+        he_lnx = np.log(he_energy)
+        for grid in (lnx, he_lnx):
+            if not np.allclose(np.diff(grid), grid[1] - grid[0], rtol=1e-9, atol=0):
+                raise LossfitError(f"{path!r}: an energy grid is not uniform in ln E")
+        if not math.isclose(he_energy[0], energy[-1], rel_tol=1e-12):
+            raise LossfitError(f"{high_energy_path!r} does not start where {path!r} ends")
         self.energy = energy
         self.energy_min, self.energy_max = float(energy[0]), float(energy[-1])
+        self.high_energy_max = float(he_energy[-1])
         self.deep_energy_switch = 0.75 * atom_dimer.kad_max ** 2 - 1.0
         if self.deep_energy_switch <= self.energy_max:
             raise LossfitError(f"{path!r}: the atom-dimer table ends below the recombination grid")
-        # the unitarity tail's 1/x coefficients from the atom-dimer table's last point
+        # the unitarity tails' 1/x coefficients from the atom-dimer table's last point
         x_last = math.sqrt(self.deep_energy_switch)
         t_ad, s_last = atom_dimer.evaluate(np.array([atom_dimer.kad_max]))
         t_break = 1.0 - abs(s_last[0]) ** 2 - t_ad[0]
         s_unit = math.exp(-math.pi * S0) * cmath.exp(1j * _unitarity_phase(x_last))
         tail_s = (s_last[0] / s_unit - 1.0) * x_last
-        self.unitarity_tail = {"t_break": (t_break - T_UNITARITY) * x_last, "s": tail_s}
+        a_last, b_re, b_im, c_last = breakup_coefficients_eval(atom_dimer.packed, atom_dimer.kad_max)
+        # B turns with the phase of s at unitarity (measured: B/s_unitarity x -> -140)
+        tail_b = complex(b_re, b_im) / s_unit * x_last
+        self.unitarity_tail = {"t_break": (t_break - T_UNITARITY) * x_last, "s": tail_s,
+                               "breakup_a": a_last * x_last, "breakup_b": tail_b,
+                               "breakup_c": c_last * x_last, "higher_j": tuple(asymptote)}
         head = np.array([energy.size, lnx[0], lnx[1] - lnx[0], energy[0], energy[-1]] + limits[:7]
-                        + [self.deep_energy_switch, self.unitarity_tail["t_break"], tail_s.real, tail_s.imag])
+                        + [self.deep_energy_switch, self.unitarity_tail["t_break"], tail_s.real, tail_s.imag,
+                           he_energy.size, he_lnx[0], he_lnx[1] - he_lnx[0], he_energy[-1]] + asymptote
+                        + [a_last * x_last, c_last * x_last, tail_b.real, tail_b.imag])
         assert head.size == _RC_HEADER
         splines = [spline_coefficients(lnx, c).T.ravel() for c in columns]
+        splines.append(spline_coefficients(he_lnx, he_sum).T.ravel())
         self.packed = np.concatenate([head] + splines + [atom_dimer.packed])
 
     def evaluate(self, energy):
         """The eight columns at three-atom energies E m a^2/hbar^2 (array, E > 0), evaluated
-        as the runtime kernel does: shape energy.shape + (8,); NaN in the shallow-dimer
-        columns above ``energy_max``."""
+        as the runtime kernel does: shape energy.shape + (8,)."""
         energy = np.asarray(energy, dtype=float)
         out = np.empty((energy.size, _RC_COLUMNS))
         for i, v in enumerate(energy.ravel()):
@@ -420,8 +459,8 @@ class RecombinationTable:
 
 @numba.njit(cache=True)
 def recombination_grid_points(packed):
-    """(first, last) grid energy E m a^2/hbar^2 and where the deep channel's unitarity
-    tail begins: the kernel's kinks."""
+    """(first, last) grid energy E m a^2/hbar^2 and where the J = 0 unitarity tails
+    begin: the kernel's kinks."""
     return packed[3], packed[4], packed[12]
 
 
@@ -438,32 +477,49 @@ def _rc_column(packed, c, n, below, i, dx, r):
 
 
 @numba.njit(cache=True)
-def _deep_above_grid(packed, n, energy):
-    """(Re s_AD, Im s_AD, T_break/E^2) above the grid: atom-dimer table, then unitarity."""
+def _higher_j_above_grid(packed, n, energy):
+    """The J >= 1 sum above the three-body grid: extension grid, then asymptotic form."""
+    if energy > packed[19]:
+        x = math.sqrt(energy)
+        return packed[20] + (packed[21] + packed[22] / x) / x
+    n_he = int(packed[16])
+    i = min(int((math.log(energy) - packed[17]) / packed[18]), n_he - 2)
+    dx = math.log(energy) - (packed[17] + i * packed[18])
+    return _spline(packed, _RC_HEADER + _RC_COLUMNS * 4 * (n - 1), i, dx)
+
+
+@numba.njit(cache=True)
+def _above_grid(packed, n, energy):
+    """The eight columns above the three-body grid: J = 0 from the atom-dimer table, then
+    unitarity; J >= 1 from the extension."""
     e2 = energy * energy
+    higher_j = _higher_j_above_grid(packed, n, energy) / e2
     if energy <= packed[12]:
-        t_ad, re, im = s_ad_eval(packed[_RC_HEADER + _RC_COLUMNS * 4 * (n - 1):],
-                                 math.sqrt(4.0 * (energy + 1.0) / 3.0))
-        return re, im, (1.0 - re * re - im * im - t_ad) / e2
+        ad = packed[_RC_HEADER + _RC_COLUMNS * 4 * (n - 1) + 4 * (int(packed[16]) - 1):]
+        kad = math.sqrt(4.0 * (energy + 1.0) / 3.0)
+        t_ad, re, im = s_ad_eval(ad, kad)
+        a, b_re, b_im, c = breakup_coefficients_eval(ad, kad)
+        return re, im, a / e2, b_re / e2, b_im / e2, c / e2, (1.0 - re * re - im * im - t_ad) / e2, higher_j
     # the stored tail coefficients are the last differences times x there: they decay as 1/x
     x = math.sqrt(energy)
     ph = _unitarity_phase(x)
     mod = math.exp(-math.pi * S0)
+    cs, sn = mod * math.cos(ph), mod * math.sin(ph)
     fr, fi = 1.0 + packed[14] / x, packed[15] / x
-    c, s = math.cos(ph), math.sin(ph)
-    return mod * (c * fr - s * fi), mod * (s * fr + c * fi), (T_UNITARITY + packed[13] / x) / e2
+    bx = e2 * x
+    return (cs * fr - sn * fi, sn * fr + cs * fi, packed[23] / bx, (cs * packed[25] - sn * packed[26]) / bx,
+            (sn * packed[25] + cs * packed[26]) / bx, packed[24] / bx, (T_UNITARITY + packed[13] / x) / e2,
+            higher_j)
 
 
 @numba.njit(cache=True)
 def recombination_eval(packed, energy):
     """(Re s_AD, Im s_AD, A/E^2, Re B/E^2, Im B/E^2, C/E^2, T_break/E^2, J>=1 sum/E^2)
-    at three-atom energy E m a^2/hbar^2 > 0; above the grid the shallow-dimer columns
-    (A, B, C, J >= 1) are NaN."""
+    at three-atom energy E m a^2/hbar^2 > 0."""
     n = int(packed[0])
     lnx0, h, e_first = packed[1], packed[2], packed[3]
     if energy > packed[4]:
-        re, im, tb = _deep_above_grid(packed, n, energy)
-        return re, im, math.nan, math.nan, math.nan, math.nan, tb, math.nan
+        return _above_grid(packed, n, energy)
     below = energy <= e_first
     i, dx, r = 0, 0.0, math.sqrt(energy / e_first)
     if not below:
@@ -476,9 +532,11 @@ def recombination_eval(packed, energy):
             _rc_column(packed, 6, n, below, i, dx, r), _rc_column(packed, 7, n, below, i, dx, r))
 
 
-def load_recombination_table(path=None):
-    """The shipped a > 0 three-body table (loaded once per process)."""
+def load_recombination_table(path=None, high_energy_path=None):
+    """The shipped a > 0 three-body tables (loaded once per process)."""
     path = path or table_path("recombination_positive_a.npz")
-    if path not in _CACHE:
-        _CACHE[path] = RecombinationTable(path, load_atom_dimer_table())
-    return _CACHE[path]
+    high_energy_path = high_energy_path or table_path("recombination_high_energy.npz")
+    key = (path, high_energy_path)
+    if key not in _CACHE:
+        _CACHE[key] = RecombinationTable(path, load_atom_dimer_table(), high_energy_path)
+    return _CACHE[key]

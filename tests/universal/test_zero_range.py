@@ -292,6 +292,25 @@ def test_fit_result_records_points_outside_the_validity_range():
     assert res.to_dict()["outside_validity"][0]["a"] == -300.0
 
 
+def test_weakly_bound_dimers_are_flagged_for_three_body_loss():
+    # a > 0 with k_B T above E_b = hbar^2/(m a^2): shallow dimers formed by recombination
+    # are not lost on formation (common practice, no source), so those L3 points are listed
+    from lossfit.rates import validity_flags
+    a0 = sc.physical_constants["Bohr radius"][0]
+    e_b = sc.hbar ** 2 / (CS.mass * (np.array([3000.0, 6000.0]) * a0) ** 2) / sc.k * 1e9     # nK
+    t = np.sqrt(e_b[0] * e_b[1])                                  # between the two binding energies
+    flags = validity_flags(np.array([3000.0, 6000.0, -6000.0]), t, CS)
+    assert flags["weak_dimer"].tolist() == [False, True, False]
+    ef = lf.Efimov(a_plus=2000.0, eta_plus=0.1)
+    a = np.array([1000.0, 3000.0, 6000.0])
+    v = lf.l3(a, t, species=CS, efimov=ef)
+    spec = lf.LossSpectrum(a, t, v, 0.1 * v, kind="l3")
+    res = lf.fit(spec, species=CS, free=["a_plus", "eta_plus"], walkers=8, steps=20, seed=1, progress=False,
+                 initial={"a_plus": ef.a_plus, "eta_plus": 0.1})
+    assert [p["point"] for p in res.outside_validity] == [2]
+    assert "not lost on formation" in res.outside_validity[0]["reasons"][0]
+
+
 @pytest.mark.parametrize("grid", ["uniform", "uneven"])
 def test_table_splines_are_scipys_not_a_knot_splines(grid):
     # lossfit writes the not-a-knot cubic spline out (start-up time); scipy's CubicSpline

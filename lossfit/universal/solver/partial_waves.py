@@ -45,36 +45,66 @@ from .stm import atom_dimer_contour, kernel_onshell
 
 
 @numba.njit(cache=True)
+def _q_ratios(zi, l_hi, ratios):
+    """Q_0(zi), with ratios[m] = Q_m / Q_(m-1) for 1 <= m <= l_hi: the backward recurrence
+    r_m = m / ((2m + 1) z - (m + 1) r_(m+1)), started far enough above l_hi that its error,
+    ~|xi|^(-2 (L - l)), is below double precision."""
+    q0 = cmath.atanh(1.0 / zi)
+    xi = zi + cmath.sqrt(zi - 1.0) * cmath.sqrt(zi + 1.0)
+    mod = abs(xi)
+    if mod < 1.0:
+        mod = 1.0 / mod
+    extra = 6
+    if mod > 1.0 + 1e-12:
+        extra += int(40.0 / (2.0 * math.log(mod)))
+    if extra > 20000:
+        extra = 20000
+    r = 0.0 + 0.0j
+    for m in range(l_hi + extra, 0, -1):
+        r = m / ((2.0 * m + 1.0) * zi - (m + 1.0) * r)
+        if m <= l_hi:
+            ratios[m] = r
+    return q0
+
+
+@numba.njit(cache=True)
 def _q_block(z, l_lo, l_hi, out):
     """Q_l(z) for l_lo <= l <= l_hi at once (out[l - l_lo, i]), complex z off [-1, 1]:
-    backward recurrence of the ratios r_m = Q_m / Q_(m-1) = m / ((2m + 1) z - (m + 1) r_(m+1)),
-    started far enough above l_hi that its error, ~|xi|^(-2 (L - l)), is below double
-    precision, then Q_l = Q_0 r_1 ... r_l; one sweep per z serves every degree of the block."""
+    one backward sweep of the ratios per z (:func:`_q_ratios`) serves every degree of the
+    block, Q_l = Q_0 r_1 ... r_l."""
     ratios = np.empty(l_hi + 1, dtype=np.complex128)
     for i in range(z.size):
-        zi = z[i]
-        q0 = cmath.atanh(1.0 / zi)
-        xi = zi + cmath.sqrt(zi - 1.0) * cmath.sqrt(zi + 1.0)
-        mod = abs(xi)
-        if mod < 1.0:
-            mod = 1.0 / mod
-        extra = 6
-        if mod > 1.0 + 1e-12:
-            extra += int(40.0 / (2.0 * math.log(mod)))
-        if extra > 20000:
-            extra = 20000
-        r = 0.0 + 0.0j
-        for m in range(l_hi + extra, 0, -1):
-            r = m / ((2.0 * m + 1.0) * zi - (m + 1.0) * r)
-            if m <= l_hi:
-                ratios[m] = r
-        prod = q0
+        prod = _q_ratios(z[i], l_hi, ratios)
         if l_lo == 0:
-            out[0, i] = q0
+            out[0, i] = prod
         for m in range(1, l_hi + 1):
             prod *= ratios[m]
             if m >= l_lo:
                 out[m - l_lo, i] = prod
+
+
+@numba.njit(cache=True)
+def _weighted_square_sums(z, shift, pq, weights, l_max, out):
+    """out[l - 1] = sum_i weights_i (Q_l(z_i) + shift_i P_l(z_i))^2 / pq_i^2 for l = 1..l_max,
+    node by node, so that memory stays O(l_max) (the sign (-1)^l of the kernel squares
+    away)."""
+    ratios = np.empty(l_max + 1, dtype=np.complex128)
+    for m in range(l_max):
+        out[m] = 0.0
+    for i in range(z.size):
+        zi = z[i]
+        prod = _q_ratios(zi, l_max, ratios)
+        scale = weights[i] / (pq[i] * pq[i])
+        moved = shift[i] != 0.0
+        p0 = 1.0 + 0.0j
+        p1 = zi
+        for m in range(1, l_max + 1):
+            prod *= ratios[m]
+            val = prod
+            if moved:
+                val = prod + shift[i] * p1
+                p0, p1 = p1, ((2.0 * m + 1.0) * zi * p1 - m * p0) / (m + 1.0)
+            out[m - 1] += scale * val * val
 
 
 @numba.njit(cache=True)
@@ -238,22 +268,16 @@ class PartialWaveSolver:
         k0, energy, q, cw = self.kad, self.energy, self._q, self._cw
         pq = k0 * q
         z = (k0 * k0 + q * q - energy) / pq
-        qs = np.empty((l_max, z.size), dtype=complex)
-        _q_block(z, 1, l_max, qs)
         # the on-shell row continued along the path, as _onshell_kernel does one l at a time
         q0_path = kernel_onshell(k0, q, energy) * pq
         shift = 1j * math.pi * np.round((q0_path - np.arctanh(1.0 / z)).imag / math.pi)
-        moved = np.flatnonzero(shift != 0)
-        for i in moved:
-            qs[:, i] += shift[i] * np.array([_legendre_p_scalar(z[i], ell) for ell in range(1, l_max + 1)])
-        sign = (-1.0) ** np.arange(1, l_max + 1)
-        rows = sign[:, None] * qs / pq[None, :]
+        second = np.empty(l_max, dtype=complex)
+        _weighted_square_sums(z, shift, pq, cw, l_max, second)
         zkk = np.array([(2.0 * k0 * k0 - energy) / (k0 * k0) + 0j])
         qkk = np.empty((l_max, 1), dtype=complex)
         _q_block(zkk, 1, l_max, qkk)
-        mkk = sign * qkk[:, 0].real / (k0 * k0)
+        mkk = qkk[:, 0].real / (k0 * k0)
         g = 16.0 / 3.0
-        second = (rows * rows) @ cw
         return 4.0 * k0 * g * second.imag - 4.0 * k0 * k0 * g * g * mkk ** 2
 
     def _solve(self, ell, kernel):
