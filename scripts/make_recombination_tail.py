@@ -16,13 +16,13 @@ git commit of the code).  Method (docs/stm.md section 7c):
   make_recombination_table.solve_higher_j); the per-J differences d_J beyond the last
   solved J are estimated by a power law in J fitted to the last half of the solved J and
   summed (measured on the table: this overestimates the true remainder by a factor
-  1.7-2, so the remainder is taken as half of it, with half of it as its uncertainty).
-* Above the table D = D(1e4) (x/100)^-p, the power law through the table's last point and
-  the first check (x = sqrt E = k a).  Beyond that check the exponent is bracketed by
-  1 (the scaling regime, where every one of the ~k a partial waves carries a Born error
-  ~1/(k a)^2) and 2 (single low partial waves, whose Born error falls like 1/(k a)):
-  the spread is the stored uncertainty of D.  The second check (fewer solved J) gives a
-  lower bound, D >= its solved part, that the shipped D must respect.
+  1.7-2.2, so the remainder is taken as half of it, with half of it as its uncertainty).
+* Above the table D is a piecewise power law in x = sqrt E = k a through the table's last
+  point and every check whose uncertainty is below ANCHOR_REL_ERR of its D.  Beyond the
+  last anchor the exponent is bracketed by 1 (the scaling regime, where every one of the
+  ~k a partial waves carries a Born error ~1/(k a)^2) and 2 (single low partial waves,
+  whose Born error falls like 1/(k a)): the spread is the stored uncertainty of D.  Every
+  check must hold D between its solved part and that plus its estimated rest.
 * An independent run with coarser numerics (cutoff, nodes, arc, contour angle) at every
   third energy bounds the discretisation error of S_Born.
 * Beyond the grid (E > 1e8, k a > 1e4) the runtime uses S = c0 + c1/x + c2/x^2 fitted on
@@ -81,6 +81,7 @@ CHECK_ENERGIES = (10 ** 4.5, 1e5)
 CHECK_J_CAP = {10 ** 4.5: 32, 1e5: 8}
 CHECK_BLOCK = {10 ** 4.5: 8, 1e5: 4}
 ASYMPTOTE_E_MIN = 1e6      # the asymptotic form is fitted from here up
+ANCHOR_REL_ERR = 0.1       # a check anchors D if its estimated rest is known to this
 
 
 def _solver(energy, num):
@@ -146,6 +147,23 @@ def energy_grid():
     return np.exp(np.linspace(math.log(E_LO), math.log(E_HI), n))
 
 
+def correction_model(x, anchors):
+    """(D, its uncertainty, the last exponent) at x = sqrt(E) from anchors (x_i, D_i, err_i),
+    the first exact: D is piecewise a power law between anchors (linear in ln D against
+    ln x), and beyond the last one continues with the last segment's exponent p, its
+    uncertainty there the spread of exponents 1 and 2 around p (module docstring)."""
+    ax, ad, ae = (np.array(v) for v in zip(*anchors))
+    lx = np.log(x)
+    corr = np.exp(np.interp(lx, np.log(ax), np.log(ad)))
+    err = np.interp(lx, np.log(ax), ae)
+    p = -math.log(ad[-1] / ad[-2]) / math.log(ax[-1] / ax[-2])
+    far = x > ax[-1]
+    r = x[far] / ax[-1]
+    corr[far] = ad[-1] * r ** -p
+    err[far] = ae[-1] / r + ad[-1] * np.maximum(np.abs(r ** -1.0 - r ** -p), np.abs(r ** -2.0 - r ** -p))
+    return corr, err, p
+
+
 def remainder_estimate(energy, p_solved):
     """(D's solved part, estimated rest) at one check energy: the per-J Born differences
     d_J = (2J + 1)(P_Born - P_solve) for the solved J, and the power law in J fitted to
@@ -204,16 +222,10 @@ def main():
     check_corr_err = 0.5 * remainder
 
     x = np.sqrt(energies)
-    x_t, d_t = math.sqrt(E_LO), float(table_corr[-1])
-    x_c, d_c = math.sqrt(check_e[0]), float(check_corr[0])
-    p_fit = math.log(d_t / d_c) / math.log(x_c / x_t)
-    corr = d_t * (x / x_t) ** -p_fit
-    # uncertainty: the check's between the anchors (the table's end is exact), and beyond
-    # the check the spread of exponents 1 and 2 around p_fit
-    between = np.clip(np.log(x / x_t) / math.log(x_c / x_t), 0.0, 1.0)
-    r = np.maximum(x / x_c, 1.0)
-    spread = d_c * np.maximum(np.abs(r ** -1.0 - r ** -p_fit), np.abs(r ** -2.0 - r ** -p_fit))
-    d_err = check_corr_err[0] * between / np.maximum(r, 1.0) ** 1.0 + spread
+    anchors = [(math.sqrt(E_LO), float(table_corr[-1]), 0.0)] + [
+        (math.sqrt(e), float(c), float(err)) for e, c, err in zip(check_e, check_corr, check_corr_err)
+        if err < ANCHOR_REL_ERR * c]
+    corr, d_err, p_last = correction_model(x, anchors)
     born_sum = np.array([res[("born", e, "main")]["sum"] for e in energies])
     beyond = np.array([res[("born", e, "main")]["beyond"] for e in energies])
     higher_j = born_sum - corr
@@ -221,11 +233,10 @@ def main():
     coarse_rel = np.abs(coarse / born_sum[::3] - 1.0)
     coarse_interp = np.interp(np.log(energies), np.log(err_energies), coarse_rel)
     err_rel = d_err / higher_j + coarse_interp + beyond / higher_j
-    # the lower bound from the second check
-    i_second = int(np.argmin(np.abs(np.log(energies / check_e[1]))))
-    if corr[i_second] < solved_part[1]:
-        raise SystemExit(f"D = {corr[i_second]:.4g} at E = {check_e[1]:.4g} is below its solved part "
-                         f"{solved_part[1]:.4g}: the power law does not hold")
+    # every check, anchor or not, must hold D between its solved part and that plus the rest
+    at_checks = np.interp(np.log(check_e), np.log(energies), corr)
+    if np.any(at_checks < solved_part) or np.any(at_checks > solved_part + remainder):
+        raise SystemExit(f"D = {at_checks} at E = {check_e} leaves [{solved_part}, {solved_part + remainder}]")
 
     sel = energies >= ASYMPTOTE_E_MIN
     xs = x[sel]
@@ -251,14 +262,14 @@ def main():
         "numerics": {"main": three_body.MAIN, "error_run": three_body.COARSE,
                      "born_end_tol": three_body.BORN_END_TOL,
                      "check_j_cap": {f"{e:.4g}": j for e, j in CHECK_J_CAP.items()}},
-        "correction": {"p": p_fit, "anchors": {"table_end": [E_LO, d_t], "check": [float(check_e[0]), d_c]},
-                       "bracket_beyond_check": [1.0, 2.0]},
+        "correction": {"anchors_x_d_err": anchors, "exponent_beyond_last_anchor": p_last,
+                       "bracket_beyond_last_anchor": [1.0, 2.0]},
         "checks": {f"{e:.4g}": {"born_sum": float(b), "sum_with_solved_low_j": float(s_), "j_solved": c["j_solved"],
                                 "correction_solved_part": float(sp), "remainder_estimate": float(rm),
                                 "d_j_tail_slope": float(sl)}
                    for e, b, s_, c, sp, rm, sl in zip(check_e, check_born, check_sum, checks, solved_part,
                                                       remainder, slopes)},
-        "second_check_lower_bound": {"solved_part": float(solved_part[1]), "model": float(corr[i_second])},
+        "correction_at_checks": [float(v) for v in at_checks],
         "estimated_error": {"higher_j_err_rel_max": float(err_rel.max()),
                             "coarse_rel_max": float(coarse_rel.max()),
                             "asymptote_max_rel_residual": asym_resid},
@@ -270,7 +281,7 @@ def main():
         check_sum=check_sum, check_correction_solved=solved_part, check_remainder=remainder,
         check_j_solved=np.array([c["j_solved"] for c in checks]),
         table_energy=t_energy[overlap], table_born_correction=table_corr,
-        correction_p=p_fit, asymptote=asym, asymptote_max_residual=asym_resid,
+        correction_p=p_last, asymptote=asym, asymptote_max_residual=asym_resid,
         err_energy=err_energies, err_born_sum_rel=coarse_rel,
         metadata=json.dumps(meta, sort_keys=True))
     print(json.dumps(meta, indent=1, sort_keys=True))
