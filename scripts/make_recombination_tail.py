@@ -77,8 +77,8 @@ from lossfit.universal.solver.partial_waves import PartialWaveSolver  # noqa: E4
 E_LO, E_HI, PER_DECADE = 1e4, 1e8, 6
 CHECK_ENERGIES = (10 ** 4.5, 1e5)
 # solved partial waves and how many share one Legendre sweep (memory: block x nodes^2
-# complex numbers; 10560 nodes at E = 1e5, where one block of 4 takes ~15 min)
-CHECK_J_CAP = {10 ** 4.5: 32, 1e5: 8}
+# complex numbers; 10560 nodes at E = 1e5, where one block of 4 takes ~9 min)
+CHECK_J_CAP = {10 ** 4.5: 32, 1e5: 24}
 CHECK_BLOCK = {10 ** 4.5: 8, 1e5: 4}
 ASYMPTOTE_E_MIN = 1e6      # the asymptotic form is fitted from here up
 ANCHOR_REL_ERR = 0.1       # a check anchors D if its estimated rest is known to this
