@@ -71,10 +71,9 @@ _SIGMA = (0.5, 1.0, 0.5)
 # s = ln(E/k_BT)); for a < 0 the near-threshold resonance of s11 at small eta, for a > 0
 # the coarser spline knots of the three-body table (docs/thermal-averages.md).
 _HMAX_Y = (0.5, 0.6, 0.75)
-# Range of the global layouts in y (None: the end of the table). At a > 0 the deep-dimer
-# channel reaches |a| = infinity (the shallow channel's columns are NaN above its table,
-# and the model refuses it there): ln E = 64 is a = 1e16 a0 at 2 uK for 133Cs.
-_Y_RANGE = ((-32.0, 32.0), (-64.0, 64.0), (-32.0, None))
+# Range of the global layouts in y. Every table reaches |a| = infinity through its
+# unitarity tail: ln E = 64 is a = 1e16 a0 at 2 uK for 133Cs, ln k_AD a = 32 likewise.
+_Y_RANGE = ((-32.0, 32.0), (-64.0, 64.0), (-32.0, 32.0))
 
 
 def _threshold_y(family, eta_min):
@@ -192,15 +191,15 @@ def _profile(family, part, eta_min):
         return y, width, kinks, None
     tab = load_atom_dimer_table()
     first, breakup, last = atom_dimer_grid_points(tab.packed)
-    y = np.arange(_threshold_y(ATOM_DIMER_A, eta_min) - 2.0, math.log(last), _PROFILE_DY)
+    y = np.arange(_threshold_y(ATOM_DIMER_A, eta_min) - 2.0, _Y_RANGE[ATOM_DIMER_A][1], _PROFILE_DY)
     _, s = tab.evaluate(np.exp(y))
     width = _width_from_amplitude(y, np.log(np.abs(s)), np.angle(s), eta_min)
-    kinks = [math.log(first), math.log(breakup)]
-    end = math.log(last)
+    # the table's end, where its unitarity tail begins, is a kink too
+    kinks = [math.log(first), math.log(breakup), math.log(last)]
     if part == 1:
-        e_lo, e_hi, _ = recombination_grid_points(load_recombination_table().packed)
-        kinks += [0.5 * math.log(4.0 * (e + 1.0) / 3.0) for e in (e_lo, e_hi)]
-        end = min(end, 0.5 * math.log(4.0 * (e_hi + 1.0) / 3.0))
+        rc = load_recombination_table()
+        e_lo, e_hi, _ = recombination_grid_points(rc.packed)
+        kinks += [0.5 * math.log(4.0 * (e + 1.0) / 3.0) for e in (e_lo, e_hi, rc.high_energy_max)]
         # far below the breakup threshold (E_b = x_b k_BT, x_b >> 1) the breakup integrand
         # lives within ~1/x_b of it in ln E: panels graded geometrically away from the kink
         above = y > math.log(breakup)
@@ -209,7 +208,7 @@ def _profile(family, part, eta_min):
         # table's knots), mapped to ln k_AD a: d ln E / dy = 1.5 (k_AD a)^2 / E
         kad2 = np.exp(2.0 * y[above])
         width[above] = np.minimum(width[above], _HMAX_Y[POSITIVE_A] * (0.75 * kad2 - 1.0) / (1.5 * kad2))
-    return y, width, kinks, end
+    return y, width, kinks, None
 
 
 # ---- per-point weights ------------------------------------------------------------------------

@@ -395,11 +395,10 @@ class ZeroRangeModel(EnergyModel):
     Phi = s0 ln(kappa* |a| / sqrt 2) - arg Gamma(1 + i s0). kappa* comes from a_- (a < 0
     three-body), a_+ (a > 0 three-body) or a* (relaxation) with each table's own
     kappa* a_-, kappa* a_+ or kappa* a*, so that the threshold features sit at the given
-    positions. The deep-dimer channel reaches any a at a > 0: above the three-body table
-    the atom-dimer table and, beyond k_AD a = 1e3, the exact |a| = infinity solution with
-    its measured 1/(k a) approach carry it (:mod:`.tables`). The other tables are not
-    extrapolated: requests beyond them (the shallow-dimer channel above k_B T ~ 240 E_b,
-    relaxation above k_AD a = 1e3) raise, naming ``a``.
+    positions. Every channel reaches any a > 0: above the three-body table the atom-dimer
+    table and, beyond k_AD a = 1e3, the exact |a| = infinity solution with its measured
+    1/(k a) approach carry the J = 0 quantities (s_AD, T_break, T_AD; :mod:`.tables`,
+    docs/stm.md sections 7b and 7d), the high-energy extension the J >= 1 sum (7c).
     """
 
     name = "zero-range"
@@ -484,14 +483,6 @@ class ZeroRangeModel(EnergyModel):
             raise LossfitValueError("channel", f"must be one of {list(table)}, got {channel!r}")
         return weights
 
-    def _check_atom_dimer_reach(self, kad_at_scale, x_max):
-        # the atom-dimer table is not extrapolated
-        table = self.atom_dimer_table
-        reach = kad_at_scale * math.sqrt(x_max)
-        if np.any(reach > table.kad_max):
-            raise LossfitValueError("a", f"k_AD a up to {reach.max():.3g} is needed, beyond the zero-range "
-                                    f"atom-dimer table (k_AD a <= {table.kad_max:g}); lower |a| or T")
-
     def three_body_rows(self, a, efimov, q, channel="total", x_max=U_MAX ** 2):
         weights = self._channel_weights(_CHANNEL_WEIGHTS, channel)
         a = np.asarray(a, dtype=float).ravel()
@@ -553,22 +544,25 @@ class ZeroRangeModel(EnergyModel):
                     out += p[6] * shallow * energy * energy
                 return UNITARITY_ATOM_DIMER * out / math.sqrt(x)
 
-            first, breakup, _ = atom_dimer_grid_points(packed)
+            first, breakup, last = atom_dimer_grid_points(packed)
             e_lo, e_hi, _ = recombination_grid_points(packed_pos)
             kad_lo = math.sqrt(4.0 * (e_lo + 1.0) / 3.0)
             kad_hi = math.sqrt(4.0 * (e_hi + 1.0) / 3.0)
+            kad_he = math.sqrt(4.0 * (self.recombination_table.high_energy_max + 1.0) / 3.0)
 
             @numba.njit(FEATURES_SIGNATURE)
             def features(p, out):
-                # the start of the grid and the breakup threshold (square-root kink); with
-                # breakup, the ends of the three-body grid
+                # the start of the grid, the breakup threshold (square-root kink) and the
+                # start of the unitarity tail; with breakup, the three-body grid's ends
                 out[0] = (first / p[0]) ** 2
                 out[1] = (breakup / p[0]) ** 2
+                out[2] = (last / p[0]) ** 2
                 if p[6] == 0.0:
-                    return 2
-                out[2] = (kad_lo / p[0]) ** 2
-                out[3] = (kad_hi / p[0]) ** 2
-                return 4
+                    return 3
+                out[3] = (kad_lo / p[0]) ** 2
+                out[4] = (kad_hi / p[0]) ** 2
+                out[5] = (kad_he / p[0]) ** 2
+                return 6
             self._ad_features = features
             self._ad_kernel = kernel
         return self._ad_kernel
@@ -582,7 +576,6 @@ class ZeroRangeModel(EnergyModel):
         # E = 3 hbar^2 k_AD^2 / (4 m) and x = E / E_s with E_s = hbar^2 k_s^2 / m:
         # k_AD a = (2/sqrt 3) q sqrt(x)
         rows[:, 0] = (2.0 / math.sqrt(3.0)) * np.abs(q).ravel()
-        self._check_atom_dimer_reach(rows[:, 0], x_max)
         two_phi = 2.0 * (S0 * np.log(kappa * np.asarray(a, dtype=float).ravel() / math.sqrt(2.0)) - ARG_GAMMA_S0)
         rows[:, 1] = np.cos(two_phi)
         rows[:, 2] = np.sin(two_phi)
@@ -608,7 +601,6 @@ class ZeroRangeModel(EnergyModel):
     def thermal_atom_dimer(self, a, q, efimov, scale, channel="relaxation"):
         weights = self._channel_weights(_ATOM_DIMER_CHANNEL_WEIGHTS, channel)
         kad = (2.0 / math.sqrt(3.0)) * np.abs(np.ravel(q))
-        self._check_atom_dimer_reach(kad, U_MAX ** 2)
         parts = tuple(p for p in (0, 1) if weights[p])
         return averages.general_average(averages.ATOM_DIMER_A, np.ravel(a), kad, efimov, np.ravel(scale),
                                         weights=weights, parts=parts)
@@ -621,7 +613,6 @@ class ZeroRangeModel(EnergyModel):
     def atom_dimer_plan(self, a, q, scale, channel="relaxation", eta_min=averages.ETA_MIN):
         relaxation, breakup = self._channel_weights(_ATOM_DIMER_CHANNEL_WEIGHTS, channel)
         q = np.abs(np.ravel(q))
-        self._check_atom_dimer_reach((2.0 / math.sqrt(3.0)) * q, U_MAX ** 2)
         return averages.atom_dimer_plan(np.ravel(a), q, np.ravel(scale), relaxation=relaxation, breakup=breakup,
                                         eta_min=eta_min)
 

@@ -212,10 +212,13 @@ def load_s11_table(path=None):
 # extrapolated T_AD/(k_AD a) -> c1 and arg s_AD -> delta0 stored with the table) to the
 # first node: atom-dimer scattering is an s-wave two-cluster problem, so the leading
 # corrections are linear in k_AD a (the phase moves by ~1e-3 rad between 0 and the first
-# node, which matters at a narrow relaxation peak). Above the grid nothing is
-# extrapolated: the rate packers refuse energies beyond it.
+# node, which matters at a narrow relaxation peak). Above the grid (k_AD a > 1e3) the
+# exact |a| = infinity solution takes over with the table's last difference from it
+# decaying like 1/x, x = sqrt(E m a^2/hbar^2) = sqrt(3 (k_AD a)^2/4 - 1) (docs/stm.md
+# sections 7b, 7d): s_AD = s_inf(x) (1 + c_s/x), T_break = 1 - e^{-2 pi s0} + c_t/x, and
+# T_AD = 1 - |s_AD|^2 - T_break by unitarity (it falls like 4.9/(k_AD a)).
 
-_AD_HEADER = 10
+_AD_HEADER = 13
 _AD_SPLINES = 3          # ln T_AD, Re s_AD, Im s_AD
 _AD_BREAKUP = 4          # A, Re B, Im B, C above breakup (after both segments' splines)
 
@@ -228,7 +231,10 @@ class AtomDimerTable:
     packed : ndarray
         1-D float array consumed by :func:`s_ad_eval`.
     kad_max : float
-        Last grid point in k_AD a (no extrapolation beyond).
+        Last grid point in k_AD a; beyond it the unitarity tail (:attr:`unitarity_tail`).
+    unitarity_tail : dict
+        ``"t_break"`` and ``"s"``: the table's last differences from the |a| = infinity
+        values times x there (they decay like 1/x, docs/stm.md section 7b).
     kappa_star_a_star : float
         kappa* a* implied by the table's threshold phase (relaxation peak at threshold).
     c_beta : float
@@ -261,7 +267,7 @@ class AtomDimerTable:
         # unwrap delta0 onto the branch of the tabulated phase at the first node
         delta0 += 2.0 * math.pi * round((phase0 - delta0) / (2.0 * math.pi))
         head = np.array([lnx1.size, lnx1[0], lnx1[1] - lnx1[0], lnx2.size, lnx2[0], lnx2[1] - lnx2[0],
-                         kad[j], kad[-1], c1, delta0])
+                         kad[j], kad[-1], c1, delta0, 0.0, 0.0, 0.0])
         assert head.size == _AD_HEADER
         self.kad = kad
         self.kad_max = float(kad[-1])
@@ -269,6 +275,16 @@ class AtomDimerTable:
         # columns beyond its grid)
         sp_breakup = [spline_coefficients(lnx2, col[j:]) for col in breakup]
         self.packed = np.concatenate([head] + [c.T.ravel() for c in sp1 + sp2 + sp_breakup])
+        # the unitarity tails' 1/x coefficients from the last grid point (evaluated before
+        # they are stored, so the grid's own value is used)
+        x_last = math.sqrt(0.75 * self.kad_max ** 2 - 1.0)
+        t_ad, re, im = s_ad_eval(self.packed, self.kad_max)
+        s_last = complex(re, im)
+        s_unit = math.exp(-math.pi * S0) * cmath.exp(1j * _unitarity_phase(x_last))
+        tail_s = (s_last / s_unit - 1.0) * x_last
+        tail_t = (1.0 - abs(s_last) ** 2 - t_ad - T_UNITARITY) * x_last
+        self.packed[10:13] = tail_t, tail_s.real, tail_s.imag
+        self.unitarity_tail = {"t_break": tail_t, "s": tail_s}
 
     def evaluate(self, kad):
         """(T_AD, s_AD) at k_AD a (arrays), evaluated as the runtime kernel does."""
@@ -296,7 +312,16 @@ def _ad_segment(packed, offset, n, i, dx):
 
 @numba.njit(cache=True)
 def s_ad_eval(packed, kad):
-    """(T_AD, Re s_AD, Im s_AD) at k_AD a (<= the last grid point) from a packed table."""
+    """(T_AD, Re s_AD, Im s_AD) at k_AD a > 0 from a packed table (the unitarity tail
+    beyond the last grid point)."""
+    if kad > packed[7]:
+        x = math.sqrt(0.75 * kad * kad - 1.0)
+        ph = _unitarity_phase(x)
+        mod = math.exp(-math.pi * S0)
+        cs, sn = mod * math.cos(ph), mod * math.sin(ph)
+        fr, fi = 1.0 + packed[11] / x, packed[12] / x
+        re, im = cs * fr - sn * fi, sn * fr + cs * fi
+        return 1.0 - re * re - im * im - (T_UNITARITY + packed[10] / x), re, im
     n1 = int(packed[0])
     lnx0 = packed[1]
     lnx = math.log(kad)
@@ -369,7 +394,7 @@ def load_atom_dimer_table(path=None):
 # (``scripts/make_recombination_tail.py``, docs/stm.md section 7c) up to its grid end
 # (E = 1e8) and from the asymptotic form c0 + c1/x + c2/x^2 fitted there beyond.
 
-_RC_HEADER = 27       # grid, E -> 0 limits, the switch to unitarity and its tails, the J >= 1 tail
+_RC_HEADER = 24       # grid, E -> 0 limits, the switch to unitarity and its tails, the J >= 1 tail
 _RC_COLUMNS = 8       # Re s, Im s, A/E^2, Re B/E^2, Im B/E^2, C/E^2, T_break/E^2, J>=1 sum/E^2
 
 
@@ -426,22 +451,18 @@ class RecombinationTable:
         self.deep_energy_switch = 0.75 * atom_dimer.kad_max ** 2 - 1.0
         if self.deep_energy_switch <= self.energy_max:
             raise LossfitError(f"{path!r}: the atom-dimer table ends below the recombination grid")
-        # the unitarity tails' 1/x coefficients from the atom-dimer table's last point
+        # s_AD and T_break beyond the atom-dimer table come from its unitarity tail; the
+        # J = 0 breakup coefficients' 1/x tails from its last point
         x_last = math.sqrt(self.deep_energy_switch)
-        t_ad, s_last = atom_dimer.evaluate(np.array([atom_dimer.kad_max]))
-        t_break = 1.0 - abs(s_last[0]) ** 2 - t_ad[0]
         s_unit = math.exp(-math.pi * S0) * cmath.exp(1j * _unitarity_phase(x_last))
-        tail_s = (s_last[0] / s_unit - 1.0) * x_last
         a_last, b_re, b_im, c_last = breakup_coefficients_eval(atom_dimer.packed, atom_dimer.kad_max)
         # B turns with the phase of s at unitarity (measured: B/s_unitarity x -> -140)
         tail_b = complex(b_re, b_im) / s_unit * x_last
-        self.unitarity_tail = {"t_break": (t_break - T_UNITARITY) * x_last, "s": tail_s,
-                               "breakup_a": a_last * x_last, "breakup_b": tail_b,
-                               "breakup_c": c_last * x_last, "higher_j": tuple(asymptote)}
+        self.unitarity_tail = dict(atom_dimer.unitarity_tail, breakup_a=a_last * x_last, breakup_b=tail_b,
+                                   breakup_c=c_last * x_last, higher_j=tuple(asymptote))
         head = np.array([energy.size, lnx[0], lnx[1] - lnx[0], energy[0], energy[-1]] + limits[:7]
-                        + [self.deep_energy_switch, self.unitarity_tail["t_break"], tail_s.real, tail_s.imag,
-                           he_energy.size, he_lnx[0], he_lnx[1] - he_lnx[0], he_energy[-1]] + asymptote
-                        + [a_last * x_last, c_last * x_last, tail_b.real, tail_b.imag])
+                        + [self.deep_energy_switch, he_energy.size, he_lnx[0], he_lnx[1] - he_lnx[0],
+                           he_energy[-1]] + asymptote + [a_last * x_last, c_last * x_last, tail_b.real, tail_b.imag])
         assert head.size == _RC_HEADER
         splines = [spline_coefficients(lnx, c).T.ravel() for c in columns]
         splines.append(spline_coefficients(he_lnx, he_sum).T.ravel())
@@ -479,37 +500,36 @@ def _rc_column(packed, c, n, below, i, dx, r):
 @numba.njit(cache=True)
 def _higher_j_above_grid(packed, n, energy):
     """The J >= 1 sum above the three-body grid: extension grid, then asymptotic form."""
-    if energy > packed[19]:
+    if energy > packed[16]:
         x = math.sqrt(energy)
-        return packed[20] + (packed[21] + packed[22] / x) / x
-    n_he = int(packed[16])
-    i = min(int((math.log(energy) - packed[17]) / packed[18]), n_he - 2)
-    dx = math.log(energy) - (packed[17] + i * packed[18])
+        return packed[17] + (packed[18] + packed[19] / x) / x
+    n_he = int(packed[13])
+    i = min(int((math.log(energy) - packed[14]) / packed[15]), n_he - 2)
+    dx = math.log(energy) - (packed[14] + i * packed[15])
     return _spline(packed, _RC_HEADER + _RC_COLUMNS * 4 * (n - 1), i, dx)
 
 
 @numba.njit(cache=True)
 def _above_grid(packed, n, energy):
-    """The eight columns above the three-body grid: J = 0 from the atom-dimer table, then
-    unitarity; J >= 1 from the extension."""
+    """The eight columns above the three-body grid: J = 0 from the atom-dimer table (with
+    its unitarity tail); J >= 1 from the extension."""
     e2 = energy * energy
     higher_j = _higher_j_above_grid(packed, n, energy) / e2
+    ad = packed[_RC_HEADER + _RC_COLUMNS * 4 * (n - 1) + 4 * (int(packed[13]) - 1):]
+    kad = math.sqrt(4.0 * (energy + 1.0) / 3.0)
+    t_ad, re, im = s_ad_eval(ad, kad)
+    t_break = (1.0 - re * re - im * im - t_ad) / e2
     if energy <= packed[12]:
-        ad = packed[_RC_HEADER + _RC_COLUMNS * 4 * (n - 1) + 4 * (int(packed[16]) - 1):]
-        kad = math.sqrt(4.0 * (energy + 1.0) / 3.0)
-        t_ad, re, im = s_ad_eval(ad, kad)
         a, b_re, b_im, c = breakup_coefficients_eval(ad, kad)
-        return re, im, a / e2, b_re / e2, b_im / e2, c / e2, (1.0 - re * re - im * im - t_ad) / e2, higher_j
+        return re, im, a / e2, b_re / e2, b_im / e2, c / e2, t_break, higher_j
     # the stored tail coefficients are the last differences times x there: they decay as 1/x
     x = math.sqrt(energy)
     ph = _unitarity_phase(x)
     mod = math.exp(-math.pi * S0)
     cs, sn = mod * math.cos(ph), mod * math.sin(ph)
-    fr, fi = 1.0 + packed[14] / x, packed[15] / x
     bx = e2 * x
-    return (cs * fr - sn * fi, sn * fr + cs * fi, packed[23] / bx, (cs * packed[25] - sn * packed[26]) / bx,
-            (sn * packed[25] + cs * packed[26]) / bx, packed[24] / bx, (T_UNITARITY + packed[13] / x) / e2,
-            higher_j)
+    return (re, im, packed[20] / bx, (cs * packed[22] - sn * packed[23]) / bx,
+            (sn * packed[22] + cs * packed[23]) / bx, packed[21] / bx, t_break, higher_j)
 
 
 @numba.njit(cache=True)

@@ -14,7 +14,7 @@ from scipy.integrate import quad
 
 import lossfit as lf
 from lossfit.errors import LossfitValueError
-from lossfit.universal.tables import load_s11_table
+from lossfit.universal.tables import load_atom_dimer_table, load_s11_table
 
 CS = lf.species("133Cs")
 S0 = lf.S0
@@ -142,12 +142,26 @@ def test_peak_moves_to_smaller_abs_a_as_temperature_rises():
     assert peaks[0] == pytest.approx(985.0, abs=5.0)     # measured with this table, 2026-12-02
 
 
-def test_unavailable_side_raises_instead_of_approximating():
+def test_relaxation_beyond_the_atom_dimer_table_follows_its_measured_approach():
+    # Beyond k_AD a = 1e3 relaxation comes from the exact |a| = infinity solution plus the
+    # table's last 1/x differences (docs/stm.md 7d): T_AD = 1 - |s_AD|^2 - T_break falls
+    # like c/(k_AD a). The join is continuous, and c agrees with the limit that a
+    # Richardson (1/k_AD a) extrapolation of the solver's own table gives from its last
+    # half-decade (the table's approach; 0.5 % is the stated error of the tail).
+    tab = load_atom_dimer_table()
+    k_last = tab.kad_max
+    t_in, s_in = tab.evaluate(np.array([k_last * (1 - 1e-9), k_last * (1 + 1e-9)]))
+    assert t_in[1] == pytest.approx(t_in[0], rel=1e-6)
+    assert s_in[1] == pytest.approx(s_in[0], rel=1e-6)
+    k1, k2 = k_last / 10 ** 0.25, k_last
+    (t1, t2), _ = tab.evaluate(np.array([k1, k2]))
+    limit = (t2 * k2 * k2 - t1 * k1 * k1) / (k2 - k1)          # c + d/k: eliminate d
+    t_far, _ = tab.evaluate(np.array([1e4, 1e6]))
+    assert t_far * np.array([1e4, 1e6]) == pytest.approx([limit, limit], rel=5e-3)
+    # and beta is finite and falls like 1/(k a) at fixed T as a grows (no refusal)
     ef = lf.Efimov.universal(-1000.0, 0.05)
-    # the atom-dimer table is not extrapolated beyond its last point
-    with pytest.raises(LossfitValueError, match="beyond the zero-range atom-dimer table") as info:
-        lf.beta(1e7, 3000.0, species=CS, efimov=ef, model="zero-range")
-    assert info.value.argument == "a"
+    b = lf.beta(np.array([1e7, 1e8]), 3000.0, species=CS, efimov=ef)
+    assert b[1] / b[0] == pytest.approx(0.1, rel=0.05)
 
 
 # --- a > 0: atom-dimer relaxation from the STM table -------------------------------------
