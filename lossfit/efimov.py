@@ -93,6 +93,19 @@ class Efimov:
                    a_star=KAPPA_A_STAR * SCALING_FACTOR / kappa, eta_star=eta,
                    a_plus=KAPPA_A_PLUS / kappa, eta_plus=eta)
 
+    def with_atom_dimer(self):
+        """These parameters, with a* and eta* tied to a_+ and eta_+ by the zero-range
+        relations (one kappa*: a* = kappa* a*_0 x scaling / kappa*, kappa* = 0.316472/a_+;
+        eta* = eta_+) where they are not set. The observed three-body loss at a > 0 needs
+        atom-dimer relaxation, and a fit of a_+ alone does not set a* (docs/conventions.md)."""
+        if self.a_star is not None and self.eta_star is not None:
+            return self
+        if self.a_plus is None or self.eta_plus is None:
+            return self
+        a_star = self.a_star if self.a_star is not None else KAPPA_A_STAR * SCALING_FACTOR * self.a_plus / KAPPA_A_PLUS
+        eta_star = self.eta_star if self.eta_star is not None else self.eta_plus
+        return dataclasses.replace(self, a_star=a_star, eta_star=eta_star)
+
     def replace(self, **changes):
         """A copy with some parameters changed."""
         return dataclasses.replace(self, **changes)

@@ -6,7 +6,7 @@ nK (energy as E/k_B), L3 and K3 in cm^6/s (lossfit convention, see
 :mod:`lossfit.universal.threshold`), beta in cm^3/s.
 """
 
-__all__ = ["k3", "beta_energy", "l3", "beta", "natural_unit", "unitarity_bound", "validity_flags",
+__all__ = ["k3", "beta_energy", "l3", "beta", "natural_unit", "unitarity_bound", "validity_flags", "depth_over_temperature",
            "MIN_ABS_A_OVER_RVDW", "MAX_ENERGY_OVER_VDW"]
 
 import math
@@ -16,14 +16,17 @@ import numba
 import numpy as np
 
 from .constants import HBAR
+from .dimer_kinetics import DEFAULT_DEPTH_OVER_T
 from .efimov import Efimov
 from .errors import LossfitValueError, ValidityWarning, check_nonzero, check_positive, is_real
 from .species import Species
 from .species import species as _species
 from .thermal import ATOM_DIMER, KERNEL_SIGNATURE, THREE_BODY, U_MAX, LazyCompiled, compiled
 from .units import A0, CM3_PER_S, CM6_PER_S, NK
+from .universal.averages import ETA_MIN
 from .universal.models import (
     DEFAULT_MODEL,
+    OBSERVED,
     UNITARITY_ATOM_DIMER,
     UNITARITY_THREE_BODY,
     get_model,
@@ -241,12 +244,40 @@ def beta_energy(a, energy, *, species, efimov, model=None, channel="relaxation")
     return _finish(out * unit, shape)
 
 
-def _averaged(process, a, temperature, species, efimov, model, rtol, channel):
+def depth_over_temperature(trap_depth, temperature):
+    """U/(k_B T) per point: ``trap_depth`` (nK, as U/k_B) over the temperature (nK), or
+    :data:`lossfit.dimer_kinetics.DEFAULT_DEPTH_OVER_T` where ``trap_depth`` is None."""
+    temperature = np.asarray(temperature, dtype=float)
+    if trap_depth is None:
+        return np.full(temperature.shape, DEFAULT_DEPTH_OVER_T)
+    depth = check_positive("trap_depth", trap_depth)
+    try:
+        return np.broadcast_to(depth, temperature.shape) / temperature
+    except ValueError:
+        raise LossfitValueError("trap_depth", f"shape {depth.shape} does not broadcast against the points "
+                                f"{temperature.shape}") from None
+
+
+def _smallest_eta(efimov):
+    # one-off averages use the rules built for the eta at hand (coarser for larger eta)
+    etas = [v for v in (efimov.eta_minus, efimov.eta_plus, efimov.eta_star) if v is not None]
+    return min(etas) if etas else ETA_MIN
+
+
+def _averaged(process, a, temperature, species, efimov, model, rtol, channel, trap_depth=None):
     if rtol is not None and not (is_real(rtol) and 0 < rtol < 1):
         raise LossfitValueError("rtol", f"must be None or a number in (0, 1), got {rtol!r}")
     sp, mdl, a_b, scale_b, q = _prepare(a, temperature, species, efimov, model, "temperature", process, 5)
     unit = natural_unit(process, scale_b, sp.mass)
     a_f, q_f = a_b.ravel(), q.ravel()
+    if process == THREE_BODY:
+        channel = mdl.resolve_channel(channel)
+        if channel == OBSERVED:
+            depth = depth_over_temperature(trap_depth, scale_b).ravel()
+            plan = mdl.observed_plan(a_f, q_f, unit, depth, eta_min=_smallest_eta(efimov), rtol=rtol)
+            return _finish(plan.evaluate(efimov), a_b.shape)
+        if trap_depth is not None:
+            raise LossfitValueError("trap_depth", f"applies to channel='observed' only, not {channel!r}")
     if rtol is not None:
         # the reference path: adaptive quadrature of the model's kernel to ``rtol``
         value, err = mdl.reference_average(process, a_f, q_f, efimov, channel, rtol)
@@ -258,10 +289,13 @@ def _averaged(process, a, temperature, species, efimov, model, rtol, channel):
     return _finish(mdl.thermal(process, a_f, q_f, efimov, unit, channel=channel), a_b.shape)
 
 
-def l3(a, temperature, *, species, efimov, model=None, rtol=None, channel="total"):
+def l3(a, temperature, *, species, efimov, model=None, rtol=None, channel=None, trap_depth=None):
     """Thermally averaged three-body loss coefficient of a non-degenerate gas.
 
-    ``L3(a, T) = ∫ K3(a, E) P3(E) dE`` with P3(E) = E^2 exp(-E/k_BT)/(2 (k_BT)^3).
+    ``L3(a, T) = ∫ K3(a, E) P3(E) dE`` with P3(E) = E^2 exp(-E/k_BT)/(2 (k_BT)^3), for
+    the formal channels; by default (``channel="observed"``) the loss that a trapped gas
+    shows: at a > 0 shallow dimers formed by recombination are lost only when they or
+    their partner leave the trap or relax into deep dimers (docs/conventions.md).
 
     Parameters
     ----------
@@ -276,15 +310,23 @@ def l3(a, temperature, *, species, efimov, model=None, rtol=None, channel="total
         ``"capped"``, fixed quadrature rules accurate to about 3e-7 for ``"zero-range"``
         (docs/thermal-averages.md). A number: adaptive quadrature of the energy-resolved
         kernel to this relative tolerance (the reference path, 10-100x slower).
-    channel : {"total", "shallow", "deep"}
-        As for :func:`k3`.
+    channel : {None, "observed", "total", "shallow", "deep"}
+        None (default): ``"observed"`` for ``model="zero-range"``, ``"total"`` for models
+        that resolve no channels (``"threshold"``, ``"capped"``). ``"observed"``: the
+        deep-dimer channel plus the shallow-dimer channel weighted by the atoms a trapped
+        gas loses per formation (escape of the products, breakup and relaxation of
+        trapped dimers, quasi-static; needs a*, eta* or ties them to a_+, eta_+). The
+        others as for :func:`k3`.
+    trap_depth : float or array_like, optional
+        Atom trap depth U/k_B in nK (``"observed"`` only), broadcast against the points;
+        None assumes U = 10 k_B T (common practice after evaporation, no source).
 
     Returns
     -------
     float or ndarray
         L3 in cm^6/s.
     """
-    return _averaged(THREE_BODY, a, temperature, species, efimov, model, rtol, channel)
+    return _averaged(THREE_BODY, a, temperature, species, efimov, model, rtol, channel, trap_depth)
 
 
 def beta(a, temperature, *, species, efimov, model=None, rtol=None, channel="relaxation"):

@@ -35,7 +35,8 @@ compiled with the signatures :data:`KERNEL_SIGNATURE` and :data:`FEATURES_SIGNAT
 
 __all__ = ["THREE_BODY", "ATOM_DIMER", "U_MAX", "thermal_average", "rate_kernel", "LazyCompiled", "compiled",
            "feature_points", "KERNEL_SIGNATURE", "FEATURES_SIGNATURE", "boltzmann_weight",
-           "probability_below", "panel_edges", "composite_gauss_legendre", "GL_ORDER"]
+           "probability_below", "panel_edges", "composite_gauss_legendre", "GL_ORDER",
+           "upper_part_factors"]
 
 import math
 
@@ -426,6 +427,25 @@ def panel_edges(y0, y1, width, forced):
             edges.append(nxt)
             s = nxt
     return np.array(edges)
+
+
+@numba.njit(cache=True)
+def upper_part_factors(tau, out):
+    """Factors f_j that turn a Gauss-Legendre panel rule into one for the panel's upper
+    part: sum_j f_j w_j g(t_j) = int_tau^1 p(t) dt, p the degree GL_ORDER - 1 polynomial
+    through the nodes t_j of [-1, 1] (interpolatory quadrature; exact for such
+    polynomials). Used to cut a thermal average at an energy inside a panel."""
+    half = 0.5 * (1.0 - tau)
+    for j in range(GL_ORDER):
+        acc = 0.0
+        for k in range(GL_ORDER):
+            u = tau + half * (_GL_X[k] + 1.0)
+            basis = 1.0
+            for m in range(GL_ORDER):
+                if m != j:
+                    basis *= (u - _GL_X[m]) / (_GL_X[j] - _GL_X[m])
+            acc += half * _GL_W[k] * basis
+        out[j] = acc / _GL_W[j]
 
 
 def composite_gauss_legendre(edges):

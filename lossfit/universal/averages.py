@@ -44,7 +44,15 @@ import numpy as np
 from .._bisect import interval_of
 from ..constants import ARG_GAMMA_S0, S0
 from ..errors import LossfitValueError
-from ..thermal import ATOM_DIMER, GL_ORDER, THREE_BODY, composite_gauss_legendre, panel_edges, probability_below
+from ..thermal import (
+    ATOM_DIMER,
+    GL_ORDER,
+    THREE_BODY,
+    composite_gauss_legendre,
+    panel_edges,
+    probability_below,
+    upper_part_factors,
+)
 from .tables import (
     atom_dimer_grid_points,
     load_atom_dimer_table,
@@ -346,10 +354,43 @@ def _point_value(family, part, terms, wt, first, stop, cos2phi, sin2phi, e2, g, 
 
 
 @numba.njit(cache=True)
-def _point_weights(family, part, edges, y, ex, omega, sigma, y_threshold, scale_q, scale, out):
+def _cut_below(family, edges, ex, sigma, first, stop, edge, y_off, x_cut, scale, out):
+    """Restrict a point's rule to E > x_cut k_BT: nodes of panels below the cut drop out,
+    the panel that holds it keeps the interpolatory rule of its upper part
+    (:func:`lossfit.thermal.upper_part_factors`), and the threshold-tail probability that
+    :func:`_weights` put on the first node keeps only its part above the cut."""
+    weight = ATOM_DIMER if family == ATOM_DIMER_A else THREE_BODY
+    x_edge = math.exp((edge - y_off) / sigma)
+    x0 = ex[first] * math.exp(-y_off / sigma)
+    power = 1.0
+    if family == NEGATIVE_A:
+        power = x0 * x0
+    elif family == ATOM_DIMER_A:
+        power = math.sqrt(x0)
+    out[0] -= scale * probability_below(weight, min(x_cut, x_edge)) / power
+    if x_cut <= x_edge:
+        return
+    y_cut = y_off + sigma * math.log(x_cut)
+    factors = np.empty(GL_ORDER)
+    cut_panel = -1
+    for j in range(first, stop):
+        panel = j // GL_ORDER
+        lo, hi = edges[panel], edges[panel + 1]
+        if hi <= y_cut:
+            out[j - first] = 0.0
+        elif lo < y_cut:
+            if panel != cut_panel:
+                upper_part_factors((2.0 * y_cut - lo - hi) / (hi - lo), factors)
+                cut_panel = panel
+            out[j - first] *= factors[j % GL_ORDER]
+
+
+@numba.njit(cache=True)
+def _point_weights(family, part, edges, y, ex, omega, sigma, y_threshold, scale_q, scale, x_cut, out):
     """One point's rule: writes its node weights to ``out`` and returns (first, stop,
     status) -- the node range in the layout and 0, or 1 / 2 if the rule would leave the
-    layout below / above (then nothing is written)."""
+    layout below / above (then nothing is written). ``x_cut`` > 0 restricts the average
+    to collision energies above x_cut k_BT (the rest of the integrand counts zero)."""
     y_off, y_lo, y_hi = _span(family, part, scale_q, y_threshold)
     if y_lo < edges[0]:
         return 0, 0, 1
@@ -359,18 +400,23 @@ def _point_weights(family, part, edges, y, ex, omega, sigma, y_threshold, scale_
     # the a > 0 table holds K3 x^2 / q^4 (its columns are over (E m a^2/hbar^2)^2)
     f = scale * scale_q ** 4 if family == POSITIVE_A else scale
     _weights(family, ex, omega, sigma, first, stop, edge, y_off, f, out)
+    if part == 1:
+        # breakup: the rule starts on the threshold kink and nothing lies below it
+        x_cut = max(x_cut, math.exp((edge - y_off) / sigma))
+    if x_cut > 0.0:
+        _cut_below(family, edges, ex, sigma, first, stop, edge, y_off, x_cut, f, out)
     return first, stop, 0
 
 
 @numba.njit(cache=True)
-def _general(family, part, edges, y, ex, omega, sigma, terms, y_threshold, a, scale_q, scale, offset, e2, g,
-             w_a, w_b, out):
+def _general(family, part, edges, y, ex, omega, sigma, terms, y_threshold, a, scale_q, scale, cuts, offset, e2,
+             g, w_a, w_b, out):
     """The general path: every point through the global rule, nothing kept. Returns the
     first non-zero status of :func:`_point_weights`, or 0."""
     wt = np.empty(ex.size)
     for p in range(a.size):
         first, stop, status = _point_weights(family, part, edges, y, ex, omega, sigma, y_threshold, scale_q[p],
-                                             scale[p], wt)
+                                             scale[p], cuts[p], wt)
         if status:
             return status
         two_phi = 2.0 * S0 * math.log(abs(a[p])) + offset
@@ -380,7 +426,7 @@ def _general(family, part, edges, y, ex, omega, sigma, terms, y_threshold, a, sc
 
 
 @numba.njit(cache=True)
-def _plan_weights(family, part, edges, y, ex, omega, sigma, y_threshold, scale_q, scale):
+def _plan_weights(family, part, edges, y, ex, omega, sigma, y_threshold, scale_q, scale, cuts):
     """Node ranges and weights of every point of a plan (see :func:`_point_weights`); the
     last value is the status."""
     m = scale_q.size
@@ -394,7 +440,7 @@ def _plan_weights(family, part, edges, y, ex, omega, sigma, y_threshold, scale_q
             grown[:offset[p]] = wt[:offset[p]]
             wt = grown
         first[p], stop[p], status = _point_weights(family, part, edges, y, ex, omega, sigma, y_threshold,
-                                                   scale_q[p], scale[p], wt[offset[p]:])
+                                                   scale_q[p], scale[p], cuts[p], wt[offset[p]:])
         if status:
             return wt[:0], first, stop, offset, status
         offset[p + 1] = offset[p] + stop[p] - first[p]
@@ -448,8 +494,12 @@ def _span(family, part, scale_q, y_threshold):
     y_lo = y_off + sigma * min(math.log(x_lo), (y_threshold - y_off) / sigma)
     y_hi = y_off + sigma * _Y_UPPER_S
     if part == 1:
-        # breakup starts at E_b = x_b k_BT: reach as far above it as above E = 0
+        # breakup starts at E_b = x_b k_BT: nothing below it (the rule starts on the kink,
+        # or at E = 1e-8 k_BT, where at most ~1e-8 of the weight lies below, the breakup
+        # kernel being at most unitarity-limited ~ 1/sqrt(E)), and reach as far above it as
+        # above E = 0
         x_b = math.exp((_Y_BREAKUP - y_off) / sigma)
+        y_lo = max(y_off + sigma * math.log(1e-8), _Y_BREAKUP)
         y_hi = y_off + sigma * math.log(x_b + math.exp(_Y_UPPER_S))
     return y_off, y_lo, y_hi
 
@@ -475,7 +525,14 @@ def _efimov_scalars(family, efimov, eta_min):
     return phase_offset(kappa, a_f), math.exp(-2.0 * eta), -math.expm1(-4.0 * eta)
 
 
-def general_average(family, a, scale_q, efimov, scale, weights=(1.0, 1.0), parts=(0,)):
+def _cuts(cut, n):
+    """Per-point cuts E/k_BT as a float array (zeros: none)."""
+    if cut is None:
+        return np.zeros(n)
+    return np.ascontiguousarray(np.broadcast_to(np.asarray(cut, dtype=float), (n,)))
+
+
+def general_average(family, a, scale_q, efimov, scale, weights=(1.0, 1.0), parts=(0,), cut=None):
     """Exact thermal averages at arbitrary points (the general path).
 
     Parameters
@@ -494,6 +551,8 @@ def general_average(family, a, scale_q, efimov, scale, weights=(1.0, 1.0), parts
         Channel weights: (shallow, deep) at a > 0, (relaxation, breakup) for beta.
     parts : tuple of int
         For beta, the parts to add: 0 relaxation, 1 breakup.
+    cut : ndarray, optional
+        Per point, average only over collision energies above ``cut`` k_BT (<= 0: all).
 
     Returns
     -------
@@ -502,10 +561,11 @@ def general_average(family, a, scale_q, efimov, scale, weights=(1.0, 1.0), parts
     eta = getattr(efimov, _feature(family)[1])
     off, e2, g = _efimov_scalars(family, efimov, 0.0 if eta is None else eta)
     out = np.zeros(a.size)
+    cuts = _cuts(cut, a.size)
     for part in parts:
         lay = _layout(family, part, _rule_eta(eta))
         status = _general(family, part, lay.edges, lay.y, lay.ex, lay.omega, lay.sigma, lay.terms, lay.y_threshold, a,
-                          scale_q, scale, off, e2, g, float(weights[0]), float(weights[1]), out)
+                          scale_q, scale, cuts, off, e2, g, float(weights[0]), float(weights[1]), out)
         if status:
             _span_error(status)
     return out
@@ -516,11 +576,11 @@ class _PlanGroup:
 
     __slots__ = ("family", "head", "w_a", "w_b", "index", "buffer", "n_nodes")
 
-    def __init__(self, family, part, a, scale_q, scale, weights, eta_min, index):
+    def __init__(self, family, part, a, scale_q, scale, weights, eta_min, index, cuts):
         lay = _layout(family, part, _rule_eta(eta_min))
         wt, first, stop, offset, status = _plan_weights(family, part, lay.edges, lay.y, lay.ex, lay.omega,
-                                                        lay.sigma,
-                                                        lay.y_threshold, scale_q, np.asarray(scale, dtype=float))
+                                                        lay.sigma, lay.y_threshold, scale_q,
+                                                        np.asarray(scale, dtype=float), cuts)
         if status:
             _span_error(status)
         theta = 2.0 * S0 * np.log(np.abs(a))
@@ -593,7 +653,7 @@ def _check_eta_min(eta_min):
     return float(eta_min)
 
 
-def three_body_plan(a, q, scale, *, shallow=1.0, deep=1.0, eta_min=ETA_MIN):
+def three_body_plan(a, q, scale, *, shallow=1.0, deep=1.0, eta_min=ETA_MIN, cut=None):
     """Fixed-data plan of the exact thermal K3 average at points (a, T).
 
     Parameters
@@ -609,6 +669,8 @@ def three_body_plan(a, q, scale, *, shallow=1.0, deep=1.0, eta_min=ETA_MIN):
         Channel weights at a > 0 (a < 0 recombines into deep dimers only).
     eta_min : float
         Smallest eta the plan must resolve (default :data:`ETA_MIN`).
+    cut : ndarray, optional
+        Per point, average only over collision energies above ``cut`` k_BT (<= 0: all).
 
     Returns
     -------
@@ -617,10 +679,12 @@ def three_body_plan(a, q, scale, *, shallow=1.0, deep=1.0, eta_min=ETA_MIN):
     eta_min = _check_eta_min(eta_min)
     groups = []
     neg = a < 0
+    cuts = _cuts(cut, a.size)
     for family, sel in ((NEGATIVE_A, neg), (POSITIVE_A, ~neg)):
         if sel.any():
             index = None if sel.all() else np.flatnonzero(sel)
-            groups.append(_PlanGroup(family, 0, a[sel], np.abs(q[sel]), scale[sel], (shallow, deep), eta_min, index))
+            groups.append(_PlanGroup(family, 0, a[sel], np.abs(q[sel]), scale[sel], (shallow, deep), eta_min, index,
+                                     cuts[sel]))
     return ThermalPlan(a.size, groups, eta_min)
 
 
@@ -630,6 +694,6 @@ def atom_dimer_plan(a, q, scale, *, relaxation=1.0, breakup=0.0, eta_min=ETA_MIN
     ``relaxation`` and ``breakup``."""
     eta_min = _check_eta_min(eta_min)
     p0 = (2.0 / math.sqrt(3.0)) * np.abs(q)          # k_AD a at E = k_BT
-    groups = [_PlanGroup(ATOM_DIMER_A, part, a, p0, scale, (relaxation, breakup), eta_min, None)
+    groups = [_PlanGroup(ATOM_DIMER_A, part, a, p0, scale, (relaxation, breakup), eta_min, None, np.zeros(a.size))
               for part, on in ((0, relaxation), (1, breakup)) if on]
     return ThermalPlan(a.size, groups, eta_min)

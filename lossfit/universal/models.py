@@ -44,7 +44,7 @@ and E = hbar^2 k^2/(2 mu); in natural units beta <= (3 sqrt(3) pi / 4) / sqrt(x)
 """
 
 __all__ = ["EnergyModel", "ThresholdModel", "CappedModel", "ZeroRangeModel", "get_model", "register_model",
-           "available_models", "UNITARITY_THREE_BODY", "UNITARITY_ATOM_DIMER", "REFERENCE_RTOL"]
+           "available_models", "UNITARITY_THREE_BODY", "UNITARITY_ATOM_DIMER", "REFERENCE_RTOL", "OBSERVED"]
 
 import math
 
@@ -64,6 +64,7 @@ from ..thermal import (
     rate_kernel,
     thermal_average,
 )
+from ..dimer_kinetics import breakup_from_formation, escape_cuts, observed_loss, relaxation_fraction
 from ..units import A0
 from . import averages
 from .tables import (
@@ -79,8 +80,10 @@ from .tables import (
 )
 from .threshold import beta_coefficient_unchecked, l3_coefficient_unchecked
 
-# (shallow-dimer, deep-dimer) weights of the recombination channels; a < 0 has only deep
+# (shallow-dimer, deep-dimer) weights of the recombination channels; a < 0 has only deep.
+# "observed" (what a trapped gas loses) combines them with atom-dimer loss: _ObservedPlan.
 _CHANNEL_WEIGHTS = {"total": (1.0, 1.0), "shallow": (1.0, 0.0), "deep": (0.0, 1.0)}
+OBSERVED = "observed"
 # (relaxation, breakup) weights of the atom-dimer loss channels
 _ATOM_DIMER_CHANNEL_WEIGHTS = {"relaxation": (1.0, 0.0), "breakup": (0.0, 1.0), "total": (1.0, 1.0)}
 UNITARITY_THREE_BODY = averages.UNITARITY_THREE_BODY
@@ -105,6 +108,9 @@ class EnergyModel:
     name = None
     description = ""
     approximate = True
+    #: True if the model resolves recombination into the shallow dimer and into deep
+    #: dimers and gives atom-dimer breakup, which the observed channel needs.
+    resolves_channels = False
     three_body_kernel = None
     three_body_features = None
     atom_dimer_kernel = None
@@ -168,6 +174,16 @@ class EnergyModel:
     def atom_dimer_plan(self, a, q, scale, channel="relaxation", eta_min=averages.ETA_MIN):
         """As :meth:`three_body_plan` for beta (a > 0)."""
         return _RecomputingPlan(self.thermal_atom_dimer, a, q, scale, channel)
+
+    @property
+    def default_three_body_channel(self):
+        """``"observed"`` (what a trapped gas loses) for models that resolve the channels,
+        else ``"total"``, the only rate such a model gives."""
+        return OBSERVED if self.resolves_channels else "total"
+
+    def resolve_channel(self, channel):
+        """``channel`` with None replaced by :attr:`default_three_body_channel`."""
+        return self.default_three_body_channel if channel is None else channel
 
     @property
     def label(self):
@@ -307,6 +323,52 @@ def _recombination_over_e2(packed_pos, energy, cos2phi, sin2phi, e2eta):
     return (ca + 2.0 * (cbr * wr - cbi * wi) + cc * w2) / den + hj, tb / den
 
 
+class _ReferencePart:
+    """One part of the observed channel on the reference path (adaptive quadrature)."""
+
+    def __init__(self, average, rtol):
+        self.average, self.rtol = average, rtol
+
+    def evaluate(self, efimov, out=None):
+        value = self.average(efimov, self.rtol)
+        if out is None:
+            return value
+        out[:] = value
+        return out
+
+
+class _ObservedPlan:
+    """Thermal averages of the observed three-body loss at fixed points: the deep-dimer
+    channel plus the shallow channel weighted by the atoms a trapped gas loses per
+    formation (:mod:`lossfit.dimer_kinetics`). Built from parts that each have
+    ``evaluate(efimov)``: ``three_body(channel, index, cut)`` (in the units of
+    ``scale``) and ``atom_dimer(channel, index)`` (natural units hbar/(m k_T)) make them,
+    as fast plans or on the reference path. Breakup of trapped dimers is the shallow
+    channel's time reverse (detailed balance), so it costs no average of its own."""
+
+    def __init__(self, a, q, scale, depth_over_t, three_body, atom_dimer):
+        self.n_points = a.size
+        self.deep = three_body("deep", None, None)
+        self.positive = np.flatnonzero(a > 0)
+        self.parts = ()
+        if self.positive.size:
+            pos = self.positive
+            x_atom, x_dimer = escape_cuts(q[pos], depth_over_t[pos])
+            self.parts = (three_body("shallow", pos, None), three_body("shallow", pos, x_atom),
+                          three_body("shallow", pos, x_dimer), atom_dimer("relaxation", pos))
+            self.q, self.scale = q[pos], scale[pos]
+        self.n_nodes = sum(getattr(p, "n_nodes", 0) for p in (self.deep,) + self.parts)
+
+    def evaluate(self, efimov, out=None):
+        out = self.deep.evaluate(efimov, out)
+        if self.parts:
+            shallow, atom_escapes, dimer_escapes, relaxation = (p.evaluate(efimov.with_atom_dimer())
+                                                                for p in self.parts)
+            fraction = relaxation_fraction(relaxation, breakup_from_formation(shallow / self.scale, self.q))
+            out[self.positive] = observed_loss(out[self.positive], shallow, atom_escapes, dimer_escapes, fraction)
+        return out
+
+
 class ThresholdModel(EnergyModel):
     """The zero-energy law used at every collision energy."""
 
@@ -318,6 +380,9 @@ class ThresholdModel(EnergyModel):
     atom_dimer_features = staticmethod(_no_features)
 
     def _check_channel(self, channel, only):
+        if channel == OBSERVED:
+            raise LossfitValueError("channel", f"model {self.name!r} gives only the total rate, not what a "
+                                    "trapped gas loses; use model='zero-range' or channel='total'")
         if channel != only:
             more = "'shallow' and 'deep'" if only == "total" else "'breakup' and 'total'"
             raise LossfitValueError("channel", f"model {self.name!r} gives only the {only} rate; "
@@ -404,6 +469,7 @@ class ZeroRangeModel(EnergyModel):
     name = "zero-range"
     description = "exact zero-range universal functions (K3 both signs of a, beta for a > 0)"
     approximate = False
+    resolves_channels = True
 
     def __init__(self):
         self._kernel = None
@@ -442,7 +508,9 @@ class ZeroRangeModel(EnergyModel):
             @numba.njit(KERNEL_SIGNATURE)
             def kernel(x, p):
                 # p = [q = k_s |a|, cos 2Phi, sin 2Phi, exp(-2 eta), 1 - exp(-4 eta),
-                #      shallow weight, deep weight, sign of a, 2 Phi]
+                #      shallow weight, deep weight, sign of a, 2 Phi, lower energy cut x]
+                if x < p[9]:
+                    return 0.0
                 if p[7] < 0.0:
                     # a < 0: every recombination goes to deep dimers (one cosine per call)
                     t, ph = s11_eval(packed, p[0] * math.sqrt(x))
@@ -463,15 +531,20 @@ class ZeroRangeModel(EnergyModel):
 
             @numba.njit(FEATURES_SIGNATURE)
             def features(p, out):
-                # the ends of the table grids, where the interpolants meet their limits
+                # the ends of the table grids, where the interpolants meet their limits,
+                # and the energy cut (a step)
+                n = 0
+                if p[9] > 0.0:
+                    out[0] = p[9]
+                    n = 1
                 if p[7] < 0.0:
-                    out[0] = (lo / p[0]) ** 2
-                    out[1] = (hi / p[0]) ** 2
-                    return 2
-                out[0] = e_lo / (p[0] * p[0])
-                out[1] = e_hi / (p[0] * p[0])
-                out[2] = e_unitarity / (p[0] * p[0])
-                return 3
+                    out[n] = (lo / p[0]) ** 2
+                    out[n + 1] = (hi / p[0]) ** 2
+                    return n + 2
+                out[n] = e_lo / (p[0] * p[0])
+                out[n + 1] = e_hi / (p[0] * p[0])
+                out[n + 2] = e_unitarity / (p[0] * p[0])
+                return n + 3
             self._features = features
             self._kernel = kernel
         return self._kernel
@@ -483,7 +556,12 @@ class ZeroRangeModel(EnergyModel):
             raise LossfitValueError("channel", f"must be one of {list(table)}, got {channel!r}")
         return weights
 
-    def three_body_rows(self, a, efimov, q, channel="total", x_max=U_MAX ** 2):
+    def three_body_rows(self, a, efimov, q, channel="total", x_max=U_MAX ** 2, cut=None):
+        """As the base class; ``cut`` (per point, in units of the energy scale) drops
+        collision energies below it (the parts of the observed channel)."""
+        if channel == OBSERVED:
+            raise LossfitValueError("channel", "the observed channel is a thermal average over the gas (it needs a "
+                                    "temperature and a trap depth): use lf.l3, not a fixed-energy rate")
         weights = self._channel_weights(_CHANNEL_WEIGHTS, channel)
         a = np.asarray(a, dtype=float).ravel()
         q = np.abs(np.asarray(q, dtype=float)).ravel()
@@ -499,7 +577,8 @@ class ZeroRangeModel(EnergyModel):
             kappa[~neg] = self.recombination_table.kappa_star_a_plus / a_plus
             eta[~neg] = eta_plus
         two_phi = 2.0 * (S0 * np.log(kappa * np.abs(a) / math.sqrt(2.0)) - ARG_GAMMA_S0)
-        rows = np.empty((a.size, 9))
+        rows = np.empty((a.size, 10))
+        rows[:, 9] = 0.0 if cut is None else np.maximum(np.ravel(cut), 0.0)
         rows[:, 0] = q
         rows[:, 1] = np.cos(two_phi)
         rows[:, 2] = np.sin(two_phi)
@@ -584,18 +663,68 @@ class ZeroRangeModel(EnergyModel):
         rows[:, 5], rows[:, 6] = weights
         return rows
 
+    # -- the observed channel -------------------------------------------------------------
+    def observed_plan(self, a, q, scale, depth_over_t, eta_min=averages.ETA_MIN, rtol=None):
+        """Thermal averages of the observed three-body loss at fixed points (a, T): the
+        deep-dimer channel plus the shallow channel weighted by what a trapped gas loses
+        (:mod:`lossfit.dimer_kinetics`, docs/conventions.md).
+
+        Parameters
+        ----------
+        a, q, scale
+            As for :meth:`three_body_plan`.
+        depth_over_t : ndarray
+            Atom trap depth U/(k_B T) per point.
+        eta_min : float
+            As for :meth:`three_body_plan`.
+        rtol : float, optional
+            None: the fast rules; a number: every part by adaptive quadrature to ``rtol``.
+
+        Returns
+        -------
+        object with ``evaluate(efimov) -> ndarray`` (units set by ``scale``)
+        """
+        a, q, scale = np.ravel(a), np.abs(np.ravel(q)), np.ravel(scale)
+        depth = np.broadcast_to(np.asarray(depth_over_t, dtype=float), a.shape)
+        if rtol is None:
+            def three_body(channel, index, cut):
+                sel = slice(None) if index is None else index
+                return self.three_body_plan(a[sel], q[sel], scale[sel], channel=channel, eta_min=eta_min, cut=cut)
+
+            def atom_dimer(channel, index):
+                return self.atom_dimer_plan(a[index], q[index], np.ones(index.size), channel=channel, eta_min=eta_min)
+        else:
+            def three_body(channel, index, cut):
+                sel = slice(None) if index is None else index
+
+                def average(efimov, tol):
+                    rows = self.three_body_rows(a[sel], efimov, q[sel], channel=channel, cut=cut)
+                    value, _ = thermal_average(self.three_body_kernel, self.three_body_features, rows, THREE_BODY,
+                                               rtol=tol)
+                    return value * scale[sel]
+                return _ReferencePart(average, rtol)
+
+            def atom_dimer(channel, index):
+                return _ReferencePart(lambda efimov, tol: self.reference_average(
+                    ATOM_DIMER, a[index], q[index], efimov, channel, tol)[0], rtol)
+        return _ObservedPlan(a, q, scale, depth, three_body, atom_dimer)
+
     # -- fast thermal averages (lossfit.universal.averages) -----------------------------
-    def thermal_three_body(self, a, q, efimov, scale, channel="total"):
+    def thermal_three_body(self, a, q, efimov, scale, channel="total", cut=None):
+        if channel == OBSERVED:
+            raise LossfitValueError("channel", "the observed channel needs the trap depth: use observed_plan")
         shallow, deep = self._channel_weights(_CHANNEL_WEIGHTS, channel)
         a, q, scale = np.ravel(a), np.abs(np.ravel(q)), np.ravel(scale)
         neg = a < 0
         n_neg = int(np.count_nonzero(neg))
+        cut = None if cut is None else np.broadcast_to(np.asarray(cut, dtype=float), a.shape)
         if n_neg in (0, a.size):
             family = averages.NEGATIVE_A if n_neg else averages.POSITIVE_A
-            return averages.general_average(family, a, q, efimov, scale, weights=(shallow, deep))
+            return averages.general_average(family, a, q, efimov, scale, weights=(shallow, deep), cut=cut)
         out = np.empty(a.size)
         for family, sel in ((averages.NEGATIVE_A, neg), (averages.POSITIVE_A, ~neg)):
-            out[sel] = averages.general_average(family, a[sel], q[sel], efimov, scale[sel], weights=(shallow, deep))
+            out[sel] = averages.general_average(family, a[sel], q[sel], efimov, scale[sel], weights=(shallow, deep),
+                                                cut=None if cut is None else cut[sel])
         return out
 
     def thermal_atom_dimer(self, a, q, efimov, scale, channel="relaxation"):
@@ -605,10 +734,12 @@ class ZeroRangeModel(EnergyModel):
         return averages.general_average(averages.ATOM_DIMER_A, np.ravel(a), kad, efimov, np.ravel(scale),
                                         weights=weights, parts=parts)
 
-    def three_body_plan(self, a, q, scale, channel="total", eta_min=averages.ETA_MIN):
+    def three_body_plan(self, a, q, scale, channel="total", eta_min=averages.ETA_MIN, cut=None):
+        if channel == OBSERVED:
+            raise LossfitValueError("channel", "the observed channel needs the trap depth: use observed_plan")
         shallow, deep = self._channel_weights(_CHANNEL_WEIGHTS, channel)
         a, q = np.ravel(a), np.abs(np.ravel(q))
-        return averages.three_body_plan(a, q, np.ravel(scale), shallow=shallow, deep=deep, eta_min=eta_min)
+        return averages.three_body_plan(a, q, np.ravel(scale), shallow=shallow, deep=deep, eta_min=eta_min, cut=cut)
 
     def atom_dimer_plan(self, a, q, scale, channel="relaxation", eta_min=averages.ETA_MIN):
         relaxation, breakup = self._channel_weights(_ATOM_DIMER_CHANNEL_WEIGHTS, channel)
