@@ -6,17 +6,18 @@ nK (energy as E/k_B), L3 and K3 in cm^6/s (lossfit convention, see
 :mod:`lossfit.universal.threshold`), beta in cm^3/s.
 """
 
-__all__ = ["k3", "beta_energy", "l3", "beta", "natural_unit", "unitarity_bound", "validity_flags", "depth_over_temperature",
-           "MIN_ABS_A_OVER_RVDW", "MAX_ENERGY_OVER_VDW"]
+__all__ = ["k3", "beta_energy", "l3", "beta", "dimer_kinetics_rates", "DimerKineticsRates", "natural_unit",
+           "unitarity_bound", "validity_flags", "depth_over_temperature", "MIN_ABS_A_OVER_RVDW", "MAX_ENERGY_OVER_VDW"]
 
 import math
 import warnings
+from typing import NamedTuple
 
 import numba
 import numpy as np
 
 from .constants import HBAR
-from .dimer_kinetics import DEFAULT_DEPTH_OVER_T
+from .dimer_kinetics import DEFAULT_DEPTH_OVER_T, saha_ratio
 from .efimov import Efimov
 from .errors import LossfitValueError, ValidityWarning, check_nonzero, check_positive, is_real
 from .species import Species
@@ -327,6 +328,60 @@ def l3(a, temperature, *, species, efimov, model=None, rtol=None, channel=None, 
         L3 in cm^6/s.
     """
     return _averaged(THREE_BODY, a, temperature, species, efimov, model, rtol, channel, trap_depth)
+
+
+class DimerKineticsRates(NamedTuple):
+    """The rate coefficients of atoms and trapped shallow dimers at a > 0 (arrays of the
+    points' shape; docs/conventions.md, "What a trapped gas loses at a > 0").
+
+    Three-body coefficients count atoms lost (3 per event), in cm^6/s; beta in cm^3/s
+    (dimers lost); ``saha`` is the equilibrium n_D/n^2 in cm^3.
+    """
+
+    deep: np.ndarray                   #: L3 into deep dimers
+    shallow: np.ndarray                #: L3 into the shallow dimer (all formations)
+    shallow_atom_escapes: np.ndarray   #: formations whose atom leaves the trap
+    shallow_dimer_escapes: np.ndarray  #: formations whose dimer (and atom) leave
+    relaxation: np.ndarray             #: beta of trapped dimers into deep dimers
+    breakup: np.ndarray                #: beta of dimer breakup (detailed balance with ``shallow``)
+    saha: np.ndarray                   #: equilibrium n_D / n^2
+    observed: np.ndarray               #: the observed L3 these give (quasi-static)
+
+
+def dimer_kinetics_rates(a, temperature, *, species, efimov, trap_depth=None, model=None):
+    """Every rate coefficient of the atom + shallow-dimer kinetics in a trap, at a > 0.
+
+    The parts of :func:`l3`'s ``channel="observed"`` (which combines them assuming the
+    dimers follow the atoms quasi-statically); the explicit rate equations of
+    :mod:`lossfit.experiment.decay` use them directly.
+
+    Parameters
+    ----------
+    a : float or array_like
+        Scattering length in a0 (> 0).
+    temperature : float or array_like
+        Temperature in nK (> 0); atoms and dimers share it.
+    species, efimov, model
+        As for :func:`l3` (the model must resolve the channels: ``"zero-range"``).
+    trap_depth : float or array_like, optional
+        Atom trap depth U/k_B in nK; None assumes 10 k_B T.
+
+    Returns
+    -------
+    DimerKineticsRates
+    """
+    sp, mdl, a_b, scale_b, q = _prepare(a, temperature, species, efimov, model, "temperature", ATOM_DIMER, 3)
+    if not mdl.resolves_channels:
+        raise LossfitValueError("model", f"{mdl.name!r} does not resolve shallow and deep dimers; use 'zero-range'")
+    unit = natural_unit(THREE_BODY, scale_b, sp.mass)
+    depth = depth_over_temperature(trap_depth, scale_b).ravel()
+    plan = mdl.observed_plan(a_b.ravel(), q.ravel(), unit, depth, eta_min=_smallest_eta(efimov))
+    parts = plan.parts_at(efimov)
+    beta_unit = natural_unit(ATOM_DIMER, scale_b, sp.mass)
+    k_t = scale_wavenumber_a0(scale_b.ravel() * NK, sp.mass) / A0 / 100.0          # 1/cm
+    values = dict(parts, relaxation=parts["relaxation"] * beta_unit, breakup=parts["breakup"] * beta_unit,
+                  saha=saha_ratio(q.ravel()) / k_t ** 3)
+    return DimerKineticsRates(**{k: _finish(np.asarray(v, dtype=float), a_b.shape) for k, v in values.items()})
 
 
 def beta(a, temperature, *, species, efimov, model=None, rtol=None, channel="relaxation"):

@@ -52,6 +52,7 @@ import numba
 import numpy as np
 
 from ..constants import ARG_GAMMA_S0, HBAR, S0
+from ..dimer_kinetics import breakup_from_formation, escape_cuts, observed_loss, relaxation_fraction
 from ..errors import LossfitValueError
 from ..thermal import (
     ATOM_DIMER,
@@ -64,7 +65,6 @@ from ..thermal import (
     rate_kernel,
     thermal_average,
 )
-from ..dimer_kinetics import breakup_from_formation, escape_cuts, observed_loss, relaxation_fraction
 from ..units import A0
 from . import averages
 from .tables import (
@@ -367,6 +367,20 @@ class _ObservedPlan:
             fraction = relaxation_fraction(relaxation, breakup_from_formation(shallow / self.scale, self.q))
             out[self.positive] = observed_loss(out[self.positive], shallow, atom_escapes, dimer_escapes, fraction)
         return out
+
+    def parts_at(self, efimov):
+        """Every part at points a > 0 (all points must be a > 0): three-body parts in the
+        units of ``scale``, relaxation and breakup in hbar/(m k_T), and the observed sum."""
+        if self.positive.size != self.n_points:
+            raise LossfitValueError("a", "the dimer kinetics needs a shallow dimer: every a must be > 0")
+        tied = efimov.with_atom_dimer()
+        shallow, atom_escapes, dimer_escapes, relaxation = (p.evaluate(tied) for p in self.parts)
+        breakup = breakup_from_formation(shallow / self.scale, self.q)
+        deep = self.deep.evaluate(efimov)
+        return {"deep": deep, "shallow": shallow, "shallow_atom_escapes": atom_escapes,
+                "shallow_dimer_escapes": dimer_escapes, "relaxation": relaxation, "breakup": breakup,
+                "observed": observed_loss(deep, shallow, atom_escapes, dimer_escapes,
+                                          relaxation_fraction(relaxation, breakup))}
 
 
 class ThresholdModel(EnergyModel):

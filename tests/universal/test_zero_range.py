@@ -13,7 +13,6 @@ import scipy.constants as sc
 from scipy.integrate import quad
 
 import lossfit as lf
-from lossfit.errors import LossfitValueError
 from lossfit.universal.tables import load_atom_dimer_table, load_s11_table
 
 CS = lf.species("133Cs")
