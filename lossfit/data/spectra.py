@@ -1,13 +1,16 @@
 """Loss-spectrum containers, validation, the HDF5 schema and CSV import.
 
-HDF5 schema ``lossfit.spectra``, version 1
+HDF5 schema ``lossfit.spectra``, version 2
 -----------------------------------------
-File attributes: ``schema = "lossfit.spectra"``, ``schema_version = 1``,
+File attributes: ``schema = "lossfit.spectra"``, ``schema_version = 2``,
 ``lossfit_version``. One group per spectrum under ``/spectra/<name>`` with attributes
-``kind`` (``"l3"`` or ``"beta"``), ``label``, ``species`` (may be empty) and datasets
+``kind`` (``"l3"`` or ``"beta"``), ``label``, ``species`` (may be empty), ``channel``
+(the loss channel the data measure, empty for the model's default) and datasets
 ``a`` (attribute ``units = "a0"``), ``temperature`` (``"nK"``), ``value`` and
-``error`` (``"cm^6/s"`` for L3, ``"cm^3/s"`` for beta). Readers refuse files with an
-unknown schema or a newer version.
+``error`` (``"cm^6/s"`` for L3, ``"cm^3/s"`` for beta) and, optionally,
+``trap_depth`` (``"nK"``, the atoms' trap depth U/k_B per point). Version 1 files (no
+``channel``, no ``trap_depth``) are read as such. Readers refuse files with an unknown
+schema or a newer version.
 
 CSV import: a header line naming the columns ``a``, ``temperature``, ``value``,
 ``error`` (any order, extra columns ignored; ``L3``/``beta`` and ``L3_err``/``beta_err``
@@ -30,8 +33,10 @@ from ..errors import LossfitValueError, check_finite, check_nonzero, check_posit
 from ..units import COLUMN_UNITS
 
 SCHEMA = "lossfit.spectra"
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2
 KINDS = {"l3": "cm^6/s", "beta": "cm^3/s"}
+#: Loss channels a spectrum may measure, by kind (None: the model's default, docs/conventions.md).
+CHANNELS = {"l3": ("observed", "total", "shallow", "deep"), "beta": ("relaxation", "breakup", "total")}
 
 
 class LossSpectrum:
@@ -52,11 +57,23 @@ class LossSpectrum:
         Name used in plots and files.
     species : str, optional
         Species name, recorded with the data.
+    channel : str, optional
+        Which loss the data measure. L3: ``"observed"`` (what a trapped gas loses: the
+        default of ``model="zero-range"``), or the formal ``"total"``, ``"shallow"``,
+        ``"deep"``; beta: ``"relaxation"`` (default), ``"breakup"``, ``"total"``. None:
+        the model's default (docs/conventions.md).
+    trap_depth : float or array_like, optional
+        Trap depth of the atoms, U/k_B in nK (> 0), per point or one value; used by the
+        observed L3 channel. None: the fit assumes 10 k_B T and records that.
     """
 
-    def __init__(self, a, temperature, value, error, kind="l3", label=None, species=None):
+    def __init__(self, a, temperature, value, error, kind="l3", label=None, species=None, channel=None,
+                 trap_depth=None):
         if kind not in KINDS:
             raise LossfitValueError("kind", f"must be one of {list(KINDS)}, got {kind!r}")
+        if channel is not None and channel not in CHANNELS[kind]:
+            raise LossfitValueError("channel", f"a {kind} spectrum measures one of {list(CHANNELS[kind])} "
+                                    f"(or None: the model's default), got {channel!r}")
         a = np.atleast_1d(check_nonzero("a", a)).astype(float)
         if a.ndim != 1 or a.size == 0:
             raise LossfitValueError("a", f"must be a non-empty 1-D sequence, got shape {a.shape}")
@@ -74,9 +91,20 @@ class LossSpectrum:
         if kind == "beta" and (a <= 0).any():
             raise LossfitValueError("a", "beta (atom-dimer relaxation) needs a > 0 (a shallow dimer); "
                                     f"got {a[a <= 0][:5]!r}")
+        if trap_depth is not None:
+            if kind != "l3":
+                raise LossfitValueError("trap_depth", "applies to L3 spectra (the observed three-body loss) only")
+            depth = np.atleast_1d(check_positive("trap_depth", trap_depth)).astype(float)
+            if depth.size == 1:
+                depth = np.full(n, depth.item())
+            if depth.shape != (n,):
+                raise LossfitValueError("trap_depth", f"has {depth.size} entries but a has {n}")
+            arrays["trap_depth"] = depth
         for arr in (a, *arrays.values()):
             arr.setflags(write=False)
         self.a = a
+        self.channel = channel
+        self.trap_depth = arrays.get("trap_depth")
         self.temperature = arrays["temperature"]
         self.value = arrays["value"]
         self.error = arrays["error"]
@@ -102,7 +130,8 @@ class LossSpectrum:
         """A new spectrum with only the points where ``mask`` is true."""
         mask = np.asarray(mask, dtype=bool)
         return LossSpectrum(self.a[mask], self.temperature[mask], self.value[mask],
-                            self.error[mask], kind=self.kind, label=self.label, species=self.species)
+                            self.error[mask], kind=self.kind, label=self.label, species=self.species,
+                            channel=self.channel, trap_depth=None if self.trap_depth is None else self.trap_depth[mask])
 
 
 def write_spectra(path, spectra, *, overwrite=False):
@@ -127,8 +156,12 @@ def write_spectra(path, spectra, *, overwrite=False):
             g.attrs["kind"] = s.kind
             g.attrs["label"] = s.label
             g.attrs["species"] = s.species or ""
-            for name, arr, unit in (("a", s.a, "a0"), ("temperature", s.temperature, "nK"),
-                                    ("value", s.value, s.units), ("error", s.error, s.units)):
+            g.attrs["channel"] = s.channel or ""
+            columns = [("a", s.a, "a0"), ("temperature", s.temperature, "nK"), ("value", s.value, s.units),
+                       ("error", s.error, s.units)]
+            if s.trap_depth is not None:
+                columns.append(("trap_depth", s.trap_depth, "nK"))
+            for name, arr, unit in columns:
                 g.create_dataset(name, data=arr).attrs["units"] = unit
 
     with atomic_path(path, overwrite=overwrite) as tmp:
@@ -162,9 +195,14 @@ def read_spectra(path):
                     raise LossfitValueError("path", f"{path!r}: spectra/{key}/{name} has units "
                                             f"{g[name].attrs.get('units')!r}, expected {unit!r} (lossfit "
                                             "converts nothing on reading)")
+            if "trap_depth" in g and g["trap_depth"].attrs.get("units") != "nK":
+                raise LossfitValueError("path", f"{path!r}: spectra/{key}/trap_depth has units "
+                                        f"{g['trap_depth'].attrs.get('units')!r}, expected 'nK'")
             out.append(LossSpectrum(g["a"][()], g["temperature"][()], g["value"][()], g["error"][()],
                                     kind=kind, label=g.attrs.get("label", key),
-                                    species=g.attrs.get("species", "") or None))
+                                    species=g.attrs.get("species", "") or None,
+                                    channel=g.attrs.get("channel", "") or None,
+                                    trap_depth=g["trap_depth"][()] if "trap_depth" in g else None))
         return out
 
 

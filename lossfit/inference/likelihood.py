@@ -14,13 +14,14 @@ import numba
 import numpy as np
 
 from ..data.spectra import LossSpectrum
+from ..dimer_kinetics import DEFAULT_DEPTH_OVER_T
 from ..errors import LossfitValueError
 from ..rates import natural_unit
 from ..species import species as _species
 from ..thermal import ATOM_DIMER, THREE_BODY
 from ..units import NK
 from ..universal.averages import ETA_MIN
-from ..universal.models import get_model, scale_wavenumber_a0
+from ..universal.models import OBSERVED, get_model, scale_wavenumber_a0
 from .fit_checks import goodness_of_fit, input_plausibility, poor_fit_message
 
 
@@ -39,14 +40,29 @@ class RateBlock:
     rtol : float, optional
         None: the model's fast averages. A number: the adaptive reference quadrature
         at this tolerance at every evaluation (slow; for checks).
+    channel : str, optional
+        The loss channel (None: the model's default, ``"observed"`` for L3 with the
+        zero-range model, ``"relaxation"`` for beta).
+    trap_depth : ndarray, optional
+        Atom trap depth U/k_B in nK per point for the observed channel; NaN or None:
+        10 k_B T (:data:`lossfit.dimer_kinetics.DEFAULT_DEPTH_OVER_T`).
     """
 
-    def __init__(self, kind, a, temperature, species, model, eta_min=ETA_MIN, rtol=None):
+    def __init__(self, kind, a, temperature, species, model, eta_min=ETA_MIN, rtol=None, channel=None,
+                 trap_depth=None):
         self.kind = kind
         self.process = THREE_BODY if kind == "l3" else ATOM_DIMER
         self.a = np.asarray(a, dtype=float)
-        self.k_s = scale_wavenumber_a0(np.asarray(temperature, dtype=float) * NK, species.mass)   # 1/a0
+        temperature = np.asarray(temperature, dtype=float)
+        self.k_s = scale_wavenumber_a0(temperature * NK, species.mass)   # 1/a0
         self.unit = natural_unit(self.process, temperature, species.mass)
+        model = get_model(model)
+        if self.process == THREE_BODY:
+            self.channel = model.resolve_channel(channel)
+        else:
+            self.channel = channel or "relaxation"
+        depth = np.full(self.a.shape, np.nan) if trap_depth is None else np.asarray(trap_depth, dtype=float)
+        self.depth_over_t = np.where(np.isnan(depth), DEFAULT_DEPTH_OVER_T, depth / temperature)
         self.density_power = 2.0 if kind == "l3" else 1.0
         self.model = model
         self.rtol = rtol
@@ -74,22 +90,47 @@ class RateBlock:
     @property
     def plan(self):
         if self._plan is None:
-            self._plan = self.model.plan(self.process, self.a, self.a * self.k_s, self.unit, eta_min=self.eta_min)
+            self._plan = self._make_plan(self.a, self.eta_min)
         return self._plan
+
+    def _make_plan(self, a, eta_min, rtol=None):
+        q = a * self.k_s
+        if self.channel == OBSERVED:
+            return self.model.observed_plan(a, q, self.unit, self.depth_over_t, eta_min=eta_min, rtol=rtol)
+        if rtol is not None:
+            return None
+        if self.process == THREE_BODY:
+            return self.model.three_body_plan(a, q, self.unit, channel=self.channel, eta_min=eta_min)
+        return self.model.atom_dimer_plan(a, q, self.unit, channel=self.channel, eta_min=eta_min)
 
     def predict(self, efimov, a=None):
         """L3 (cm^6/s) or beta (cm^3/s) at every point; ``a`` (a0) replaces the stored
         scattering lengths (then nothing prepared is reused)."""
         if self.rtol is not None:
-            return self._reference(efimov, self.a if a is None else a)
+            return self._reference(efimov, self.a if a is None else np.asarray(a, dtype=float))
         if a is None:
             return self.plan.evaluate(efimov)
         a = np.asarray(a, dtype=float)
-        return self.model.thermal(self.process, a, a * self.k_s, efimov, self.unit)
+        if self.channel == OBSERVED:
+            return self._make_plan(a, self.eta_min).evaluate(efimov)
+        return self.model.thermal(self.process, a, a * self.k_s, efimov, self.unit, channel=self.channel)
 
     def _reference(self, efimov, a):
-        channel = "total" if self.process == THREE_BODY else "relaxation"
-        return self.model.reference_average(self.process, a, a * self.k_s, efimov, channel, self.rtol)[0] * self.unit
+        plan = self._make_plan(a, self.eta_min, rtol=self.rtol)
+        if plan is not None:
+            return plan.evaluate(efimov)
+        return self.model.reference_average(self.process, a, a * self.k_s, efimov, self.channel,
+                                            self.rtol)[0] * self.unit
+
+
+def _depth_record(spectrum, channel):
+    """How the trap depth entered a spectrum's fit (recorded in results)."""
+    if channel != OBSERVED:
+        return "not used (channel without trap kinetics)"
+    if spectrum.trap_depth is None:
+        return f"assumed {DEFAULT_DEPTH_OVER_T:g} k_B T (none given)"
+    depth = spectrum.trap_depth
+    return f"{depth.min():.4g} nK" if np.ptp(depth) == 0 else f"{depth.min():.4g}-{depth.max():.4g} nK per point"
 
 
 @numba.njit(cache=True)
@@ -126,25 +167,40 @@ class SpectrumLikelihood:
         self.rtol = rtol
         self.spectra = spectra
         self.blocks = []
-        # Points of one kind share a block: one prepared pass serves all of them.
-        for kind in ("l3", "beta"):
-            sel = [s for s in spectra if s.kind == kind]
-            if not sel:
-                continue
-            block = RateBlock(kind, np.concatenate([s.a for s in sel]), np.concatenate([s.temperature for s in sel]),
-                              self.species, self.model, eta_min=eta_min, rtol=rtol)
+        # Points of one kind and channel share a block: one prepared pass serves them all.
+        channels = [self._channel(s) for s in spectra]
+        for key in dict.fromkeys(zip((s.kind for s in spectra), channels)):
+            members = [i for i, s in enumerate(spectra) if (s.kind, channels[i]) == key]
+            sel = [spectra[i] for i in members]
+            depth = np.concatenate([np.full(len(s), np.nan) if s.trap_depth is None else s.trap_depth for s in sel])
+            block = RateBlock(key[0], np.concatenate([s.a for s in sel]), np.concatenate([s.temperature for s in sel]),
+                              self.species, self.model, eta_min=eta_min, rtol=rtol, channel=key[1], trap_depth=depth)
+            block.members = members
             block.sizes = [len(s) for s in sel]
             block.value = np.concatenate([s.value for s in sel])
             block.inv_error = 1.0 / np.concatenate([s.error for s in sel])
             self.blocks.append(block)
         self.n_points = sum(len(s) for s in spectra)
+        self.channels = [{"spectrum": i, "label": s.label, "kind": s.kind, "channel": channels[i],
+                          "trap_depth": _depth_record(s, channels[i])} for i, s in enumerate(spectra)]
+
+    def _channel(self, spectrum):
+        if spectrum.kind == "l3":
+            channel = self.model.resolve_channel(spectrum.channel)
+            if channel != "total" and not self.model.resolves_channels:
+                raise LossfitValueError("channel", f"spectrum {spectrum.label!r} measures the {channel!r} L3, which "
+                                        f"model {self.model.name!r} does not resolve; use model='zero-range'")
+            return channel
+        return spectrum.channel or "relaxation"
 
     def predict(self, efimov, density_scale=1.0):
         """Model values at every data point as the data would report them: one array per spectrum."""
-        per_kind = {b.kind: np.split(b.predict(efimov) / density_scale ** b.density_power,
-                                     np.cumsum(b.sizes)[:-1]) for b in self.blocks}
-        counters = {kind: iter(arrs) for kind, arrs in per_kind.items()}
-        return [next(counters[s.kind]) for s in self.spectra]
+        out = [None] * len(self.spectra)
+        for b in self.blocks:
+            parts = np.split(b.predict(efimov) / density_scale ** b.density_power, np.cumsum(b.sizes)[:-1])
+            for i, part in zip(b.members, parts):
+                out[i] = part
+        return out
 
     def given_values(self, efimov, values):
         """log L for the Efimov set and a dict of every parameter value (nuisances)."""

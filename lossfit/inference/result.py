@@ -73,7 +73,11 @@ class FitResult:
         as ConvergenceWarning).
     outside_validity : list of dict
         Data points outside the zero-range theory's range: spectrum index, point index,
-        a (a0), T (nK) and reasons ("|a| < 5 r_vdW", "k_B T > 0.1 E_vdW").
+        a (a0), T (nK) and reasons ("|a| < 5 r_vdW", "k_B T > 0.1 E_vdW", and for L3 at
+        a > 0 with k_B T > E_b the loss channel the point was fitted with).
+    loss_channels : list of dict
+        Per spectrum: kind, the loss channel fitted (``"observed"``, ``"total"``, ...) and
+        how the trap depth entered (given, or assumed 10 k_B T).
     fit_checks : dict
         ``chi2``, ``dof``, ``chi2_per_dof``, ``p_chi2`` at the posterior medians; spectrum
         fits add the posterior-predictive ``ppp`` and the standardized ``residuals`` per
@@ -107,7 +111,8 @@ class FitResult:
         self.ess = {n: float(n_total / t) if t > 0 else float("nan") for n, t in self.tau.items()}
         self.rhat = dict(zip(self.names, map(float, rhat)))
         self.warnings = []
-        self.outside_validity = _outside_validity(getattr(likelihood, "spectra", []), species)
+        self.loss_channels = list(getattr(likelihood, "channels", []))
+        self.outside_validity = _outside_validity(getattr(likelihood, "spectra", []), species, self.loss_channels)
         if self.outside_validity:
             reasons = sorted({r for p in self.outside_validity for r in p["reasons"]})
             self.warnings.append(f"{len(self.outside_validity)} data point(s) outside the zero-range validity "
@@ -297,7 +302,7 @@ class FitResult:
                 "summary": [{k: clean(v) for k, v in r.items()} for r in self.summary()],
                 "correlation": {"names": self.names, "matrix": self.correlation().tolist()},
                 "fixed": self.space.fixed, "tie": self.space.tie, "warnings": self.warnings,
-                "outside_validity": self.outside_validity,
+                "outside_validity": self.outside_validity, "loss_channels": self.loss_channels,
                 "fit_checks": {k: ([r.tolist() for r in v] if k == "residuals" else clean(v))
                                for k, v in self.fit_checks.items()}}
 
@@ -364,13 +369,22 @@ class FitResult:
             json.dump(self.to_dict(), fh, indent=2, default=str)
 
 
-def _outside_validity(spectra, species):
+def _weak_dimer_text(channel):
+    if channel == "observed":
+        return ("k_B T > E_b: shallow dimers formed and broken up in the trap; fitted with the observed "
+                "channel (trap kinetics, docs/conventions.md)")
+    return (f"k_B T > E_b: shallow dimers not lost on formation, but fitted with channel {channel!r}, which "
+            "counts them as lost (use the default 'observed')")
+
+
+def _outside_validity(spectra, species, channels=()):
     """Points of the fitted spectra outside the zero-range validity range, and L3 points
-    at a > 0 where the shallow dimer is bound by less than k_B T."""
-    texts = (("short_a", "|a| < 5 r_vdW"), ("hot", "k_B T > 0.1 E_vdW"),
-             ("weak_dimer", "k_B T > E_b: shallow dimers not lost on formation"))
+    at a > 0 where the shallow dimer is bound by less than k_B T (with the channel used)."""
     out = []
+    channel_of = {c["spectrum"]: c["channel"] for c in channels}
     for i, spec in enumerate(spectra):
+        texts = (("short_a", "|a| < 5 r_vdW"), ("hot", "k_B T > 0.1 E_vdW"),
+                 ("weak_dimer", _weak_dimer_text(channel_of.get(i, "total"))))
         flags = validity_flags(spec.a, spec.temperature, species)
         if spec.kind != "l3":
             flags["weak_dimer"][...] = False

@@ -56,10 +56,35 @@ def test_hdf5_round_trip_with_units(tmp_path):
             assert np.array_equal(getattr(orig, name), getattr(new, name))
         assert new.label == orig.label
     with h5py.File(path) as h5:
-        assert h5.attrs["schema"] == "lossfit.spectra" and h5.attrs["schema_version"] == 1
+        assert h5.attrs["schema"] == "lossfit.spectra" and h5.attrs["schema_version"] == 2
         assert h5["spectra/000/a"].attrs["units"] == "a0"
         assert h5["spectra/001/value"].attrs["units"] == "cm^3/s"
         assert h5["spectra/000/temperature"].attrs["units"] == "nK"
+
+
+def test_channel_and_trap_depth_round_trip_and_version_1_files_still_read(tmp_path):
+    s = lf.LossSpectrum([2e3, 2e4], 100.0, [1e-24, 1e-23], [1e-25, 1e-24], channel="total", trap_depth=[900.0, 1100.0])
+    path = tmp_path / "spectra.h5"
+    lf.write_spectra(path, s)
+    back = lf.read_spectra(path)[0]
+    assert back.channel == "total" and np.array_equal(back.trap_depth, [900.0, 1100.0])
+    assert back.select([False, True]).trap_depth.tolist() == [1100.0]
+    # a file written before channels existed: version 1, no channel, no trap_depth
+    with h5py.File(path, "r+") as h5:
+        h5.attrs["schema_version"] = 1
+        del h5["spectra/000"].attrs["channel"]
+        del h5["spectra/000/trap_depth"]
+    old = lf.read_spectra(path)[0]
+    assert old.channel is None and old.trap_depth is None
+
+
+def test_channel_and_trap_depth_are_checked():
+    with pytest.raises(LossfitValueError, match="channel"):
+        lf.LossSpectrum([2e3], 100.0, [1e-24], [1e-25], channel="relaxation")
+    with pytest.raises(LossfitValueError, match="trap_depth"):
+        lf.LossSpectrum([2e3], 100.0, [1e-24], [1e-25], trap_depth=-5.0)
+    with pytest.raises(LossfitValueError, match="trap_depth"):
+        lf.LossSpectrum([2e3], 100.0, [1e-10], [1e-11], kind="beta", trap_depth=500.0)
 
 
 def test_existing_file_is_never_overwritten_without_consent(tmp_path):

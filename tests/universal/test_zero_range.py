@@ -316,12 +316,16 @@ def test_weakly_bound_dimers_are_flagged_for_three_body_loss():
     assert flags["weak_dimer"].tolist() == [False, True, False]
     ef = lf.Efimov(a_plus=2000.0, eta_plus=0.1)
     a = np.array([1000.0, 3000.0, 6000.0])
-    v = lf.l3(a, t, species=CS, efimov=ef)
-    spec = lf.LossSpectrum(a, t, v, 0.1 * v, kind="l3")
-    res = lf.fit(spec, species=CS, free=["a_plus", "eta_plus"], walkers=8, steps=20, seed=1, progress=False,
-                 initial={"a_plus": ef.a_plus, "eta_plus": 0.1})
-    assert [p["point"] for p in res.outside_validity] == [2]
-    assert "not lost on formation" in res.outside_validity[0]["reasons"][0]
+    for channel, text in ((None, "fitted with the observed channel"), ("total", "not lost on formation")):
+        v = lf.l3(a, t, species=CS, efimov=ef, channel=channel)
+        spec = lf.LossSpectrum(a, t, v, 0.1 * v, kind="l3", channel=channel)
+        res = lf.fit(spec, species=CS, free=["a_plus", "eta_plus"], walkers=8, steps=20, seed=1, progress=False,
+                     initial={"a_plus": ef.a_plus, "eta_plus": 0.1})
+        assert [p["point"] for p in res.outside_validity] == [2]
+        assert text in res.outside_validity[0]["reasons"][0]
+        assert res.loss_channels[0]["channel"] == (channel or "observed")
+        assert res.to_dict()["loss_channels"][0]["trap_depth"].startswith("assumed 10 k_B T" if channel is None
+                                                                          else "not used")
 
 
 @pytest.mark.parametrize("grid", ["uniform", "uneven"])

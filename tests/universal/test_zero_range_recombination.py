@@ -176,7 +176,7 @@ def test_channels_add_up_and_a_negative_has_no_shallow_dimer():
     ef = lf.Efimov.universal(-1000.0, 0.08)
     a = np.array([-1500.0, -600.0, 800.0, 3000.0])
     kw = dict(species=CS, efimov=ef, model="zero-range")
-    tot = lf.l3(a, 40.0, **kw)
+    tot = lf.l3(a, 40.0, channel="total", **kw)
     sh = lf.l3(a, 40.0, channel="shallow", **kw)
     dp = lf.l3(a, 40.0, channel="deep", **kw)
     np.testing.assert_allclose(sh + dp, tot, rtol=1e-7)      # three quadratures at rtol 1e-9
@@ -209,7 +209,7 @@ def test_thermal_average_against_quad():
         for t in (5.0, 100.0):
             a = np.array([300.0, 1500.0, 4000.0])
             _, params, unit, _ = three_body_rows(a, np.full(a.size, t), CS, ef, "zero-range")
-            got = lf.l3(a, t, species=CS, efimov=ef, model="zero-range") / unit
+            got = lf.l3(a, t, species=CS, efimov=ef, model="zero-range", channel="total") / unit
             for p, g in zip(params, got):
                 kinks = [c / p[0] ** 2 for c in (tab.energy_min, tab.energy_max)]
                 pts = sorted(x for x in kinks if x < 45) or None
