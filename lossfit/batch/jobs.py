@@ -7,7 +7,10 @@ error that names the key)::
     species = "133Cs"                      # name known to lossfit.species
     spectra = ["data.h5"]                  # lossfit.spectra HDF5 files (paths relative
                                            # to the job file)
-    csv = [{ path = "run1.csv", kind = "l3", label = "run 1" }]   # optional CSV tables
+    csv = [{ path = "run1.csv", kind = "l3", label = "run 1" }]   # optional CSV tables; each may
+                                           # add channel = "observed" (the L3 default) | "total" |
+                                           # "shallow" | "deep" and trap_depth = 800.0 (nK, U/k_B;
+                                           # default 10 k_B T); spectra files carry both themselves
     # or, instead of spectra: raw decay curves fitted globally (lossfit.data.curves schema;
     # its resonance is the nominal a(B)), with the campaign systematics density_scale,
     # temperature_scale, b0, width, a_bg, sigma_B allowed in [free]
@@ -59,7 +62,7 @@ import warnings
 
 from ..data.calibration import read_binding_energies
 from ..data.curves import read_campaign
-from ..data.spectra import read_csv, read_spectra
+from ..data.spectra import CHANNELS, read_csv, read_spectra
 from ..errors import FitCheckWarning, LossfitValueError
 from ..experiment.feshbach import FeshbachResonance
 from ..inference.campaign_space import SYSTEMATIC_NAMES
@@ -149,7 +152,8 @@ class Job:
             out.extend(read_spectra(os.path.join(self.base_dir, p)))
         for c in self.csv:
             out.append(read_csv(os.path.join(self.base_dir, c["path"]), kind=c.get("kind", "l3"),
-                                label=c.get("label"), species=self.species))
+                                label=c.get("label"), species=self.species, channel=c.get("channel"),
+                                trap_depth=c.get("trap_depth")))
         return out
 
     def variant_kwargs(self, variant, steps=None):
@@ -255,10 +259,20 @@ def parse_job(text, path):
     if not isinstance(csv, list):
         raise JobError("data.csv", "must be a list of tables")
     for i, c in enumerate(csv):
-        if not isinstance(c, dict) or "path" not in c or set(c) - {"path", "kind", "label"}:
-            raise JobError(f"data.csv[{i}]", f"must be a table with 'path' and optional 'kind', 'label'; got {c!r}")
-        if c.get("kind", "l3") not in ("l3", "beta"):
+        if not isinstance(c, dict) or "path" not in c or set(c) - {"path", "kind", "label", "channel", "trap_depth"}:
+            raise JobError(f"data.csv[{i}]", "must be a table with 'path' and optional 'kind', 'label', 'channel', "
+                           f"'trap_depth'; got {c!r}")
+        kind = c.get("kind", "l3")
+        if kind not in ("l3", "beta"):
             raise JobError(f"data.csv[{i}].kind", f"must be 'l3' or 'beta', got {c['kind']!r}")
+        if "channel" in c and c["channel"] not in CHANNELS[kind]:
+            raise JobError(f"data.csv[{i}].channel", f"a {kind} table measures one of {list(CHANNELS[kind])}, "
+                           f"got {c['channel']!r}")
+        depth = c.get("trap_depth")
+        if depth is not None and (kind != "l3" or isinstance(depth, bool) or not isinstance(depth, (int, float))
+                                  or not 0 < depth < float("inf")):
+            raise JobError(f"data.csv[{i}].trap_depth",
+                           f"must be a positive number of nK on an L3 table, got {depth!r}")
     campaign = data.get("campaign")
     if campaign is not None and (not isinstance(campaign, str) or spectra or csv):
         raise JobError("data.campaign", "must be one file name, and spectra/csv must then be absent")

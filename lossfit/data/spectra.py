@@ -206,10 +206,12 @@ def read_spectra(path):
         return out
 
 
-def read_csv(path, *, kind="l3", label=None, species=None):
-    """Import one spectrum from a CSV file with columns a, temperature, value, error.
+def read_csv(path, *, kind="l3", label=None, species=None, channel=None, trap_depth=None):
+    """Import one spectrum from a CSV file with columns a, temperature, value, error and,
+    optionally, trap_depth (the atoms' trap depth U/k_B per point, a temperature).
 
-    Units as in :class:`LossSpectrum` (a0, nK, cm^6/s or cm^3/s).
+    Units as in :class:`LossSpectrum` (a0, nK, cm^6/s or cm^3/s); ``channel`` and
+    ``trap_depth`` (nK, used where the file has no such column) as there.
     """
     path = os.fspath(path)
     if kind not in KINDS:
@@ -221,8 +223,9 @@ def read_csv(path, *, kind="l3", label=None, species=None):
         m = re.fullmatch(r"\s*([^()]*?)\s*(?:\(([^()]*)\))?\s*", header)
         name, unit = m.group(1), m.group(2)
         canonical = aliases.get(name.lower(), name)
-        if unit is not None and canonical in ("a", "temperature", "value", "error"):
-            table = COLUMN_UNITS["a" if canonical == "a" else "temperature" if canonical == "temperature" else kind]
+        if unit is not None and canonical in ("a", "temperature", "value", "error", "trap_depth"):
+            table = COLUMN_UNITS["a" if canonical == "a" else "temperature"
+                                 if canonical in ("temperature", "trap_depth") else kind]
             key = unit.strip().lower().replace(" ", "")
             if key not in table:
                 raise LossfitValueError("path", f"{path!r}: column {header!r} has unit {unit!r}; known: "
@@ -232,10 +235,12 @@ def read_csv(path, *, kind="l3", label=None, species=None):
 
     rows, _ = read_csv_table(path, ("a", "temperature", "value", "error"), rename=rename)
     cols = {}
-    for c in ("a", "temperature", "value", "error"):
+    names = ("a", "temperature", "value", "error") + (("trap_depth",) if rows and "trap_depth" in rows[0] else ())
+    for c in names:
         try:
             cols[c] = [float(r[c]) * factors.get(c, 1.0) for r in rows]
         except (TypeError, ValueError) as err:
             raise LossfitValueError("path", f"{path!r}: column {c!r} has a non-numeric entry ({err})") from None
     return LossSpectrum(cols["a"], cols["temperature"], cols["value"], cols["error"], kind=kind,
-                        label=label or os.path.splitext(os.path.basename(path))[0], species=species)
+                        label=label or os.path.splitext(os.path.basename(path))[0], species=species,
+                        channel=channel, trap_depth=cols.get("trap_depth", trap_depth))

@@ -77,7 +77,7 @@ def corner_plot(result, *, truths=None, fig=None, **corner_kwargs):
     return fig
 
 
-def posterior_bands(result, a, temperature, kind, *, draws=200, seed=0):
+def posterior_bands(result, a, temperature, kind, *, draws=200, seed=0, channel=None, trap_depth=None):
     """Median and 68 %/95 % bands of the model, as the data would report it.
 
     Parameters
@@ -90,6 +90,10 @@ def posterior_bands(result, a, temperature, kind, *, draws=200, seed=0):
     kind : {"l3", "beta"}
     draws : int
         Number of posterior draws.
+    channel : str, optional
+        Loss channel of the curve (None: the model's default, as for the fit).
+    trap_depth : float, optional
+        Atom trap depth U/k_B in nK for the observed L3 (None: 10 k_B T).
 
     Returns
     -------
@@ -100,7 +104,8 @@ def posterior_bands(result, a, temperature, kind, *, draws=200, seed=0):
     a = np.asarray(a, dtype=float).ravel()
     # the curve's points are fixed: prepare them once, then one pass per draw
     block = RateBlock(kind, a, np.full(a.size, float(temperature)), result.species, result.model,
-                      eta_min=result.space.eta_floor())
+                      eta_min=result.space.eta_floor(), channel=channel,
+                      trap_depth=None if trap_depth is None else np.full(a.size, float(trap_depth)))
     curves = [block.predict(ef) / scale ** block.density_power for ef, scale in result.draws(draws, seed=seed)]
     q = np.percentile(np.array(curves), [2.5, 16, 50, 84, 97.5], axis=0)
     return dict(zip(("lo95", "lo68", "median", "hi68", "hi95"), q))
@@ -123,6 +128,18 @@ def _temperature_label(t):
     given = f"{t:g}"
     digits = sum(ch.isdigit() for ch in given.lstrip("0.").split("e")[0])
     return f"{given} nK" if digits <= 4 else f"≈{t:.3g} nK"
+
+
+def _channel_at(result, spectra, kind, temperature):
+    """(channel, mean trap depth in nK or None) of the first fitted spectrum of ``kind``
+    with points at ``temperature``, as its fit used them."""
+    channels = {c["spectrum"]: c["channel"] for c in getattr(result, "loss_channels", [])}
+    for i, s in enumerate(spectra):
+        sel = s.temperature == temperature
+        if s.kind == kind and sel.any():
+            depth = None if s.trap_depth is None else float(np.mean(s.trap_depth[sel]))
+            return channels.get(i, s.channel), depth
+    return None, None
 
 
 def spectrum_plot(result, *, draws=200, points=160, seed=0, fig=None):
@@ -149,7 +166,9 @@ def spectrum_plot(result, *, draws=200, points=160, seed=0, fig=None):
         grid = np.geomspace(lo / 1.15, hi * 1.15, points)
         for i, t in enumerate(temps):
             c = colours[i % len(colours)]
-            band = posterior_bands(result, sign * grid, t, kind, draws=draws, seed=seed)
+            channel, depth = _channel_at(result, spectra, kind, t)
+            band = posterior_bands(result, sign * grid, t, kind, draws=draws, seed=seed, channel=channel,
+                                   trap_depth=depth)
             ax.fill_between(grid, band["lo95"], band["hi95"], color=c, alpha=0.15, lw=0)
             ax.fill_between(grid, band["lo68"], band["hi68"], color=c, alpha=0.3, lw=0)
             ax.plot(grid, band["median"], color=c, lw=1.5, label=_temperature_label(t))
@@ -163,7 +182,8 @@ def spectrum_plot(result, *, draws=200, points=160, seed=0, fig=None):
         tidy_log_axis(ax.xaxis)
         ax.set_xlabel(r"$|a|$ ($a_0$)" + (", $a<0$" if sign < 0 else ", $a>0$"))
         ax.set_ylabel(r"$L_3$ (cm$^6$/s)" if kind == "l3" else r"$\beta$ (cm$^3$/s)")
-        ax.set_title(title, fontsize=10)
+        used = sorted({_channel_at(result, spectra, kind, t)[0] for t in temps} - {None})
+        ax.set_title(title + (f" ({', '.join(used)})" if kind == "l3" and sign > 0 and used else ""), fontsize=10)
         ax.legend(fontsize=8, title="median, 68/95 % bands", title_fontsize=7)
     fig.suptitle(f"model: {result.model.label}", fontsize=8)
     return fig
