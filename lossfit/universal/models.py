@@ -175,6 +175,13 @@ class EnergyModel:
         """As :meth:`three_body_plan` for beta (a > 0)."""
         return _RecomputingPlan(self.thermal_atom_dimer, a, q, scale, channel)
 
+    def observed_plan(self, a, q, scale, depth_over_t, eta_min=averages.ETA_MIN, rtol=None):
+        """The observed three-body loss (what a trapped gas loses): needs the shallow- and
+        deep-dimer channels and atom-dimer relaxation, which only models that resolve
+        them provide (:class:`ZeroRangeModel`)."""
+        raise LossfitValueError("channel", f"model {self.name!r} gives only the total rate, not what a trapped gas "
+                                "loses; use model='zero-range' or channel='total'")
+
     @property
     def default_three_body_channel(self):
         """``"observed"`` (what a trapped gas loses) for models that resolve the channels,
