@@ -33,7 +33,7 @@ against the adaptive reference quadrature: docs/thermal-averages.md.
 """
 
 __all__ = ["ThermalPlan", "three_body_plan", "atom_dimer_plan", "general_average", "phase_offset",
-           "ETA_MIN", "NEGATIVE_A", "POSITIVE_A", "ATOM_DIMER_A"]
+           "ShallowPartsPlan", "shallow_parts_plan", "ETA_MIN", "NEGATIVE_A", "POSITIVE_A", "ATOM_DIMER_A"]
 
 import functools
 import math
@@ -592,6 +592,78 @@ class _PlanGroup:
         self.index = index
         self.buffer = np.empty(a.size)
         self.n_nodes = int(offset[-1])
+
+
+@numba.njit(**_FAST_SUM)
+def _sum_parts(wt, wt_a, wt_d, terms, first, stop, a1, a2, a3, g):
+    # one pass over a > 0 nodes: (deep, shallow, shallow above cut a, shallow above cut d)
+    n = stop - first
+    w, wa, wd = wt[:n], wt_a[:n], wt_d[:n]
+    c0, c1, c2, c3 = terms[0][first:stop], terms[1][first:stop], terms[2][first:stop], terms[3][first:stop]
+    tb, hj = terms[4][first:stop], terms[5][first:stop]
+    d1, d2, d3 = terms[6][first:stop], terms[7][first:stop], terms[8][first:stop]
+    deep = 0.0
+    sh = 0.0
+    sh_a = 0.0
+    sh_d = 0.0
+    for j in range(n):
+        inv = 1.0 / (1.0 + a1 * d1[j] + a2 * d2[j] + a3 * d3[j])
+        k = (c0[j] + a1 * c1[j] + a2 * c2[j] + a3 * c3[j]) * inv + hj[j]
+        deep += w[j] * tb[j] * inv
+        sh += w[j] * k
+        sh_a += wa[j] * k
+        sh_d += wd[j] * k
+    return UNITARITY_THREE_BODY * g * deep, UNITARITY_THREE_BODY * sh, UNITARITY_THREE_BODY * sh_a, \
+        UNITARITY_THREE_BODY * sh_d
+
+
+@numba.njit(cache=True)
+def _parts_evaluate(terms, wt, wt_a, wt_d, first, stop, offset, cos_t, sin_t, cos_off, sin_off, e2, g, out):
+    for p in range(first.size):
+        c = cos_t[p] * cos_off - sin_t[p] * sin_off
+        s = sin_t[p] * cos_off + cos_t[p] * sin_off
+        lo, hi = offset[p], offset[p + 1]
+        out[0, p], out[1, p], out[2, p], out[3, p] = _sum_parts(
+            wt[lo:hi], wt_a[lo:hi], wt_d[lo:hi], terms, first[p], stop[p], 2.0 * e2 * c, -2.0 * e2 * s, e2 * e2, g)
+
+
+class ShallowPartsPlan:
+    """Fixed-data plan of the a > 0 three-body parts that the observed loss combines:
+    the deep channel, the shallow channel, and the shallow channel above two per-point
+    energy cuts, all in one pass over the same nodes (the cuts only change weights).
+
+    Built by :func:`shallow_parts_plan`; :meth:`evaluate` returns an array (4, n_points)
+    in the units of the builder's ``scale``.
+    """
+
+    def __init__(self, a, q, scale, cut_a, cut_d, eta_min):
+        lay = _layout(POSITIVE_A, 0, _rule_eta(eta_min))
+        args = (POSITIVE_A, 0, lay.edges, lay.y, lay.ex, lay.omega, lay.sigma, lay.y_threshold, q,
+                np.asarray(scale, dtype=float))
+        weights = []
+        for cut in (None, cut_a, cut_d):
+            wt, first, stop, offset, status = _plan_weights(*args, _cuts(cut, a.size))
+            if status:
+                _span_error(status)
+            weights.append(wt)
+        theta = 2.0 * S0 * np.log(np.abs(a))
+        self.head = (lay.terms, *weights, first, stop, offset, np.cos(theta), np.sin(theta))
+        self.n_points = a.size
+        self.n_nodes = int(offset[-1])
+        self.eta_min = eta_min
+
+    def evaluate(self, efimov):
+        off, e2, g = _efimov_scalars(POSITIVE_A, efimov, self.eta_min)
+        out = np.empty((4, self.n_points))
+        _parts_evaluate(*self.head, math.cos(off), math.sin(off), e2, g, out)
+        return out
+
+
+def shallow_parts_plan(a, q, scale, cut_a, cut_d, *, eta_min=ETA_MIN):
+    """:class:`ShallowPartsPlan` at points a > 0 (a0), q = k_T a, ``scale`` per point on
+    hbar^5/(m^3 (k_BT)^2), cuts E/k_BT per point (<= 0: none)."""
+    return ShallowPartsPlan(np.ravel(a), np.abs(np.ravel(q)), np.ravel(scale), cut_a, cut_d,
+                            _check_eta_min(eta_min))
 
 
 class ThermalPlan:

@@ -46,6 +46,7 @@ and E = hbar^2 k^2/(2 mu); in natural units beta <= (3 sqrt(3) pi / 4) / sqrt(x)
 __all__ = ["EnergyModel", "ThresholdModel", "CappedModel", "ZeroRangeModel", "get_model", "register_model",
            "available_models", "UNITARITY_THREE_BODY", "UNITARITY_ATOM_DIMER", "REFERENCE_RTOL", "OBSERVED"]
 
+import functools
 import math
 
 import numba
@@ -333,57 +334,50 @@ def _recombination_over_e2(packed_pos, energy, cos2phi, sin2phi, e2eta):
 class _ReferencePart:
     """One part of the observed channel on the reference path (adaptive quadrature)."""
 
-    def __init__(self, average, rtol):
-        self.average, self.rtol = average, rtol
-
-    def evaluate(self, efimov, out=None):
-        value = self.average(efimov, self.rtol)
-        if out is None:
-            return value
-        out[:] = value
-        return out
+    def __init__(self, average):
+        self.evaluate = average
 
 
 class _ObservedPlan:
     """Thermal averages of the observed three-body loss at fixed points: the deep-dimer
     channel plus the shallow channel weighted by the atoms a trapped gas loses per
-    formation (:mod:`lossfit.dimer_kinetics`). Built from parts that each have
-    ``evaluate(efimov)``: ``three_body(channel, index, cut)`` (in the units of
-    ``scale``) and ``atom_dimer(channel, index)`` (natural units hbar/(m k_T)) make them,
-    as fast plans or on the reference path. Breakup of trapped dimers is the shallow
-    channel's time reverse (detailed balance), so it costs no average of its own."""
+    formation (:mod:`lossfit.dimer_kinetics`). Built from parts, fast plans or reference
+    quadratures alike: ``deep(index)`` (a < 0 points), ``shallow_parts(index, x_atom,
+    x_dimer)`` (a > 0: an array of deep, shallow and shallow above the two escape cuts,
+    in the units of ``scale``) and ``relaxation(index)`` (natural units hbar/(m k_T)).
+    Breakup of trapped dimers is the shallow channel's time reverse (detailed balance),
+    so it costs no average of its own."""
 
-    def __init__(self, a, q, scale, depth_over_t, three_body, atom_dimer):
+    def __init__(self, a, q, scale, depth_over_t, deep, shallow_parts, relaxation):
         self.n_points = a.size
-        self.deep = three_body("deep", None, None)
+        self.negative = np.flatnonzero(a < 0)
         self.positive = np.flatnonzero(a > 0)
-        self.parts = ()
+        self.deep = deep(self.negative) if self.negative.size else None
+        self.parts = None
         if self.positive.size:
             pos = self.positive
             x_atom, x_dimer = escape_cuts(q[pos], depth_over_t[pos])
-            self.parts = (three_body("shallow", pos, None), three_body("shallow", pos, x_atom),
-                          three_body("shallow", pos, x_dimer), atom_dimer("relaxation", pos))
+            self.parts = shallow_parts(pos, x_atom, x_dimer)
+            self.relaxation = relaxation(pos)
             self.q, self.scale = q[pos], scale[pos]
-        self.n_nodes = sum(getattr(p, "n_nodes", 0) for p in (self.deep,) + self.parts)
+        self.n_nodes = sum(getattr(p, "n_nodes", 0) for p in (self.deep, self.parts) if p is not None)
 
     def evaluate(self, efimov, out=None):
-        out = self.deep.evaluate(efimov, out)
-        if self.parts:
-            shallow, atom_escapes, dimer_escapes, relaxation = (p.evaluate(efimov.with_atom_dimer())
-                                                                for p in self.parts)
-            fraction = relaxation_fraction(relaxation, breakup_from_formation(shallow / self.scale, self.q))
-            out[self.positive] = observed_loss(out[self.positive], shallow, atom_escapes, dimer_escapes, fraction)
+        out = np.empty(self.n_points) if out is None else out
+        if self.deep is not None:
+            out[self.negative] = self.deep.evaluate(efimov)
+        if self.parts is not None:
+            out[self.positive] = self.parts_at(efimov, check=False)["observed"]
         return out
 
-    def parts_at(self, efimov):
-        """Every part at points a > 0 (all points must be a > 0): three-body parts in the
-        units of ``scale``, relaxation and breakup in hbar/(m k_T), and the observed sum."""
-        if self.positive.size != self.n_points:
+    def parts_at(self, efimov, check=True):
+        """Every part at the points a > 0 (all points, if ``check``): three-body parts in
+        the units of ``scale``, relaxation and breakup in hbar/(m k_T), the observed sum."""
+        if check and self.positive.size != self.n_points:
             raise LossfitValueError("a", "the dimer kinetics needs a shallow dimer: every a must be > 0")
-        tied = efimov.with_atom_dimer()
-        shallow, atom_escapes, dimer_escapes, relaxation = (p.evaluate(tied) for p in self.parts)
+        deep, shallow, atom_escapes, dimer_escapes = self.parts.evaluate(efimov)
+        relaxation = self.relaxation.evaluate(efimov.with_atom_dimer())
         breakup = breakup_from_formation(shallow / self.scale, self.q)
-        deep = self.deep.evaluate(efimov)
         return {"deep": deep, "shallow": shallow, "shallow_atom_escapes": atom_escapes,
                 "shallow_dimer_escapes": dimer_escapes, "relaxation": relaxation, "breakup": breakup,
                 "observed": observed_loss(deep, shallow, atom_escapes, dimer_escapes,
@@ -708,27 +702,33 @@ class ZeroRangeModel(EnergyModel):
         a, q, scale = np.ravel(a), np.abs(np.ravel(q)), np.ravel(scale)
         depth = np.broadcast_to(np.asarray(depth_over_t, dtype=float), a.shape)
         if rtol is None:
-            def three_body(channel, index, cut):
-                sel = slice(None) if index is None else index
-                return self.three_body_plan(a[sel], q[sel], scale[sel], channel=channel, eta_min=eta_min, cut=cut)
+            def deep(index):
+                return self.three_body_plan(a[index], q[index], scale[index], channel="deep", eta_min=eta_min)
 
-            def atom_dimer(channel, index):
-                return self.atom_dimer_plan(a[index], q[index], np.ones(index.size), channel=channel, eta_min=eta_min)
+            def shallow_parts(index, x_atom, x_dimer):
+                return averages.shallow_parts_plan(a[index], q[index], scale[index], x_atom, x_dimer, eta_min=eta_min)
+
+            def relaxation(index):
+                return self.atom_dimer_plan(a[index], q[index], np.ones(index.size), channel="relaxation",
+                                            eta_min=eta_min)
         else:
-            def three_body(channel, index, cut):
-                sel = slice(None) if index is None else index
+            def reference(index, channel, cut):
+                rows = functools.partial(self.three_body_rows, a[index], q=q[index], channel=channel, cut=cut)
+                return lambda efimov: thermal_average(self.three_body_kernel, self.three_body_features,
+                                                      rows(efimov), THREE_BODY, rtol=rtol)[0] * scale[index]
 
-                def average(efimov, tol):
-                    rows = self.three_body_rows(a[sel], efimov, q[sel], channel=channel, cut=cut)
-                    value, _ = thermal_average(self.three_body_kernel, self.three_body_features, rows, THREE_BODY,
-                                               rtol=tol)
-                    return value * scale[sel]
-                return _ReferencePart(average, rtol)
+            def deep(index):
+                return _ReferencePart(reference(index, "deep", None))
 
-            def atom_dimer(channel, index):
-                return _ReferencePart(lambda efimov, tol: self.reference_average(
-                    ATOM_DIMER, a[index], q[index], efimov, channel, tol)[0], rtol)
-        return _ObservedPlan(a, q, scale, depth, three_body, atom_dimer)
+            def shallow_parts(index, x_atom, x_dimer):
+                parts = [reference(index, "deep", None)] + [reference(index, "shallow", cut)
+                                                            for cut in (None, x_atom, x_dimer)]
+                return _ReferencePart(lambda efimov: np.array([part(efimov) for part in parts]))
+
+            def relaxation(index):
+                return _ReferencePart(lambda efimov: self.reference_average(ATOM_DIMER, a[index], q[index], efimov,
+                                                                            "relaxation", rtol)[0])
+        return _ObservedPlan(a, q, scale, depth, deep, shallow_parts, relaxation)
 
     # -- fast thermal averages (lossfit.universal.averages) -----------------------------
     def thermal_three_body(self, a, q, efimov, scale, channel="total", cut=None):
