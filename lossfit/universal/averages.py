@@ -448,6 +448,20 @@ def _plan_weights(family, part, edges, y, ex, omega, sigma, y_threshold, scale_q
 
 
 @numba.njit(cache=True)
+def _cut_copy(family, part, edges, ex, sigma, y_threshold, wt, first, stop, offset, scale_q, scale, cuts):
+    """A plan's weights restricted per point to E > cuts[p] k_BT (:func:`_cut_below`),
+    from its uncut weights: the Boltzmann factors are not computed again."""
+    out = wt.copy()
+    for p in range(first.size):
+        if cuts[p] > 0.0:
+            y_off = _span(family, part, scale_q[p], y_threshold)[0]
+            f = scale[p] * scale_q[p] ** 4 if family == POSITIVE_A else scale[p]
+            _cut_below(family, edges, ex, sigma, first[p], stop[p], edges[first[p] // GL_ORDER], y_off, cuts[p], f,
+                       out[offset[p]:offset[p + 1]])
+    return out
+
+
+@numba.njit(cache=True)
 def _plan_evaluate(family, part, terms, wt, first, stop, offset, h_sum, cos_t, sin_t, cos_off, sin_off, e2, g,
                    w_a, w_b, out):
     # 2 Phi_p = theta_p + offset: rotate the stored (cos, sin) of theta_p = 2 s0 ln|a_p|
@@ -638,14 +652,13 @@ class ShallowPartsPlan:
 
     def __init__(self, a, q, scale, cut_a, cut_d, eta_min):
         lay = _layout(POSITIVE_A, 0, _rule_eta(eta_min))
-        args = (POSITIVE_A, 0, lay.edges, lay.y, lay.ex, lay.omega, lay.sigma, lay.y_threshold, q,
-                np.asarray(scale, dtype=float))
-        weights = []
-        for cut in (None, cut_a, cut_d):
-            wt, first, stop, offset, status = _plan_weights(*args, _cuts(cut, a.size))
-            if status:
-                _span_error(status)
-            weights.append(wt)
+        scale = np.asarray(scale, dtype=float)
+        wt, first, stop, offset, status = _plan_weights(POSITIVE_A, 0, lay.edges, lay.y, lay.ex, lay.omega, lay.sigma,
+                                                        lay.y_threshold, q, scale, np.zeros(a.size))
+        if status:
+            _span_error(status)
+        weights = [wt] + [_cut_copy(POSITIVE_A, 0, lay.edges, lay.ex, lay.sigma, lay.y_threshold, wt, first, stop,
+                                    offset, q, scale, _cuts(cut, a.size)) for cut in (cut_a, cut_d)]
         theta = 2.0 * S0 * np.log(np.abs(a))
         self.head = (lay.terms, *weights, first, stop, offset, np.cos(theta), np.sin(theta))
         self.n_points = a.size
