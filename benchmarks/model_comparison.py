@@ -1,11 +1,13 @@
 """Figure: the three models over a map of (a, T) (docs/model-comparison.png).
 
 Top row a < 0, bottom row a > 0. Left: L3 against |a| at three temperatures for
-"threshold", "capped" (an approximation) and "zero-range". Right: log10 of
-capped / zero-range over (|a|, T). For a > 0 both zero-range channels reach unitarity; the
-line k_B T = 240 E_b marks where the shallow-dimer J >= 1 sum passes from the three-body
-table's solves to its high-energy extension (docs/stm.md section 7c), and the deep-dimer
-channel alone is drawn too.
+"threshold", "capped" (an approximation) and "zero-range". At a > 0 the zero-range model
+is drawn in its default channel, "observed" (what a trapped gas with U = 10 k_B T loses,
+docs/conventions.md), and in the formal "total" (shallow + deep dimers) and "deep"
+channels. Right: log10 of capped / zero-range over (|a|, T), like with like: the capped
+law approximates the total rate, so at a > 0 it is compared with "total". The line
+k_B T = 240 E_b marks where the shallow-dimer J >= 1 sum passes from the three-body
+table's solves to its high-energy extension (docs/stm.md section 7c).
 133Cs, a_- = -1000 a0, eta = 0.05, a > 0 features tied universally (an invented
 parameter set).
 
@@ -75,23 +77,25 @@ def main():
     for t, c in zip((10.0, 100.0, 1000.0), ("C0", "C1", "C2")):
         cx.loglog(a, lf.l3(a, t, species=CS, efimov=EF, model="capped", rtol=1e-7), "--", color=c,
                   label=f"capped, {t:g} nK")
-        cx.loglog(a, lf.l3(a, t, species=CS, efimov=EF, model="zero-range", rtol=1e-7), "-", color=c,
-                  label=f"zero-range, {t:g} nK")
+        cx.loglog(a, lf.l3(a, t, species=CS, efimov=EF, model="zero-range"), "-", color=c, lw=2,
+                  label=f"zero-range observed, {t:g} nK")
+        cx.loglog(a, lf.l3(a, t, species=CS, efimov=EF, model="zero-range", channel="total", rtol=1e-7), "-",
+                  color=c, lw=0.7, label=f"zero-range total, {t:g} nK")
         cx.loglog(a, lf.l3(a, t, species=CS, efimov=EF, model="zero-range", channel="deep", rtol=1e-7), "-.",
                   color=c, lw=0.9, label=f"zero-range deep only, {t:g} nK")
-        # the a < 0 value at |a| = 2e5 a0: the deep channel is continuous through unitarity
+        # the a < 0 value at |a| = 2e5 a0: observed and deep loss are continuous through unitarity
         cx.plot(a[-1], lf.l3(-a[-1], t, species=CS, efimov=EF, model="zero-range"), "o", color=c, ms=4)
     cx.axvline(EF.a_plus, color="0.6", lw=0.8)
     cx.set_xlabel(r"$a$ ($a_0$), $a>0$ (grey: $a_+$; dots: $L_3$ at $a=-2\times10^5\,a_0$)")
-    cx.set_ylabel(r"$L_3$ (cm$^6$/s), shallow + deep")
+    cx.set_ylabel(r"$L_3$ (cm$^6$/s)")
     cx.set_ylim(1e-28, 1e-17)
     cx.legend(fontsize=6, ncol=2)
     aa = np.geomspace(200.0, 2e5, 130)
     A, T = np.meshgrid(aa, tt)
     ratio = (lf.l3(A, T, species=CS, efimov=EF, model="capped", rtol=1e-7)
-             / lf.l3(A, T, species=CS, efimov=EF, model="zero-range", rtol=1e-7))
+             / lf.l3(A, T, species=CS, efimov=EF, model="zero-range", channel="total", rtol=1e-7))
     _ratio_map(fig, dx, aa, tt, ratio, r"$a$ ($a_0$), $a>0$",
-               r"log10( capped / zero-range ); line: $k_BT = 240\,E_b$ (solved J sum below)")
+               r"log10( capped / zero-range total ); line: $k_BT = 240\,E_b$ (solved J sum below)")
     dx.contour(aa, tt, (T <= t_solved * binding_nk(A)).astype(float), levels=[0.5], colors="k",
                linewidths=0.8)
     fig.savefig(OUT, dpi=130)
