@@ -429,23 +429,34 @@ def panel_edges(y0, y1, width, forced):
     return np.array(edges)
 
 
+_SUB_X, _SUB_W = np.polynomial.legendre.leggauss(2 * GL_ORDER)
+
+
 @numba.njit(cache=True)
-def upper_part_factors(tau, out):
+def upper_part_factors(tau, power, log_x0, dlog_x, out):
     """Factors f_j that turn a Gauss-Legendre panel rule into one for the panel's upper
-    part: sum_j f_j w_j g(t_j) = int_tau^1 p(t) dt, p the degree GL_ORDER - 1 polynomial
-    through the nodes t_j of [-1, 1] (interpolatory quadrature; exact for such
-    polynomials). Used to cut a thermal average at an energy inside a panel."""
+    part t > tau (t in [-1, 1]) for integrands B(t) g(t) with a known Boltzmann density
+    B = x^power e^{-x}, x = exp(log_x0 + dlog_x t), and a smooth g:
+
+        sum_j f_j w_j B(t_j) g(t_j) = int_tau^1 B(t) p(t) dt,
+
+    p the degree GL_ORDER - 1 polynomial through g at the nodes t_j. B is integrated
+    exactly (a 2 GL_ORDER-point rule on [tau, 1]), the kernel g by interpolation. Used
+    to cut a thermal average at an energy inside a panel."""
     half = 0.5 * (1.0 - tau)
     for j in range(GL_ORDER):
+        x_j = math.exp(log_x0 + dlog_x * _GL_X[j])
+        b_j = x_j ** power * math.exp(-x_j)
         acc = 0.0
-        for k in range(GL_ORDER):
-            u = tau + half * (_GL_X[k] + 1.0)
+        for k in range(2 * GL_ORDER):
+            u = tau + half * (_SUB_X[k] + 1.0)
             basis = 1.0
             for m in range(GL_ORDER):
                 if m != j:
                     basis *= (u - _GL_X[m]) / (_GL_X[j] - _GL_X[m])
-            acc += half * _GL_W[k] * basis
-        out[j] = acc / _GL_W[j]
+            x = math.exp(log_x0 + dlog_x * u)
+            acc += half * _SUB_W[k] * basis * x ** power * math.exp(-x)
+        out[j] = acc / (_GL_W[j] * b_j) if b_j > 0.0 else 0.0
 
 
 def composite_gauss_legendre(edges):

@@ -371,6 +371,8 @@ def _cut_below(family, edges, ex, sigma, first, stop, edge, y_off, x_cut, scale,
     if x_cut <= x_edge:
         return
     y_cut = y_off + sigma * math.log(x_cut)
+    # the Boltzmann density of the node weights (_weights): x^power e^-x
+    density_power = 3.0 if family == POSITIVE_A else 1.0
     factors = np.empty(GL_ORDER)
     cut_panel = -1
     for j in range(first, stop):
@@ -380,7 +382,9 @@ def _cut_below(family, edges, ex, sigma, first, stop, edge, y_off, x_cut, scale,
             out[j - first] = 0.0
         elif lo < y_cut:
             if panel != cut_panel:
-                upper_part_factors((2.0 * y_cut - lo - hi) / (hi - lo), factors)
+                # x = exp((y - y_off)/sigma) with y = mid + half t on the panel
+                mid, half = 0.5 * (lo + hi), 0.5 * (hi - lo)
+                upper_part_factors((y_cut - mid) / half, density_power, (mid - y_off) / sigma, half / sigma, factors)
                 cut_panel = panel
             out[j - first] *= factors[j % GL_ORDER]
 
