@@ -80,6 +80,22 @@ def bench_likelihood():
          _times(lambda: ref(ef), 5, 20), "reference path", "<= 20 us")
 
 
+def bench_likelihood_positive():
+    # a > 0 through unitarity (550 a0 to 1e5 a0, 3 temperatures): the default observed
+    # channel against the formal total channel, the old default, in the same run
+    ef = lf.Efimov.universal(-900.0, 0.1)
+    like = {}
+    for channel in (None, "total"):
+        spectra = []
+        for t in (15.0, 60.0, 250.0):
+            a = np.geomspace(550.0, 1e5, 20)
+            v = lf.l3(a, t, species=CS, efimov=ef, channel=channel)
+            spectra.append(lf.LossSpectrum(a, t, v, 0.1 * v, channel=channel))
+        like[channel] = SpectrumLikelihood(spectra, CS, "zero-range")
+    _row("likelihood, 60-point L3 spectrum at a > 0, observed channel", _times(lambda: like[None](ef), 9, 500),
+         _times(lambda: like["total"](ef), 9, 500), "the total channel", "<= 20 us", floor=True)
+
+
 def _points(n, side, rng):
     t = np.exp(rng.uniform(math.log(1.0), math.log(3000.0), n))
     if side == "neg":
@@ -96,14 +112,15 @@ def bench_fixed_data():
     model = get_model("zero-range")
     ef = lf.Efimov(a_minus=-1000.0, eta_minus=0.05, a_plus=250.0, eta_plus=0.05, a_star=1000.0, eta_star=0.05)
     n = 1000
-    for label, side, kind, target in (("L3 a<0", "neg", "l3", "<= 0.3 us"), ("L3 a>0", "pos", "l3", "<= 0.3 us"),
-                                      ("beta", "pos", "beta", "<= 0.6 us")):
+    for label, side, kind, target, channel in (
+            ("L3 a<0", "neg", "l3", "<= 0.3 us", None), ("L3 a>0 observed (default)", "pos", "l3", "<= 0.3 us", None),
+            ("L3 a>0 total", "pos", "l3", "<= 0.3 us", "total"), ("beta", "pos", "beta", "<= 0.6 us", None)):
         a, t = _points(n, side, rng)
         if kind == "beta":
             a = np.minimum(a, 2e4)
-        fast = lf.inference.likelihood.RateBlock(kind, a, t, CS, model)
+        fast = lf.inference.likelihood.RateBlock(kind, a, t, CS, model, channel=channel)
         fast.predict(ef)
-        ref = lf.inference.likelihood.RateBlock(kind, a[:100], t[:100], CS, model, rtol=1e-9)
+        ref = lf.inference.likelihood.RateBlock(kind, a[:100], t[:100], CS, model, rtol=1e-9, channel=channel)
         f = _times(lambda: fast.predict(ef), 9, 20)
         b = _times(lambda: ref.predict(ef), 3, 1)
         _row(f"fixed-data path per point, {label}", (f[0] / n, f[1] / n), (b[0] / 100, b[1] / 100),
@@ -114,11 +131,13 @@ def bench_public():
     rng = np.random.default_rng(7)
     ef = lf.Efimov(a_minus=-1000.0, eta_minus=0.05, a_plus=250.0, eta_plus=0.05, a_star=1000.0, eta_star=0.05)
     n = 1000
-    for label, rate, side in (("lf.l3 a<0", lf.l3, "neg"), ("lf.l3 a>0", lf.l3, "pos"), ("lf.beta", lf.beta, "pos")):
+    for label, rate, side, extra in (("lf.l3 a<0", lf.l3, "neg", {}), ("lf.l3 a>0 observed", lf.l3, "pos", {}),
+                                     ("lf.l3 a>0 total", lf.l3, "pos", {"channel": "total"}),
+                                     ("lf.beta", lf.beta, "pos", {})):
         a, t = _points(n, side, rng)
         if rate is lf.beta:
             a = np.minimum(a, 2e4)
-        kw = dict(species=CS, efimov=ef)
+        kw = dict(species=CS, efimov=ef, **extra)
         f = _times(lambda: rate(a, t, **kw), 7, 3)
         b = _times(lambda: rate(a[:100], t[:100], rtol=1e-9, **kw), 3, 1)
         _row(f"public {label}, 1000 arbitrary points, per point", (f[0] / n, f[1] / n),
@@ -211,6 +230,7 @@ def main(argv=None):
     warnings.simplefilter("ignore", lf.errors.ValidityWarning)
     warnings.simplefilter("ignore", lf.errors.ConvergenceWarning)
     bench_likelihood()
+    bench_likelihood_positive()
     bench_fixed_data()
     bench_public()
     bench_global()

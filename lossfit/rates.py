@@ -273,6 +273,8 @@ def _averaged(process, a, temperature, species, efimov, model, rtol, channel, tr
     a_f, q_f = a_b.ravel(), q.ravel()
     if process == THREE_BODY:
         channel = mdl.resolve_channel(channel)
+        if channel == OBSERVED and trap_depth is None and (a_f < 0).all():
+            channel = "total"           # a < 0 forms no shallow dimer: the same rate, the short path
         if channel == OBSERVED:
             depth = depth_over_temperature(trap_depth, scale_b).ravel()
             plan = mdl.observed_plan(a_f, q_f, unit, depth, eta_min=_smallest_eta(efimov), rtol=rtol)
