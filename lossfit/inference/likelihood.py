@@ -127,6 +127,8 @@ def _depth_record(spectrum, channel):
     """How the trap depth entered a spectrum's fit (recorded in results)."""
     if channel != OBSERVED:
         return "not used (channel without trap kinetics)"
+    if (spectrum.a < 0).all():
+        return "not used (a < 0: no shallow dimer)"
     if spectrum.trap_depth is None:
         return f"assumed {DEFAULT_DEPTH_OVER_T:g} k_B T (none given)"
     depth = spectrum.trap_depth
