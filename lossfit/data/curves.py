@@ -3,7 +3,7 @@
 A :class:`DecayCurve` is what a laboratory records at one field: atom (or Feshbach
 dimer) numbers after hold times t, optionally the cloud temperature, and the trap.
 
-HDF5 schema ``lossfit.campaign``, version 1
+HDF5 schema ``lossfit.campaign``, version 2
 ------------------------------------------
 File attributes: ``schema = "lossfit.campaign"``, ``schema_version = 1``,
 ``lossfit_version``, ``species`` (may be empty), ``metadata`` (JSON object).
@@ -16,15 +16,19 @@ attributes ``kind`` (``"atoms"`` or ``"dimers"``) and ``label``, and datasets ``
 one value per time), ``trap_hz`` and ``dimer_trap_hz`` (3 values, ``"Hz"``), exactly one
 of ``field`` (``"G"``) or ``a`` (``"a0"``), and for dimer curves ``partner_atoms``
 (``"count"``; scalar initial atom number or one value per time) with
-``partner_atoms_err`` when it is an array. Readers refuse files with another schema, a
-newer version, or missing datasets.
+``partner_atoms_err`` when it is an array. Version 2 adds, per curve, the optional
+dataset ``trap_depth`` (``"nK"``, the atoms' trap depth U/k_B) and the attribute
+``counts_dimers`` (1 or 0: whether the imaging counts atoms bound in shallow dimers).
+Version 1 files are read with no trap depth and ``counts_dimers`` True. Readers refuse
+files with another schema, a newer version, or missing datasets.
 
 CSV import (:func:`read_curves_csv`): a header line naming the columns; ``#`` starts a
 comment line. Required: ``t``, ``atoms``, ``atoms_err``, ``temperature``,
 ``temperature_err`` and one of ``field`` or ``a``. Optional: ``curve`` (rows with the
 same value form one curve, in file order; default: one curve), ``kind``,
-``partner_atoms``, ``partner_atoms_err``, ``trap_x_hz``, ``trap_y_hz``, ``trap_z_hz``.
-Units as in :class:`DecayCurve`.
+``partner_atoms``, ``partner_atoms_err``, ``trap_x_hz``, ``trap_y_hz``, ``trap_z_hz``,
+``trap_depth`` (nK) and ``counts_dimers`` (``1``/``0``, ``true``/``false``, ``yes``/``no``),
+the last two constant within a curve. Units as in :class:`DecayCurve`.
 """
 
 __all__ = ["DecayCurve", "Campaign", "write_campaign", "read_campaign", "read_curves_csv",
@@ -42,7 +46,7 @@ from .._io import atomic_path, open_checked_h5, read_csv_table, write_h5_header
 from ..errors import LossfitValueError, check_finite, check_positive, check_times
 
 CAMPAIGN_SCHEMA = "lossfit.campaign"
-CAMPAIGN_SCHEMA_VERSION = 1
+CAMPAIGN_SCHEMA_VERSION = 2
 KINDS = ("atoms", "dimers")
 
 
@@ -54,6 +58,13 @@ def _series(name, value, n, *, allow_scalar=False):
     if arr.ndim != 1 or arr.size != n:
         raise LossfitValueError(name, f"has shape {arr.shape} but t has {n} entries")
     return arr.astype(float)
+
+
+def _positive_scalar(name, value):
+    arr = check_positive(name, value)
+    if arr.ndim != 0:
+        raise LossfitValueError(name, f"must be a single value, got shape {arr.shape}")
+    return float(arr)
 
 
 def _readonly(*arrays):
@@ -99,12 +110,19 @@ class DecayCurve:
         Uncertainty of ``partner_atoms`` (required when it is an array; for a scalar it
         is the uncertainty of the initial atom number).
     label : str, optional
+    trap_depth : float, optional
+        The atoms' trap depth U/k_B in nK during the hold (> 0); it decides which
+        products of recombination into shallow dimers stay trapped (a > 0). None: a fit
+        assumes 10 k_B T0 and records that.
+    counts_dimers : bool
+        Whether the imaging counts atoms bound in shallow Feshbach dimers (the default:
+        near resonance a weakly bound dimer images like its two atoms), so that the
+        measured number is N + 2 N_D; False: free atoms only. Atom curves at a > 0.
     """
 
     def __init__(self, *, t, atoms, atoms_err, temperature=None, temperature_err=None, field=None,
                  a=None, trap_hz=None, dimer_trap_hz=None, kind="atoms", partner_atoms=None,
-                 partner_atoms_err=None,
-                 label=None):
+                 partner_atoms_err=None, label=None, trap_depth=None, counts_dimers=True):
         if kind not in KINDS:
             raise LossfitValueError("kind", f"must be 'atoms' or 'dimers', got {kind!r}")
         self.t = check_times("t", t).astype(float)
@@ -136,6 +154,10 @@ class DecayCurve:
         if kind == "dimers" and self.a is not None and self.a <= 0:
             raise LossfitValueError("a", f"dimer curves need a > 0 (a shallow Feshbach dimer), got {self.a:g} a0")
         self.trap_hz, self.dimer_trap_hz = _trap_frequencies(trap_hz, dimer_trap_hz)
+        self.trap_depth = None if trap_depth is None else _positive_scalar("trap_depth", trap_depth)
+        if not isinstance(counts_dimers, (bool, np.bool_)):
+            raise LossfitValueError("counts_dimers", f"must be True or False, got {counts_dimers!r}")
+        self.counts_dimers = bool(counts_dimers)
         self.kind = kind
         if kind == "atoms":
             if partner_atoms is not None or partner_atoms_err is not None:
@@ -334,6 +356,9 @@ def write_campaign(path, curves, *, species=None, resonance=None, metadata=None,
                 _dataset(g, "field", c.field, "G")
             else:
                 _dataset(g, "a", c.a, "a0")
+            if c.trap_depth is not None:
+                _dataset(g, "trap_depth", c.trap_depth, "nK")
+            g.attrs["counts_dimers"] = int(c.counts_dimers)
             if c.partner_atoms is not None:
                 _dataset(g, "partner_atoms", c.partner_atoms, "count")
                 if c.partner_atoms_err is not None:
@@ -343,7 +368,7 @@ def write_campaign(path, curves, *, species=None, resonance=None, metadata=None,
 _UNITS = {"t": "s", "atoms": "count", "atoms_err": "count", "temperature": "nK",
           "temperature_err": "nK", "trap_hz": "Hz", "dimer_trap_hz": "Hz", "field": "G", "a": "a0",
           "partner_atoms": "count", "partner_atoms_err": "count", "b0": "G", "width": "G", "a_bg": "a0",
-          "covariance": "G,G,a0"}
+          "covariance": "G,G,a0", "trap_depth": "nK"}
 
 
 def _get(g, name, path, where, optional=False):
@@ -386,13 +411,18 @@ def read_campaign(path):
                 where = f"curves/{key}"
                 kw = {name: _get(g, name, path, where) for name in
                       ("t", "atoms", "atoms_err", "temperature", "temperature_err")}
-                for name in ("field", "a", "partner_atoms", "partner_atoms_err"):
+                for name in ("field", "a", "partner_atoms", "partner_atoms_err", "trap_depth"):
                     value = _get(g, name, path, where, optional=True)
                     if value is not None:
-                        kw[name] = float(value) if np.ndim(value) == 0 and name in ("field", "a") else value
+                        scalar = np.ndim(value) == 0 and name in ("field", "a", "trap_depth")
+                        kw[name] = float(value) if scalar else value
+                counts = g.attrs.get("counts_dimers", 1)          # version 1: always counted
+                if int(counts) not in (0, 1):
+                    raise LossfitValueError("path", f"{path!r}: {where} has counts_dimers = {counts!r}, "
+                                            "expected 1 or 0")
                 curves.append(DecayCurve(trap_hz=_get(g, "trap_hz", path, where),
                                          dimer_trap_hz=_get(g, "dimer_trap_hz", path, where), kind=str(g.attrs["kind"]),
-                                         label=str(g.attrs["label"]), **kw))
+                                         label=str(g.attrs["label"]), counts_dimers=bool(int(counts)), **kw))
         except (KeyError, OSError) as err:
             raise LossfitValueError("path", f"{path!r} is damaged ({err})") from None
         species = str(h5.attrs.get("species", "")) or None
@@ -402,7 +432,8 @@ def read_campaign(path):
 
 
 _CSV_REQUIRED = ("t", "atoms", "atoms_err", "temperature", "temperature_err")
-_CSV_PER_CURVE = ("field", "a", "kind", "trap_x_hz", "trap_y_hz", "trap_z_hz")
+_CSV_PER_CURVE = ("field", "a", "kind", "trap_x_hz", "trap_y_hz", "trap_z_hz", "trap_depth", "counts_dimers")
+_CSV_FLAGS = {"1": True, "true": True, "yes": True, "0": False, "false": False, "no": False}
 
 
 def read_curves_csv(path, *, trap_hz=None, kind=None):
@@ -459,6 +490,14 @@ def read_curves_csv(path, *, trap_hz=None, kind=None):
         kw[where] = num(members[0][0], members[0][1], where)
         trap = ([num(members[0][0], members[0][1], c) for c in ("trap_x_hz", "trap_y_hz", "trap_z_hz")]
                 if has_trap else trap_hz)
+        if per_curve.get("trap_depth"):
+            kw["trap_depth"] = num(members[0][0], members[0][1], "trap_depth")
+        if per_curve.get("counts_dimers"):
+            flag = per_curve["counts_dimers"].lower()
+            if flag not in _CSV_FLAGS:
+                raise LossfitValueError("path", f"{path!r}: column 'counts_dimers' of curve {name!r} must be "
+                                        f"1/0, true/false or yes/no, got {per_curve['counts_dimers']!r}")
+            kw["counts_dimers"] = _CSV_FLAGS[flag]
         curves.append(DecayCurve(trap_hz=trap, kind=per_curve.get("kind") or kind or "atoms",
                                  label=name or None, **kw))
     return curves

@@ -172,8 +172,8 @@ def test_batch_with_per_curve_constants_matches_solve_ivp():
     l3s = np.array([L3, 3 * L3, 0.0])
     batch = DecayBatch([TIMES, TIMES, TIMES], species=SP, traps_hz=[FREQS, freqs_b, FREQS],
                        recombination_heating_nK=[0.0, 20.0, 0.0], rtol=1e-9)
-    atoms, temps, dimers = batch(n0=[N0, 2 * N0, N0], t0_nK=[T0, 300.0, T0], l3=l3s,
-                                 gamma=[0.0, 0.1, 0.5])
+    atoms, temps, dimers, _, _ = batch(n0=[N0, 2 * N0, N0], t0_nK=[T0, 300.0, T0], l3=l3s,
+                                       gamma=[0.0, 0.1, 0.5])
     assert np.all(dimers == 0.0)
     n_ref, t_ref = _reference(lambda temp: 3 * L3, 0.1, 20.0, n0=2 * N0, t0=300.0, c3=_c3(freqs_b))
     sl = slice(batch.offsets[1], batch.offsets[2])
@@ -220,10 +220,10 @@ def test_three_body_heating_rate_from_energy_balance():
     eps_per_kt = 1.5 + u_lost
     n2 = _c3() * N0 ** 2 / T0 ** 3
     expected = (3.0 - eps_per_kt) * T0 / 3.0 * L3 * n2
-    out = np.empty(3)
-    p = np.zeros(8)
+    out = np.empty(4)
+    p = np.zeros(decay._NPAR)
     p[decay._C3], p[decay._L3], p[decay._HEAT] = _c3(), L3, 1.0
-    status = decay._rhs(np.array([N0, 0.0, T0]), p, decay._EMPTY_KNOTS, decay._EMPTY_COEFS,
+    status = decay._rhs(np.array([N0, 0.0, T0, 0.0]), p, decay._EMPTY_KNOTS, decay._EMPTY_COEFS,
                         decay._EMPTY_KNOTS, decay._EMPTY_COEFS, out)
     assert status == 0
     assert out[2] == pytest.approx(expected, rel=1e-7)
@@ -241,10 +241,10 @@ def test_atom_dimer_heating_from_energy_balance():
     from lossfit.experiment.trap import HarmonicTrap
     trap = HarmonicTrap(FREQS, dimer_frequencies_hz=dimer_f)
     beta, nd0 = 2e-11, 4e4
-    p = np.zeros(8)
+    p = np.zeros(decay._NPAR)
     p[decay._CAD], p[decay._BETA], p[decay._HEAT] = trap.overlap_coefficient(SP), beta, 1.0
-    out = np.empty(3)
-    status = decay._rhs(np.array([N0, nd0, T0]), p, decay._EMPTY_KNOTS, decay._EMPTY_COEFS,
+    out = np.empty(4)
+    status = decay._rhs(np.array([N0, nd0, T0, 0.0]), p, decay._EMPTY_KNOTS, decay._EMPTY_COEFS,
                         decay._EMPTY_KNOTS, decay._EMPTY_COEFS, out)
     assert status == 0
     events = beta * trap.atom_dimer_overlap(N0, T0, SP) * nd0
