@@ -12,10 +12,7 @@ from ._version import __version__
 from .constants import S0, SCALING_FACTOR
 from .efimov import Efimov
 from .errors import LossfitError, LossfitValueError
-from .rates import beta, beta_energy, k3, l3
 from .species import Species, known_species, register_species, species
-from .universal.models import EnergyModel, available_models, register_model
-from .universal.threshold import beta_threshold, convert_l3, l3_threshold
 
 __all__ = ["__version__", "errors", "S0", "SCALING_FACTOR", "LossfitError", "LossfitValueError",
            "Species", "species", "known_species", "register_species",
@@ -30,11 +27,15 @@ __all__ = ["__version__", "errors", "S0", "SCALING_FACTOR", "LossfitError", "Los
            "read_curves_csv", "fit_curve", "spectrum_from_curves", "load_result", "trimer_energies", "compare_models",
            "temperature_study"]
 
-# Everything beyond the rates (data files and h5py, decay curves and scipy.optimize,
-# the inference layer with emcee: together more than a second) loads on first use, so
-# that computing rates starts fast.
+# Everything beyond the foundations loads on first use: the rates (numba, ~0.4 s), data
+# files and h5py, decay curves and scipy.optimize, the inference layer with emcee
+# (together more than a second), so that computing rates starts fast and the command
+# line answers --help at once.
 _LAZY = {name: "lossfit.inference" for name in
          ("fit", "FitResult", "LogUniform", "Uniform", "LogNormal", "Normal")}
+_LAZY.update({name: "lossfit.rates" for name in ("k3", "beta_energy", "l3", "beta")})
+_LAZY.update({name: "lossfit.universal.models" for name in ("EnergyModel", "available_models", "register_model")})
+_LAZY.update({name: "lossfit.universal.threshold" for name in ("l3_threshold", "beta_threshold", "convert_l3")})
 _LAZY.update({name: "lossfit.inference.curve_fits" for name in ("fit_curve", "spectrum_from_curves")})
 _LAZY.update({name: "lossfit.data.curves" for name in ("DecayCurve", "read_campaign", "read_curves_csv",
                                                   "write_campaign")})

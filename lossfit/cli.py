@@ -3,7 +3,7 @@
 ``lossfit demo --out DIR [--from-curves]``
     Fit the built-in invented scenario; writes data, job file, chain, summary, figures.
     ``--from-curves`` starts from invented raw decay curves (global fit).
-``lossfit run JOB.toml --out DIR [--pool serial|processes|mpi] [--workers N] [--steps N]``
+``lossfit run JOB.toml --out DIR [--pool serial|processes|mpi] [--workers N] [--steps N|auto]``
     Run or resume a job (schema: :mod:`lossfit.batch.jobs`); under MPI start it as
     ``mpiexec -n N lossfit run JOB.toml --out DIR --pool mpi``.
 ``lossfit report DIR``
@@ -22,11 +22,12 @@ import sys
 import warnings
 
 from ._version import __version__
-from .batch.demo import CURVES_DEMO_STEPS, run_curves_demo, run_demo
-from .batch.runner import EXIT_BAD_INPUT, EXIT_CONFLICT, EXIT_INTERRUPTED, EXIT_OK, OutputConflict, report, run_job
-from .errors import LossfitValueError
-from .inference.pools import mpi_size
-from .inference.sampling import Interrupted
+from .batch.exit_codes import EXIT_BAD_INPUT, EXIT_CONFLICT, EXIT_INTERRUPTED, EXIT_OK
+from .errors import Interrupted, LossfitValueError, OutputConflict
+
+#: Default steps of the demos (kept here so that --help needs no library import; the
+#: demo module checks that they agree with its own).
+DEMO_STEPS = 5000
 
 EXIT_CODES = f"""exit codes:
   {EXIT_OK}   success
@@ -36,7 +37,12 @@ EXIT_CODES = f"""exit codes:
        run the same command again to resume"""
 
 
+# The command functions load the library when a command runs, not at start-up: the
+# library's import chain costs ~1 s, which --help and argument errors should not pay.
+
 def _cmd_demo(args):
+    from .batch.demo import CURVES_DEMO_STEPS, run_curves_demo, run_demo  # loaded when the command runs
+
     progress = None if not args.quiet else False
     with warnings.catch_warnings():
         if args.quiet:
@@ -45,7 +51,7 @@ def _cmd_demo(args):
             run_curves_demo(args.out, walkers=args.walkers or 16, steps=args.steps or CURVES_DEMO_STEPS, seed=args.seed,
                             overwrite=args.overwrite, progress=progress, quiet=args.quiet)
         else:
-            run_demo(args.out, walkers=args.walkers or 32, steps=args.steps or 5000, seed=args.seed,
+            run_demo(args.out, walkers=args.walkers or 32, steps=args.steps or DEMO_STEPS, seed=args.seed,
                      overwrite=args.overwrite, progress=progress, quiet=args.quiet)
     return 0
 
@@ -56,6 +62,9 @@ def _notice(args, text):
 
 
 def _cmd_run(args):
+    from .batch.runner import run_job  # loaded when the command runs
+    from .inference.pools import mpi_size  # loaded when the command runs
+
     if args.workers is not None and args.pool != "processes":
         _notice(args, f"--workers is ignored with --pool {args.pool} (it sets the processes of --pool processes)")
     if args.pool == "mpi":
@@ -72,8 +81,23 @@ def _cmd_run(args):
 
 
 def _cmd_report(args):
+    from .batch.runner import report  # loaded when the command runs
+
     report(args.dir, overwrite=args.overwrite)
     return 0
+
+
+def _steps(text):
+    """--steps: an integer >= 2 or 'auto'."""
+    if text == "auto":
+        return text
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"must be an integer >= 2 or 'auto', got {text!r}") from None
+    if value < 2:
+        raise argparse.ArgumentTypeError(f"must be an integer >= 2 or 'auto', got {text!r}")
+    return value
 
 
 def build_parser():
@@ -88,7 +112,8 @@ def build_parser():
     demo.add_argument("--from-curves", action="store_true",
                       help="start from invented raw decay curves (global fit) instead of spectra")
     demo.add_argument("--walkers", type=int, default=None, help="default 32 (16 with --from-curves)")
-    demo.add_argument("--steps", type=int, default=None, help=f"default 5000 ({CURVES_DEMO_STEPS} with --from-curves)")
+    demo.add_argument("--steps", type=int, default=None,
+                      help=f"default {DEMO_STEPS} (fewer with --from-curves: lossfit.batch.demo.CURVES_DEMO_STEPS)")
     demo.add_argument("--seed", type=int, default=1)
     demo.add_argument("--overwrite", action="store_true", help="replace results already in --out")
     demo.add_argument("--quiet", action="store_true", help="print nothing but errors (warnings are kept in "
@@ -100,7 +125,8 @@ def build_parser():
     run.add_argument("--out", required=True, help="output folder")
     run.add_argument("--pool", choices=("serial", "processes", "mpi"), default="serial")
     run.add_argument("--workers", type=int, default=None, help="processes for --pool processes")
-    run.add_argument("--steps", type=int, default=None, help="override the job's number of steps")
+    run.add_argument("--steps", type=_steps, default=None,
+                     help="override the job's number of steps (an integer, or 'auto': until converged)")
     run.add_argument("--overwrite", action="store_true", help="discard results already in --out")
     run.add_argument("--quiet", action="store_true", help="print nothing but errors (warnings are kept in "
                      "summary.json)")

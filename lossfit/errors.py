@@ -4,7 +4,8 @@ Every error that bad user input can trigger is a :class:`LossfitValueError`, a
 ``ValueError`` subclass whose message names the offending argument and value.
 """
 
-__all__ = ["LossfitError", "LossfitValueError", "ConvergenceWarning", "FitCheckWarning", "ValidityWarning",
+__all__ = ["LossfitError", "LossfitValueError", "Interrupted", "OutputConflict", "ConvergenceWarning",
+           "FitCheckWarning", "ValidityWarning",
            "as_real_array", "check_finite", "check_positive", "check_nonzero", "check_times", "check_table",
            "is_real"]
 
@@ -28,6 +29,23 @@ class LossfitValueError(LossfitError, ValueError):
     def __init__(self, argument, message):
         self.argument = argument
         super().__init__(f"{argument}: {message}")
+
+
+class Interrupted(LossfitError):
+    """Sampling stopped on a signal after the chain was checkpointed (resumable)."""
+
+    def __init__(self, signum, iteration, saved=True):
+        self.signum = signum
+        self.iteration = iteration
+        if saved:
+            text = f"stopped by signal {signum} at step {iteration}; the chain is saved and the run resumes from there"
+        else:
+            text = f"stopped by signal {signum} before sampling began; nothing was saved"
+        super().__init__(text)
+
+
+class OutputConflict(LossfitError):
+    """The output folder is locked or holds results that must not be overwritten."""
 
 
 class ConvergenceWarning(UserWarning):

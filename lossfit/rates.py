@@ -273,12 +273,18 @@ def _averaged(process, a, temperature, species, efimov, model, rtol, channel, tr
     a_f, q_f = a_b.ravel(), q.ravel()
     if process == THREE_BODY:
         channel = mdl.resolve_channel(channel)
-        if channel == OBSERVED and trap_depth is None and (a_f < 0).all():
-            channel = "total"           # a < 0 forms no shallow dimer: the same rate, the short path
         if channel == OBSERVED:
             depth = depth_over_temperature(trap_depth, scale_b).ravel()
-            plan = mdl.observed_plan(a_f, q_f, unit, depth, eta_min=_smallest_eta(efimov), rtol=rtol)
-            return _finish(plan.evaluate(efimov), a_b.shape)
+            pos = a_f > 0
+            out = np.empty(a_f.size)
+            if pos.any():
+                plan = mdl.observed_plan(a_f[pos], q_f[pos], unit[pos], depth[pos], eta_min=_smallest_eta(efimov),
+                                         rtol=rtol)
+                out[pos] = plan.evaluate(efimov)
+            if not pos.all():
+                # a < 0 forms no shallow dimer: the total rate, by the path a scalar call takes
+                out[~pos] = _averaged(process, a_f[~pos], scale_b.ravel()[~pos], sp, efimov, mdl, rtol, "total")
+            return _finish(out, a_b.shape)
         if trap_depth is not None:
             raise LossfitValueError("trap_depth", f"applies to channel='observed' only, not {channel!r}")
     if rtol is not None:

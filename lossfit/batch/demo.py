@@ -11,13 +11,13 @@ import matplotlib.pyplot as plt
 
 from ..data.curves import write_campaign
 from ..data.spectra import write_spectra
-from ..errors import ValidityWarning
+from ..errors import OutputConflict, ValidityWarning
 from ..inference.curve_fits import fit_curves_individually
 from ..plotting.curves import curves_plot
 from ..plotting.spectra import save_figure
 from ..simulate import DEMO_CAMPAIGN, SCENARIO, demo_spectra, invented_campaign
 from ..species import species
-from .runner import OUTPUTS, OutputConflict, run_job
+from .runner import OUTPUTS, run_job
 
 #: Steps of the demo from raw curves: 50 autocorrelation times (tau ~ 50) after burn-in,
 #: so that its chains converge with the defaults (docs/global-fit.md).

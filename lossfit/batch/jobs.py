@@ -32,7 +32,8 @@ error that names the key)::
 
     [sampler]
     walkers = 32
-    steps = 5000
+    steps = 5000                           # or "auto": until converged (50 tau after burn-in,
+    max_steps = 50000                      # tau stable to 1 %), at most max_steps
     seed = 1
     burn = "auto"                          # or an integer number of steps
     thin = 1
@@ -84,12 +85,12 @@ class JobError(LossfitValueError):
 
 _SECTIONS = {"data": {"species", "spectra", "csv", "campaign", "binding_energies"}, "model": {"name", "tie"},
              "free": None,
-             "fixed": None, "sampler": {"walkers", "steps", "seed", "burn", "thin", "checkpoint_every",
-                                        "log_every"},
+             "fixed": None, "sampler": {"walkers", "steps", "max_steps", "seed", "burn", "thin",
+                                        "checkpoint_every", "log_every"},
              "study": {"kind", "feature", "compare", "guess", "r_star"}}
 _PRIOR_KEYS = {"log-uniform": {"lo", "hi"}, "uniform": {"lo", "hi"}, "log-normal": {"median", "sigma"},
                "normal": {"mu", "sigma"}, "default": set()}
-_SAMPLER_DEFAULTS = {"walkers": 32, "steps": 5000, "seed": 0, "burn": "auto", "thin": 1,
+_SAMPLER_DEFAULTS = {"walkers": 32, "steps": 5000, "max_steps": None, "seed": 0, "burn": "auto", "thin": 1,
                      "checkpoint_every": 100, "log_every": 250}
 
 
@@ -175,7 +176,7 @@ class Job:
         """Keyword arguments of :func:`lossfit.fit` for this job."""
         s = self.sampler
         kw = dict(species=self.species, free=self.free, model=self.model, priors=self.priors,
-                  walkers=s["walkers"], steps=steps or s["steps"],
+                  walkers=s["walkers"], steps=steps or s["steps"], max_steps=s["max_steps"],
                   burn=None if s["burn"] == "auto" else s["burn"], thin=s["thin"], seed=s["seed"],
                   fixed=self.fixed, tie=self.tie)
         if self.campaign:
@@ -324,8 +325,12 @@ def parse_job(text, path):
         if key == "burn":
             if value != "auto":
                 _integer("sampler.burn", value, 0)
+        elif key == "steps" and value == "auto":
+            pass
         elif key in ("walkers", "steps", "thin", "checkpoint_every", "log_every"):
             _integer(f"sampler.{key}", value, {"walkers": 2, "steps": 2}.get(key, 1))
+        elif key == "max_steps":
+            _integer("sampler.max_steps", value, 200)
         elif key == "seed":
             _integer("sampler.seed", value, 0)
         sampler[key] = value

@@ -15,7 +15,8 @@ the *same* job is resumed; one holding a different job, or finished results, is 
 overwritten without ``overwrite=True``.
 """
 
-__all__ = ["run_job", "report", "load_result", "EXIT_OK", "EXIT_BAD_INPUT", "EXIT_CONFLICT", "EXIT_INTERRUPTED"]
+__all__ = ["run_job", "report", "load_result", "OutputConflict", "EXIT_OK", "EXIT_BAD_INPUT", "EXIT_CONFLICT",
+           "EXIT_INTERRUPTED"]
 
 import json
 import os
@@ -28,7 +29,7 @@ import matplotlib.pyplot as plt
 import numpy as np
 
 from .._io import atomic_path
-from ..errors import LossfitError, LossfitValueError, ValidityWarning
+from ..errors import LossfitValueError, OutputConflict, ValidityWarning
 from ..experiment.feshbach import compare_binding_models
 from ..inference.backends import read_chain_file
 from ..inference.fitting import fit, prepare
@@ -41,20 +42,12 @@ from ..plotting.efimov import efimov_spectrum_plot
 from ..plotting.spectra import corner_plot, spectrum_plot
 from ..plotting.studies import binding_energy_plot, temperature_study_plot
 from ..universal.spectrum import kappa_star
+from .exit_codes import EXIT_BAD_INPUT, EXIT_CONFLICT, EXIT_INTERRUPTED, EXIT_OK
 from .jobs import JobError, load_job, parse_job
 from .provenance import now_utc, provenance
 
-EXIT_OK = 0
-EXIT_BAD_INPUT = 2
-EXIT_CONFLICT = 3
-EXIT_INTERRUPTED = 75     # EX_TEMPFAIL of sysexits.h: the chain is saved, run again to resume
-
 OUTPUTS = ("chains.h5", "summary.json", "corner.png", "spectrum.png")
 LOCK = ".lossfit.lock"
-
-
-class OutputConflict(LossfitError):
-    """The output folder is locked or holds results that must not be overwritten."""
 
 
 def _pid_alive(pid):
@@ -177,8 +170,8 @@ def run_job(job_path, out_dir, *, pool="serial", workers=None, steps=None, overw
     """
     stream = open(os.devnull, "w") if quiet else (stream or sys.stdout)
     job = load_job(job_path)
-    if steps is not None and (isinstance(steps, bool) or not isinstance(steps, int) or steps < 2):
-        raise LossfitValueError("steps", f"must be an integer >= 2, got {steps!r}")
+    if steps is not None and steps != "auto" and (isinstance(steps, bool) or not isinstance(steps, int) or steps < 2):
+        raise LossfitValueError("steps", f"must be an integer >= 2 or 'auto', got {steps!r}")
     want_steps = steps or job.sampler["steps"]
     data = job.load_data()
     kw = job.fit_kwargs(steps=want_steps)
@@ -203,7 +196,7 @@ def run_job(job_path, out_dir, *, pool="serial", workers=None, steps=None, overw
                 if stored["metadata"].get("job_text") != job.text:
                     raise OutputConflict(f"{out_dir!r} holds results of a different job; choose another "
                                          "folder or pass --overwrite")
-                if stored["iteration"] >= want_steps and os.path.exists(os.path.join(out_dir, "summary.json")):
+                if _finished(stored, want_steps, out_dir):
                     print(f"lossfit: {out_dir} already holds the finished run ({stored['iteration']} steps); "
                           "nothing to do (lossfit report re-creates figures)", file=stream)
                     return None
@@ -232,6 +225,18 @@ def run_job(job_path, out_dir, *, pool="serial", workers=None, steps=None, overw
             pool_obj.close()
         if hasattr(pool_obj, "join"):
             pool_obj.join()
+
+
+def _finished(stored, want_steps, out_dir):
+    """A stored run that needs no more steps: its summary exists and it reached the steps
+    asked for, or (``"auto"``) it stopped for a reason of its own."""
+    summary = os.path.join(out_dir, "summary.json")
+    if not os.path.exists(summary):
+        return False
+    if want_steps == "auto":
+        with open(summary) as fh:
+            return json.load(fh).get("settings", {}).get("stopped") in ("converged", "max_steps")
+    return stored["iteration"] >= want_steps
 
 
 def load_result(run_dir):

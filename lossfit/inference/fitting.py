@@ -16,7 +16,7 @@ from .global_fit import fit_curves
 from .likelihood import SpectrumLikelihood
 from .parameters import ParameterSpace, default_priors
 from .posterior import Posterior, check_run_settings, coerce_priors, interactive, make_result, walker_ball
-from .sampling import open_backend, sample
+from .sampling import open_backend, sample, stop_record
 
 
 def _check_constrained(space, spectra):
@@ -90,7 +90,7 @@ def prepare(data, *, species, free, model=None, priors=None, fixed=None, tie=Non
 def fit(data, *, species, free, model=None, priors=None, walkers=32, steps=3000, burn=None, thin=1,
         seed=None, backend=None, pool=None, fixed=None, tie=None, density_sigma=None,
         progress=None, initial=None, rtol=None, checkpoint_every=100, log_every=None, metadata=None,
-        **curve_options):
+        max_steps=None, **curve_options):
     """Sample the posterior of Efimov parameters given loss spectra.
 
     Parameters
@@ -111,8 +111,15 @@ def fit(data, *, species, free, model=None, priors=None, walkers=32, steps=3000,
         name -> Prior (or a (lo, hi) pair meaning LogUniform, in physical units: a0 for
         lengths). Defaults: log-uniform over the measured |a| range on the relevant
         side, eta log-uniform in [0.005, 2], density scale log-normal of ``density_sigma``.
-    walkers, steps : int
-        Ensemble size (>= 2 x number of free parameters) and number of steps.
+    walkers : int
+        Ensemble size (>= 2 x number of free parameters).
+    steps : int or "auto"
+        Number of steps; ``"auto"`` samples until the chain after burn-in is at least 50
+        autocorrelation times long and the estimate changed by less than 1 % over the
+        last 100 steps (emcee's documented rule), at most ``max_steps``; the result
+        records why sampling stopped (``settings["stopped"]``).
+    max_steps : int, optional
+        Cap of ``steps="auto"`` (default 50000).
     burn : int, optional
         Steps discarded; default max(3 tau_max, steps/5), at most steps/2.
     thin : int
@@ -153,7 +160,7 @@ def fit(data, *, species, free, model=None, priors=None, walkers=32, steps=3000,
                           steps=steps, burn=burn, thin=thin, seed=seed, backend=backend, pool=pool,
                           fixed=fixed, tie=tie, density_sigma=density_sigma, progress=progress,
                           initial=initial, rtol=rtol, checkpoint_every=checkpoint_every,
-                          log_every=log_every, metadata=metadata, **curve_options)
+                          log_every=log_every, metadata=metadata, max_steps=max_steps, **curve_options)
     if curve_options:
         raise LossfitValueError(sorted(curve_options)[0], "is an option of decay-curve fits only")
     if any(isinstance(d, DecayCurve) for d in items):
@@ -178,9 +185,9 @@ def fit(data, *, species, free, model=None, priors=None, walkers=32, steps=3000,
     p0 = _start(posterior, space, walkers, rng, initial) if done == 0 else np.zeros((walkers, space.ndim))
     run = sample(posterior, p0, steps, backend=store, pool=pool, seed=int(rng.integers(2 ** 31)),
                  progress=show, log_every=log_every, checkpoint_every=checkpoint_every,
-                 names=space.names, metadata=metadata)
+                 names=space.names, metadata=metadata, max_steps=max_steps)
     settings = {"walkers": walkers, "steps": int(run.chain.shape[0]), "seed": seed,
                 "model": likelihood.model.name, "free": ",".join(space.names), "tie": tie or "",
-                "density_sigma": density_sigma}
+                "density_sigma": density_sigma, **stop_record(run)}
     return make_result(space, likelihood, run.chain, run.log_prob, run.acceptance, burn=burn, thin=thin,
                        settings=settings)

@@ -86,10 +86,15 @@ def check_run_settings(walkers, steps, burn=None, thin=1, seed=None):
     """Validate a sampler run's settings before any work is done: integers (not booleans),
     walkers >= 2, steps >= 2, thin >= 1, burn (if given) in [0, steps - 2], seed None or a
     non-negative integer. A burn-in as long as the chain is caught here, not after it ran."""
-    for name, value, lo in (("walkers", walkers, 2), ("steps", steps, 2), ("thin", thin, 1)):
+    auto = isinstance(steps, str) and steps == "auto"
+    for name, value, lo in (("walkers", walkers, 2), ("steps", 2 if auto else steps, 2), ("thin", thin, 1)):
         if not _is_int(value) or value < lo:
-            raise LossfitValueError(name, f"must be an integer >= {lo}, got {value!r}")
-    if burn is not None and (not _is_int(burn) or not 0 <= burn <= steps - 2):
+            more = " or 'auto'" if name == "steps" else ""
+            raise LossfitValueError(name, f"must be an integer >= {lo}{more}, got {value!r}")
+    if auto:
+        if burn is not None and (not _is_int(burn) or burn < 0):
+            raise LossfitValueError("burn", f"must be a non-negative integer, got {burn!r}")
+    elif burn is not None and (not _is_int(burn) or not 0 <= burn <= steps - 2):
         raise LossfitValueError("burn", f"must be an integer in [0, steps - 2] = [0, {steps - 2}], got {burn!r}")
     if seed is not None and (not _is_int(seed) or seed < 0):
         raise LossfitValueError("seed", f"must be None or a non-negative integer, got {seed!r}")

@@ -6,8 +6,10 @@ The sampler is pool-agnostic, as emcee is: any object with a ``map`` method
 the walkers' log posteriors.
 """
 
-__all__ = ["sample", "open_backend", "ChainRun", "Interrupted"]
+__all__ = ["sample", "open_backend", "ChainRun", "Interrupted", "convergence_state", "stop_record", "AUTO_STEPS",
+           "DEFAULT_MAX_STEPS", "CHECK_EVERY", "TAU_RTOL"]
 
+import math
 import os
 import signal
 import sys
@@ -17,32 +19,63 @@ from dataclasses import dataclass
 
 import emcee
 import numpy as np
+from tqdm.auto import tqdm
 
-from ..errors import LossfitError, LossfitValueError
+from ..errors import Interrupted, LossfitValueError
 from .backends import CheckpointBackend
+from .diagnostics import MIN_STEPS_PER_TAU, autocorrelation_times
 
-
-class Interrupted(LossfitError):
-    """Sampling stopped on a signal after the chain was checkpointed (resumable)."""
-
-    def __init__(self, signum, iteration, saved=True):
-        self.signum = signum
-        self.iteration = iteration
-        if saved:
-            text = f"stopped by signal {signum} at step {iteration}; the chain is saved and the run resumes from there"
-        else:
-            text = f"stopped by signal {signum} before sampling began; nothing was saved"
-        super().__init__(text)
+#: ``steps="auto"``: sample until converged (:func:`convergence_state`), at most ``max_steps``.
+AUTO_STEPS = "auto"
+#: Largest number of steps an automatic run takes when no ``max_steps`` is given.
+DEFAULT_MAX_STEPS = 50000
+#: Steps between convergence checks of an automatic run (emcee's documentation checks
+#: every 100 steps).
+CHECK_EVERY = 100
+#: Largest relative change of tau between two checks for an automatic run to stop.
+TAU_RTOL = 0.01
 
 
 @dataclass
 class ChainRun:
-    """Raw output of :func:`sample`: chain (steps, walkers, ndim), log_prob, acceptance."""
+    """Raw output of :func:`sample`: chain (steps, walkers, ndim), log_prob, acceptance,
+    the step a resumed run started from, and why sampling stopped (``"fixed length"``,
+    ``"converged"`` or ``"max_steps"``) with the tau estimate (steps) at the stop."""
 
     chain: np.ndarray
     log_prob: np.ndarray
     acceptance: np.ndarray
     resumed_from: int
+    stop_reason: str = "fixed length"
+    tau: float = float("nan")
+
+
+def convergence_state(chain, check_every=CHECK_EVERY):
+    """Whether a chain (steps, walkers, ndim) is long enough to stop an automatic run.
+
+    The rule of emcee's documentation ("Autocorrelation analysis & convergence"), with
+    lossfit's burn-in: the chain after the default burn-in max(3 tau, steps/5) is at
+    least 50 tau long (tau the largest integrated autocorrelation time), and tau changed
+    by less than 1 % since the chain was ``check_every`` steps shorter. Both estimates
+    come from the stored chain, so a resumed run takes the same decisions.
+
+    Returns
+    -------
+    converged : bool
+    tau : float
+        The current estimate (steps).
+    needed : int
+        Chain length the rule asks for at this tau.
+    """
+    steps = chain.shape[0]
+    tau = float(np.max(autocorrelation_times(chain)))
+    if not math.isfinite(tau):
+        return False, tau, 0
+    needed = int(math.ceil(max(MIN_STEPS_PER_TAU * tau / 0.8, (MIN_STEPS_PER_TAU + 3) * tau)))
+    if steps < needed or steps <= check_every:
+        return False, tau, needed
+    before = float(np.max(autocorrelation_times(chain[:steps - check_every])))
+    return abs(tau - before) < TAU_RTOL * tau, tau, needed
 
 
 def open_backend(backend, walkers, ndim, *, every=100, names=None, metadata=None):
@@ -95,21 +128,26 @@ class _SignalGuard:
         return False
 
 
-def _log_line(stream, i, total, sampler, start_time, start_step):
+def _log_line(stream, i, total, sampler, start_time, start_step, needed=None):
     done = i - start_step
     rate = done / max(time.perf_counter() - start_time, 1e-9)
-    eta = (total - i) / rate if rate > 0 else float("nan")
     acc = float(np.mean(sampler.acceptance_fraction))
     try:
         tau = float(np.max(sampler.get_autocorr_time(tol=0, quiet=True)))
     except Exception:          # too few steps for an estimate
         tau = float("nan")
-    print(f"[lossfit] step {i}/{total}  acceptance {acc:.3f}  tau~{tau:.1f}  "
-          f"{rate:.1f} steps/s  ETA {eta:.0f} s", file=stream, flush=True)
+    if needed is None:
+        eta = (total - i) / rate if rate > 0 else float("nan")
+        print(f"[lossfit] step {i}/{total}  acceptance {acc:.3f}  tau~{tau:.1f}  "
+              f"{rate:.1f} steps/s  ETA {eta:.0f} s", file=stream, flush=True)
+    else:
+        print(f"[lossfit] step {i} (auto, at most {total})  acceptance {acc:.3f}  tau~{tau:.1f}  "
+              f"converged at ~{needed} steps  {rate:.1f} steps/s", file=stream, flush=True)
 
 
 def sample(log_prob, p0, steps, *, backend=None, pool=None, seed=None, progress=False,
-           log_every=None, log_stream=None, checkpoint_every=100, names=None, metadata=None):
+           log_every=None, log_stream=None, checkpoint_every=100, names=None, metadata=None,
+           max_steps=None, check_every=CHECK_EVERY):
     """Run (or resume) an affine-invariant ensemble on ``log_prob``.
 
     Parameters
@@ -118,8 +156,14 @@ def sample(log_prob, p0, steps, *, backend=None, pool=None, seed=None, progress=
         theta (1-D array) -> log posterior; must be picklable to use a process pool.
     p0 : ndarray, shape (walkers, ndim)
         Start positions (ignored when the backend already holds steps).
-    steps : int
-        Total number of steps wanted in the backend.
+    steps : int or "auto"
+        Total number of steps wanted in the backend; ``"auto"``: sample until
+        :func:`convergence_state` says the chain is long enough (checked every
+        ``check_every`` steps), at most ``max_steps``.
+    max_steps : int, optional
+        Cap of an automatic run (default :data:`DEFAULT_MAX_STEPS`).
+    check_every : int
+        Steps between convergence checks of an automatic run.
     backend : None, path or emcee backend
         See :func:`open_backend`.
     pool : object with ``map``, optional
@@ -144,6 +188,11 @@ def sample(log_prob, p0, steps, *, backend=None, pool=None, seed=None, progress=
     """
     p0 = np.asarray(p0, dtype=float)
     walkers, ndim = p0.shape
+    auto = isinstance(steps, str) and steps == AUTO_STEPS
+    if auto:
+        steps = DEFAULT_MAX_STEPS if max_steps is None else max_steps
+        if isinstance(steps, bool) or not isinstance(steps, (int, np.integer)) or steps < 2 * check_every:
+            raise LossfitValueError("max_steps", f"must be an integer >= {2 * check_every}, got {max_steps!r}")
     store, done = open_backend(backend, walkers, ndim, every=checkpoint_every, names=names,
                                metadata=metadata)
     if metadata and isinstance(store, CheckpointBackend):
@@ -157,17 +206,62 @@ def sample(log_prob, p0, steps, *, backend=None, pool=None, seed=None, progress=
         start = store.get_last_sample()
     stream = log_stream or sys.stderr
     t0 = time.perf_counter()
+    reason, tau, needed = "fixed length", float("nan"), None
+    if auto:
+        reason = "max_steps"
+        if done and done % check_every == 0:
+            # a resumed automatic run: the check the first run took at this step
+            converged, tau, needed = convergence_state(store.get_chain(), check_every)
+            if converged:
+                steps, reason = done, "converged"
+    bar = _AutoBar(steps, done) if auto and progress else None
     with _SignalGuard() as guard:
         if done < steps:
-            for _ in sampler.sample(start, iterations=steps - done, progress=progress):
+            for _ in sampler.sample(start, iterations=steps - done, progress=progress and not auto):
                 i = store.iteration
-                if log_every and (i % log_every == 0 or i == steps):
-                    _log_line(stream, i, steps, sampler, t0, done)
-                if guard.signum is not None:
+                if auto and i % check_every == 0:
+                    converged, tau, needed = convergence_state(store.get_chain(), check_every)
+                    if bar is not None:
+                        bar.note(tau, needed)
+                    if converged:
+                        reason = "converged"
+                if bar is not None:
+                    bar.update()
+                if log_every and (i % log_every == 0 or i == steps or reason == "converged"):
+                    _log_line(stream, i, steps, sampler, t0, done, needed if auto else None)
+                if guard.signum is not None or reason == "converged":
                     break
+    if bar is not None:
+        bar.close()
     if isinstance(store, CheckpointBackend):
         store.flush()
-    if guard.signum is not None and store.iteration < steps:
+    if guard.signum is not None and store.iteration < steps and reason != "converged":
         raise Interrupted(guard.signum, store.iteration)
     return ChainRun(chain=store.get_chain(), log_prob=store.get_log_prob(),
-                    acceptance=store.accepted / max(store.iteration, 1), resumed_from=done)
+                    acceptance=store.accepted / max(store.iteration, 1), resumed_from=done,
+                    stop_reason=reason, tau=tau)
+
+
+def stop_record(run):
+    """Settings entries that say why a run stopped (for results and summary.json)."""
+    record = {"stopped": run.stop_reason}
+    if run.stop_reason != "fixed length":
+        record["tau_at_stop"] = run.tau
+    return record
+
+
+class _AutoBar:
+    """tqdm bar of an automatic run: counts steps up to the cap and shows the
+    convergence estimate (tau and the chain length the rule asks for)."""
+
+    def __init__(self, total, initial):
+        self._bar = tqdm(total=total, initial=initial, desc="sampling (auto)")
+
+    def note(self, tau, needed):
+        self._bar.set_postfix_str(f"tau~{tau:.1f}, converged at ~{needed} steps")
+
+    def update(self):
+        self._bar.update(1)
+
+    def close(self):
+        self._bar.close()

@@ -1,6 +1,7 @@
 """The command line refuses bad jobs and paths before any work, with the documented exit
 codes and no traceback, leaves no empty folders, and is quiet when asked."""
 
+import json
 import os
 import subprocess
 import sys
@@ -180,3 +181,30 @@ def test_job_files_run_the_calibration_and_the_spectrum(job, tmp_path):
     record = json.loads((tmp_path / "spec" / "study.json").read_text())
     assert record["kind"] == "spectrum" and record["kappa_star_per_a0"] > 0
     assert (tmp_path / "spec" / "study.png").stat().st_size > 0
+
+
+def test_job_with_automatic_steps_runs_to_a_recorded_stop(job, tmp_path):
+    # steps = "auto" with a small cap: the run stops at the cap and summary.json says why;
+    # a bad cap is refused naming its key, and --steps takes "auto" too
+    path = _job_with(job, tmp_path, "steps = 40", 'steps = "auto"\nmax_steps = 200')
+    out = tmp_path / "auto"
+    proc = _run("run", path, "--out", out, "--quiet")
+    assert proc.returncode == 0, proc.stderr
+    settings = json.loads((out / "summary.json").read_text())["settings"]
+    assert settings["stopped"] in ("converged", "max_steps") and settings["steps"] <= 200
+    assert settings["tau_at_stop"] > 0
+    again = _run("run", path, "--out", out)
+    assert again.returncode == 0 and "already holds the finished run" in again.stdout
+    bad = _job_with(job, tmp_path, "steps = 40", 'steps = "auto"\nmax_steps = 5')
+    _refused(_run("run", bad, "--out", tmp_path / "bad"), "sampler.max_steps")
+    _refused(_run("run", job / "job.toml", "--out", tmp_path / "x", "--steps", "often"), "")
+
+
+def test_help_answers_without_loading_the_library():
+    # the command line loads the library only for the command it runs
+    proc = subprocess.run([sys.executable, "-X", "importtime", "-m", "lossfit.cli", "--help"], capture_output=True,
+                          text=True, timeout=60)
+    assert proc.returncode == 0
+    loaded = {line.rsplit("|", 1)[-1].strip() for line in proc.stderr.splitlines() if "|" in line}
+    assert "lossfit.errors" in loaded
+    assert not {"numba", "emcee", "h5py", "matplotlib", "lossfit.rates"} & loaded
