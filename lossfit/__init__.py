@@ -12,6 +12,7 @@ from ._version import __version__
 from .constants import S0, SCALING_FACTOR
 from .efimov import Efimov
 from .errors import LossfitError, LossfitValueError
+from .heteronuclear import HeteronuclearSystem, heteronuclear  # noqa: F401 (eager: a lazy name is shadowed by the submodule)
 from .species import Species, known_species, register_species, species
 
 __all__ = ["__version__", "errors", "S0", "SCALING_FACTOR", "LossfitError", "LossfitValueError",
