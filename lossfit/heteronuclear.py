@@ -8,8 +8,8 @@ Boltzmann mixture at one or two temperatures. The derivations are in
 docs/heteronuclear.md:
 
 * s0 solves s0 cosh(pi s0/2) sin(2 phi) = 2 sinh(phi s0), sin(phi) = m_B/(m_B + m_X)
-  (V. Efimov, Nucl. Phys. A 210, 157 (1973); E. Braaten & H.-W. Hammer, Phys. Rep. 428,
-  259 (2006)), found with scipy's brentq;
+  (V. Efimov, Nucl. Phys. A 210, 157 (1973), quoted from memory; E. Braaten & H.-W. Hammer,
+  Phys. Rep. 428, 259 (2006)), found with scipy's brentq;
 * collision energies in the centre-of-mass frame: E = E_BB + E_3, the B-B relative energy
   (temperature T_B) plus that of X against the B pair (temperature
   T_3 = (2 m_B T_X + m_X T_B)/(2 m_B + m_X)); at T_B = T_X it is E^2 e^{-E/k_BT}/(2(k_BT)^3);

@@ -20,7 +20,7 @@ integrals along each axis, with a_i = sigma_B,i^2, b_i = sigma_X,i^2, d_i the of
 
 For one species in one trap this is lossfit's int n^3 = N <n^2>
 (:mod:`lossfit.experiment.trap`). Standard gravity g = 9.80665 m/s^2 (exact by definition,
-3rd CGPM 1901); local gravity differs by up to 0.3 %, pass ``gravity=<m/s^2>`` for it.
+3rd CGPM 1901); local gravity differs by up to about 0.5 %: pass ``gravity=<m/s^2>`` for it.
 """
 
 __all__ = ["MixtureTrap", "MixtureOverlap", "STANDARD_GRAVITY"]
