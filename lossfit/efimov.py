@@ -10,6 +10,8 @@ __all__ = ["Efimov"]
 import dataclasses
 import math
 
+import numpy as np
+
 from .constants import KAPPA_A_MINUS, KAPPA_A_PLUS, KAPPA_A_STAR, SCALING_FACTOR
 from .errors import LossfitValueError, is_real
 
@@ -93,6 +95,37 @@ class Efimov:
                    a_star=KAPPA_A_STAR * SCALING_FACTOR / kappa, eta_star=eta,
                    a_plus=KAPPA_A_PLUS / kappa, eta_plus=eta)
 
+    @classmethod
+    def trusted(cls, **values):
+        """An Efimov set built without validation, for values already known to lie in
+        their domains (a sampler's priors keep them there). Values may be arrays of W
+        walkers, one entry per walker, to evaluate many sets in one call."""
+        ef = object.__new__(cls)
+        for field in dataclasses.fields(cls):
+            object.__setattr__(ef, field.name, values.get(field.name))
+        return ef
+
+    @property
+    def n_walkers(self):
+        """Walkers this set holds: 0 for floats, W when its parameters are arrays of W."""
+        return max((np.size(v) for v in vars(self).values() if v is not None and np.ndim(v) > 0), default=0)
+
+    def walkers(self):
+        """The sets of a walker-array Efimov (see :meth:`trusted`) one by one, as floats."""
+        count = self.n_walkers
+        if not count:
+            return [self]
+        columns = {k: np.broadcast_to(np.asarray(v, dtype=float), (count,))
+                   for k, v in vars(self).items() if v is not None}
+        return [Efimov.trusted(**{k: float(c[w]) for k, c in columns.items()}) for w in range(count)]
+
+    def each_walker(self, evaluate):
+        """``evaluate(efimov)`` for a set of floats; for walker arrays, applied walker by
+        walker and stacked on a first axis (for paths without a many-walker form)."""
+        if not self.n_walkers:
+            return evaluate(self)
+        return np.array([evaluate(one) for one in self.walkers()])
+
     def with_atom_dimer(self):
         """These parameters, with a* and eta* tied to a_+ and eta_+ by the zero-range
         relations (one kappa*: a* = kappa* a*_0 x scaling / kappa*, kappa* = 0.316472/a_+;
@@ -104,7 +137,8 @@ class Efimov:
             return self
         a_star = self.a_star if self.a_star is not None else KAPPA_A_STAR * SCALING_FACTOR * self.a_plus / KAPPA_A_PLUS
         eta_star = self.eta_star if self.eta_star is not None else self.eta_plus
-        return dataclasses.replace(self, a_star=a_star, eta_star=eta_star)
+        # derived from validated (or trusted walker-array) values: no second validation
+        return Efimov.trusted(**dict(dataclasses.asdict(self), a_star=a_star, eta_star=eta_star))
 
     def replace(self, **changes):
         """A copy with some parameters changed."""

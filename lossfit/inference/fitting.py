@@ -15,7 +15,7 @@ from ..universal.models import DEFAULT_MODEL, get_model
 from .global_fit import fit_curves
 from .likelihood import SpectrumLikelihood
 from .parameters import ParameterSpace, default_priors
-from .posterior import Posterior, check_run_settings, coerce_priors, interactive, make_result, walker_ball
+from .posterior import Posterior, WalkerBlocks, check_run_settings, coerce_priors, interactive, make_result, walker_ball
 from .sampling import open_backend, sample, stop_record
 
 
@@ -183,9 +183,10 @@ def fit(data, *, species, free, model=None, priors=None, walkers=32, steps=3000,
                                names=space.names, metadata=metadata)
     show = interactive() if progress is None else bool(progress)
     p0 = _start(posterior, space, walkers, rng, initial) if done == 0 else np.zeros((walkers, space.ndim))
-    run = sample(posterior, p0, steps, backend=store, pool=pool, seed=int(rng.integers(2 ** 31)),
-                 progress=show, log_every=log_every, checkpoint_every=checkpoint_every,
-                 names=space.names, metadata=metadata, max_steps=max_steps)
+    # the whole half-ensemble per call, split into one block per worker of the pool
+    run = sample(WalkerBlocks(posterior, pool), p0, steps, backend=store, pool=None, vectorize=True,
+                 seed=int(rng.integers(2 ** 31)), progress=show, log_every=log_every,
+                 checkpoint_every=checkpoint_every, names=space.names, metadata=metadata, max_steps=max_steps)
     settings = {"walkers": walkers, "steps": int(run.chain.shape[0]), "seed": seed,
                 "model": likelihood.model.name, "free": ",".join(space.names), "tie": tie or "",
                 "density_sigma": density_sigma, **stop_record(run)}

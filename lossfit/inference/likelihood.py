@@ -104,8 +104,9 @@ class RateBlock:
         return self.model.atom_dimer_plan(a, q, self.unit, channel=self.channel, eta_min=eta_min)
 
     def predict(self, efimov, a=None):
-        """L3 (cm^6/s) or beta (cm^3/s) at every point; ``a`` (a0) replaces the stored
-        scattering lengths (then nothing prepared is reused)."""
+        """L3 (cm^6/s) or beta (cm^3/s) at every point, shape (n_points,), or (W, n_points)
+        for an Efimov set of W walker arrays (:meth:`lossfit.Efimov.trusted`); ``a`` (a0)
+        replaces the stored scattering lengths (then nothing prepared is reused)."""
         if self.rtol is not None:
             return self._reference(efimov, self.a if a is None else np.asarray(a, dtype=float))
         if a is None:
@@ -113,14 +114,15 @@ class RateBlock:
         a = np.asarray(a, dtype=float)
         if self.channel == OBSERVED:
             return self._make_plan(a, self.eta_min).evaluate(efimov)
-        return self.model.thermal(self.process, a, a * self.k_s, efimov, self.unit, channel=self.channel)
+        return efimov.each_walker(lambda one: self.model.thermal(self.process, a, a * self.k_s, one, self.unit,
+                                                                 channel=self.channel))
 
     def _reference(self, efimov, a):
         plan = self._make_plan(a, self.eta_min, rtol=self.rtol)
         if plan is not None:
             return plan.evaluate(efimov)
-        return self.model.reference_average(self.process, a, a * self.k_s, efimov, self.channel,
-                                            self.rtol)[0] * self.unit
+        return efimov.each_walker(lambda one: self.model.reference_average(self.process, a, a * self.k_s, one,
+                                                                           self.channel, self.rtol)[0] * self.unit)
 
 
 def _depth_record(spectrum, channel):
@@ -136,13 +138,15 @@ def _depth_record(spectrum, channel):
 
 
 @numba.njit(cache=True)
-def _chi2(value, predicted, factor, inv_error):
-    # sum ((value - factor predicted) / error)^2: one pass instead of four numpy temporaries
-    total = 0.0
-    for i in range(value.size):
-        z = (value[i] - factor * predicted[i]) * inv_error[i]
-        total += z * z
-    return total
+def _chi2(value, predicted, factor, inv_error, out):
+    # out[w] += sum ((value - factor[w] predicted[w]) / error)^2 for each walker w: one
+    # pass instead of four numpy temporaries
+    for w in range(predicted.shape[0]):
+        total = 0.0
+        for i in range(value.size):
+            z = (value[i] - factor[w] * predicted[w, i]) * inv_error[i]
+            total += z * z
+        out[w] += total
 
 
 class SpectrumLikelihood:
@@ -204,8 +208,12 @@ class SpectrumLikelihood:
                 out[i] = part
         return out
 
+    #: The log likelihood takes Efimov sets of walker arrays (one call for many walkers).
+    vectorized = True
+
     def given_values(self, efimov, values):
-        """log L for the Efimov set and a dict of every parameter value (nuisances)."""
+        """log L for the Efimov set and a dict of every parameter value (nuisances); with
+        walker arrays (``vectorized``) an array of one log L per walker."""
         return self(efimov, values.get("density_scale", 1.0))
 
     def predict_values(self, space, values):
@@ -221,7 +229,14 @@ class SpectrumLikelihood:
         return checks, messages + ([poor] if poor else [])
 
     def __call__(self, efimov, density_scale=1.0):
-        total = 0.0
+        """log L (float), or one per walker (array) for an Efimov set of walker arrays;
+        ``density_scale`` a float or one per walker."""
+        walkers = efimov.n_walkers
+        scale = np.broadcast_to(np.asarray(density_scale, dtype=float), (max(walkers, 1),))
+        chi2 = np.zeros(scale.size)
         for b in self.blocks:
-            total -= 0.5 * _chi2(b.value, b.predict(efimov), density_scale ** -b.density_power, b.inv_error)
-        return total if math.isfinite(total) else -math.inf
+            predicted = b.predict(efimov)
+            _chi2(b.value, predicted.reshape(scale.size, -1), scale ** -b.density_power, b.inv_error, chi2)
+        total = -0.5 * chi2
+        total[~np.isfinite(total)] = -math.inf
+        return total if walkers else float(total[0])

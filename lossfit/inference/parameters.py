@@ -29,15 +29,6 @@ SIGNS = {"a_minus": -1.0}
 DEFAULT_ETA_PRIOR = (0.005, 2.0)
 
 
-def _unchecked_efimov(values):
-    # The priors already keep every value in its domain; skipping the dataclass checks
-    # keeps the likelihood fast.
-    ef = object.__new__(Efimov)
-    for name in EFIMOV_NAMES:
-        object.__setattr__(ef, name, values.get(name))
-    return ef
-
-
 class ParameterSpace:
     """Free parameters with their priors, fixed values and the tie between features.
 
@@ -102,6 +93,13 @@ class ParameterSpace:
         return np.log(np.abs(np.asarray(values, dtype=float)))
 
     def log_prior(self, theta):
+        """log prior density in theta of one point (ndim,), or one per row of (W, ndim)."""
+        theta = np.asarray(theta, dtype=float)
+        if theta.ndim == 2:
+            total = np.zeros(theta.shape[0])
+            for i, prior in enumerate(self.priors):
+                total += prior.log_density_theta_many(theta[:, i])
+            return total
         total = 0.0
         for prior, t in zip(self.priors, theta):
             lp = prior.log_density_theta(t)
@@ -111,8 +109,14 @@ class ParameterSpace:
         return total
 
     def values(self, theta):
-        """Dict name -> physical value of every named parameter (free and fixed)."""
+        """Dict name -> physical value of every named parameter (free and fixed); for
+        theta of shape (W, ndim) the free values are arrays of W walkers."""
         out = dict(self.fixed)
+        theta = np.asarray(theta, dtype=float)
+        if theta.ndim == 2:
+            for i, name in enumerate(self.names):
+                out[name] = SIGNS.get(name, 1.0) * np.exp(theta[:, i])
+            return out
         for name, t in zip(self.names, theta):
             out[name] = SIGNS.get(name, 1.0) * math.exp(t)
         return out
@@ -131,7 +135,7 @@ class ParameterSpace:
         elif eta is not None:
             for name in ("eta_minus", "eta_star", "eta_plus"):
                 vals.setdefault(name, eta)
-        return _unchecked_efimov(vals)
+        return Efimov.trusted(**vals)
 
     def density_scale(self, values):
         return values.get("density_scale", 1.0)

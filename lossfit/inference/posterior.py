@@ -1,7 +1,8 @@
 """What the spectrum fit and the global curve fit share: the log posterior, prior
 shorthands, the walker ball around a start point, the default burn-in and the result."""
 
-__all__ = ["check_run_settings", "Posterior", "coerce_priors", "interactive", "walker_ball", "auto_burn", "make_result"]
+__all__ = ["check_run_settings", "Posterior", "WalkerBlocks", "coerce_priors", "interactive", "walker_ball",
+           "auto_burn", "make_result"]
 
 import math
 import sys
@@ -15,18 +16,59 @@ from .result import FitResult
 
 
 class Posterior:
-    """log posterior in sampling coordinates; picklable, so any pool can map it."""
+    """log posterior in sampling coordinates; picklable, so any pool can map it.
+
+    :meth:`batch` evaluates a whole walker set (W, ndim) in one call, down to the numba
+    kernels where the likelihood is ``vectorized`` (walker by walker otherwise); a single
+    point is a batch of one, so both give the same bits and the same chains.
+    """
 
     def __init__(self, space, likelihood):
         self.space = space
         self.likelihood = likelihood
 
     def __call__(self, theta):
-        lp = self.space.log_prior(theta)
-        if lp == -math.inf:
-            return -math.inf
+        return float(self.batch(np.asarray(theta, dtype=float)[None, :])[0])
+
+    def batch(self, thetas):
+        """log posterior of every row of ``thetas`` (W, ndim): an array of W."""
+        thetas = np.asarray(thetas, dtype=float)
+        out = np.full(thetas.shape[0], -math.inf)
+        lp = self.space.log_prior(thetas)
+        ok = np.flatnonzero(np.isfinite(lp))
+        if ok.size == 0:
+            return out
+        if getattr(self.likelihood, "vectorized", False):
+            values = self.space.values(thetas[ok])
+            ll = np.asarray(self.likelihood.given_values(self.space.efimov(values), values), dtype=float)
+        else:
+            ll = np.array([self._one(thetas[i]) for i in ok])
+        total = lp[ok] + ll
+        total[~np.isfinite(total)] = -math.inf
+        out[ok] = total
+        return out
+
+    def _one(self, theta):
         values = self.space.values(theta)
-        return lp + self.likelihood.given_values(self.space.efimov(values), values)
+        return self.likelihood.given_values(self.space.efimov(values), values)
+
+
+class WalkerBlocks:
+    """emcee's vectorised log probability: the walker set in one :meth:`Posterior.batch`
+    call, or split into one block per worker of ``pool`` (blocks, not single walkers,
+    cross the process or MPI boundary)."""
+
+    def __init__(self, posterior, pool=None):
+        self.posterior = posterior
+        self.pool = pool
+        size = getattr(pool, "size", None) or getattr(pool, "_processes", None)
+        self.blocks = int(size) if size else (2 if pool is not None else 1)
+
+    def __call__(self, coords):
+        if self.pool is None or self.blocks == 1:
+            return self.posterior.batch(coords)
+        parts = [p for p in np.array_split(coords, self.blocks) if len(p)]
+        return np.concatenate(list(self.pool.map(self.posterior.batch, parts)))
 
 
 def interactive():

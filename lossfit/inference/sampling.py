@@ -147,7 +147,7 @@ def _log_line(stream, i, total, sampler, start_time, start_step, needed=None):
 
 def sample(log_prob, p0, steps, *, backend=None, pool=None, seed=None, progress=False,
            log_every=None, log_stream=None, checkpoint_every=100, names=None, metadata=None,
-           max_steps=None, check_every=CHECK_EVERY):
+           max_steps=None, check_every=CHECK_EVERY, vectorize=False):
     """Run (or resume) an affine-invariant ensemble on ``log_prob``.
 
     Parameters
@@ -164,6 +164,9 @@ def sample(log_prob, p0, steps, *, backend=None, pool=None, seed=None, progress=
         Cap of an automatic run (default :data:`DEFAULT_MAX_STEPS`).
     check_every : int
         Steps between convergence checks of an automatic run.
+    vectorize : bool
+        ``log_prob`` takes the whole walker set (W, ndim) and returns W values (emcee's
+        vectorised mode; it then does its own parallel work and ``pool`` must be None).
     backend : None, path or emcee backend
         See :func:`open_backend`.
     pool : object with ``map``, optional
@@ -197,7 +200,9 @@ def sample(log_prob, p0, steps, *, backend=None, pool=None, seed=None, progress=
                                metadata=metadata)
     if metadata and isinstance(store, CheckpointBackend):
         store.metadata.update(metadata)
-    sampler = emcee.EnsembleSampler(walkers, ndim, log_prob, pool=pool, backend=store)
+    if vectorize and pool is not None:
+        raise LossfitValueError("pool", "a vectorised log_prob splits the walkers itself; pass pool=None")
+    sampler = emcee.EnsembleSampler(walkers, ndim, log_prob, pool=pool, backend=store, vectorize=vectorize)
     if done == 0:
         store.reset(walkers, ndim)
         sampler.random_state = np.random.RandomState(seed).get_state()

@@ -477,6 +477,15 @@ def _plan_evaluate(family, part, terms, wt, first, stop, offset, h_sum, cos_t, s
 
 
 @numba.njit(cache=True)
+def _plan_evaluate_many(family, part, terms, wt, first, stop, offset, h_sum, cos_t, sin_t, cos_off, sin_off, e2, g,
+                        w_a, w_b, out):
+    # one call for every walker: out[w] += the averages at walker w's Efimov scalars
+    for w in range(cos_off.size):
+        _plan_evaluate(family, part, terms, wt, first, stop, offset, h_sum, cos_t, sin_t, cos_off[w], sin_off[w],
+                       e2[w], g[w], w_a, w_b, out[w])
+
+
+@numba.njit(cache=True)
 def _plan_h_sums(family, part, terms, wt, first, stop, offset):
     out = np.empty(first.size)
     for p in range(first.size):
@@ -548,6 +557,24 @@ def _cuts(cut, n):
     if cut is None:
         return np.zeros(n)
     return np.ascontiguousarray(np.broadcast_to(np.asarray(cut, dtype=float), (n,)))
+
+
+def _efimov_arrays(family, efimov, eta_min, walkers):
+    """(2 Phi - 2 s0 ln|a|, e^{-2 eta}, 1 - e^{-4 eta}) of one kernel family for every
+    walker: arrays of max(walkers, 1)."""
+    feature, eta_name, kappa = _feature(family)
+    a_f = getattr(efimov, feature)
+    eta = getattr(efimov, eta_name)
+    if a_f is None or eta is None:
+        efimov.require(feature, eta_name)
+    shape = (max(walkers, 1),)
+    a_f = np.broadcast_to(np.asarray(a_f, dtype=float), shape)
+    eta = np.broadcast_to(np.asarray(eta, dtype=float), shape)
+    if (eta < eta_min).any():
+        raise LossfitValueError(eta_name, f"{eta.min():g} is below eta_min={eta_min:g}, the smallest eta this "
+                                "fast rule resolves; build a plan with a smaller eta_min or use rtol=")
+    off = 2.0 * (S0 * np.log(kappa / a_f / math.sqrt(2.0)) - ARG_GAMMA_S0)
+    return off, np.exp(-2.0 * eta), -np.expm1(-4.0 * eta)
 
 
 def general_average(family, a, scale_q, efimov, scale, weights=(1.0, 1.0), parts=(0,), cut=None):
@@ -637,12 +664,15 @@ def _sum_parts(wt, wt_a, wt_d, terms, first, stop, a1, a2, a3, g):
 
 @numba.njit(cache=True)
 def _parts_evaluate(terms, wt, wt_a, wt_d, first, stop, offset, cos_t, sin_t, cos_off, sin_off, e2, g, out):
-    for p in range(first.size):
-        c = cos_t[p] * cos_off - sin_t[p] * sin_off
-        s = sin_t[p] * cos_off + cos_t[p] * sin_off
-        lo, hi = offset[p], offset[p + 1]
-        out[0, p], out[1, p], out[2, p], out[3, p] = _sum_parts(
-            wt[lo:hi], wt_a[lo:hi], wt_d[lo:hi], terms, first[p], stop[p], 2.0 * e2 * c, -2.0 * e2 * s, e2 * e2, g)
+    # out[w, part, point] for every walker w
+    for w in range(cos_off.size):
+        for p in range(first.size):
+            c = cos_t[p] * cos_off[w] - sin_t[p] * sin_off[w]
+            s = sin_t[p] * cos_off[w] + cos_t[p] * sin_off[w]
+            lo, hi = offset[p], offset[p + 1]
+            out[w, 0, p], out[w, 1, p], out[w, 2, p], out[w, 3, p] = _sum_parts(
+                wt[lo:hi], wt_a[lo:hi], wt_d[lo:hi], terms, first[p], stop[p], 2.0 * e2[w] * c, -2.0 * e2[w] * s,
+                e2[w] * e2[w], g[w])
 
 
 class ShallowPartsPlan:
@@ -651,7 +681,8 @@ class ShallowPartsPlan:
     energy cuts, all in one pass over the same nodes (the cuts only change weights).
 
     Built by :func:`shallow_parts_plan`; :meth:`evaluate` returns an array (4, n_points)
-    in the units of the builder's ``scale``.
+    in the units of the builder's ``scale`` ((walkers, 4, n_points) for an Efimov set of
+    walker arrays).
     """
 
     def __init__(self, a, q, scale, cut_a, cut_d, eta_min):
@@ -670,10 +701,17 @@ class ShallowPartsPlan:
         self.eta_min = eta_min
 
     def evaluate(self, efimov):
-        off, e2, g = _efimov_scalars(POSITIVE_A, efimov, self.eta_min)
-        out = np.empty((4, self.n_points))
-        _parts_evaluate(*self.head, math.cos(off), math.sin(off), e2, g, out)
-        return out
+        walkers = efimov.n_walkers
+        if walkers:
+            off, e2, g = _efimov_arrays(POSITIVE_A, efimov, self.eta_min, walkers)
+            cos_off, sin_off = np.cos(off), np.sin(off)
+        else:
+            # one Efimov set of floats: scalars by math (a one-walker batch)
+            off, e2, g = _efimov_scalars(POSITIVE_A, efimov, self.eta_min)
+            cos_off, sin_off, e2, g = (np.array([v]) for v in (math.cos(off), math.sin(off), e2, g))
+        out = np.empty((cos_off.size, 4, self.n_points))
+        _parts_evaluate(*self.head, cos_off, sin_off, e2, g, out)
+        return out if walkers else out[0]
 
 
 def shallow_parts_plan(a, q, scale, cut_a, cut_d, *, eta_min=ETA_MIN):
@@ -711,9 +749,31 @@ class ThermalPlan:
         ----------
         efimov : Efimov
             Needs the feature and eta of every side present (a_- and eta_- for a < 0, ...).
+            Its parameters may be arrays of W walkers: then one call evaluates them all.
         out : ndarray, optional
             Filled in place and returned.
+
+        Returns
+        -------
+        ndarray, shape (n_points,) or (W, n_points)
         """
+        walkers = efimov.n_walkers
+        if not walkers:
+            return self._evaluate_one(efimov, out)
+        values = np.zeros((walkers, self.n_points))
+        for grp in self.groups:
+            off, e2, g = _efimov_arrays(grp.family, efimov, self.eta_min, walkers)
+            target = values if grp.index is None else np.zeros((off.size, grp.buffer.size))
+            _plan_evaluate_many(*grp.head, np.cos(off), np.sin(off), e2, g, grp.w_a, grp.w_b, target)
+            if grp.index is not None:
+                values[:, grp.index] += target
+        if out is None:
+            return values
+        out[...] = values
+        return out
+
+    def _evaluate_one(self, efimov, out):
+        # one Efimov set of floats: scalars by math, no temporary arrays
         out = np.empty(self.n_points) if out is None else out
         out.fill(0.0)
         for grp in self.groups:

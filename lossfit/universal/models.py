@@ -225,10 +225,10 @@ class _RecomputingPlan:
         self.n_points = a.size
 
     def evaluate(self, efimov, out=None):
-        value = self.average(self.a, self.q, efimov, self.scale, channel=self.channel)
+        value = efimov.each_walker(lambda one: self.average(self.a, self.q, one, self.scale, channel=self.channel))
         if out is None:
             return value
-        out[:] = value
+        out[...] = value
         return out
 
 
@@ -273,6 +273,12 @@ class _ClosedFormPlan:
         self.n_points = a.size
 
     def evaluate(self, efimov, out=None):
+        if efimov.n_walkers:
+            value = efimov.each_walker(self.evaluate)
+            if out is None:
+                return value
+            out[...] = value
+            return out
         out = np.empty(self.n_points) if out is None else out
         _closed_form(self.coefficients(self.a, efimov), self.q, self.scale, self.weight, self.capped, out)
         return out
@@ -335,7 +341,10 @@ class _ReferencePart:
     """One part of the observed channel on the reference path (adaptive quadrature)."""
 
     def __init__(self, average):
-        self.evaluate = average
+        self.average = average
+
+    def evaluate(self, efimov):
+        return efimov.each_walker(self.average)
 
 
 class _ObservedPlan:
@@ -363,11 +372,15 @@ class _ObservedPlan:
         self.n_nodes = sum(getattr(p, "n_nodes", 0) for p in (self.deep, self.parts) if p is not None)
 
     def evaluate(self, efimov, out=None):
-        out = np.empty(self.n_points) if out is None else out
+        walkers = efimov.n_walkers
+        values = np.empty((walkers, self.n_points) if walkers else self.n_points)
         if self.deep is not None:
-            out[self.negative] = self.deep.evaluate(efimov)
+            values[..., self.negative] = self.deep.evaluate(efimov)
         if self.parts is not None:
-            out[self.positive] = self.parts_at(efimov, check=False)["observed"]
+            values[..., self.positive] = self.parts_at(efimov, check=False)["observed"]
+        if out is None:
+            return values
+        out[...] = values
         return out
 
     def parts_at(self, efimov, check=True):
@@ -375,7 +388,7 @@ class _ObservedPlan:
         the units of ``scale``, relaxation and breakup in hbar/(m k_T), the observed sum."""
         if check and self.positive.size != self.n_points:
             raise LossfitValueError("a", "the dimer kinetics needs a shallow dimer: every a must be > 0")
-        deep, shallow, atom_escapes, dimer_escapes = self.parts.evaluate(efimov)
+        deep, shallow, atom_escapes, dimer_escapes = np.moveaxis(self.parts.evaluate(efimov), -2, 0)
         relaxation = self.relaxation.evaluate(efimov.with_atom_dimer())
         breakup = breakup_from_formation(shallow / self.scale, self.q)
         return {"deep": deep, "shallow": shallow, "shallow_atom_escapes": atom_escapes,

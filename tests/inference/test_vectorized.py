@@ -1,0 +1,92 @@
+"""Whole walker sets per call: the vectorised log posterior and sampler."""
+
+import warnings
+
+import numpy as np
+import pytest
+
+import lossfit as lf
+from lossfit.inference.fitting import prepare
+from lossfit.inference.pools import SerialPool
+from lossfit.inference.posterior import WalkerBlocks
+from lossfit.inference.priors import LogNormal, LogUniform
+from lossfit.inference.sampling import sample
+
+CS = lf.species("133Cs")
+
+
+def _spectra():
+    # invented spectra on both sides and beta, generated with the exact model
+    ef = lf.Efimov.universal(-900.0, 0.08)
+    rng = np.random.default_rng(4)
+    out = []
+    for a, t, kind in ((-np.geomspace(3000.0, 500.0, 12), 40.0, "l3"), (np.geomspace(600.0, 3e4, 12), 80.0, "l3"),
+                       (np.geomspace(600.0, 5000.0, 8), 40.0, "beta")):
+        rate = lf.l3 if kind == "l3" else lf.beta
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            v = rate(a, t, species=CS, efimov=ef) * (1 + 0.1 * rng.standard_normal(a.size))
+        out.append(lf.LossSpectrum(a, t, v, 0.1 * np.abs(v), kind=kind))
+    return out
+
+
+@pytest.fixture(scope="module")
+def posterior():
+    space, likelihood, post = prepare(_spectra(), species=CS, free=["a_minus", "eta", "density_scale"],
+                                      tie="universal", priors={"a_minus": LogUniform(-3000.0, -450.0),
+                                                               "density_scale": LogNormal(1.0, 0.2)})
+    return post
+
+
+def _walkers(post, n, seed):
+    rng = np.random.default_rng(seed)
+    centre = post.space.theta([-900.0, 0.08, 1.0])
+    thetas = centre + 0.05 * rng.standard_normal((n, 3))
+    thetas[0, 0] = np.log(5000.0)            # one walker outside its prior
+    return thetas
+
+
+def test_walker_set_equals_walker_by_walker(posterior):
+    # one call for the set against one call per walker (the same bits), and against the
+    # likelihood's own single-walker path with floats (to 1e-12)
+    thetas = _walkers(posterior, 12, 1)
+    many = posterior.batch(thetas)
+    one_by_one = np.array([posterior(t) for t in thetas])
+    assert np.array_equal(many, one_by_one)
+    assert many[0] == -np.inf and np.isfinite(many[1:]).all()
+    for theta, value in zip(thetas[1:], many[1:]):
+        values = posterior.space.values(theta)
+        lp = posterior.space.log_prior(theta)
+        scalar = lp + posterior.likelihood.given_values(posterior.space.efimov(values), values)
+        assert value == pytest.approx(scalar, rel=1e-12, abs=1e-9)
+
+
+def test_vectorised_and_walker_map_sampling_give_the_same_chain(posterior):
+    p0 = _walkers(posterior, 12, 2)[1:11]
+    kw = dict(seed=9)
+    mapped = sample(posterior, p0, 60, **kw)
+    vectorised = sample(WalkerBlocks(posterior), p0, 60, vectorize=True, **kw)
+    blocked = sample(WalkerBlocks(posterior, SerialPool()), p0, 60, vectorize=True, **kw)
+    assert np.array_equal(mapped.chain, vectorised.chain)
+    assert np.array_equal(mapped.chain, blocked.chain)
+    assert np.array_equal(mapped.log_prob, blocked.log_prob)
+
+
+def test_blocks_split_the_set_across_pool_workers(posterior):
+    calls = []
+
+    class CountingPool(SerialPool):
+        size = 3
+
+        def map(self, func, iterable):
+            blocks = list(iterable)
+            calls.append([len(b) for b in blocks])
+            return [func(b) for b in blocks]
+
+    thetas = _walkers(posterior, 8, 3)
+    out = WalkerBlocks(posterior, CountingPool())(thetas)
+    assert calls == [[3, 3, 2]]
+    assert np.array_equal(out, posterior.batch(thetas))
+    with pytest.raises(lf.LossfitValueError) as info:
+        sample(WalkerBlocks(posterior), thetas, 10, vectorize=True, pool=SerialPool())
+    assert info.value.argument == "pool"
