@@ -2,4 +2,5 @@
 
 __all__ = ["__version__"]
 
+#: The version of lossfit (PEP 440).
 __version__ = "0.1.0"

@@ -344,7 +344,9 @@ def parse_job(text, path):
                study=study, binding_energies=binding)
 
 
+#: The analyses a ``[study]`` section may name as ``kind``.
 STUDY_KINDS = ("temperature", "model-comparison", "spectrum", "calibration")
+#: The fit variants ``kind = "model-comparison"`` may list in ``compare``.
 COMPARE_VARIANTS = ("free", "shared-eta", "universal")
 
 
