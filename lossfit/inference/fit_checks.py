@@ -77,8 +77,12 @@ def goodness_of_fit(likelihood, space, kept_theta, median_values, *, draws=200, 
     rng = np.random.default_rng(seed)
     idx = rng.choice(kept_theta.shape[0], size=min(draws, kept_theta.shape[0]), replace=False)
     exceed = 0
-    for i in idx:
-        mu = likelihood.predict_values(space, space.values(kept_theta[i]))
+    # every draw's prediction in one call where the likelihood takes walker sets
+    drawn = likelihood.predict_values(space, space.values(kept_theta[idx])) \
+        if getattr(likelihood, "vectorized", False) else None
+    for j, i in enumerate(idx):
+        mu = [m[j] for m in drawn] if drawn is not None else likelihood.predict_values(space,
+                                                                                       space.values(kept_theta[i]))
         t_obs = sum(float(np.sum(((v - m) / e) ** 2)) for v, m, e in zip(value, mu, error))
         t_rep = float(np.sum(rng.standard_normal(n) ** 2))
         exceed += t_rep >= t_obs

@@ -200,10 +200,15 @@ class SpectrumLikelihood:
         return spectrum.channel or "relaxation"
 
     def predict(self, efimov, density_scale=1.0):
-        """Model values at every data point as the data would report them: one array per spectrum."""
+        """Model values at every data point as the data would report them: one array per
+        spectrum, shape (n,), or (W, n) for an Efimov set of W walker arrays (then
+        ``density_scale`` may hold one value per walker)."""
         out = [None] * len(self.spectra)
+        scale = np.asarray(density_scale, dtype=float)
+        if efimov.n_walkers:
+            scale = np.broadcast_to(scale, (efimov.n_walkers,))[:, None]
         for b in self.blocks:
-            parts = np.split(b.predict(efimov) / density_scale ** b.density_power, np.cumsum(b.sizes)[:-1])
+            parts = np.split(b.predict(efimov) / scale ** b.density_power, np.cumsum(b.sizes)[:-1], axis=-1)
             for i, part in zip(b.members, parts):
                 out[i] = part
         return out

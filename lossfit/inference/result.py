@@ -342,8 +342,10 @@ class FitResult:
             spectra = self.likelihood.spectra
             value = np.concatenate([s.value for s in spectra])
             error = np.concatenate([s.error for s in spectra])
-            mu = np.array([np.concatenate(self.likelihood.predict_values(self.space, self.space.values(theta)))
-                           for theta in self._kept_theta])
+            # every kept sample's prediction, a few thousand walker sets per call
+            mu = np.concatenate([np.concatenate(self.likelihood.predict_values(self.space, self.space.values(chunk)),
+                                                axis=-1)
+                                 for chunk in np.array_split(self._kept_theta, -(-len(self._kept_theta) // 4096))])
             mu = mu.reshape(steps.size, self.chain.shape[1], value.size).transpose(1, 0, 2)
             z = (value - mu) / error
             rng = np.random.default_rng(seed)
