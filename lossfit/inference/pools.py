@@ -11,6 +11,7 @@ import multiprocessing
 import os
 import shutil
 import sys
+import time
 
 from ..errors import LossfitValueError
 
@@ -31,8 +32,15 @@ class SerialPool:
 class MPIPool:
     """Ranks > 0 evaluate tasks that rank 0 hands out; rank 0 works too.
 
-    The function is broadcast once (when it changes); each ``map`` broadcasts the
-    task list and gathers the results in order. Use as::
+    The function goes to the workers once (when it changes); each ``map`` sends every
+    worker its share of the tasks (one block of walkers each when the sampler runs
+    vectorised, :class:`lossfit.inference.posterior.WalkerBlocks`), works on its own
+    share and collects the results in order. Idle workers do not spin: they poll for the
+    next message with a growing sleep (10 us doubling up to 1 ms), so a rank waiting for
+    work costs no CPU (MPI's blocking receive busy-polls). mpi4py's own executor
+    (``mpi4py.futures.MPICommExecutor``) was not used: its root rank only hands out work,
+    so on 2 ranks one rank would compute (measured and discussed in docs/cluster.md).
+    Use as::
 
         pool = MPIPool()
         if not pool.is_master():
@@ -41,6 +49,9 @@ class MPIPool:
         ...sampler with pool=pool...
         pool.close()
     """
+
+    _TAG = 11
+    _BACKOFF = (1e-5, 1e-3)
 
     def __init__(self, comm=None):
         try:
@@ -55,35 +66,49 @@ class MPIPool:
     def is_master(self):
         return self.rank == 0
 
+    def _receive(self):
+        # a non-blocking receive polled with a growing sleep: idle ranks leave the CPU free
+        request = self.comm.irecv(source=0, tag=self._TAG)
+        pause = self._BACKOFF[0]
+        while True:
+            done, message = request.test()
+            if done:
+                return message
+            time.sleep(pause)
+            pause = min(2.0 * pause, self._BACKOFF[1])
+
     def wait(self):
         """Worker loop: serve map requests until the master closes the pool."""
         func = None
         while True:
-            kind, payload = self.comm.bcast(None, root=0)
+            kind, payload = self._receive()
             if kind == "stop":
                 return
             if kind == "func":
                 func = payload
                 continue
-            self.comm.gather([func(x) for x in payload[self.rank]], root=0)
+            self.comm.send([func(x) for x in payload], dest=0, tag=self._TAG)
 
     def map(self, func, iterable):
         items = list(iterable)
+        workers = range(1, self.size)
         if func is not self._func:
-            self.comm.bcast(("func", func), root=0)
+            for r in workers:
+                self.comm.send(("func", func), dest=r, tag=self._TAG)
             self._func = func
         chunks = [items[r::self.size] for r in range(self.size)]
-        self.comm.bcast(("map", chunks), root=0)
-        mine = [func(x) for x in chunks[0]]
-        gathered = self.comm.gather(mine, root=0)
+        for r in workers:
+            self.comm.send(("map", chunks[r]), dest=r, tag=self._TAG)
         out = [None] * len(items)
-        for r, results in enumerate(gathered):
-            out[r::self.size] = results
+        out[0::self.size] = [func(x) for x in chunks[0]]
+        for r in workers:
+            out[r::self.size] = self.comm.recv(source=r, tag=self._TAG)
         return out
 
     def close(self):
-        if self.is_master() and self.size > 1:
-            self.comm.bcast(("stop", None), root=0)
+        if self.is_master():
+            for r in range(1, self.size):
+                self.comm.send(("stop", None), dest=r, tag=self._TAG)
 
 
 def make_pool(kind, workers=None):
