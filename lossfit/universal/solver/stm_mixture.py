@@ -1,0 +1,622 @@
+"""Two identical bosons B and a third atom X: the momentum-space (STM) equations, J = 0.
+
+A generalisation of :mod:`lossfit.universal.solver.stm` (three identical bosons) to
+the B-B-X system with a resonant B-X scattering length a and an optional B-B zero-range
+interaction a_bb; every factor is derived in docs/stm-mixture.md.
+
+Units: hbar = 1, **2 mu = 1** with mu = m_B m_X/(m_B + m_X) the B-X reduced mass, and
+lengths in units of |a|.  The energy variable is eps = 2 mu E a^2/hbar^2, so the B-X dimer
+sits at eps = -1 and a trimer at 1/a = 0 at eps = -kappa*^2, i.e. E_T = -hbar^2
+kappa*^2/(2 mu) (the convention for kappa* here; for equal masses 2 mu = m and this is
+the identical-boson kappa* of docs/stm.md).  Rates are returned in units of m_B:
+K3 m_B/(hbar a^4) and beta m_B/(hbar a).
+
+Mass parameter: gamma = m_B/(m_B + m_X) = sin(phi) (Braaten & Hammer, Phys. Rep. 428, 259
+(2006), the angle phi of the B-B-X Efimov equation).
+
+Channels (Faddeev components): "BX" - spectator B, interacting B-X pair (two components,
+F(k_1) and F(k_2), equal by Bose symmetry); "BB" - spectator X, interacting B-B pair
+(present only when a_bb != 0).  With Z_c the amplitudes (X_c = g_c Z_c, docs/stm-mixture.md
+section 1),
+
+    Z_c(p) = z0_c(p) + sum_c' int_0^Lambda dq q^2 [K_cc'(p, q) + h rho_c rho_c'] g_c' Z_c'(q)/D_c'(q),
+
+    K_cc'(p, q) = (1/(C pq)) ln[(A p^2 + B q^2 + C pq - eps)/(A p^2 + B q^2 - C pq - eps)],
+    (A, B, C) = (1, 1, 2 gamma) for BX-BX, (2(1 - gamma), 1, 2(1 - gamma)) for BX-BB,
+    (1, 2(1 - gamma), 2(1 - gamma)) for BB-BX, no BB-BB term;
+    g_BX = 1/pi, g_BB = 4(1 - gamma)/pi,
+    D_c(q) = -1/a_c + sqrt(alpha_c q^2 - e_c eps),
+    alpha_BX = 1 - gamma^2, e_BX = 1;  alpha_BB = (1 + gamma)/(4(1 - gamma)), e_BB = 1/(2(1 - gamma)),
+    rho_BX = 1, rho_BB = 1/(4(1 - gamma)).
+
+The three-body force h (rank one, Bedaque, Hammer & van Kolck, PRL 82, 463 (1999)) is fixed
+as in :func:`lossfit.universal.solver.stm.three_body_force`: the 1/a = 0 equation (and
+1/a_bb = 0, the ratio a_bb/a being held fixed) must have a trimer at eps = -kappa*^2; the
+complex kappa* exp(i eta/s0) describes deep-dimer losses (Braaten & Hammer 2006).
+
+The quadrature grid is :func:`lossfit.universal.solver.stm.momentum_grid`; on-shell poles
+of 1/D_c are subtracted as in docs/stm.md section 2.
+"""
+
+__all__ = ["mass_parameter", "exchange_kernel", "mellin_transform", "efimov_exponent",
+           "efimov_exponent_closed_form", "MixtureSTM"]
+
+import copy
+import math
+
+import numpy as np
+from scipy.integrate import quad
+from scipy.optimize import brentq, minimize_scalar
+
+from .stm import momentum_grid
+
+# block coefficients (A, B, C) of K_cc' as functions of gamma (docs/stm-mixture.md section 1)
+_BLOCKS = {
+    (0, 0): lambda g: (1.0, 1.0, 2.0 * g),
+    (0, 1): lambda g: (2.0 * (1.0 - g), 1.0, 2.0 * (1.0 - g)),
+    (1, 0): lambda g: (1.0, 2.0 * (1.0 - g), 2.0 * (1.0 - g)),
+}
+
+
+def mass_parameter(mass_ratio):
+    """gamma = m_B/(m_B + m_X) = sin(phi) from the mass ratio m_B/m_X.
+
+    Parameters
+    ----------
+    mass_ratio : float
+        m_B/m_X > 0 (B the identical bosons).
+
+    Returns
+    -------
+    float
+    """
+    mass_ratio = float(mass_ratio)
+    if not mass_ratio > 0:
+        raise ValueError("mass_ratio m_B/m_X must be positive")
+    return mass_ratio / (1.0 + mass_ratio)
+
+
+def exchange_kernel(p, q, energy, a_coef, b_coef, c_coef):
+    """s-wave projected one-particle-exchange kernel of the B-B-X equations.
+
+    Parameters
+    ----------
+    p, q : array_like
+        Momenta; broadcast as an outer product p[:, None], q[None, :] (complex q allowed).
+    energy : complex
+        eps = 2 mu E (units 1/|a|^2 or kappa*^2).
+    a_coef, b_coef, c_coef : float
+        The coefficients (A, B, C) of the block (module docstring).
+
+    Returns
+    -------
+    ndarray
+        (1/(C pq)) ln[(A p^2 + B q^2 + C pq - eps)/(A p^2 + B q^2 - C pq - eps)], equal to
+        2/(A p^2 + B q^2 - eps) when pq = 0.
+    """
+    p = np.asarray(p)[:, None]
+    q = np.asarray(q)[None, :]
+    pq = c_coef * p * q
+    base = a_coef * p * p + b_coef * q * q - energy
+    safe = np.where(pq == 0.0, 1.0, pq)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        out = np.log1p(2.0 * pq / (base - pq)) / safe
+    return np.where(pq == 0.0, 2.0 / base, out)
+
+
+def mellin_transform(s0, gamma, block=(0, 0)):
+    """Mellin transform int_0^inf x^(i s0) K(1, x; 0) dx of one kernel block at E = 0.
+
+    The 1/a = 0, E = 0 equation is scale invariant; the power law Z/D ~ p^(-2 + i s0)
+    solves it when the Mellin transforms of the blocks satisfy the condition of
+    :func:`efimov_exponent` (docs/stm-mixture.md section 2).
+
+    Parameters
+    ----------
+    s0 : float
+        Imaginary part of the exponent.
+    gamma : float
+        m_B/(m_B + m_X).
+    block : tuple of int
+        (0, 0) BX-BX, (0, 1) BX-BB, (1, 0) BB-BX.
+
+    Returns
+    -------
+    complex
+    """
+    a_c, b_c, c_c = _BLOCKS[tuple(block)](gamma)
+
+    def kern(t):
+        x = math.exp(t)
+        return complex(exchange_kernel([1.0], [x], 0.0, a_c, b_c, c_c)[0, 0]) * x
+
+    re = quad(lambda t: (kern(t) * complex(math.cos(s0 * t), math.sin(s0 * t))).real,
+              -60.0, 60.0, limit=500, epsabs=1e-13, epsrel=1e-12)[0]
+    im = quad(lambda t: (kern(t) * complex(math.cos(s0 * t), math.sin(s0 * t))).imag,
+              -60.0, 60.0, limit=500, epsabs=1e-13, epsrel=1e-12)[0]
+    return complex(re, im)
+
+
+def _exponent_condition(s0, gamma, three_pairs):
+    g = gamma
+    mff = mellin_transform(s0, g, (0, 0)).real / math.pi
+    lhs = math.sqrt(1.0 - g * g) - mff
+    if not three_pairs:
+        return lhs
+    mfg = mellin_transform(s0, g, (0, 1))
+    g_bb = 4.0 * (1.0 - g) / math.pi
+    alpha_bb = (1.0 + g) / (4.0 * (1.0 - g))
+    # M_BB-BX(i s0) = M_BX-BB(-i s0) = conj(M_BX-BB(i s0)) (docs/stm-mixture.md section 2)
+    return lhs * math.sqrt(alpha_bb) - g_bb * abs(mfg) ** 2 / math.pi
+
+
+def efimov_exponent(mass_ratio, three_pairs=False, s_max=6.0):
+    """Efimov exponent s0 of the B-B-X system from the Mellin transform of the kernel.
+
+    Parameters
+    ----------
+    mass_ratio : float
+        m_B/m_X.
+    three_pairs : bool
+        False: two resonant pairs (B-X only, a_bb = 0); True: all three pairs resonant
+        (coupled BX and BB channels).
+    s_max : float
+        Upper end of the search.
+
+    Returns
+    -------
+    float
+        s0 (J = 0); lambda = exp(pi/s0) is the discrete scaling factor.
+    """
+    g = mass_parameter(mass_ratio)
+    grid = np.linspace(1e-3, s_max, 49)
+    vals = [_exponent_condition(s, g, three_pairs) for s in grid]
+    for i in range(len(grid) - 1):
+        if vals[i] * vals[i + 1] < 0:
+            return brentq(_exponent_condition, grid[i], grid[i + 1], args=(g, three_pairs),
+                          xtol=1e-13)
+    raise RuntimeError("no Efimov exponent found (no Efimov effect for this system?)")
+
+
+def efimov_exponent_closed_form(mass_ratio):
+    """s0 from s0 cosh(pi s0/2) sin(2 phi) = 2 sinh(phi s0), sin(phi) = m_B/(m_B + m_X)
+    (two resonant pairs; Braaten & Hammer, Phys. Rep. 428, 259 (2006)).
+
+    Returns
+    -------
+    float
+    """
+    phi = math.asin(mass_parameter(mass_ratio))
+
+    def f(s):
+        return s * math.cosh(math.pi * s / 2.0) * math.sin(2.0 * phi) - 2.0 * math.sinh(phi * s)
+
+    grid = np.linspace(1e-3, 8.0, 801)
+    vals = [f(s) for s in grid]
+    for i in range(len(grid) - 1):
+        if vals[i] * vals[i + 1] < 0:
+            return brentq(f, grid[i], grid[i + 1], xtol=1e-14)
+    raise RuntimeError("no root")
+
+
+class MixtureSTM:
+    """STM solver for two identical bosons B and a third atom X (J = 0).
+
+    Parameters
+    ----------
+    mass_ratio : float
+        m_B/m_X.
+    a_bb_ratio : float
+        a_bb/a, held fixed as a varies (0: no B-B interaction, a single channel).  With
+        a_bb_ratio != 0 the three-body parameter is defined at 1/a = 1/a_bb = 0.
+    cutoff : float
+        Lambda |a| (Lambda/kappa* for :meth:`trimer_branch`).
+    qmin, per_decade, order : float, int, int
+        Quadrature (:func:`lossfit.universal.solver.stm.momentum_grid`).
+    statistics : {'boson', 'fermion'}
+        'fermion': B identical fermions (exchange term with sign -1, no B-B s-wave
+        channel, no three-body force; J = 0 has no Efimov effect).
+    """
+
+    def __init__(self, mass_ratio, a_bb_ratio=0.0, cutoff=1e6, qmin=1e-6, per_decade=24,
+                 order=8, statistics="boson"):
+        self.mass_ratio = float(mass_ratio)
+        self.gamma = mass_parameter(mass_ratio)
+        self.a_bb_ratio = float(a_bb_ratio)
+        if statistics not in ("boson", "fermion"):
+            raise ValueError("statistics must be 'boson' or 'fermion'")
+        if statistics == "fermion" and self.a_bb_ratio != 0.0:
+            raise ValueError("identical fermions have no s-wave B-B interaction")
+        self.statistics = statistics
+        self.cutoff = float(cutoff)
+        self.grid = dict(qmin=qmin, per_decade=per_decade, order=order)
+        g = self.gamma
+        chans = [dict(g=1.0 / math.pi, alpha=1.0 - g * g, escale=1.0, ratio=1.0, rho=1.0,
+                      narr=2, nu=1.0 / (2.0 * (1.0 - g * g)), mu=0.5)]
+        if self.a_bb_ratio != 0.0:
+            chans.append(dict(g=4.0 * (1.0 - g) / math.pi, alpha=(1.0 + g) / (4.0 * (1.0 - g)),
+                              escale=1.0 / (2.0 * (1.0 - g)), ratio=self.a_bb_ratio,
+                              rho=1.0 / (4.0 * (1.0 - g)), narr=1, nu=1.0 / (1.0 + g),
+                              mu=1.0 / (4.0 * (1.0 - g))))
+        self.channels = chans
+        self.s0 = (efimov_exponent(mass_ratio, three_pairs=self.a_bb_ratio != 0.0)
+                   if statistics == "boson" else float("nan"))
+        #: K3 and beta: units of 2 mu -> units of m_B (m_B/(2 mu) = 1/(2(1 - gamma)))
+        self.to_mb = 1.0 / (2.0 * (1.0 - g))
+
+    # ------------------------------------------------------------------ helpers
+    @property
+    def scaling_factor(self):
+        """lambda = exp(pi/s0)."""
+        return math.exp(math.pi / self.s0)
+
+    def _sign(self, c, cp):
+        return -1.0 if (self.statistics == "fermion" and c == cp == 0) else 1.0
+
+    def _thresholds(self, inv_a):
+        """k_c^2 alpha_c = e_c eps + 1/a_c^2 vanishes at eps_c = -1/(e_c a_c^2)."""
+        out = []
+        for ch in self.channels:
+            ia = inv_a / ch["ratio"]
+            out.append(-ia * ia / ch["escale"] if ia > 0 else 0.0)
+        return out
+
+    def _parts(self, energy, inv_a, cutoff, poles=True):
+        """Nodes and weights g_c w q^2/D_c per channel (pole subtraction where open)."""
+        cut = self.cutoff if cutoff is None else cutoff
+        chinfo = []
+        edges = []
+        for ch in self.channels:
+            ia = inv_a / ch["ratio"]
+            k2 = None
+            if poles and ia > 0 and np.isreal(energy):
+                k2v = (ch["escale"] * float(np.real(energy)) + ia * ia) / ch["alpha"]
+                if k2v > 0:
+                    k2 = k2v
+                    edges.append(math.sqrt(k2v))
+            chinfo.append((ch, ia, k2))
+        q, w = momentum_grid(cut, edges=edges, **self.grid)
+        parts = []
+        for ch, ia, k2 in chinfo:
+            al, es, g = ch["alpha"], ch["escale"], ch["g"]
+            kap = np.sqrt(al * q * q - es * energy + 0j)
+            if k2 is None:
+                if ia > 0:
+                    dee = (al * q * q - (es * energy + ia * ia)) / (kap + ia)
+                else:
+                    dee = kap - ia
+                parts.append((q.astype(complex), g * w * q * q / dee, None))
+            else:
+                k0 = math.sqrt(k2)
+                r = (kap + ia) / al                                  # 1/D = r/(q^2 - k0^2)
+                c = g * w * q * q * r / (q * q - k2)
+                i0 = (math.log((cut + k0) / (cut - k0)) / (2.0 * k0) + 1j * math.pi / (2.0 * k0))
+                r0 = (np.sqrt(al * k2 - es * energy + 0j) + ia) / al
+                c0 = -g * k2 * r0 * (np.sum(w / (q * q - k2)) - i0)
+                parts.append((np.concatenate([q, [k0]]).astype(complex),
+                              np.concatenate([c, [c0]]), k0))
+        return parts
+
+    def _kernel(self, energy, h, nodes_p, nodes_q=None):
+        """V = K + h rho rho^T between the node lists (lists of arrays, one per channel)."""
+        nodes_q = nodes_p if nodes_q is None else nodes_q
+        rows = []
+        for c, pc in enumerate(nodes_p):
+            blocks = []
+            for cp, qc in enumerate(nodes_q):
+                rr = self.channels[c]["rho"] * self.channels[cp]["rho"]
+                if (c, cp) in _BLOCKS:
+                    kk = self._sign(c, cp) * exchange_kernel(
+                        np.real(pc), np.real(qc), energy, *_BLOCKS[(c, cp)](self.gamma))
+                else:
+                    kk = np.zeros((len(pc), len(qc)))
+                blocks.append(kk + h * rr)
+            rows.append(np.concatenate(blocks, axis=1))
+        return np.concatenate(rows, axis=0)
+
+    # ------------------------------------------------------------------ three-body force
+    def three_body_force(self, kappa_star, cutoff=None):
+        """h that puts a 1/a = 0 trimer at eps = -kappa*^2 (rank-one closed form).
+
+        Parameters
+        ----------
+        kappa_star : complex
+            kappa* (units of the momenta, 1/|a|); kappa* exp(i eta/s0) for deep dimers.
+        cutoff : float, optional
+            Lambda in the same units (default: the solver's).
+
+        Returns
+        -------
+        complex
+        """
+        if self.statistics == "fermion":
+            return 0.0
+        energy = -complex(kappa_star) ** 2
+        parts = self._parts(energy, 0.0, cutoff, poles=False)
+        nodes = [p[0] for p in parts]
+        cw = np.concatenate([p[1] for p in parts])
+        rho = np.concatenate([np.full(len(p[0]), ch["rho"]) for p, ch in zip(parts, self.channels)])
+        kmat = self._kernel(energy, 0.0, nodes) * cw[None, :]
+        x = np.linalg.solve(np.eye(len(cw)) - kmat, rho.astype(complex))
+        h = 1.0 / np.sum(rho * cw * x)
+        return complex(h) if np.iscomplexobj(kappa_star) or abs(h.imag) > 0 else float(h.real)
+
+    def _kappa(self, kappa_a, eta):
+        return kappa_a * np.exp(1j * eta / self.s0) if eta else kappa_a
+
+    # ------------------------------------------------------------------ inhomogeneous solve
+    def _solve(self, energy, h, inv_a, drive, cutoff=None):
+        """Solve for Z with the drive F_c' ⊃ coef (2 pi)^3 delta^3(p - k) for (c', k, coef).
+
+        Returns (parts, Z per channel, interp(c, p) -> Z_c(p), Omega_Z).
+        """
+        parts = self._parts(energy, inv_a, cutoff)
+        nodes = [p[0] for p in parts]
+        cw = np.concatenate([p[1] for p in parts])
+        rho = np.concatenate([np.full(len(p[0]), ch["rho"]) for p, ch in zip(parts, self.channels)])
+
+        def z0(pnodes):
+            out = 0.0
+            for cp, k, coef in drive:
+                qs = [np.array([k]) if i == cp else np.zeros(0) for i in range(len(self.channels))]
+                out = out + (-2.0 * math.pi ** 2 * coef) * self._kernel(energy, h, pnodes, qs)[:, 0]
+            return out
+
+        vmat = self._kernel(energy, h, nodes)
+        # the drive grows like 1/p^2 at small p (E = 0): solve the similarity-scaled system
+        # S (1 - V G) S^-1 (S Z) = S z0 with S = p^2/(1 + p^2), which keeps the small
+        # amplitudes at p ~ 1/a accurate (unscaled, they lose up to 18 digits to pivoting)
+        allq = np.real(np.concatenate(nodes))
+        sc = allq * allq / (1.0 + allq * allq)
+        mat = (np.eye(len(cw)) - vmat * cw[None, :]) * (sc[:, None] / sc[None, :])
+        zz = np.linalg.solve(mat, sc * z0(nodes).astype(complex)) / sc
+        splits = np.cumsum([len(n) for n in nodes])[:-1]
+        zs = np.split(zz, splits)
+        omega = (-2.0 * math.pi ** 2 * sum(coef * self.channels[cp]["rho"] for cp, _, coef in drive)
+                 + np.sum(rho * cw * zz))
+
+        def interp(c, p):
+            p = np.atleast_1d(np.asarray(p, dtype=float))
+            pn = [p if i == c else np.zeros(0) for i in range(len(self.channels))]
+            return z0(pn) + (self._kernel(energy, h, pn, nodes) * cw[None, :]) @ zz
+
+        return parts, zs, interp, omega
+
+    # ------------------------------------------------------------------ atom-dimer
+    def atom_dimer_length(self, kappa_a, eta=0.0, symmetric_drive=False):
+        """a_AD/a for B + (BX) at threshold (complex when eta > 0).
+
+        Parameters
+        ----------
+        kappa_a : float
+            kappa* a (a > 0).
+        eta : float
+            Deep-dimer parameter.
+        symmetric_drive : bool
+            Also drive the X + (BB) channel with the same amplitude (with a_bb = a and equal
+            masses: the fully symmetric incoming state of three identical bosons).
+
+        Returns
+        -------
+        complex
+        """
+        h = self.three_body_force(self._kappa(kappa_a, eta))
+        drive = [(0, 0.0, 1.0)]
+        if symmetric_drive:
+            drive.append((1, 0.0, 1.0))
+        _, _, interp, _ = self._solve(-1.0, h, 1.0, drive)
+        return complex(interp(0, [0.0])[0]) / (2.0 * math.pi ** 2 * (1.0 - self.gamma ** 2))
+
+    def atom_dimer_amplitude(self, kad, kappa_a, eta=0.0):
+        """On-shell B + (BX) s-wave amplitude below breakup and the deep-loss identity.
+
+        Parameters
+        ----------
+        kad : float
+            Atom-dimer wave number k a, eps = -1 + (1 - gamma^2) k^2 < 0.
+        kappa_a, eta : float
+            As in :meth:`atom_dimer_length`.
+
+        Returns
+        -------
+        dict
+            f (units a), S = 1 + 2 i k f, p_total = 1 - abs(S)^2 and p_deep =
+            k Im(h) abs(Omega_Z)^2/(pi^4 (1 - gamma^2)) (docs/stm-mixture.md section 3).
+        """
+        g2 = 1.0 - self.gamma ** 2
+        energy = -1.0 + g2 * kad * kad
+        h = self.three_body_force(self._kappa(kappa_a, eta))
+        parts, zs, _, omega = self._solve(energy, h, 1.0, [(0, kad, 1.0)])
+        f = -complex(zs[0][-1]) / (2.0 * math.pi ** 2 * g2)
+        s = 1.0 + 2j * kad * f
+        p_deep = kad * np.imag(h) * abs(omega) ** 2 / (math.pi ** 4 * g2)
+        return {"f": f, "S": s, "p_total": 1.0 - abs(s) ** 2, "p_deep": float(p_deep)}
+
+    def relaxation_beta(self, kappa_a, eta):
+        """Threshold relaxation B + (BX) -> deep, beta m_B/(hbar a) (dimers lost).
+
+        beta = -4 pi (1 + gamma) Im(a_AD/a) (docs/stm-mixture.md section 3).
+        """
+        return -4.0 * math.pi * (1.0 + self.gamma) * self.atom_dimer_length(kappa_a, eta).imag
+
+    # ------------------------------------------------------------------ recombination
+    def _recombination(self, kappa_a, eta, inv_a):
+        h = self.three_body_force(self._kappa(kappa_a, eta))
+        drive = []
+        for c, ch in enumerate(self.channels):
+            a_c = ch["ratio"] / inv_a
+            drive.append((c, 0.0, 2.0 * math.pi * a_c / ch["mu"]))
+        parts, zs, _, omega = self._solve(0.0, h, inv_a, drive)
+        return h, parts, zs, omega
+
+    def recombination(self, kappa_a, eta=0.0, negative_a=False):
+        """Threshold three-body recombination B + B + X, events convention, units m_B.
+
+        The event rate per unit volume is K3 n_B^2 n_X in a thermal (non-condensed) gas;
+        each event removes two B and one X (docs/stm-mixture.md section 3).
+
+        Parameters
+        ----------
+        kappa_a : float
+            kappa* |a|.
+        eta : float
+            Deep-dimer parameter.
+        negative_a : bool
+            a < 0 (only deep dimers).
+
+        Returns
+        -------
+        dict
+            deep, shallow_bx (into the shallow B-X dimer), shallow_bb (X + shallow B-B dimer,
+            a_bb > 0 only), total; each K3 m_B/(hbar a^4).
+        """
+        inv_a = -1.0 if negative_a else 1.0
+        h, parts, zs, omega = self._recombination(kappa_a, eta, inv_a)
+        deep = float(np.imag(h)) * abs(omega) ** 2 / (2.0 * math.pi ** 4)
+        shallow = []
+        for (nodes, _, k0), z, ch in zip(parts, zs, self.channels):
+            if k0 is None:
+                shallow.append(0.0)
+                continue
+            a_c = ch["ratio"] / inv_a
+            xk = ch["g"] * z[-1]
+            shallow.append(ch["narr"] * k0 * ch["nu"] * abs(xk) ** 2 / (2.0 * math.pi ** 2 * a_c))
+        out = {"deep": deep * self.to_mb, "shallow_bx": shallow[0] * self.to_mb,
+               "shallow_bb": (shallow[1] if len(shallow) > 1 else 0.0) * self.to_mb}
+        out["total"] = out["deep"] + out["shallow_bx"] + out["shallow_bb"]
+        return out
+
+    # ------------------------------------------------------------------ bound states
+    def _det(self, energy, inv_a, h, cutoff):
+        parts = self._parts(energy, inv_a, cutoff, poles=False)
+        nodes = [p[0] for p in parts]
+        cw = np.concatenate([p[1] for p in parts])
+        m = np.eye(len(cw)) - self._kernel(energy, h, nodes) * cw[None, :]
+        sign, logabs = np.linalg.slogdet(m.real if np.allclose(m.imag, 0.0) else m)
+        return float(np.real(sign)), float(logabs)
+
+    def _root_h(self, xi, h, cutoff, lnh_guess, width=0.15, at_threshold=False):
+        """ln H of the bound state at polar angle xi of the Efimov plane near lnh_guess
+        (at_threshold: the energy is set exactly to the lowest two-body threshold)."""
+        width_max = 0.45 * math.pi / self.s0
+
+        def point(lnh):
+            hh = math.exp(lnh)
+            inv_a = hh * math.cos(xi)
+            energy = min(self._thresholds(inv_a)) if at_threshold else -(hh * math.sin(xi)) ** 2
+            return energy, inv_a
+
+        def f(lnh, ref):
+            sg, la = self._det(*point(lnh), h, cutoff)
+            return sg * math.exp(max(-700.0, min(700.0, la - ref)))
+
+        ref = self._det(*point(lnh_guess), h, cutoff)[1]
+        wdt = width
+        while wdt <= width_max:
+            lo, hi = lnh_guess - wdt, lnh_guess + wdt
+            if f(lo, ref) * f(hi, ref) < 0:
+                return brentq(f, lo, hi, args=(ref,), xtol=1e-13)
+            wdt *= 1.6
+        raise RuntimeError(f"bound state lost at xi = {xi}")
+
+    def trimer_branch(self, xi_end, level=0, steps=24, cutoff=None):
+        """Follow the trimer whose 1/a = 0 binding is kappa* lambda^-level across the
+        Efimov plane (units kappa* = 1): 1/a = H cos(xi), binding wave number
+        sqrt(-eps) = H sin(xi), from xi = pi/2 to ``xi_end``.
+
+        Parameters
+        ----------
+        xi_end : float
+            pi for the three-atom threshold (a < 0), the atom-dimer threshold angle
+            atan(...) for a > 0.
+        level : int
+            0: the state with binding kappa* at 1/a = 0; 1: the next shallower one.
+        steps : int
+            Continuation steps.
+        cutoff : float, optional
+            Lambda/kappa* (default: the solver's cutoff).
+
+        Returns
+        -------
+        float
+            H(xi_end) (units kappa*).
+        """
+        cut = self.cutoff if cutoff is None else cutoff
+        h = self.three_body_force(1.0, cutoff=cut)
+        lnh = -level * math.pi / self.s0
+        lnh = self._root_h(0.5 * math.pi, h, cut, lnh, width=0.05)
+        xs = np.linspace(0.5 * math.pi, xi_end, steps + 1)
+        hist = [lnh]
+        thr = abs(xi_end - self.threshold_angle()) < 1e-12
+        for i, xi in enumerate(xs[1:]):
+            guess = hist[-1] if len(hist) < 2 else 2.0 * hist[-1] - hist[-2]
+            hist.append(self._root_h(xi, h, cut, guess, at_threshold=thr and i == steps - 1))
+        return math.exp(hist[-1])
+
+    def threshold_angle(self):
+        """Polar angle of the lowest two-body threshold at a > 0 in the Efimov plane
+        (pi/4 for the B-X dimer; the B-B dimer when a_bb > 0 binds more strongly)."""
+        tan = 1.0
+        if self.a_bb_ratio > 0:
+            tan = max(tan, math.sqrt(2.0 * (1.0 - self.gamma)) / self.a_bb_ratio)
+        return math.atan(tan)
+
+    def coarse(self, cutoff=1e4, per_decade=12):
+        """A copy of this solver on a coarse grid (branch tracking only)."""
+        c = copy.copy(self)
+        c.cutoff = float(cutoff)
+        c.grid = dict(self.grid, per_decade=per_decade)
+        return c
+
+    def _det_sign(self, lnk, energy, inv_a, ref):
+        h = self.three_body_force(math.exp(lnk))
+        sg, la = self._det(energy, inv_a, h, None)
+        return sg * math.exp(max(-700.0, min(700.0, la - ref)))
+
+    def kappa_a_minus(self, level=0, steps=24, rel_bracket=0.1):
+        """kappa* a_- (negative): the trimer of the branch reaches E = 0 at a < 0.
+
+        The branch is followed on a coarse grid (:meth:`trimer_branch`); the value is then
+        the root, within rel_bracket of the coarse one, of the a = -1, E = 0 bound-state
+        condition det(1 - V G) = 0 in kappa* on this solver's grid (cutoff Lambda |a|).
+        """
+        est = 1.0 / self.coarse().trimer_branch(math.pi, level, steps)
+        lo, hi = math.log(est * (1.0 - rel_bracket)), math.log(est * (1.0 + rel_bracket))
+        ref = self._det(0.0, -1.0, self.three_body_force(est), None)[1]
+        return -math.exp(brentq(self._det_sign, lo, hi, args=(0.0, -1.0, ref), xtol=1e-13))
+
+    def kappa_a_star(self, level=0, steps=16, rel_bracket=0.05):
+        """kappa* a*: the trimer of the branch meets the atom-dimer threshold (a > 0).
+
+        Coarse branch tracking, then the pole of a_AD (root of 1/Re a_AD in kappa* a) within
+        rel_bracket of the coarse value on this solver's grid.
+        """
+        xi = self.threshold_angle()
+        est = 1.0 / (self.coarse().trimer_branch(xi, level, steps) * math.cos(xi))
+
+        def inv(lk):
+            return 1.0 / self.atom_dimer_length(math.exp(lk)).real
+
+        lk = brentq(inv, math.log(est * (1.0 - rel_bracket)), math.log(est * (1.0 + rel_bracket)),
+                    xtol=1e-13)
+        return math.exp(lk)
+
+    def kappa_a_plus(self, kappa_a_star=None, npts=24):
+        """kappa* a_+: the zero of shallow B-X recombination (eta = 0) in (a*, lambda a*].
+
+        Returns
+        -------
+        float
+        """
+        ks = self.kappa_a_star() if kappa_a_star is None else kappa_a_star
+        lo = math.log(ks)
+        xs = lo + np.linspace(0.0, math.pi / self.s0, npts + 1)[1:]
+
+        def f(x):
+            return self.recombination(math.exp(x))["shallow_bx"]
+
+        vals = np.array([f(x) for x in xs])
+        i = int(np.argmin(vals))
+        i = min(max(i, 1), len(xs) - 2)
+        r = minimize_scalar(f, bracket=(xs[i - 1], xs[i], xs[i + 1]), tol=1e-10)
+        return math.exp(r.x)
