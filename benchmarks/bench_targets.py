@@ -32,7 +32,10 @@ from scipy.integrate import quad
 
 import lossfit as lf
 from lossfit.inference.curves_likelihood import CurvesLikelihood
+from lossfit.inference.fitting import prepare
 from lossfit.inference.likelihood import SpectrumLikelihood
+from lossfit.inference.posterior import WalkerBlocks
+from lossfit.inference.sampling import sample
 from lossfit.units import NK
 from lossfit.universal.models import get_model, scale_wavenumber_a0
 
@@ -78,6 +81,27 @@ def bench_likelihood():
     ref = SpectrumLikelihood(spectra, CS, "zero-range", rtol=1e-7)
     _row("likelihood, 60-point L3 spectrum, zero-range", _times(lambda: fast(ef), 9, 2000),
          _times(lambda: ref(ef), 5, 20), "reference path", "<= 20 us")
+
+
+def bench_walker_step():
+    # a whole sampler step per walker: the vectorised walker set (lf.fit's path) against
+    # emcee mapping the posterior walker by walker, same chain (identical by construction)
+    spectra, ef = _spectrum_60()
+    space, _, post = prepare(spectra, species=CS, free=["a_minus", "eta_minus"])
+    rng = np.random.default_rng(1)
+    p0 = space.theta([-920.0, 0.07]) + 1e-3 * rng.standard_normal((32, 2))
+    steps = 200
+
+    def run(vectorized):
+        if vectorized:
+            sample(WalkerBlocks(post), p0, steps, vectorize=True, seed=2)
+        else:
+            sample(post, p0, steps, seed=2)
+    f = _times(lambda: run(True), 5, 1)
+    b = _times(lambda: run(False), 5, 1)
+    per = 1.0 / (steps * 32)
+    _row("spectrum fit, 60 points, per walker step (vectorised)", (f[0] * per, f[1] * per),
+         (b[0] * per, b[1] * per), "walker-by-walker map", "<= 10 us")
 
 
 def bench_likelihood_positive():
@@ -231,6 +255,7 @@ def main(argv=None):
     warnings.simplefilter("ignore", lf.errors.ConvergenceWarning)
     bench_likelihood()
     bench_likelihood_positive()
+    bench_walker_step()
     bench_fixed_data()
     bench_public()
     bench_global()

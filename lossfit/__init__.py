@@ -12,7 +12,6 @@ from ._version import __version__
 from .constants import S0, SCALING_FACTOR
 from .efimov import Efimov
 from .errors import LossfitError, LossfitValueError
-from .heteronuclear import HeteronuclearSystem, heteronuclear  # noqa: F401 (eager: a lazy name is shadowed by the submodule)
 from .species import Species, known_species, register_species, species
 
 __all__ = ["__version__", "errors", "S0", "SCALING_FACTOR", "LossfitError", "LossfitValueError",
@@ -26,7 +25,7 @@ __all__ = ["__version__", "errors", "S0", "SCALING_FACTOR", "LossfitError", "Los
            "OverlappingResonances", "ScatteringLengthTable", "average_over_field_noise",
            "calibrate_from_binding_energies", "DecayCurve", "write_campaign", "read_campaign",
            "read_curves_csv", "fit_curve", "spectrum_from_curves", "load_result", "trimer_energies", "compare_models",
-           "temperature_study", "published_results"]
+           "temperature_study", "published_results", "heteronuclear", "HeteronuclearSystem"]
 
 # Everything beyond the foundations loads on first use: the rates (numba, ~0.4 s), data
 # files and h5py, decay curves and scipy.optimize, the inference layer with emcee
@@ -46,6 +45,7 @@ _LAZY.update({name: "lossfit.experiment.feshbach" for name in ("FeshbachResonanc
                                                     "ScatteringLengthTable", "average_over_field_noise",
                                                     "calibrate_from_binding_energies")})
 _LAZY["HarmonicTrap"] = "lossfit.experiment.trap"
+_LAZY.update({name: "lossfit.mixture" for name in ("heteronuclear", "HeteronuclearSystem")})
 _LAZY["load_result"] = "lossfit.batch.runner"
 _LAZY["trimer_energies"] = "lossfit.universal.spectrum"
 _LAZY["compare_models"] = "lossfit.inference.model_comparison"

@@ -29,6 +29,8 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
+from scipy.optimize import brentq
+from scipy.special import ive
 
 from .constants import ABAR_OVER_RVDW, ELECTRON_MASS, HBAR
 from .errors import LossfitValueError, check_finite, check_positive, is_real
@@ -91,7 +93,6 @@ def efimov_exponent(mass_ratio, *, resonant_pairs=2):
     if resonant_pairs not in (2, 3) or isinstance(resonant_pairs, bool):
         raise LossfitValueError("resonant_pairs", f"must be 2 (B-X only) or 3 (B-B too), got {resonant_pairs!r}")
     # scipy.optimize costs ~0.3 s of start-up; `import lossfit` loads this module (docs/architecture.md)
-    from scipy.optimize import brentq
 
     r = float(mass_ratio)
     phi = math.asin(r / (r + 1.0))                    # B-spectator to B-spectator
@@ -144,7 +145,6 @@ def three_body_energy_density(energy_nk, pair_temperature_nk, third_temperature_
         P(E) in 1/nK.
     """
     # scipy.special costs start-up time; `import lossfit` loads this module (docs/architecture.md)
-    from scipy.special import ive
 
     e = check_positive("energy_nk", energy_nk, allow_zero=True)
     t1 = check_positive("pair_temperature_nk", pair_temperature_nk)

@@ -7,7 +7,7 @@ import pytest
 
 from lossfit.errors import LossfitValueError
 from lossfit.experiment.mixture_trap import MixtureTrap
-from lossfit.heteronuclear import convert_k3, loss_rates
+from lossfit.mixture import convert_k3, loss_rates
 
 
 @pytest.mark.parametrize("to, atoms_per_event", [("events", 1), ("x-lost", 1), ("b-lost", 2), ("atoms-lost", 3)])

@@ -24,7 +24,7 @@ from scipy.special import gamma
 import lossfit as lf
 from lossfit import constants
 from lossfit.errors import LossfitValueError
-from lossfit.heteronuclear import HeteronuclearSystem, efimov_exponent, heteronuclear, known_pairs
+from lossfit.mixture import HeteronuclearSystem, efimov_exponent, heteronuclear, known_pairs
 from lossfit.species import Species, species
 
 # --------------------------------------------------------------------- s0 and lambda
@@ -193,7 +193,7 @@ def test_a_bb_is_kept_and_does_not_change_s0():
 
 
 def test_public_exports_survive_a_direct_submodule_import():
-    import lossfit.heteronuclear  # noqa: F401  (the submodule must not shadow the function)
+    import lossfit.mixture  # noqa: F401  (the submodule must not shadow the function)
 
     assert isinstance(lf.heteronuclear("87Rb", "41K"), lf.HeteronuclearSystem)
     assert lf.HeteronuclearSystem is HeteronuclearSystem

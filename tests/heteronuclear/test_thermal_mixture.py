@@ -16,7 +16,7 @@ from scipy import stats
 from scipy.integrate import quad
 
 from lossfit.errors import LossfitValueError
-from lossfit.heteronuclear import heteronuclear, mean_inverse_square_energy, three_body_energy_density
+from lossfit.mixture import heteronuclear, mean_inverse_square_energy, three_body_energy_density
 
 N_SAMPLES = 400_000
 

@@ -17,7 +17,7 @@ from scipy.integrate import quad
 from scipy.special import h2vp, hankel2, jv
 
 from lossfit.errors import LossfitValueError
-from lossfit.heteronuclear import heteronuclear
+from lossfit.mixture import heteronuclear
 from lossfit.rates import unitarity_bound
 from lossfit.species import Species, species
 
