@@ -33,3 +33,20 @@ def test_readme_python_blocks_run(tmp_path, monkeypatch):
     # the tour's invented spectrum comes from a_- = -900 a0: the posterior must hold it
     row = {r["name"]: r for r in result.summary()}["a_minus"]
     assert row["lo95"] <= -900.0 <= row["hi95"]
+
+
+def test_readme_reads_in_two_minutes():
+    with open(README, encoding="utf-8") as fh:
+        text = fh.read()
+    assert len(text.splitlines()) <= 120
+    assert len(text.split("\n\n")[1]) >= 300                      # the paragraph that states the job
+    for command in ('python -m pip install . && lossfit demo --out demo-out',
+                    'python -m pip install ".[test]" && python -m pytest -q -n 2', '-m "not slow"',
+                    "python -m sphinx -W -b html docs build/docs"):
+        assert command in text, command
+    assert sum(len(b.splitlines()) for b in _blocks()) <= 30      # the tour
+    # every link of the capability table points at a page of the guide that exists
+    links = re.findall(r"\]\((docs/[^)#]+)", text)
+    assert len(links) >= 10
+    root = os.path.dirname(README)
+    assert all(os.path.isfile(os.path.join(root, link)) for link in links), links
