@@ -116,8 +116,9 @@ from .trap import as_trap
 # --- parameter vector layout of the kernels ------------------------------------------
 _GAMMA, _GAMMA_D, _C3, _CAD, _L3, _BETA, _TH, _HEAT, _KIN, _METHOD = range(10)
 _NPAR = 10
-# state: free atoms, (trapped) dimers, temperature, atoms lost; the step-size control
-# watches the first three (L is fixed by the conservation of N + 2 N_D + L)
+# state: free atoms, (trapped) dimers, temperature and, for the explicit kinetics, atoms
+# lost; the step-size control watches the first three (L is fixed by the conservation of
+# N + 2 N_D + L; the effective-rate equations get it from that conservation afterwards)
 _DIM, _N_CONTROLLED = 4, 3
 _DOPRI, _ROSENBROCK, _AUTO = 0.0, 1.0, 2.0
 # "auto" integrates the explicit kinetics with Rosenbrock steps when the dimers' decay
@@ -240,7 +241,6 @@ def _rhs_atoms(y, p, l3k, l3c, bk, bc, out):
         r_ad = beta * p[_CAD] * n_a * n_d / (temp * math.sqrt(temp))  # relaxation events per s
     out[0] = -p[_GAMMA] * n_a - r3 - r_ad
     out[1] = -p[_GAMMA_D] * n_d - r_ad
-    out[3] = p[_GAMMA] * n_a + 2.0 * p[_GAMMA_D] * n_d + r3 + 3.0 * r_ad
     if p[_HEAT] != 0.0 and n_a + n_d > 0.0:
         out[2] = (r3 * (temp + p[_TH]) + 1.5 * r_ad * temp) / (3.0 * (n_a + n_d))
     else:
@@ -630,7 +630,8 @@ def _integrate_batch(t_all, t_off, y0s, ps, l3k, l3c, l3_koff, l3_coff, bk, bc, 
     """
     atol = np.empty(_DIM)
     for j in range(y0s.shape[0]):
-        y0 = y0s[j]
+        dim = _DIM if ps[j, _KIN] != 0.0 else _DIM - 1
+        y0 = y0s[j, :dim]
         atol[0] = atol_rel * max(y0[0], y0[1], 1.0)
         atol[1] = atol[0]
         atol[2] = atol_rel * y0[2]
@@ -638,7 +639,7 @@ def _integrate_batch(t_all, t_off, y0s, ps, l3k, l3c, l3_koff, l3_coff, bk, bc, 
         status[j] = _integrate(t_all[t_off[j]:t_off[j + 1]], y0, ps[j],
                                l3k[l3_koff[j]:l3_koff[j + 1]], l3c[:, l3_coff[j]:l3_coff[j + 1]],
                                bk[b_koff[j]:b_koff[j + 1]], bc[:, b_coff[j]:b_coff[j + 1]],
-                               rtol, atol, max_steps, out[t_off[j]:t_off[j + 1]])
+                               rtol, atol, max_steps, out[t_off[j]:t_off[j + 1], :dim])
 
 
 # --- rates as functions of temperature ---------------------------------------------------
@@ -715,22 +716,26 @@ def kinetics_columns(values):
 
     Parameters
     ----------
-    values : sequence of 6 arrays
+    values : array_like, shape (6, ...)
         deep, shallow, shallow_atom_escapes, shallow_dimer_escapes (cm^6/s), relaxation,
-        breakup (cm^3/s), in the order of :data:`KINETICS_FIELDS`, one shape.
+        breakup (cm^3/s), in the order of :data:`KINETICS_FIELDS`.
 
     Returns
     -------
-    ndarray, shape (6,) + that shape
+    ndarray, shape of ``values``
         ln deep, ln shallow, shallow_atom_escapes / shallow, shallow_dimer_escapes /
         shallow (in [0, 1]; 0 where shallow is 0), ln relaxation, ln breakup (coefficients
         below 1e-300 taken as 1e-300).
     """
-    deep, shallow, atom_out, dimer_out, relaxation, breakup = (np.asarray(v, dtype=float) for v in values)
-    safe = np.where(shallow > 0, shallow, 1.0)
-    fractions = [np.clip(np.where(shallow > 0, v / safe, 0.0), 0.0, 1.0) for v in (atom_out, dimer_out)]
-    logs = [np.log(np.maximum(v, 1e-300)) for v in (deep, shallow, relaxation, breakup)]
-    return np.stack([logs[0], logs[1], fractions[0], fractions[1], logs[2], logs[3]])
+    v = np.asarray(values, dtype=float)
+    if v.shape[:1] != (_N_KINETICS,):
+        raise LossfitValueError("values", f"needs the {_N_KINETICS} coefficients {KINETICS_FIELDS}, "
+                                f"got shape {v.shape}")
+    out = np.log(np.maximum(v, 1e-300))        # the escape rows are overwritten below
+    shallow = v[_K_SHALLOW]
+    safe = np.where(shallow > 0, shallow, np.inf)          # no shallow channel: fractions 0
+    np.clip(v[_K_ATOM_OUT:_K_DIMER_OUT + 1] / safe, 0.0, 1.0, out=out[_K_ATOM_OUT:_K_DIMER_OUT + 1])
+    return out
 
 
 class TabulatedKinetics(_SplineTable):
@@ -1133,10 +1138,10 @@ def simulate_decay(t, *, species, trap_hz, n0, t0_nK, l3=None, efimov=None, a=No
     p[_HEAT] = 1.0 if heating else 0.0
     p[_KIN] = 1.0 if explicit else 0.0
     p[_METHOD] = _method_code(method)
-    y0 = np.array([n_a, n_d, temp0, 0.0])
+    y0 = np.array([n_a, n_d, temp0, 0.0][:_DIM if explicit else _DIM - 1])
     scale = max(n_a, n_d, 1.0)
     atol = np.array([tol * 1e-6 * scale, tol * 1e-6 * scale, tol * 1e-6 * temp0, tol * 1e-6 * scale])
-    out = np.empty((times.size, _DIM))
+    out = np.empty((times.size, y0.size))
 
     # Heating never cools (T_h >= 0), so T(t) lies in [t0, T_max]; tables of callables
     # start narrow and grow until the temperature stays inside. The lower margin covers
@@ -1163,14 +1168,18 @@ def simulate_decay(t, *, species, trap_hz, n0, t0_nK, l3=None, efimov=None, a=No
                                 "extend the table")
     if status != _OK:
         raise LossfitValueError("t", _STATUS_TEXT[status])
-    return _solution(times, out, p[_C3], mixture or explicit, explicit and counts)
+    lost = out[:, 3] if explicit else _lost_by_conservation(out[:, 0], out[:, 1], n_a, n_d)
+    return _solution(times, out[:, 0], out[:, 1], out[:, 2], lost, p[_C3], mixture or explicit, explicit and counts)
 
 
-def _solution(times, out, c3, with_dimers, counts):
-    atoms, temperature, dimers = out[:, 0], out[:, 2], out[:, 1]
+def _lost_by_conservation(atoms, dimers, n0, n_dimers0):
+    return (n0 + 2.0 * n_dimers0) - atoms - 2.0 * dimers
+
+
+def _solution(times, atoms, dimers, temperature, lost, c3, with_dimers, counts):
     return DecaySolution(t=times, atoms=atoms, temperature=temperature,
                          dimers=dimers if with_dimers else None, mean_n2=c3 * atoms ** 2 / temperature ** 3,
-                         lost=out[:, 3], counted=atoms + 2.0 * dimers if counts else atoms)
+                         lost=lost, counted=atoms + 2.0 * dimers if counts else atoms)
 
 
 def _per_curve_scalars(name, value, m, *, allow_zero=True):
@@ -1370,8 +1379,11 @@ class DecayBatch:
                 raise LossfitValueError("beta", f"curve {j}: T(t) left the tabulated beta range")
             raise LossfitValueError("n0", f"curve {j}: {_STATUS_TEXT[int(status[j])]}")
         atoms, dimers = out[:, 0], out[:, 1]
-        counts = self._point_counts & np.repeat(kinetics, np.diff(self.offsets))
-        return BatchResult(atoms, out[:, 2], dimers, out[:, 3], np.where(counts, atoms + 2.0 * dimers, atoms))
+        point_kinetics = np.repeat(kinetics, np.diff(self.offsets))
+        start = np.repeat(self._y0[:, 0] + 2.0 * self._y0[:, 1], np.diff(self.offsets))
+        lost = np.where(point_kinetics, out[:, 3], start - atoms - 2.0 * dimers)
+        counted = np.where(self._point_counts & point_kinetics, atoms + 2.0 * dimers, atoms)
+        return BatchResult(atoms, out[:, 2], dimers, lost, counted)
 
     def curve_has_dimers(self, j):
         """True if curve ``j`` of the last call carried dimers (mixture or explicit kinetics)."""
@@ -1382,9 +1394,10 @@ class DecayBatch:
         sols = []
         for j in range(self.n_curves):
             sl = slice(self.offsets[j], self.offsets[j + 1])
-            out = np.column_stack([result.atoms[sl], result.dimers[sl], result.temperature[sl], result.lost[sl]])
             counts = bool(self._counts[j] and self._p[j, _KIN] != 0.0)
-            sols.append(_solution(self.times[j], out, self._p[j, _C3], self.curve_has_dimers(j), counts))
+            sols.append(_solution(self.times[j], result.atoms[sl].copy(), result.dimers[sl].copy(),
+                                  result.temperature[sl].copy(), result.lost[sl].copy(), self._p[j, _C3],
+                                  self.curve_has_dimers(j), counts))
         return sols
 
 

@@ -37,12 +37,27 @@ call from the same reference keeps log L a deterministic function of theta (a wa
 start from the previous call would make it depend on the walker's history and break
 detailed balance). Measured accuracy, cost and coverage: docs/global-fit.md.
 
-L3(T) and beta(T) at each curve's scattering length enter the rate equations only
-through a table of the theory on a small, fixed grid of true temperatures per curve
+Shallow dimers at a > 0. With a model that resolves the recombination channels (the
+zero-range model), an atom curve at a > 0 runs the explicit trapped-dimer kinetics of
+:mod:`lossfit.experiment.decay` (``dimers="explicit"``): free atoms, trapped shallow
+dimers and lost atoms from the six coefficients of
+:func:`lossfit.rates.dimer_kinetics_rates` at the curve's trap depth (``DecayCurve.trap_depth``;
+none given: 10 k_B T0 with T0 the curve's first measured temperature, recorded in
+:attr:`CurvesLikelihood.trap_depths`), the measured number being N + 2 N_D or N as the
+curve's ``counts_dimers`` says, and the dimers' one-body rate that of the atoms.
+Curves at a < 0, dimer curves and models without channels keep the effective L3 (or
+beta). Equations, assumptions, and where the quasi-static observed L3 differs:
+docs/global-fit.md.
+
+L3(T) and beta(T) (or the six kinetics coefficients) at each curve's scattering length
+enter the rate equations only through a table of the theory on a small, fixed grid of
+true temperatures per curve
 (``table_step`` in ln T, covering the curve's temperatures over the prior range of
 ``temperature_scale``); one thermal quadrature call evaluates all grid points of all
 curves, and a batched cubic spline in ln T (the interpolation of
-:class:`lossfit.experiment.decay.TabulatedRate`) feeds :class:`lossfit.experiment.decay.DecayBatch`. With
+:class:`lossfit.experiment.decay.TabulatedRate` and
+:class:`lossfit.experiment.decay.TabulatedKinetics`) feeds
+:class:`lossfit.experiment.decay.DecayBatch`. With
 field noise, the rate is averaged over sigma_B by Gauss-Hermite quadrature in B
 (:func:`lossfit.experiment.feshbach.average_over_field_noise` uses the same rule) -- averaging
 the rate rather than the curves, which is exact to first order in the loss.
@@ -59,12 +74,17 @@ from scipy.optimize import least_squares
 
 from ..data.curves import check_curves
 from ..data.spectra import LossSpectrum
+from ..dimer_kinetics import DEFAULT_DEPTH_OVER_T
 from ..errors import LossfitValueError
-from ..experiment.decay import DecayBatch, TabulatedRate
+from ..experiment.decay import KINETICS_FIELDS, DecayBatch, TabulatedKinetics, TabulatedRate, kinetics_columns
 from ..experiment.feshbach import resonance_scattering_length
 from ..experiment.trap import as_trap
+from ..rates import natural_unit
 from ..species import species as _lookup_species
-from ..universal.models import get_model
+from ..thermal import ATOM_DIMER, THREE_BODY
+from ..units import NK
+from ..universal.averages import ETA_MIN
+from ..universal.models import get_model, scale_wavenumber_a0
 from .campaign_space import RESONANCE_NAMES
 from .fit_checks import chi2_summary, poor_fit_message, temperature_plausibility
 from .likelihood import RateBlock
@@ -83,6 +103,78 @@ class _FastTable(TabulatedRate):
         self._coefs = coefs
         self.temperature_nK = temps
         self.values = values
+
+
+class _FastKinetics(TabulatedKinetics):
+    """A TabulatedKinetics built from precomputed spline coefficients (as :class:`_FastTable`)."""
+
+    def __init__(self, knots, coefs, temps):
+        self._knots = knots
+        self._coefs = coefs
+        self.temperature_nK = temps
+        self.values = None
+
+
+class _KineticsBlock:
+    """The six coefficients of the explicit dimer kinetics at fixed points (a > 0, T,
+    trap depth), prepared once as the zero-range model's observed-channel plan.
+
+    Parameters
+    ----------
+    a, temperature, depth : ndarray
+        Scattering lengths (a0), temperatures (nK) and atom trap depths U/k_B (nK), 1-D.
+    species : Species
+    model : EnergyModel
+        A model that resolves the channels.
+    rtol : float, optional
+        None: the fast averages; a number: the adaptive reference quadrature.
+    """
+
+    def __init__(self, a, temperature, depth, species, model, rtol=None):
+        self.a = np.asarray(a, dtype=float)
+        temperature = np.asarray(temperature, dtype=float)
+        self.k_s = scale_wavenumber_a0(temperature * NK, species.mass)               # 1/a0
+        self.unit = natural_unit(THREE_BODY, temperature, species.mass)             # cm^6/s
+        self.beta_unit = natural_unit(ATOM_DIMER, temperature, species.mass)        # cm^3/s
+        self.depth_over_t = np.asarray(depth, dtype=float) / temperature
+        self.model = model
+        self.rtol = rtol
+        self.eta_min = ETA_MIN
+
+    @property
+    def eta_min(self):
+        """Smallest eta the prepared averages resolve (setting it discards them)."""
+        return self._eta_min
+
+    @eta_min.setter
+    def eta_min(self, value):
+        self._eta_min = float(value)
+        self._plan = None
+
+    def __getstate__(self):
+        # the plan's arrays are rebuilt where the block is unpickled (pool workers)
+        return {k: v for k, v in self.__dict__.items() if k != "_plan"}
+
+    def __setstate__(self, state):
+        self.__dict__.update(state)
+        self._plan = None
+
+    def _plan_at(self, a):
+        return self.model.observed_plan(a, a * self.k_s, self.unit, self.depth_over_t, eta_min=self.eta_min,
+                                        rtol=self.rtol)
+
+    def predict(self, efimov, a=None):
+        """The six coefficients (order of :data:`lossfit.experiment.decay.KINETICS_FIELDS`;
+        cm^6/s, cm^3/s) at every point; ``a`` (a0) replaces the stored scattering
+        lengths (then the plan is rebuilt)."""
+        if a is None:
+            if self._plan is None:
+                self._plan = self._plan_at(self.a)
+            plan = self._plan
+        else:
+            plan = self._plan_at(np.asarray(a, dtype=float))
+        parts = plan.parts_at(efimov)
+        return [parts[n] * (self.beta_unit if n in ("relaxation", "breakup") else 1.0) for n in KINETICS_FIELDS]
 
 
 def _temperature_groups(temps, ratio=1.3):
@@ -166,7 +258,8 @@ class CurvesLikelihood:
         self.dimers = np.array([c.kind == "dimers" for c in self.curves])
         self.batch = DecayBatch([c.t for c in self.curves], species=self.species,
                                 traps_hz=[as_trap(c) for c in self.curves], heating=heating,
-                                recombination_heating_nK=recombination_heating_nK, rtol=_INTEGRATOR_RTOL)
+                                recombination_heating_nK=recombination_heating_nK, rtol=_INTEGRATOR_RTOL,
+                                counts_dimers=[c.counts_dimers for c in self.curves])
         self.offsets = self.batch.offsets
         self.recombination_heating = np.broadcast_to(np.asarray(recombination_heating_nK, dtype=float),
                                                      (m,)).copy()
@@ -177,6 +270,13 @@ class CurvesLikelihood:
             raise LossfitValueError("resonance", "some curves are given by field; pass resonance=")
         self.a_nominal = np.array([c.scattering_length(resonance) for c in self.curves])
         self.signs = np.sign(self.a_nominal)
+        # atom curves at a > 0 carry the trapped shallow dimers explicitly (module docstring)
+        self.explicit = (~self.dimers) & (self.a_nominal > 0) & bool(self.model.resolves_channels)
+        given = np.array([np.nan if c.trap_depth is None else c.trap_depth for c in self.curves])
+        self.depth = np.where(np.isnan(given), DEFAULT_DEPTH_OVER_T * np.array([c.initial_temperature
+                                                                              for c in self.curves]), given)
+        self.trap_depths = [_depth_record(given[j], self.depth[j]) if self.explicit[j] else "not used"
+                            for j in range(m)]
         self._setup_data()
         self._setup_tables(reference_fits, temperature_scale_range, table_step, field_noise,
                            field_noise_nodes)
@@ -261,18 +361,24 @@ class CurvesLikelihood:
         # one rows block per kind; rows ordered (curve, knot, node); noise nodes only matter
         # for curves given by field, but the layout is uniform for simplicity
         self.blocks = {}
-        for kind, sel in (("l3", ~self.dimers), ("beta", self.dimers)):
+        for kind, sel in (("l3", ~self.dimers & ~self.explicit), ("beta", self.dimers), ("kinetics", self.explicit)):
             idx = np.flatnonzero(sel)
             if idx.size == 0:
                 continue
             a = np.repeat(self.a_nominal[idx], n_knots * nh)
             temps = np.repeat(self.grid[idx].ravel(), nh)
-            block = RateBlock(kind, a, temps, self.species, self.model, rtol=self.rtol)
+            if kind == "kinetics":
+                depth = np.repeat(self.depth[idx], n_knots * nh)
+                block = _KineticsBlock(a, temps, depth, self.species, self.model, rtol=self.rtol)
+            else:
+                block = RateBlock(kind, a, temps, self.species, self.model, rtol=self.rtol)
             self.blocks[kind] = (idx, block)
         self._knots_all = np.log(self.t_lo)[:, None] + self.rel_knots[None, :]
         # not-a-knot cubic spline of ln rate in ln T (as TabulatedRate): coefficients of the
         # unit vectors, so that any table's coefficients are M @ values
         self._spline_matrix = CubicSpline(self.rel_knots, np.eye(n_knots)).c   # (4, n-1, n)
+        # the same as a (n, 4 (n-1)) matrix: values (rows) @ it = coefficients (power, interval)
+        self._spline_rows = np.ascontiguousarray(self._spline_matrix.reshape(-1, n_knots).T)
 
     def _coords_of_fit(self, f):
         x = np.zeros(self.k)
@@ -329,7 +435,8 @@ class CurvesLikelihood:
         return a
 
     def tables(self, efimov, values):
-        """Per-curve rate tables (cm^6/s or cm^3/s, on measured numbers) or None if invalid."""
+        """Per-curve rate tables (cm^6/s or cm^3/s, on measured numbers; TabulatedKinetics for
+        the curves with explicit dimers) or None if invalid."""
         a = self.scattering_lengths(values)
         if np.any(np.sign(a) != self.signs):
             return None            # a resonance shift moved a curve across the pole
@@ -337,6 +444,7 @@ class CurvesLikelihood:
         sigma_b = values.get("sigma_B", 0.0)
         nh = self.gh_x.size
         logv = np.empty((self.n_curves, self.n_knots))
+        kinetics = None
         for kind, (idx, block) in self.blocks.items():
             a_block = None
             if nh > 1 or a is not self.a_nominal:
@@ -351,33 +459,56 @@ class CurvesLikelihood:
                         return None
                     a_rows[fld] = a_nodes[:, None, :]
                 a_block = a_rows.ravel()
+            if kind == "kinetics":
+                kinetics = self._kinetics_coefficients(block.predict(efimov, a=a_block), idx.size, s_n)
+                if kinetics is None:
+                    return None
+                continue
             pred = block.predict(efimov, a=a_block).reshape(idx.size, self.n_knots, nh) @ self.gh_w
             if not np.all(np.isfinite(pred)) or np.any(pred <= 0):
                 return None
             power = 2.0 if kind == "l3" else 1.0
             logv[idx] = np.log(pred) - power * math.log(s_n)
         # spline coefficients are linear in the tabulated values: one matrix product
-        coefs = np.einsum("pin,mn->mpi", self._spline_matrix, logv)      # (m, 4, n_knots - 1)
-        return [_FastTable(self._knots_all[j], coefs[j], self.grid[j], None)
-                for j in range(self.n_curves)]
+        coefs = (logv @ self._spline_rows).reshape(self.n_curves, 4, -1)     # (m, 4, n_knots - 1)
+        out = [_FastTable(self._knots_all[j], coefs[j], self.grid[j], None) for j in range(self.n_curves)]
+        if kinetics is not None:
+            for i, j in enumerate(self.blocks["kinetics"][0]):
+                out[j] = _FastKinetics(self._knots_all[j], kinetics[i], self.grid[j])
+        return out
+
+    def _kinetics_coefficients(self, parts, n, s_n):
+        """Spline coefficients (n, 4, 6 (n_knots - 1)) of the kinetics tables of ``n`` curves
+        from the six coefficients on the (curve, knot, node) rows, or None if invalid.
+        On measured numbers the three-body parts act as L3 / s^2, beta as beta / s."""
+        avg = np.reshape(parts, (6, n, self.n_knots, self.gh_x.size)) @ self.gh_w        # (6, n, knots)
+        avg /= (s_n ** np.array([2.0, 2.0, 2.0, 2.0, 1.0, 1.0]))[:, None, None]
+        if not np.all(np.isfinite(avg)) or np.any(avg[1] <= 0):
+            return None
+        # the spline coefficients are linear in the tabulated columns: one product for all,
+        # reordered to (curve, power, column block, interval)
+        coefs = (kinetics_columns(avg).reshape(-1, self.n_knots) @ self._spline_rows).reshape(6, n, 4, -1)
+        return np.ascontiguousarray(coefs.transpose(1, 2, 0, 3)).reshape(n, 4, -1)
 
     def _solve(self, x, tables, s_t):
         n0 = np.exp(x[:, 0])
         t0_true = np.exp(x[:, 2]) / s_t
         gamma = np.maximum(x[:, 3], 0.0) / self.t_max
         d = self.dimers
+        # the one-body rate: of the dimers in a mixture, of atoms and trapped dimers alike
+        # with the explicit kinetics (the batch's default), of the atoms otherwise
         if not d.any():
             return self.batch(n0, t0_true, tables, gamma)
         atoms0 = np.where(d, np.exp(x[:, 1]), n0)
-        l3 = [_ZERO if d[j] else tab for j, tab in enumerate(tables)]
-        beta = [tab if d[j] else _ZERO for j, tab in enumerate(tables)]
-        return self.batch(atoms0, t0_true, l3 if (~d).any() else 0.0, np.where(d, 0.0, gamma),
-                          n_dimers0=np.where(d, n0, 0.0), beta=beta, gamma_dimer=np.where(d, gamma, 0.0))
+        l3 = [0.0 if d[j] else tab for j, tab in enumerate(tables)]
+        beta = [tab if d[j] else 0.0 for j, tab in enumerate(tables)]
+        return self.batch(atoms0, t0_true, l3, np.where(d, 0.0, gamma), n_dimers0=np.where(d, n0, 0.0),
+                          beta=beta, gamma_dimer=np.where(d | self.explicit, gamma, 0.0))
 
     def residuals(self, x, tables, s_t):
         """Normalised residuals of all curves for nuisance coordinates ``x`` (m, 4)."""
         res = self._solve(x, tables, s_t)
-        main = np.where(self._point_is_dimer, res.dimers, res.atoms) if self.dimers.any() else res.atoms
+        main = np.where(self._point_is_dimer, res.dimers, res.counted) if self.dimers.any() else res.counted
         parts = [(main - self.main) / self.main_err,
                  (s_t * res.temperature[self.t_mask] - self.t_data) / self.t_err,
                  (res.atoms[self.p_mask] - self.p_data) / self.p_err,
@@ -517,8 +648,9 @@ class CurvesLikelihood:
 
     def nuisances(self, efimov, values):
         """Per-curve nuisances at (efimov, values) after the chord steps: list of dicts
-        with ``n0``, ``t0_nK`` (measured scale), ``gamma`` (1/s), ``n_atoms0`` (dimers)
-        and ``table`` (the rate table on true temperatures, measured-number units)."""
+        with ``n0``, ``t0_nK`` (measured scale), ``gamma`` (1/s), ``n_atoms0`` (dimers),
+        ``table`` (the rate table on true temperatures, measured-number units; a
+        TabulatedKinetics for curves with explicit dimers) and ``counts_dimers``."""
         tables = self.tables(efimov, values)
         if tables is None:
             raise LossfitValueError("values", "zero likelihood at these parameters")
@@ -531,17 +663,15 @@ class CurvesLikelihood:
         for j in range(self.n_curves):
             d = {"n0": math.exp(x[j, 0]), "t0_nK": math.exp(x[j, 2]),
                  "gamma": max(x[j, 3], 0.0) / self.t_max[j], "table": tables[j],
-                 "temperature_scale": s_t}
+                 "temperature_scale": s_t, "counts_dimers": self.curves[j].counts_dimers}
             if self.dimers[j]:
                 d["n_atoms0"] = math.exp(x[j, 1])
             out.append(d)
         return out
 
 
-def _zero_table():
-    """A negligible constant rate for the other process of a curve (the batch needs a
-    table for every curve once any curve has one)."""
-    return TabulatedRate(np.geomspace(1e-6, 1e9, 6), np.full(6, 1e-300))
-
-
-_ZERO = _zero_table()
+def _depth_record(given, used):
+    """How a curve's trap depth entered the fit (nK)."""
+    if np.isnan(given):
+        return f"assumed {DEFAULT_DEPTH_OVER_T:g} k_B T0 = {used:.4g} nK (none given)"
+    return f"{used:.4g} nK"

@@ -16,6 +16,7 @@ import numpy as np
 from scipy.optimize import minimize
 
 from ..data.curves import check_curves
+from ..dimer_kinetics import DEFAULT_DEPTH_OVER_T
 from ..errors import LossfitValueError, ValidityWarning
 from ..experiment.feshbach import FeshbachResonance
 from ..species import species as _lookup_species
@@ -26,7 +27,7 @@ from .curves_likelihood import CurvesLikelihood
 from .parameters import default_priors
 from .posterior import Posterior, check_run_settings, coerce_priors, interactive, make_result, walker_ball
 from .priors import Normal
-from .sampling import open_backend, sample
+from .sampling import open_backend, sample, stop_record
 
 #: The global fit's posterior is the library's: its likelihood reads every nuisance
 #: from the values dict (:meth:`CurvesLikelihood.given_values`).
@@ -107,7 +108,7 @@ def fit_curves(curves, *, species, free, model=None, priors=None, resonance=None
                fixed=None, tie=None, walkers=32, steps=2000, burn=None, thin=1, seed=None, backend=None,
                pool=None, progress=None, heating=True, recombination_heating_nK=0.0, inner_steps=1,
                field_noise_nodes=7, rtol=None, initial=None, checkpoint_every=100, log_every=None,
-               metadata=None, density_sigma=None):
+               metadata=None, density_sigma=None, max_steps=None):
     """Global posterior of Efimov parameters from raw decay curves (module docstring).
 
     Parameters
@@ -137,8 +138,9 @@ def fit_curves(curves, *, species, free, model=None, priors=None, resonance=None
         Fixed Efimov parameters, and fixed systematics (e.g. ``{"sigma_B": 0.005}``).
     tie : {None, "universal"}
     walkers, steps, burn, thin, seed, backend, pool, progress, initial, checkpoint_every,
-    log_every, metadata
-        As in :func:`lossfit.fit`.
+    log_every, metadata, max_steps
+        As in :func:`lossfit.fit` (``steps="auto"`` samples until converged, at most
+        ``max_steps``).
     heating : bool
         Anti-evaporation and recombination heating in the rate equations.
     recombination_heating_nK : float or array
@@ -185,12 +187,24 @@ def fit_curves(curves, *, species, free, model=None, priors=None, resonance=None
     show = interactive() if progress is None else bool(progress)
     run = sample(posterior, p0, steps, backend=store, pool=pool, seed=int(rng.integers(2 ** 31)),
                  progress=show, log_every=log_every, checkpoint_every=checkpoint_every, names=space.names,
-                 metadata=metadata)
+                 metadata=metadata, max_steps=max_steps)
     settings = {"walkers": walkers, "steps": int(run.chain.shape[0]), "seed": seed, "model": mdl.name,
                 "free": ",".join(space.names), "tie": tie or "", "curves": likelihood.n_curves,
-                "inner_steps": inner_steps, "route": "global fit of decay curves"}
+                "inner_steps": inner_steps, "route": "global fit of decay curves",
+                "dimers": _dimer_record(likelihood), **stop_record(run)}
     return make_result(space, likelihood, run.chain, run.log_prob, run.acceptance, burn=burn, thin=thin,
                        settings=settings)
+
+
+def _dimer_record(likelihood):
+    """How the forward model treated shallow dimers (recorded in the result's settings)."""
+    n = int(likelihood.explicit.sum())
+    if n == 0:
+        return "no atom curve at a > 0 with a channel-resolving model: effective L3 only"
+    depths = [d for d, e in zip(likelihood.trap_depths, likelihood.explicit) if e]
+    assumed = sum(d.startswith("assumed") for d in depths)
+    return (f"explicit trapped-dimer kinetics for {n} atom curve(s) at a > 0; trap depth given for "
+            f"{n - assumed}, assumed {DEFAULT_DEPTH_OVER_T:g} k_B T0 for {assumed} (CurvesLikelihood.trap_depths)")
 
 
 def _find_centre(posterior, space, likelihood, rng, initial, draws=48):
