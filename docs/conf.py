@@ -156,7 +156,7 @@ def _entry(module, name, homes):
         directive = "autoclass" if inspect.isclass(obj) else "autofunction"
         return [f".. {directive}:: {full}", ""], doc
     doc = _attribute_doc(module, name)
-    lines = [f".. py:data:: {full}"]
+    lines = [f".. py:data:: {name}", f"   :module: {module.__name__}"]
     if isinstance(obj, (int, float, str)) and len(repr(obj)) < 60:
         lines.append(f"   :value: {obj!r}")
     body = doc.splitlines()
