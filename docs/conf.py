@@ -11,6 +11,7 @@ so it fails the build.
 import importlib
 import inspect
 import os
+import pkgutil
 import re
 import sys
 
@@ -209,7 +210,6 @@ _NAMES = {}           # simple name -> dotted paths of lossfit objects of that n
 
 def _index_names():
     """Every public module-level name and class member of the package, by simple name."""
-    import pkgutil
     for info in pkgutil.walk_packages(lossfit.__path__, "lossfit."):
         if ".solver" in info.name or info.name.endswith("__main__"):
             continue
