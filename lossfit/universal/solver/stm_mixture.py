@@ -104,6 +104,11 @@ def exchange_kernel(p, q, energy, a_coef, b_coef, c_coef):
     return np.where(pq == 0.0, 2.0 / base, out)
 
 
+def _kernel_at_one(x, a_c, b_c, c_c):
+    """K(1, x; 0) of one block (scalar form of :func:`exchange_kernel`)."""
+    return math.log1p(2.0 * c_c * x / (a_c + b_c * x * x - c_c * x)) / (c_c * x)
+
+
 def mellin_transform(s0, gamma, block=(0, 0)):
     """Mellin transform int_0^inf x^(i s0) K(1, x; 0) dx of one kernel block at E = 0.
 
@@ -128,7 +133,7 @@ def mellin_transform(s0, gamma, block=(0, 0)):
 
     def kern(t):
         x = math.exp(t)
-        return complex(exchange_kernel([1.0], [x], 0.0, a_c, b_c, c_c)[0, 0]) * x
+        return _kernel_at_one(x, a_c, b_c, c_c) * x
 
     re = quad(lambda t: (kern(t) * complex(math.cos(s0 * t), math.sin(s0 * t))).real,
               -60.0, 60.0, limit=500, epsabs=1e-13, epsrel=1e-12)[0]
@@ -137,9 +142,20 @@ def mellin_transform(s0, gamma, block=(0, 0)):
     return complex(re, im)
 
 
+def _mellin_real(s0, gamma):
+    """Re of :func:`mellin_transform` for the BX-BX block (real: K(1, x) = K(1, 1/x)/x^2)."""
+    a_c, b_c, c_c = _BLOCKS[(0, 0)](gamma)
+
+    def integrand(t):
+        x = math.exp(t)
+        return _kernel_at_one(x, a_c, b_c, c_c) * x * math.cos(s0 * t)
+
+    return quad(integrand, -60.0, 60.0, limit=500, epsabs=1e-13, epsrel=1e-12)[0]
+
+
 def _exponent_condition(s0, gamma, three_pairs):
     g = gamma
-    mff = mellin_transform(s0, g, (0, 0)).real / math.pi
+    mff = _mellin_real(s0, g) / math.pi
     lhs = math.sqrt(1.0 - g * g) - mff
     if not three_pairs:
         return lhs
@@ -169,7 +185,7 @@ def efimov_exponent(mass_ratio, three_pairs=False, s_max=6.0):
         s0 (J = 0); lambda = exp(pi/s0) is the discrete scaling factor.
     """
     g = mass_parameter(mass_ratio)
-    grid = np.linspace(1e-3, s_max, 49)
+    grid = np.linspace(1e-3, s_max, 25)
     vals = [_exponent_condition(s, g, three_pairs) for s in grid]
     for i in range(len(grid) - 1):
         if vals[i] * vals[i + 1] < 0:
@@ -602,7 +618,7 @@ class MixtureSTM:
         return math.exp(lk)
 
     def kappa_a_plus(self, kappa_a_star=None, npts=24):
-        """kappa* a_+: the zero of shallow B-X recombination (eta = 0) in (a*, lambda a*].
+        """kappa* a_+: the zero of shallow recombination (eta = 0) in (a*, lambda a*].
 
         Returns
         -------
@@ -613,10 +629,85 @@ class MixtureSTM:
         xs = lo + np.linspace(0.0, math.pi / self.s0, npts + 1)[1:]
 
         def f(x):
-            return self.recombination(math.exp(x))["shallow_bx"]
+            r = self.recombination(math.exp(x))
+            return r["shallow_bx"] + r["shallow_bb"]
 
         vals = np.array([f(x) for x in xs])
         i = int(np.argmin(vals))
         i = min(max(i, 1), len(xs) - 2)
         r = minimize_scalar(f, bracket=(xs[i - 1], xs[i], xs[i + 1]), tol=1e-10)
         return math.exp(r.x)
+
+    # ------------------------------------------------------------------ universal constants
+    def fit_atom_dimer(self, kappa_a_star=None, npoints=11, symmetric_drive=False):
+        """a_AD/a = A + B cot[s0 ln(a/a*)] over one period (eta = 0), and C_beta.
+
+        With eta > 0 the same form continued to theta + i eta gives the relaxation rate
+        beta = C_beta sinh(2 eta)/(sin^2 theta + sinh^2 eta) hbar a/m_B with
+        C_beta = 2 pi (1 + gamma) B (docs/stm-mixture.md section 3).
+
+        Returns
+        -------
+        dict
+            kappa_a_star, A, B, C_beta, max_residual (of the linear fit, units a).
+        """
+        ks = self.kappa_a_star() if kappa_a_star is None else kappa_a_star
+        th = np.linspace(0.05, math.pi - 0.05, npoints)
+        y = np.array([self.atom_dimer_length(ks * math.exp(t / self.s0), 0.0, symmetric_drive).real
+                      for t in th])
+        x = np.c_[np.ones_like(th), 1.0 / np.tan(th)]
+        (a_, b_), *_ = np.linalg.lstsq(x, y, rcond=None)
+        return {"kappa_a_star": ks, "A": float(a_), "B": float(b_),
+                "C_beta": 2.0 * math.pi * (1.0 + self.gamma) * float(b_),
+                "max_residual": float(np.abs(x @ [a_, b_] - y).max())}
+
+    def negative_a_coefficient(self, kappa_a_minus=None, eta=0.1, thetas=(0.0, 0.7, 1.9)):
+        """C_- in K3 = C_- sinh(2 eta)/(sin^2[s0 ln(a/a_-)] + sinh^2 eta) hbar a^4/m_B (a < 0).
+
+        Evaluated at s0 ln(a/a_-) = theta for each of ``thetas``; their spread is a check of
+        the form.
+
+        Returns
+        -------
+        dict
+            kappa_a_minus, C_minus (mean), spread (max relative deviation), values.
+        """
+        km = self.kappa_a_minus() if kappa_a_minus is None else kappa_a_minus
+        vals = []
+        for t in thetas:
+            k3 = self.recombination(abs(km) * math.exp(t / self.s0), eta, negative_a=True)["deep"]
+            vals.append(k3 * (math.sin(t) ** 2 + math.sinh(eta) ** 2) / math.sinh(2.0 * eta))
+        vals = np.array(vals)
+        c = float(np.mean(vals))
+        return {"kappa_a_minus": km, "C_minus": c, "spread": float(np.max(np.abs(vals / c - 1.0))),
+                "values": vals}
+
+    def positive_a_coefficients(self, kappa_a_plus=None, eta=0.1, thetas=(0.4, 1.2, 2.3)):
+        """Threshold recombination at a > 0 in the forms of docs/stm.md section 4:
+
+            shallow (eta = 0) = C_+ sin^2 theta/(sinh^2(pi s0) + cos^2 theta),
+            deep = C_deep sinh(2 eta)/(sinh^2(pi s0 + eta) + cos^2 theta),   theta = s0 ln(a/a_+),
+
+        (shallow: all shallow-dimer channels, units hbar a^4/m_B); C_+ and C_deep at each theta (their spread
+        checks the forms).
+
+        Returns
+        -------
+        dict
+            kappa_a_plus, C_plus, C_deep, shallow_max = C_+/sinh^2(pi s0), spreads.
+        """
+        kp = self.kappa_a_plus() if kappa_a_plus is None else kappa_a_plus
+        s0 = self.s0
+        cp, cd = [], []
+        for t in thetas:
+            k = kp * math.exp(t / s0)
+            r0 = self.recombination(k, 0.0)
+            sh = r0["shallow_bx"] + r0["shallow_bb"]
+            cp.append(sh * (math.sinh(math.pi * s0) ** 2 + math.cos(t) ** 2) / math.sin(t) ** 2)
+            dp = self.recombination(k, eta)["deep"]
+            cd.append(dp * (math.sinh(math.pi * s0 + eta) ** 2 + math.cos(t) ** 2) / math.sinh(2 * eta))
+        cp, cd = np.array(cp), np.array(cd)
+        return {"kappa_a_plus": kp, "C_plus": float(cp.mean()), "C_deep": float(cd.mean()),
+                "shallow_max": float(cp.mean()) / math.sinh(math.pi * s0) ** 2,
+                "spread_plus": float(np.max(np.abs(cp / cp.mean() - 1.0))),
+                "spread_deep": float(np.max(np.abs(cd / cd.mean() - 1.0)))}
