@@ -53,6 +53,11 @@ def _curve(**over):
     ({"kind": "dimers", "a": 800.0}, "partner_atoms"),
     ({"kind": "dimers", "a": 800.0, "partner_atoms": np.full(6, 1e5)}, "partner_atoms_err"),
     ({"partner_atoms": 1e5}, "partner_atoms"),                          # atoms curves have none
+    ({"trap_depth": -500.0}, "trap_depth"),
+    ({"trap_depth": 0.0}, "trap_depth"),
+    ({"trap_depth": [500.0, 600.0]}, "trap_depth"),
+    ({"counts_dimers": "no"}, "counts_dimers"),
+    ({"counts_dimers": None}, "counts_dimers"),
 ])
 def test_bad_input_names_the_argument(over, argument):
     with pytest.raises(LossfitValueError) as info:
@@ -88,7 +93,8 @@ def test_arrays_are_read_only_and_scalar_temperature_is_an_initial_value():
 def _campaign():
     res = FeshbachResonance(550.0, 10.0, 200.0, covariance=np.diag([1e-4, 4e-4, 9.0]))
     curves = [_curve(label="first"),
-              _curve(a=None, field=551.3, temperature=90.0, temperature_err=2.0, label="by field"),
+              _curve(a=None, field=551.3, temperature=90.0, temperature_err=2.0, label="by field",
+                     trap_depth=950.0, counts_dimers=False),
               _curve(a=None, field=548.0, kind="dimers", partner_atoms=np.full(6, 2e5),
                      partner_atoms_err=np.full(6, 4e3), trap_hz=(30.0, 35.0, 9.0))]
     return curves, res
@@ -109,12 +115,37 @@ def test_campaign_round_trip_is_exact(tmp_path):
         for name in ("t", "atoms", "atoms_err", "temperature", "temperature_err"):
             assert np.array_equal(getattr(a, name), getattr(b, name))
         assert (a.field, a.a, a.kind, a.label) == (b.field, b.a, b.kind, b.label)
+        assert (a.trap_depth, a.counts_dimers) == (b.trap_depth, b.counts_dimers)
         assert np.array_equal(a.trap_hz, b.trap_hz) and np.array_equal(a.dimer_trap_hz, b.dimer_trap_hz)
     assert np.array_equal(back.curves[2].partner_atoms, curves[2].partner_atoms)
     with h5py.File(path, "r") as h5:            # units are attributes
         assert h5["curves/000/t"].attrs["units"] == "s"
         assert h5["curves/001/field"].attrs["units"] == "G"
         assert h5["resonance/a_bg"].attrs["units"] == "a0"
+        assert h5["curves/001/trap_depth"].attrs["units"] == "nK"
+        assert h5.attrs["schema_version"] == 2
+    assert back.curves[1].trap_depth == 950.0 and not back.curves[1].counts_dimers
+    assert back.curves[0].trap_depth is None and back.curves[0].counts_dimers
+
+
+def test_version_1_campaigns_are_read_with_the_defaults(tmp_path):
+    # a file as version 1 wrote it: no trap depth, no counts_dimers attribute
+    curves, res = _campaign()
+    path = tmp_path / "v1.h5"
+    write_campaign(path, curves, resonance=res)
+    with h5py.File(path, "a") as h5:
+        h5.attrs["schema_version"] = 1
+        del h5["curves/001/trap_depth"]
+        for key in h5["curves"]:
+            del h5["curves"][key].attrs["counts_dimers"]
+    back = read_campaign(path)
+    assert all(c.trap_depth is None and c.counts_dimers for c in back.curves)
+    assert np.array_equal(back.curves[1].atoms, curves[1].atoms)
+    with h5py.File(path, "a") as h5:
+        h5["curves/000"].attrs["counts_dimers"] = 7
+    with pytest.raises(LossfitValueError, match="counts_dimers") as info:
+        read_campaign(path)
+    assert info.value.argument == "path"
 
 
 def test_campaign_write_refuses_to_overwrite(tmp_path):
@@ -184,6 +215,22 @@ def test_csv_import_groups_rows_into_curves(tmp_path):
     assert info.value.argument == "trap_hz"
 
 
+def test_csv_import_reads_trap_depth_and_counting_per_curve(tmp_path):
+    path = tmp_path / "depth.csv"
+    path.write_text("curve, t, atoms, atoms_err, temperature, temperature_err, a, trap_depth, counts_dimers\n"
+                    "A, 0.0, 100000, 2000, 100, 3, 1200, 1000, no\n"
+                    "A, 0.5, 80000, 2000, 104, 3, 1200, 1000, no\n"
+                    "B, 0.0, 90000, 1500, 200, 5, 1500, , \n"
+                    "B, 2.0, 70000, 1500, 205, 5, 1500, , \n")
+    a, b = read_curves_csv(path, trap_hz=TRAP)
+    assert (a.trap_depth, a.counts_dimers) == (1000.0, False)
+    assert (b.trap_depth, b.counts_dimers) == (None, True)
+    path.write_text("t, atoms, atoms_err, temperature, temperature_err, a, counts_dimers\n"
+                    "0.0, 100000, 2000, 100, 3, 1200, maybe\n")
+    with pytest.raises(LossfitValueError, match="counts_dimers"):
+        read_curves_csv(path, trap_hz=TRAP)
+
+
 def test_csv_errors_are_clear(tmp_path):
     bad = tmp_path / "bad.csv"
     bad.write_text("t, atoms, temperature, temperature_err, a\n0, 1e5, 100, 3, -900\n")
@@ -205,6 +252,23 @@ def test_invented_campaign_is_on_the_requested_side():
     assert len(curves) == 8
     a = np.array([c.scattering_length(res) for c in curves])
     assert np.all(a < 0) and a.min() == pytest.approx(-3500.0, rel=1e-9)
+
+
+def test_invented_campaign_with_atom_curves_on_both_sides():
+    curves, res, truth = invented_campaign(3, n_fields=2, positive_fields=3)
+    assert len(curves) == 10
+    positive = [c for c in curves if c.scattering_length(res) > 0]
+    assert len(positive) == 6 and all(c.kind == "atoms" for c in positive)
+    a = np.array([c.scattering_length(res) for c in positive])
+    assert a.min() == pytest.approx(400.0, rel=1e-9) and a.max() == pytest.approx(3000.0, rel=1e-9)
+    # each temperature's trap is 10 x its nominal temperature deep, recorded in the curve
+    assert sorted({c.trap_depth for c in positive}) == [800.0, 2500.0]
+    assert all(c.trap_depth is None for c in curves if c not in positive)
+    assert all(c.counts_dimers for c in curves)
+    assert truth["a_star"] > 0 and truth["eta_star"] == truth["eta_minus"]
+    for c in positive:
+        if c.scattering_length(res) > 1000.0:                 # (at 400 a0 the 8 s hold loses less)
+            assert c.atoms[-1] < 0.8 * c.atoms[0]
 
 
 def test_invented_campaign_with_atom_dimer_mixtures():
