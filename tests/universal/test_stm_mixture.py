@@ -18,7 +18,9 @@ from lossfit.universal.solver import stm
 from lossfit.universal.solver import stm_mixture as sm
 
 CUT = 1e4
-GRID = dict(per_decade=16)
+GRID = dict(per_decade=12, qmin=1e-5)
+# s0 = 1.98 turns the Efimov phase by 4.6 rad per decade of momentum: a finer grid
+GRID_CSLI = dict(per_decade=20, qmin=1e-5)
 
 
 def ratio(b, x):
@@ -33,7 +35,7 @@ def identical():
 
 @pytest.fixture(scope="module")
 def cs_li():
-    return sm.MixtureSTM(ratio("133Cs", "6Li"), cutoff=CUT, **GRID)
+    return sm.MixtureSTM(ratio("133Cs", "6Li"), cutoff=CUT, **GRID_CSLI)
 
 
 # --------------------------------------------------------------------------- s0

@@ -511,7 +511,7 @@ class MixtureSTM:
         sign, logabs = np.linalg.slogdet(m.real if np.allclose(m.imag, 0.0) else m)
         return float(np.real(sign)), float(logabs)
 
-    def _root_h(self, xi, h, cutoff, lnh_guess, width=0.15, at_threshold=False):
+    def _root_h(self, xi, h, cutoff, lnh_guess, width=0.15, at_threshold=False, xtol=1e-7):
         """ln H of the bound state at polar angle xi of the Efimov plane near lnh_guess
         (at_threshold: the energy is set exactly to the lowest two-body threshold)."""
         width_max = 0.45 * math.pi / self.s0
@@ -531,11 +531,11 @@ class MixtureSTM:
         while wdt <= width_max:
             lo, hi = lnh_guess - wdt, lnh_guess + wdt
             if f(lo, ref) * f(hi, ref) < 0:
-                return brentq(f, lo, hi, args=(ref,), xtol=1e-13)
+                return brentq(f, lo, hi, args=(ref,), xtol=xtol)
             wdt *= 1.6
         raise RuntimeError(f"bound state lost at xi = {xi}")
 
-    def trimer_branch(self, xi_end, level=0, steps=24, cutoff=None):
+    def trimer_branch(self, xi_end, level=0, steps=12, cutoff=None):
         """Follow the trimer whose 1/a = 0 binding is kappa* lambda^-level across the
         Efimov plane (units kappa* = 1): 1/a = H cos(xi), binding wave number
         sqrt(-eps) = H sin(xi), from xi = pi/2 to ``xi_end``.
@@ -577,11 +577,13 @@ class MixtureSTM:
             tan = max(tan, math.sqrt(2.0 * (1.0 - self.gamma)) / self.a_bb_ratio)
         return math.atan(tan)
 
-    def coarse(self, cutoff=1e4, per_decade=12):
-        """A copy of this solver on a coarse grid (branch tracking only)."""
+    def coarse(self, cutoff=1e4, per_decade=10, qmin=1e-4):
+        """A copy of this solver on a coarse grid (branch tracking only: its results are
+        used as brackets of 5-10 %, and move by < 1e-3 against the fine grid)."""
         c = copy.copy(self)
-        c.cutoff = float(cutoff)
-        c.grid = dict(self.grid, per_decade=per_decade)
+        c.cutoff = min(self.cutoff, float(cutoff))
+        c.grid = dict(self.grid, per_decade=min(self.grid["per_decade"], per_decade),
+                      qmin=max(self.grid["qmin"], qmin))
         return c
 
     def _det_sign(self, lnk, energy, inv_a, ref):
@@ -589,7 +591,7 @@ class MixtureSTM:
         sg, la = self._det(energy, inv_a, h, None)
         return sg * math.exp(max(-700.0, min(700.0, la - ref)))
 
-    def kappa_a_minus(self, level=0, steps=24, rel_bracket=0.1):
+    def kappa_a_minus(self, level=0, steps=12, rel_bracket=0.1):
         """kappa* a_- (negative): the trimer of the branch reaches E = 0 at a < 0.
 
         The branch is followed on a coarse grid (:meth:`trimer_branch`); the value is then
@@ -601,7 +603,7 @@ class MixtureSTM:
         ref = self._det(0.0, -1.0, self.three_body_force(est), None)[1]
         return -math.exp(brentq(self._det_sign, lo, hi, args=(0.0, -1.0, ref), xtol=1e-13))
 
-    def kappa_a_star(self, level=0, steps=16, rel_bracket=0.05):
+    def kappa_a_star(self, level=0, steps=10, rel_bracket=0.05):
         """kappa* a*: the trimer of the branch meets the atom-dimer threshold (a > 0).
 
         Coarse branch tracking, then the pole of a_AD (root of 1/Re a_AD in kappa* a) within
