@@ -1,0 +1,158 @@
+"""Tables of docs/stm-mixture.md: the B-B-X momentum-space solver against mass ratio.
+
+Run:  OMP_NUM_THREADS=1 python scripts/stm_mixture_study.py [SECTION ...] [--processes N]
+
+SECTION is any of ``s0``, ``identical``, ``systems``, ``scaling`` (default: all; about 25 min
+on two processes).  Prints Markdown tables.  Units: K3 (events, rate K3 n_B^2 n_X) in
+hbar a^4/m_B, beta in hbar a/m_B, kappa* defined by E_T = -hbar^2 kappa*^2/(2 mu) at 1/a = 0
+(docs/stm-mixture.md section 1).
+"""
+
+import math
+import os
+import sys
+
+os.environ.setdefault("OMP_NUM_THREADS", "1")
+
+from multiprocessing import Pool  # noqa: E402
+
+from lossfit.species import species  # noqa: E402
+from lossfit.universal.solver import stm_mixture as sm  # noqa: E402
+
+SYSTEMS = [("133Cs", "6Li"), ("133Cs", "7Li"), ("87Rb", "40K"), ("87Rb", "41K"), ("B", "B")]
+SETTINGS = [(1e6, 24), (1e7, 24), (1e6, 48)]
+
+
+def mass_ratio(b, x):
+    if b == x == "B":
+        return 1.0
+    return species(b).mass_u / species(x).mass_u
+
+
+def label(b, x):
+    return "equal masses (a_bb = 0)" if b == x == "B" else f"{b}-{b}-{x}"
+
+
+def universal_numbers(args):
+    """Every threshold number of one system on one grid."""
+    ratio, a_bb, cut, pd = args
+    s = sm.MixtureSTM(ratio, a_bb_ratio=a_bb, cutoff=cut, per_decade=pd)
+    sym = a_bb != 0.0
+    km = s.kappa_a_minus()
+    cm = s.negative_a_coefficient(km)
+    ks = s.kappa_a_star()
+    fit = s.fit_atom_dimer(ks, npoints=11, symmetric_drive=sym)
+    kp = s.kappa_a_plus(ks)
+    pa = s.positive_a_coefficients(kp)
+    return {"ratio": ratio, "cut": cut, "pd": pd, "s0": s.s0, "lam": s.scaling_factor,
+            "km": km, "cm": cm["C_minus"], "cm_spread": cm["spread"], "ks": ks, "A": fit["A"],
+            "B": fit["B"], "cbeta": fit["C_beta"], "fit_res": fit["max_residual"], "kp": kp,
+            "cplus": pa["C_plus"], "smax": pa["shallow_max"], "cdeep": pa["C_deep"],
+            "spread_plus": pa["spread_plus"], "spread_deep": pa["spread_deep"]}
+
+
+def scaling_numbers(args):
+    """a_-^(1)/a_-^(0) and the kappa* -> lambda kappa* invariance of C_-, a_AD."""
+    ratio, cut, pd = args
+    s = sm.MixtureSTM(ratio, cutoff=cut, per_decade=pd)
+    k0 = s.kappa_a_minus(level=0)
+    k1 = s.kappa_a_minus(level=1)
+    lam = s.scaling_factor
+    c0 = s.negative_a_coefficient(k0, thetas=(0.5,))["C_minus"]
+    c1 = s.negative_a_coefficient(k0 * lam, thetas=(0.5,))["C_minus"]
+    a0 = s.atom_dimer_length(0.3, 0.1)
+    a1 = s.atom_dimer_length(0.3 * lam, 0.1)
+    r0 = s.recombination(0.3, 0.1)["total"]
+    r1 = s.recombination(0.3 * lam, 0.1)["total"]
+    return {"ratio": ratio, "lam": lam, "k0": k0, "k1": k1, "c_rel": c1 / c0 - 1.0,
+            "aad_rel": abs(a1 - a0) / abs(a0), "k3_rel": r1 / r0 - 1.0}
+
+
+def section_s0():
+    print("\n## s0 from the kernel's Mellin transform\n")
+    print("| system | m_B/m_X | s0 (Mellin, kernel) | s0 (closed form, BH 2006) | lambda = e^(pi/s0) |")
+    print("|---|---|---|---|---|")
+    for b, x in SYSTEMS:
+        r = mass_ratio(b, x)
+        s = sm.efimov_exponent(r)
+        print(f"| {label(b, x)} | {r:.6f} | {s:.8f} | {sm.efimov_exponent_closed_form(r):.8f} |"
+              f" {math.exp(math.pi / s):.4f} |")
+    s = sm.efimov_exponent(1.0, three_pairs=True)
+    print(f"| equal masses, three resonant pairs | 1 | {s:.8f} | (Efimov: 1.00624) |"
+          f" {math.exp(math.pi / s):.4f} |")
+
+
+def _row(r, name):
+    return (f"| {name} | {r['cut']:.0e} | {r['pd']} | {r['km']:.7f} | {r['cm']:.3f} | "
+            f"{r['ks']:.8f} | {r['A']:.5f} | {r['B']:.5f} | {r['cbeta']:.5f} | {r['kp']:.7f} | "
+            f"{r['smax']:.5f} | {r['cplus']:.3f} | {r['cdeep']:.3f} |")
+
+
+HEADER = ("| system | Lambda a | nodes/decade | kappa* a_- | C_- | kappa* a* | A | B | C_beta |"
+          " kappa* a_+ | K3 shallow max | C_+ | C_deep |\n"
+          "|---|---|---|---|---|---|---|---|---|---|---|---|---|")
+
+
+def section_identical(pool):
+    print("\n## Equal masses, a_bb = a (three identical bosons) from the coupled equations\n")
+    print(HEADER)
+    jobs = [(1.0, 1.0, 1e5, 24), (1.0, 1.0, 1e6, 24), (1.0, 1.0, 1e6, 32)]
+    for r in pool.imap(universal_numbers, jobs):
+        print(_row(r, "identical"), flush=True)
+
+
+def section_systems(pool):
+    print("\n## Threshold numbers, a_bb = 0 (units m_B; events K3 n_B^2 n_X)\n")
+    print(HEADER)
+    jobs = [(mass_ratio(b, x), 0.0, c, p) for b, x in SYSTEMS for c, p in SETTINGS]
+    names = [label(b, x) for b, x in SYSTEMS for _ in SETTINGS]
+    results = list(pool.imap(universal_numbers, jobs))
+    for r, n in zip(results, names):
+        print(_row(r, n), flush=True)
+    print("\n| system | s0 | a*/abs(a_-) | a_+/abs(a_-) | a_+/a* | C_-/[(C_+/2) coth(pi s0)] |"
+          " C_deep/C_- | cot-fit residual | C_- spread | C_+ spread | C_deep spread |")
+    print("|---|---|---|---|---|---|---|---|---|---|---|")
+    for r, n in zip(results, names):
+        if (r["cut"], r["pd"]) != (1e7, 24):
+            continue
+        rel = r["cm"] / (0.5 * r["cplus"] / math.tanh(math.pi * r["s0"]))
+        print(f"| {n} | {r['s0']:.5f} | {r['ks'] / abs(r['km']):.6f} | {r['kp'] / abs(r['km']):.6f} |"
+              f" {r['kp'] / r['ks']:.6f} | {rel:.7f} | {r['cdeep'] / r['cm']:.7f} | {r['fit_res']:.1e} |"
+              f" {r['cm_spread']:.1e} | {r['spread_plus']:.1e} | {r['spread_deep']:.1e} |")
+
+
+def section_scaling(pool):
+    print("\n## Discrete scaling (Lambda a = 1e6, 24 nodes/decade)\n")
+    print("| system | lambda | kappa* a_-^(0) | kappa* a_-^(1) | ratio/lambda - 1 |"
+          " C_-(lambda kappa*)/C_-(kappa*) - 1 | a_AD rel. change | K3(a > 0) rel. change |")
+    print("|---|---|---|---|---|---|---|---|")
+    jobs = [(mass_ratio(b, x), 1e6, 24) for b, x in SYSTEMS[:4]]
+    for (b, x), r in zip(SYSTEMS, pool.imap(scaling_numbers, jobs)):
+        print(f"| {label(b, x)} | {r['lam']:.5f} | {r['k0']:.7f} | {r['k1']:.5f} |"
+              f" {r['k1'] / r['k0'] / r['lam'] - 1.0:.1e} | {r['c_rel']:.1e} | {r['aad_rel']:.1e} |"
+              f" {r['k3_rel']:.1e} |", flush=True)
+
+
+def main(argv):
+    nproc = 2
+    if "--processes" in argv:
+        i = argv.index("--processes")
+        nproc = int(argv[i + 1])
+        argv = argv[:i] + argv[i + 2:]
+    sections = argv or ["s0", "identical", "systems", "scaling"]
+    with Pool(nproc) as pool:
+        for name in sections:
+            if name == "s0":
+                section_s0()
+            elif name == "identical":
+                section_identical(pool)
+            elif name == "systems":
+                section_systems(pool)
+            elif name == "scaling":
+                section_scaling(pool)
+            else:
+                raise SystemExit(f"unknown section {name!r}")
+
+
+if __name__ == "__main__":
+    main(sys.argv[1:])
