@@ -577,9 +577,15 @@ class MixtureSTM:
             tan = max(tan, math.sqrt(2.0 * (1.0 - self.gamma)) / self.a_bb_ratio)
         return math.atan(tan)
 
-    def coarse(self, cutoff=1e4, per_decade=10, qmin=1e-4):
+    def coarse(self, cutoff=None, per_decade=10, qmin=1e-4):
         """A copy of this solver on a coarse grid (branch tracking only: its results are
-        used as brackets of 5-10 %, and move by < 1e-3 against the fine grid)."""
+        used as brackets of 5-10 %, and move by < 1e-3 against the fine grid).
+
+        The default cutoff, 1e3 max(lambda, 10) kappa*, follows the momentum scale of the
+        branch, which reaches 1/a* ~ lambda kappa* (0.44 lambda for equal masses, a_bb = 0).
+        """
+        if cutoff is None:
+            cutoff = 1e3 * max(self.scaling_factor, 10.0)
         c = copy.copy(self)
         c.cutoff = min(self.cutoff, float(cutoff))
         c.grid = dict(self.grid, per_decade=min(self.grid["per_decade"], per_decade),
