@@ -643,7 +643,7 @@ class MixtureSTM:
         vals = np.array([f(x) for x in xs])
         i = int(np.argmin(vals))
         i = min(max(i, 1), len(xs) - 2)
-        r = minimize_scalar(f, bracket=(xs[i - 1], xs[i], xs[i + 1]), tol=1e-10)
+        r = minimize_scalar(f, bracket=(xs[i - 1], xs[i], xs[i + 1]), tol=1e-9)
         return math.exp(r.x)
 
     # ------------------------------------------------------------------ universal constants
