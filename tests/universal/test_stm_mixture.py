@@ -5,6 +5,7 @@ Grids are modest (cutoff 1e3-1e4 |a|, 12-16 nodes per decade); the converged val
 produced by scripts/stm_mixture_study.py.
 """
 
+import cmath
 import math
 import os
 
@@ -194,3 +195,18 @@ def test_positive_a_forms(cs_li):
     out = cs_li.positive_a_coefficients(kp, eta=0.1)
     assert out["spread_plus"] < 2e-3
     assert out["spread_deep"] < 2e-3
+
+
+def test_eta_continuation(cs_li):
+    # deep dimers as kappa* -> kappa* e^{i eta/s0}: a_AD/a = A + B cot[s0 ln(a/a*) + i eta] with
+    # A, B from eta = 0 (Braaten & Hammer 2006), hence beta = C_beta sinh 2eta/(sin^2 theta +
+    # sinh^2 eta) with C_beta = 2 pi (1 + gamma) B (docs/stm-mixture.md section 3)
+    ks = cs_li.kappa_a_star()
+    fit = cs_li.fit_atom_dimer(ks, npoints=7)
+    eta = 0.1
+    for th in (0.7, 2.0):
+        ka = ks * math.exp(th / cs_li.s0)
+        expected = fit["A"] + fit["B"] / cmath.tan(complex(th, eta))
+        assert abs(cs_li.atom_dimer_length(ka, eta) - expected) < 1e-3 * abs(expected)
+        beta = fit["C_beta"] * math.sinh(2 * eta) / (math.sin(th) ** 2 + math.sinh(eta) ** 2)
+        assert cs_li.relaxation_beta(ka, eta) == pytest.approx(beta, rel=1e-3)
