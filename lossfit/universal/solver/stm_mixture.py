@@ -232,10 +232,14 @@ class MixtureSTM:
     statistics : {'boson', 'fermion'}
         'fermion': B identical fermions (exchange term with sign -1, no B-B s-wave
         channel, no three-body force; J = 0 has no Efimov effect).
+    rho_bb : float, optional
+        Weight of the B-B channel in the rank-one three-body force (default
+        1/(4(1 - gamma)), docs/stm-mixture.md section 1); universal results do not depend on
+        it as Lambda -> infinity.
     """
 
     def __init__(self, mass_ratio, a_bb_ratio=0.0, cutoff=1e6, qmin=1e-6, per_decade=24,
-                 order=8, statistics="boson"):
+                 order=8, statistics="boson", rho_bb=None):
         self.mass_ratio = float(mass_ratio)
         self.gamma = mass_parameter(mass_ratio)
         self.a_bb_ratio = float(a_bb_ratio)
@@ -252,7 +256,8 @@ class MixtureSTM:
         if self.a_bb_ratio != 0.0:
             chans.append(dict(g=4.0 * (1.0 - g) / math.pi, alpha=(1.0 + g) / (4.0 * (1.0 - g)),
                               escale=1.0 / (2.0 * (1.0 - g)), ratio=self.a_bb_ratio,
-                              rho=1.0 / (4.0 * (1.0 - g)), narr=1, nu=1.0 / (1.0 + g),
+                              rho=1.0 / (4.0 * (1.0 - g)) if rho_bb is None else float(rho_bb),
+                              narr=1, nu=1.0 / (1.0 + g),
                               mu=1.0 / (4.0 * (1.0 - g))))
         self.channels = chans
         self.s0 = (efimov_exponent(mass_ratio, three_pairs=self.a_bb_ratio != 0.0)
@@ -592,28 +597,55 @@ class MixtureSTM:
                       qmin=max(self.grid["qmin"], qmin))
         return c
 
-    def _det_sign(self, lnk, energy, inv_a, ref):
-        h = self.three_body_force(math.exp(lnk))
-        sg, la = self._det(energy, inv_a, h, None)
-        return sg * math.exp(max(-700.0, min(700.0, la - ref)))
+    def bound_state_force(self, energy, inv_a):
+        """h for which the discretised equation at (eps, 1/a) has a bound state at eps
+        (rank-one closed form, as :meth:`three_body_force`; eps at or below the lowest
+        two-body threshold)."""
+        parts = self._parts(energy, inv_a, None, poles=False)
+        nodes = [p[0] for p in parts]
+        cw = np.concatenate([p[1] for p in parts])
+        rho = np.concatenate([np.full(len(p[0]), ch["rho"]) for p, ch in zip(parts, self.channels)])
+        kmat = self._kernel(energy, 0.0, nodes) * cw[None, :]
+        x = np.linalg.solve(np.eye(len(cw)) - kmat, rho.astype(complex))
+        return float(np.real(1.0 / np.sum(rho * cw * x)))
 
-    def kappa_a_minus(self, level=0, steps=12, rel_bracket=0.1):
+    @staticmethod
+    def _bracketed_root(g, est, rel, npts=21):
+        """Root of g(ln k) nearest to ln(est) within a factor 1 +- rel: sign changes on a
+        grid, refined by brentq, poles (large abs(g) at the sign change) rejected."""
+        xs = np.linspace(math.log(est * (1.0 - rel)), math.log(est * (1.0 + rel)), npts)
+        vals = np.array([g(x) for x in xs])
+        scale = np.abs(vals).max()
+        roots = []
+        for i in range(npts - 1):
+            if vals[i] * vals[i + 1] < 0:
+                r = brentq(g, xs[i], xs[i + 1], xtol=1e-14)
+                if abs(g(r)) < 1e-6 * scale:
+                    roots.append(r)
+        if not roots:
+            raise RuntimeError("no root near the tracked estimate")
+        return math.exp(min(roots, key=lambda r: abs(r - math.log(est))))
+
+    def kappa_a_minus(self, level=0, steps=12, rel_bracket=0.15):
         """kappa* a_- (negative): the trimer of the branch reaches E = 0 at a < 0.
 
         The branch is followed on a coarse grid (:meth:`trimer_branch`); the value is then
-        the root, within rel_bracket of the coarse one, of the a = -1, E = 0 bound-state
-        condition det(1 - V G) = 0 in kappa* on this solver's grid (cutoff Lambda |a|).
+        the root nearest to it, within rel_bracket, of h(kappa*) = h_0 on this solver's grid
+        (cutoff Lambda |a|), h_0 the force that puts a bound state at a = -1, E = 0.
         """
         est = 1.0 / self.coarse().trimer_branch(math.pi, level, steps)
-        lo, hi = math.log(est * (1.0 - rel_bracket)), math.log(est * (1.0 + rel_bracket))
-        ref = self._det(0.0, -1.0, self.three_body_force(est), None)[1]
-        return -math.exp(brentq(self._det_sign, lo, hi, args=(0.0, -1.0, ref), xtol=1e-13))
+        h0 = self.bound_state_force(0.0, -1.0)
+
+        def g(lk):
+            return float(np.real(self.three_body_force(math.exp(lk)))) - h0
+
+        return -self._bracketed_root(g, est, rel_bracket)
 
     def kappa_a_star(self, level=0, steps=10, rel_bracket=0.05):
         """kappa* a*: the trimer of the branch meets the atom-dimer threshold (a > 0).
 
-        Coarse branch tracking, then the pole of a_AD (root of 1/Re a_AD in kappa* a) within
-        rel_bracket of the coarse value on this solver's grid.
+        Coarse branch tracking, then the pole of a_AD (the root of 1/Re a_AD in kappa* a)
+        nearest to the coarse value on this solver's grid.
         """
         xi = self.threshold_angle()
         est = 1.0 / (self.coarse().trimer_branch(xi, level, steps) * math.cos(xi))
@@ -621,9 +653,7 @@ class MixtureSTM:
         def inv(lk):
             return 1.0 / self.atom_dimer_length(math.exp(lk)).real
 
-        lk = brentq(inv, math.log(est * (1.0 - rel_bracket)), math.log(est * (1.0 + rel_bracket)),
-                    xtol=1e-13)
-        return math.exp(lk)
+        return self._bracketed_root(inv, est, rel_bracket)
 
     def kappa_a_plus(self, kappa_a_star=None, npts=24):
         """kappa* a_+: the zero of shallow recombination (eta = 0) in (a*, lambda a*].
