@@ -2,8 +2,8 @@
 
 Run:  OMP_NUM_THREADS=1 python scripts/stm_mixture_study.py [SECTION ...] [--processes N]
 
-SECTION is any of ``s0``, ``identical``, ``systems``, ``scaling`` (default: all; about 25 min
-on two processes).  Prints Markdown tables.  Units: K3 (events, rate K3 n_B^2 n_X) in
+SECTION is any of ``s0``, ``identical``, ``systems``, ``scaling``, ``abb`` (default: all;
+about 25 min on two processes).  Prints Markdown tables.  Units: K3 (events, rate K3 n_B^2 n_X) in
 hbar a^4/m_B, beta in hbar a/m_B, kappa* defined by E_T = -hbar^2 kappa*^2/(2 mu) at 1/a = 0
 (docs/stm-mixture.md section 1).
 """
@@ -66,6 +66,32 @@ def scaling_numbers(args):
     r1 = s.recombination(0.3 * lam, 0.1)["total"]
     return {"ratio": ratio, "lam": lam, "k0": k0, "k1": k1, "c_rel": c1 / c0 - 1.0,
             "aad_rel": abs(a1 - a0) / abs(a0), "k3_rel": r1 / r0 - 1.0}
+
+
+def abb_numbers(args):
+    """a < 0 with a_bb/a held fixed: kappa* a_-, C_- for two weights of the B-B channel in
+    the three-body force (universality check of that choice)."""
+    ratio, abb, cut, rho = args
+    s = sm.MixtureSTM(ratio, a_bb_ratio=abb, cutoff=cut, rho_bb=rho)
+    km = s.kappa_a_minus()
+    c = s.negative_a_coefficient(km)
+    return {"s0": s.s0, "km": km, "cm": c["C_minus"], "spread": c["spread"],
+            "rho": s.channels[1]["rho"]}
+
+
+def section_abb(pool):
+    print("\n## a < 0 with a_bb = a (all three pairs resonant, a_bb/a fixed)\n")
+    print("| system | Lambda a | rho_BB | s0 (three pairs) | kappa* a_- | C_- | C_- spread |")
+    print("|---|---|---|---|---|---|---|")
+    jobs, names = [], []
+    for b, x in SYSTEMS[:2]:
+        for cut in (1e5, 1e6):
+            for rho in (None, 1.0):
+                jobs.append((mass_ratio(b, x), 1.0, cut, rho))
+                names.append((label(b, x), cut))
+    for (n, cut), r in zip(names, pool.imap(abb_numbers, jobs)):
+        print(f"| {n} | {cut:.0e} | {r['rho']:.5f} | {r['s0']:.6f} | {r['km']:.7f} | {r['cm']:.2f} |"
+              f" {r['spread']:.1e} |", flush=True)
 
 
 def section_s0():
@@ -139,7 +165,7 @@ def main(argv):
         i = argv.index("--processes")
         nproc = int(argv[i + 1])
         argv = argv[:i] + argv[i + 2:]
-    sections = argv or ["s0", "identical", "systems", "scaling"]
+    sections = argv or ["s0", "identical", "systems", "scaling", "abb"]
     with Pool(nproc) as pool:
         for name in sections:
             if name == "s0":
@@ -150,6 +176,8 @@ def main(argv):
                 section_systems(pool)
             elif name == "scaling":
                 section_scaling(pool)
+            elif name == "abb":
+                section_abb(pool)
             else:
                 raise SystemExit(f"unknown section {name!r}")
 

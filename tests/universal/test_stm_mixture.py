@@ -210,3 +210,18 @@ def test_eta_continuation(cs_li):
         assert abs(cs_li.atom_dimer_length(ka, eta) - expected) < 1e-3 * abs(expected)
         beta = fit["C_beta"] * math.sinh(2 * eta) / (math.sin(th) ** 2 + math.sinh(eta) ** 2)
         assert cs_li.relaxation_beta(ka, eta) == pytest.approx(beta, rel=1e-3)
+
+
+def test_three_body_force_weight_irrelevant():
+    # renormalisation (Bedaque, Hammer & van Kolck 1999): with all three pairs resonant
+    # (a_bb = a, 133Cs-133Cs-6Li) the universal a < 0 numbers must not depend on how the
+    # rank-one three-body force weights the B-B channel; here 5.77 vs 1 (measured 7e-6 and
+    # 4e-5 at Lambda a = 1e4, 2e-7 and 5e-7 at 1e6, docs/stm-mixture.md section 6)
+    out = []
+    for rho in (None, 1.0):
+        s = sm.MixtureSTM(ratio("133Cs", "6Li"), a_bb_ratio=1.0, cutoff=CUT, rho_bb=rho,
+                          **GRID_CSLI)
+        km = s.kappa_a_minus()
+        out.append((km, s.negative_a_coefficient(km, thetas=(0.0,))["C_minus"]))
+    assert out[0][0] == pytest.approx(out[1][0], rel=1e-4)
+    assert out[0][1] == pytest.approx(out[1][1], rel=5e-4)
