@@ -1,8 +1,8 @@
 """B-B-X momentum-space solver (lossfit.universal.solver.stm_mixture): checks against
 published numbers, analytic laws and the identical-boson solver (docs/stm-mixture.md).
 
-Grids are modest (cutoff 1e3-1e4 |a|, 12-16 nodes per decade); the converged values are
-produced by scripts/stm_mixture_study.py.
+Grids are modest (cutoff 1e4 |a|, 12-20 nodes per decade from q = 1e-3/|a|); the converged
+values are produced by scripts/stm_mixture_study.py.
 """
 
 import cmath
@@ -43,8 +43,8 @@ def cs_li():
 
 @pytest.mark.parametrize("b, x, expected, what", [
     # Braaten & Hammer, Phys. Rep. 428, 259 (2006): s0 cosh(pi s0/2) sin 2phi = 2 sinh(phi s0),
-    # sin phi = m_B/(m_B + m_X); the values are those quoted for these systems (the brief of
-    # this solver; 133Cs-133Cs-6Li 1.98276, 87Rb-87Rb-40K 0.65312, 87Rb-87Rb-41K lambda = 131.0)
+    # sin phi = m_B/(m_B + m_X); the values commonly quoted for these systems (quoted from
+    # memory): 133Cs-133Cs-6Li 1.98276, 87Rb-87Rb-40K 0.65312, 87Rb-87Rb-41K lambda = 131.0
     ("133Cs", "6Li", 1.98276, "s0"),
     ("87Rb", "40K", 0.65312, "s0"),
     ("87Rb", "41K", 131.0, "lambda"),
