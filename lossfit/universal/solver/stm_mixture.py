@@ -457,6 +457,15 @@ class MixtureSTM:
         """Threshold relaxation B + (BX) -> deep, beta m_B/(hbar a) (dimers lost).
 
         beta = -4 pi (1 + gamma) Im(a_AD/a) (docs/stm-mixture.md section 3).
+
+        Parameters
+        ----------
+        kappa_a, eta : float
+            As in :meth:`atom_dimer_length`.
+
+        Returns
+        -------
+        float
         """
         return -4.0 * math.pi * (1.0 + self.gamma) * self.atom_dimer_length(kappa_a, eta).imag
 
@@ -575,8 +584,13 @@ class MixtureSTM:
         return math.exp(hist[-1])
 
     def threshold_angle(self):
-        """Polar angle of the lowest two-body threshold at a > 0 in the Efimov plane
-        (pi/4 for the B-X dimer; the B-B dimer when a_bb > 0 binds more strongly)."""
+        """Polar angle of the lowest two-body threshold at a > 0 in the Efimov plane.
+
+        Returns
+        -------
+        float
+            pi/4 for the B-X dimer; larger when a B-B dimer (a_bb > 0) binds more strongly.
+        """
         tan = 1.0
         if self.a_bb_ratio > 0:
             tan = max(tan, math.sqrt(2.0 * (1.0 - self.gamma)) / self.a_bb_ratio)
@@ -584,10 +598,20 @@ class MixtureSTM:
 
     def coarse(self, cutoff=None, per_decade=10, qmin=1e-4):
         """A copy of this solver on a coarse grid (branch tracking only: its results are
-        used as brackets of 5-10 %, and move by < 1e-3 against the fine grid).
+        used as brackets of 5-15 %, and move by < 1e-3 against the fine grid).
 
-        The default cutoff, 1e3 max(lambda, 10) kappa*, follows the momentum scale of the
-        branch, which reaches 1/a* ~ lambda kappa* (0.44 lambda for equal masses, a_bb = 0).
+        Parameters
+        ----------
+        cutoff : float, optional
+            Default 1e3 max(lambda, 10) (units kappa*): it follows the momentum scale of the
+            branch, which reaches 1/a* ~ lambda kappa* (0.44 lambda for equal masses,
+            a_bb = 0).
+        per_decade, qmin : int, float
+            Upper and lower limits imposed on the solver's own values.
+
+        Returns
+        -------
+        MixtureSTM
         """
         if cutoff is None:
             cutoff = 1e3 * max(self.scaling_factor, 10.0)
@@ -598,9 +622,20 @@ class MixtureSTM:
         return c
 
     def bound_state_force(self, energy, inv_a):
-        """h for which the discretised equation at (eps, 1/a) has a bound state at eps
-        (rank-one closed form, as :meth:`three_body_force`; eps at or below the lowest
-        two-body threshold)."""
+        """h for which the discretised equation at (eps, 1/a) has a bound state at eps.
+
+        Parameters
+        ----------
+        energy : float
+            eps, at or below the lowest two-body threshold.
+        inv_a : float
+            1/a (units of the momenta).
+
+        Returns
+        -------
+        float
+            h (rank-one closed form, as :meth:`three_body_force`).
+        """
         parts = self._parts(energy, inv_a, None, poles=False)
         nodes = [p[0] for p in parts]
         cw = np.concatenate([p[1] for p in parts])
@@ -632,6 +667,20 @@ class MixtureSTM:
         The branch is followed on a coarse grid (:meth:`trimer_branch`); the value is then
         the root nearest to it, within rel_bracket, of h(kappa*) = h_0 on this solver's grid
         (cutoff Lambda |a|), h_0 the force that puts a bound state at a = -1, E = 0.
+
+        Parameters
+        ----------
+        level : int
+            0 for the branch of kappa*, 1 for the next shallower trimer (a_- lambda times
+            larger).
+        steps : int
+            Continuation steps of the coarse tracking.
+        rel_bracket : float
+            Search window around the tracked value.
+
+        Returns
+        -------
+        float
         """
         est = 1.0 / self.coarse().trimer_branch(math.pi, level, steps)
         h0 = self.bound_state_force(0.0, -1.0)
@@ -646,6 +695,15 @@ class MixtureSTM:
 
         Coarse branch tracking, then the pole of a_AD (the root of 1/Re a_AD in kappa* a)
         nearest to the coarse value on this solver's grid.
+
+        Parameters
+        ----------
+        level, steps, rel_bracket
+            As in :meth:`kappa_a_minus`.
+
+        Returns
+        -------
+        float
         """
         xi = self.threshold_angle()
         est = 1.0 / (self.coarse().trimer_branch(xi, level, steps) * math.cos(xi))
