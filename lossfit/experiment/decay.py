@@ -90,7 +90,10 @@ every output time. The trapped dimers of the explicit kinetics live for
 1/((beta_b + beta_r) <n_A>_D), often 10^2-10^5 times shorter than the loss time: a stiff
 system on which an explicit method needs steps of the dimer lifetime.
 ``method="auto"`` therefore integrates the explicit kinetics with the Rosenbrock method
-and everything else with Dormand-Prince (measured costs: docs/global-fit.md).
+when the dimers' decay rate at t = 0 times the hold exceeds 200, and everything else with
+Dormand-Prince (measured costs: docs/global-fit.md). For the explicit kinetics the step
+control measures the dimer number's error against the atom number (the image counts
+N + 2 N_D; a dimer population far below N needs no relative accuracy of its own).
 """
 
 __all__ = ["DecaySolution", "TabulatedRate", "TabulatedKinetics", "KINETICS_FIELDS", "kinetics_columns",
@@ -1079,7 +1082,7 @@ def simulate_decay(t, *, species, trap_hz, n0, t0_nK, l3=None, efimov=None, a=No
         ``counted`` is N + 2 N_D; False: ``counted`` is N.
     method : {"auto", "dopri5", "rosenbrock"}
         Integrator (module docstring); ``"auto"``: Rosenbrock for the explicit kinetics
-        (stiff), Dormand-Prince otherwise.
+        when it is stiff (dimer decay rate x hold > 200 at t = 0), Dormand-Prince otherwise.
 
     Returns
     -------
