@@ -711,7 +711,7 @@ class MixtureSTM:
         def inv(lk):
             return 1.0 / self.atom_dimer_length(math.exp(lk)).real
 
-        return self._bracketed_root(inv, est, rel_bracket)
+        return self._bracketed_root(inv, est, rel_bracket, npts=11)
 
     def kappa_a_plus(self, kappa_a_star=None, npts=24):
         """kappa* a_+: the zero of shallow recombination (eta = 0) in (a*, lambda a*].
