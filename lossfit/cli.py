@@ -23,7 +23,7 @@ import warnings
 
 from ._version import __version__
 from .batch.exit_codes import EXIT_BAD_INPUT, EXIT_CONFLICT, EXIT_INTERRUPTED, EXIT_OK
-from .errors import Interrupted, LossfitValueError, OutputConflict
+from .errors import ConvergenceWarning, FitCheckWarning, Interrupted, LossfitValueError, OutputConflict
 
 #: Default steps of the demos (kept here so that --help needs no library import; the
 #: demo module checks that they agree with its own).
@@ -145,10 +145,30 @@ def _stop_during_startup(signum, frame):
     raise Interrupted(signum, 0, saved=False)
 
 
+class _WarningLines:
+    """Warnings as one line each, ``lossfit: warning: ...``, each text once, without
+    internal file paths or source lines. A fit's convergence and fit-check warnings are
+    not repeated here: the result table printed after the run lists them (and
+    summary.json keeps them)."""
+
+    def __init__(self):
+        self.seen = set()
+
+    def __call__(self, message, category, filename, lineno, file=None, line=None):
+        text = str(message)
+        if issubclass(category, (ConvergenceWarning, FitCheckWarning)):
+            return
+        if text not in self.seen:
+            self.seen.add(text)
+            print(f"lossfit: warning: {text}", file=sys.stderr)
+
+
 def main(argv=None):
     parser = build_parser()
     args = parser.parse_args(argv)
     previous = signal.signal(signal.SIGTERM, _stop_during_startup)
+    shown = warnings.showwarning
+    warnings.showwarning = _WarningLines()
     try:
         return args.func(args)
     except LossfitValueError as err:
@@ -162,6 +182,7 @@ def main(argv=None):
         return EXIT_INTERRUPTED
     finally:
         signal.signal(signal.SIGTERM, previous)
+        warnings.showwarning = shown
 
 
 if __name__ == "__main__":

@@ -122,6 +122,15 @@ def species(name_or_species):
     for known, sp in _REGISTRY.items():
         if _aliases(_normalise(known)).lower() == key:
             return sp
+    # an element alone ("Cs") means its one isotope in the table; ambiguous names ("K",
+    # "Li", "Rb") are refused with the isotopes to choose from
+    if key.isalpha():
+        matches = [known for known in _REGISTRY if _aliases(_normalise(known)).lower().lstrip("0123456789") == key]
+        if len(matches) == 1:
+            return _REGISTRY[matches[0]]
+        if matches:
+            raise LossfitValueError("species", f"{name_or_species!r} has several isotopes here: "
+                                    f"{', '.join(matches)}; name one")
     raise LossfitValueError("species", f"unknown species {name_or_species!r}; known: "
                             f"{', '.join(_REGISTRY)} (or build lossfit.Species(name, mass_u, c6_au))")
 

@@ -171,7 +171,14 @@ def test_register_user_species_free_name():
     assert lf.species("MyAtom2") is sp
 
 
-@pytest.mark.parametrize("name", ["Unobtainium", "134Cs", "Cs", ""])
+def test_element_alone_names_its_only_isotope_here():
+    # "Cs" means 133Cs (the only caesium isotope in the table); "Rb" is ambiguous
+    assert lf.species("Cs") is lf.species("133Cs") and lf.species("cs") is lf.species("Cs133")
+    with pytest.raises(LossfitValueError, match="85Rb, 87Rb"):
+        lf.species("Rb")
+
+
+@pytest.mark.parametrize("name", ["Unobtainium", "134Cs", "Rb", ""])
 def test_unknown_species_raises(name):
     with pytest.raises(LossfitValueError) as info:
         lf.species(name)

@@ -72,7 +72,10 @@ def compare_models(results):
     -------
     ModelComparison
     """
-    import arviz as az  # optional dependency: pip install 'lossfit[arviz]'
+    try:
+        import arviz as az  # optional dependency: pip install 'lossfit[arviz]'
+    except ImportError:
+        raise LossfitValueError("compare_models", "needs ArviZ: pip install 'lossfit[arviz]'") from None
 
     if not isinstance(results, dict) or len(results) < 2:
         raise LossfitValueError("results", "give a dict of at least two named FitResults")

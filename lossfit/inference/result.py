@@ -13,7 +13,7 @@ import numpy as np
 from .._io import atomic_path
 from ..constants import KAPPA_A_MINUS, KAPPA_A_PLUS, UNIVERSAL_A_STAR_OVER_A_MINUS, VDW_A_MINUS_OVER_RVDW
 from ..efimov import Efimov
-from ..errors import ConvergenceWarning, FitCheckWarning, LossfitValueError
+from ..errors import ConvergenceWarning, FitCheckWarning, LossfitValueError, ValidityWarning
 from ..rates import validity_flags
 from .diagnostics import MIN_STEPS_PER_TAU, autocorrelation_times, split_rhat
 from .fit_checks import prior_bound_pileup
@@ -113,10 +113,11 @@ class FitResult:
         self.warnings = []
         self.loss_channels = list(getattr(likelihood, "channels", []))
         self.outside_validity = _outside_validity(getattr(likelihood, "spectra", []), species, self.loss_channels)
+        validity = []
         if self.outside_validity:
             reasons = sorted({r for p in self.outside_validity for r in p["reasons"]})
-            self.warnings.append(f"{len(self.outside_validity)} data point(s) outside the zero-range validity "
-                                 f"range or its loss interpretation ({'; '.join(reasons)}); see outside_validity")
+            validity.append(f"{len(self.outside_validity)} data point(s) outside the zero-range validity "
+                            f"range or its loss interpretation ({'; '.join(reasons)}); see outside_validity")
         steps_kept = chain.shape[0] - self.burn
         tau_max = float(np.nanmax(tau)) if np.isfinite(tau).any() else float("nan")
         if not math.isfinite(tau_max) or steps_kept < MIN_STEPS_PER_TAU * tau_max:
@@ -130,6 +131,10 @@ class FitResult:
             self.warnings.append(f"acceptance fraction {self.acceptance_fraction:.2f} outside 0.15-0.8")
         for w in self.warnings:
             warnings.warn(w, ConvergenceWarning, stacklevel=3)
+        # validity findings are about the model and the data, not the chain
+        for w in validity:
+            warnings.warn(w, ValidityWarning, stacklevel=3)
+        self.warnings = validity + self.warnings
         self.check_warnings = self._run_checks()
         for w in self.check_warnings:
             warnings.warn(w, FitCheckWarning, stacklevel=3)
@@ -332,7 +337,10 @@ class FitResult:
         spectrum fits the observed data, the pointwise log likelihood and a posterior
         predictive draw per sample (data = model + error x N(0, 1), seeded), so that ArviZ's
         diagnostics, LOO and plots work. Needs ArviZ (``pip install 'lossfit[arviz]'``)."""
-        import arviz as az  # optional dependency: only this export needs it
+        try:
+            import arviz as az  # optional dependency: only this export needs it
+        except ImportError:
+            raise LossfitValueError("to_arviz", "needs ArviZ: pip install 'lossfit[arviz]'") from None
 
         phys, steps = self._kept_physical()
         groups = {"posterior": {n: phys[:, :, i].T for i, n in enumerate(self.names)},
