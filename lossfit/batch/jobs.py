@@ -4,7 +4,9 @@ Schema (every key is checked; an unknown key, a missing file or a bad value is a
 error that names the key)::
 
     [data]
-    species = "133Cs"                      # name known to lossfit.species
+    species = "133Cs"                      # name known to lossfit.species; data files recorded
+                                           # for another species are refused unless
+                                           # allow_species_mismatch = true
     spectra = ["data.h5"]                  # lossfit.spectra HDF5 files (paths relative
                                            # to the job file)
     csv = [{ path = "run1.csv", kind = "l3", label = "run 1" }]   # optional CSV tables; each may
@@ -83,7 +85,8 @@ class JobError(LossfitValueError):
     """A job file is malformed; ``argument`` is the offending key."""
 
 
-_SECTIONS = {"data": {"species", "spectra", "csv", "campaign", "binding_energies"}, "model": {"name", "tie"},
+_SECTIONS = {"data": {"species", "spectra", "csv", "campaign", "binding_energies", "allow_species_mismatch"},
+             "model": {"name", "tie"},
              "free": None,
              "fixed": None, "sampler": {"walkers", "steps", "max_steps", "seed", "burn", "thin",
                                         "checkpoint_every", "log_every"},
@@ -92,6 +95,12 @@ _PRIOR_KEYS = {"log-uniform": {"lo", "hi"}, "uniform": {"lo", "hi"}, "log-normal
                "normal": {"mu", "sigma"}, "default": set()}
 _SAMPLER_DEFAULTS = {"walkers": 32, "steps": 5000, "max_steps": None, "seed": 0, "burn": "auto", "thin": 1,
                      "checkpoint_every": 100, "log_every": 250}
+
+
+def _flag(key, value):
+    if not isinstance(value, bool):
+        raise JobError(key, f"must be true or false, got {value!r}")
+    return value
 
 
 def _number(key, value):
@@ -124,6 +133,7 @@ class Job:
     sampler: dict
     study: object = None
     binding_energies: object = None
+    allow_species_mismatch: bool = False
 
     @property
     def base_dir(self):
@@ -143,19 +153,29 @@ class Job:
             return read_binding_energies(os.path.join(self.base_dir, self.binding_energies))
         if self.campaign:
             camp = read_campaign(os.path.join(self.base_dir, self.campaign))
-            if camp.species and not same_species(camp.species, self.species):
-                warnings.warn(f"{self.campaign}: the campaign was recorded for {camp.species}, the job fits "
-                              f"{self.species}", FitCheckWarning, stacklevel=2)
+            self._check_species(self.campaign, camp.species)
             self._resonance = None if camp.resonance is None else FeshbachResonance(**camp.resonance)
             return list(camp.curves)
         out = []
         for p in self.spectra:
-            out.extend(read_spectra(os.path.join(self.base_dir, p)))
+            spectra = read_spectra(os.path.join(self.base_dir, p))
+            for s in spectra:
+                self._check_species(p, s.species)
+            out.extend(spectra)
         for c in self.csv:
             out.append(read_csv(os.path.join(self.base_dir, c["path"]), kind=c.get("kind", "l3"),
                                 label=c.get("label"), species=self.species, channel=c.get("channel"),
                                 trap_depth=c.get("trap_depth")))
         return out
+
+    def _check_species(self, name, recorded):
+        # refused before any sampling: a fit of the wrong species is wasted hours
+        if recorded and not same_species(recorded, self.species):
+            text = f"{name}: the data were recorded for {recorded}, the job fits {self.species}"
+            if not self.allow_species_mismatch:
+                raise JobError("data.species", text + "; set species to match, or add "
+                               "allow_species_mismatch = true to [data] if that is meant")
+            warnings.warn(text + " (allowed by the job)", FitCheckWarning, stacklevel=3)
 
     def variant_kwargs(self, variant, steps=None):
         """Keyword arguments of :func:`lossfit.fit` for a model-comparison variant: "free"
@@ -341,7 +361,8 @@ def parse_job(text, path):
     study = _study(doc.get("study"), campaign, free)
     return Job(path=path, text=text, species=sp, spectra=spectra, csv=csv, campaign=campaign, model=name,
                tie=None if tie == "none" else tie, free=free, priors=priors, fixed=fixed, sampler=sampler,
-               study=study, binding_energies=binding)
+               study=study, binding_energies=binding,
+               allow_species_mismatch=_flag("data.allow_species_mismatch", data.get("allow_species_mismatch", False)))
 
 
 #: The analyses a ``[study]`` section may name as ``kind``.

@@ -90,7 +90,7 @@ def test_campaign_recorded_for_another_species_warns(tmp_path):
 
     from lossfit.batch.jobs import parse_job
     from lossfit.data import write_campaign
-    from lossfit.errors import FitCheckWarning
+    from lossfit.errors import FitCheckWarning, LossfitValueError
     from lossfit.simulate import invented_campaign
 
     with warnings.catch_warnings():
@@ -100,6 +100,12 @@ def test_campaign_recorded_for_another_species_warns(tmp_path):
     text = ('[data]\nspecies = "7Li"\ncampaign = "campaign.h5"\n[model]\nname = "capped"\n[free]\n'
             'a_minus = { prior = "default" }\n[sampler]\nwalkers = 8\nsteps = 60\n')
     job = parse_job(text, str(tmp_path / "job.toml"))
+    # refused before any sampling, naming the key; allowed explicitly with a warning
+    with pytest.raises(LossfitValueError, match="recorded for 133Cs, the job fits 7Li") as info:
+        job.load_data()
+    assert info.value.argument == "data.species"
+    job = parse_job(text.replace('campaign = "campaign.h5"', 'campaign = "campaign.h5"\nallow_species_mismatch = true'),
+                    str(tmp_path / "job.toml"))
     with pytest.warns(FitCheckWarning, match="recorded for 133Cs, the job fits 7Li"):
         job.load_data()
 
