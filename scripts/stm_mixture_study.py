@@ -2,8 +2,8 @@
 
 Run:  OMP_NUM_THREADS=1 python scripts/stm_mixture_study.py [SECTION ...] [--processes N]
 
-SECTION is any of ``s0``, ``identical``, ``systems``, ``scaling``, ``abb`` (default: all;
-about 6 min on two processes).  Prints Markdown tables.  Units: K3 (events, rate K3 n_B^2 n_X) in
+SECTION is any of ``s0``, ``identical``, ``systems``, ``scaling``, ``abb``, ``energy``
+(default: all; about 8 min on two processes).  Prints Markdown tables.  Units: K3 (events, rate K3 n_B^2 n_X) in
 hbar a^4/m_B, beta in hbar a/m_B, kappa* defined by E_T = -hbar^2 kappa*^2/(2 mu) at 1/a = 0
 (docs/stm-mixture.md section 1).
 """
@@ -94,6 +94,74 @@ def section_abb(pool):
               f" {r['spread']:.1e} |", flush=True)
 
 
+def efimov_channel_fit(kappas, values, s0, eta):
+    """|s11| and T from K3/bound = T (1 - e^{-4 eta})/|1 + s11 e^{2 i s0 ln kappa* - 2 eta}|^2
+    over a period of kappa* (linear least squares in the reciprocal, as stm.s_ad_fit)."""
+    import numpy as np
+
+    th = s0 * np.log(np.asarray(kappas))
+    y = (1.0 - math.exp(-4.0 * eta)) / np.asarray(values)
+    a = np.c_[np.ones_like(th), np.cos(2.0 * th), np.sin(2.0 * th)]
+    c, *_ = np.linalg.lstsq(a, y, rcond=None)
+    r = math.hypot(c[1], c[2]) / c[0]                 # 2x/(1 + x^2), x = |s11| e^{-2 eta}
+    x = (1.0 - math.sqrt(1.0 - r * r)) / r
+    return {"s11": x * math.exp(2.0 * eta), "T": (1.0 + x * x) / c[0],
+            "residual": float(np.max(np.abs(a @ c - y)) / np.max(np.abs(y)))}
+
+
+def unitarity_numbers(args):
+    """1/a = 0, E = hbar^2/(2 mu) (kappa* units): K3/bound over a period of kappa*."""
+    import numpy as np
+
+    ratio, eta, npts = args
+    s = sm.MixtureSTM(ratio, cutoff=1e4, qmin=1e-4)
+    ks = 0.01 * np.exp(np.arange(npts) * math.pi / (npts * s.s0))
+    vals = []
+    for k in ks:
+        out = s.recombination_energy(k, eta, 1.0, inv_a=0.0)
+        vals.append(out["k3"] / out["bound"])
+    fit = efimov_channel_fit(ks, vals, s.s0, eta)
+    return dict(fit, s0=s.s0, vmin=min(vals), vmax=max(vals))
+
+
+def energy_numbers(args):
+    """a < 0: K3(E) of 133Cs-133Cs-6Li at k|a| (E = hbar^2 k^2/(2 mu))."""
+    ratio, factor, kas = args
+    s = sm.MixtureSTM(ratio, cutoff=1e4, qmin=1e-4)
+    km = s.kappa_a_minus()
+    thr = s.recombination(abs(km) * factor, 0.1, negative_a=True)["deep"]
+    rows = []
+    for ka in kas:
+        out = s.recombination_energy(abs(km) * factor, 0.1, ka * ka)
+        rows.append((ka, out["k3"], out["k3"] / thr, out["error"] / out["k3"], out["k3"] / out["bound"]))
+    return factor, thr, rows
+
+
+def section_energy(pool):
+    eta = 0.1
+    print("\n## E > 0, 1/a = 0: the Efimov channel against the exact unitarity values (eta = 0.1)\n")
+    print("| system | s0 | abs(s11) | e^(-pi s0) | T | 1 - e^(-2 pi s0) | K3/bound min, max |"
+          " band (1 - e^(-2 pi s0))(1 - e^(-4 eta))/(1 +- e^(-pi s0 - 2 eta))^2 | fit residual |")
+    print("|---|---|---|---|---|---|---|---|---|")
+    jobs = [(mass_ratio(b, x), eta, 12) for b, x in SYSTEMS[:4]]
+    for (b, x), r in zip(SYSTEMS, pool.imap(unitarity_numbers, jobs)):
+        s0 = r["s0"]
+        e1, e2 = math.exp(-math.pi * s0), math.exp(-2.0 * math.pi * s0)
+        lo = (1 - e2) * (1 - math.exp(-4 * eta)) / (1 + e1 * math.exp(-2 * eta)) ** 2
+        hi = (1 - e2) * (1 - math.exp(-4 * eta)) / (1 - e1 * math.exp(-2 * eta)) ** 2
+        print(f"| {label(b, x)} | {s0:.5f} | {r['s11']:.5f} | {e1:.5f} | {r['T']:.5f} | {1 - e2:.5f} |"
+              f" {r['vmin']:.5f}, {r['vmax']:.5f} | {lo:.5f}, {hi:.5f} | {r['residual']:.1e} |", flush=True)
+    print("\n## E > 0, a < 0: 133Cs-133Cs-6Li, eta = 0.1 (K3 in hbar a^4/m_B, events)\n")
+    print("| kappa* abs(a) | k abs(a) | K3(E) | K3(E)/K3(0) | est. extrapolation error | K3/bound |")
+    print("|---|---|---|---|---|---|")
+    kas = (0.01, 0.03, 0.1, 0.3, 1.0, 3.0, 10.0)
+    jobs = [(mass_ratio("133Cs", "6Li"), f, kas) for f in (1.0, 1.3)]
+    for factor, thr, rows in pool.imap(energy_numbers, jobs):
+        print(f"| {factor} abs(kappa* a_-) | 0 | {thr:.6g} | 1 | | |")
+        for ka, k3, rel, err, bnd in rows:
+            print(f"| | {ka} | {k3:.6g} | {rel:.5f} | {err:.1e} | {bnd:.4f} |", flush=True)
+
+
 def section_s0():
     print("\n## s0 from the kernel's Mellin transform\n")
     print("| system | m_B/m_X | s0 (Mellin, kernel) | s0 (closed form, BH 2006) | lambda = e^(pi/s0) |")
@@ -165,7 +233,7 @@ def main(argv):
         i = argv.index("--processes")
         nproc = int(argv[i + 1])
         argv = argv[:i] + argv[i + 2:]
-    sections = argv or ["s0", "identical", "systems", "scaling", "abb"]
+    sections = argv or ["s0", "identical", "systems", "scaling", "abb", "energy"]
     with Pool(nproc) as pool:
         for name in sections:
             if name == "s0":
@@ -178,6 +246,8 @@ def main(argv):
                 section_scaling(pool)
             elif name == "abb":
                 section_abb(pool)
+            elif name == "energy":
+                section_energy(pool)
             else:
                 raise SystemExit(f"unknown section {name!r}")
 

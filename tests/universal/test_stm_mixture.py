@@ -16,6 +16,7 @@ import math
 import multiprocessing
 import os
 
+import numpy as np
 import pytest
 
 from lossfit.constants import C_ATOM_DIMER, C_NEGATIVE, KAPPA_A_MINUS, KAPPA_A_PLUS, KAPPA_A_STAR, S0
@@ -301,3 +302,48 @@ def test_three_body_force_weight_irrelevant(run):
     (k1, c1), (k2, c2) = run(_force_weight, None), run(_force_weight, 1.0)
     assert k1 == pytest.approx(k2, rel=1e-4)
     assert c1 == pytest.approx(c2, rel=5e-4)
+
+
+# --------------------------------------------------------------------------- E > 0
+
+def _unitarity_period(npts):
+    s = sm.MixtureSTM(ratio("87Rb", "41K"), cutoff=CUT, qmin=1e-4)
+    ks = [0.01 * math.exp(i * math.pi / (npts * s.s0)) for i in range(npts)]
+    vals = []
+    for k in ks:
+        out = s.recombination_energy(k, 0.1, 1.0, inv_a=0.0, nalpha=32, ncos=24)
+        vals.append(out["k3"] / out["bound"])
+    return s.s0, ks, vals
+
+
+@pytest.mark.slow
+def test_unitarity_efimov_channel(run):
+    # 1/a = 0, E > 0 (87Rb-87Rb-41K, eta = 0.1): K3 / J=0 bound = T (1 - e^{-4 eta})/
+    # |1 + s11 e^{2i s0 ln kappa* - 2 eta}|^2 with the exact unitarity values abs(s11) =
+    # e^{-pi s0}, T = 1 - e^{-2 pi s0} of the 1/R^2 Efimov channel (docs/solver.md section 3;
+    # Braaten & Hammer 2006): fitted over a period of kappa* (measured -0.4 % and +0.3 %)
+    s0, ks, vals = run(_unitarity_period, 6)
+    eta = 0.1
+    th = [s0 * math.log(k) for k in ks]
+    y = [(1.0 - math.exp(-4.0 * eta)) / v for v in vals]
+    a = np.c_[np.ones(len(th)), np.cos(2.0 * np.array(th)), np.sin(2.0 * np.array(th))]
+    c, *_ = np.linalg.lstsq(a, np.array(y), rcond=None)
+    r = math.hypot(c[1], c[2]) / c[0]
+    x = (1.0 - math.sqrt(1.0 - r * r)) / r
+    assert x * math.exp(2.0 * eta) == pytest.approx(math.exp(-math.pi * s0), rel=2e-2)
+    assert (1.0 + x * x) / c[0] == pytest.approx(1.0 - math.exp(-2.0 * math.pi * s0), rel=1e-2)
+
+
+def _energy_threshold():
+    s = cs_li()
+    return (s.recombination_energy(2.0, 0.1, 1e-4)["k3"],
+            s.recombination(2.0, 0.1, negative_a=True)["deep"])
+
+
+@pytest.mark.slow
+def test_energy_threshold_limit(run):
+    # a < 0, 133Cs-133Cs-6Li: K3(E) of the three-atom drive at k|a| = 0.01 against the E = 0
+    # solve (a different equation: three atoms at rest); the threshold law K3(E) -> K3(0)
+    # (measured 3e-4 at this k|a|, docs/stm-mixture.md section 8)
+    k3_e, k3_0 = run(_energy_threshold)
+    assert k3_e == pytest.approx(k3_0, rel=2e-3)

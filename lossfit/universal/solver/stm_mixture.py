@@ -807,3 +807,133 @@ class MixtureSTM:
                 "shallow_max": float(cp.mean()) / math.sinh(math.pi * s0) ** 2,
                 "spread_plus": float(np.max(np.abs(cp / cp.mean() - 1.0))),
                 "spread_deep": float(np.max(np.abs(cd / cd.mean() - 1.0)))}
+
+    # ------------------------------------------------------------------ E > 0 (a < 0, 1/a = 0)
+    def unitarity_bound(self, energy):
+        """J = 0 bound of the event rate at energy E: K3 <= (M/m_X)^(3/2) 32 pi^2 hbar/(m_B K^4),
+        E = hbar^2 K^2/(2 m_B) (mass-scaled flux normalisation, docs/stm-mixture.md section 8).
+
+        Parameters
+        ----------
+        energy : float
+            eps = 2 mu E (units of the momenta squared).
+
+        Returns
+        -------
+        float
+            The bound in units hbar/m_B (times a^4 when eps is in 1/a^2).
+        """
+        g = self.gamma
+        m_b, m_x = 1.0 / (2.0 * (1.0 - g)), 1.0 / (2.0 * g)
+        big_m = 2.0 * m_b + m_x
+        k4 = (2.0 * m_b * energy) ** 2
+        return (big_m / m_x) ** 1.5 * 32.0 * math.pi ** 2 / (m_b * k4) * self.to_mb
+
+    def _omega_spectator(self, h, inv_a, energy, delta, spacing, npts_p):
+        """Omega_Z of a unit s-wave drive at spectator momentum P in [0, P_max], at the
+        complex energy eps + i delta (B-X channel only)."""
+        g = self.gamma
+        alpha = 1.0 - g * g
+        ec = energy + 1j * delta
+        pmax = math.sqrt(energy / alpha)
+        top = 4.0 * pmax                 # the singular region; geometric panels beyond
+        npan = int(math.ceil(top / spacing / self.grid["order"]))
+        xg, wg = np.polynomial.legendre.leggauss(self.grid["order"])
+        edges = np.linspace(0.0, top, npan + 1)
+        lo, hi = edges[:-1, None], edges[1:, None]
+        q = np.concatenate([(0.5 * (hi - lo) * xg + 0.5 * (hi + lo)).ravel()])
+        w = (0.5 * (hi - lo) * wg).ravel()
+        qt, wt = momentum_grid(self.cutoff, qmin=top, per_decade=self.grid["per_decade"],
+                               order=self.grid["order"])
+        keep = qt > top
+        q, w = np.concatenate([q, qt[keep]]), np.concatenate([w, wt[keep]])
+        cw = (1.0 / math.pi) * w * q * q / (-inv_a + np.sqrt(alpha * q * q - ec))
+        blocks = _BLOCKS[(0, 0)](g)
+        ps = np.linspace(0.0, pmax, npts_p)
+        mat = np.eye(len(q)) - (exchange_kernel(q, q, ec, *blocks) + h) * cw[None, :]
+        rhs = -2.0 * math.pi ** 2 * (exchange_kernel(q, ps, ec, *blocks) + h)
+        z = np.linalg.solve(mat, rhs)
+        return ps, -2.0 * math.pi ** 2 + cw @ z, len(q)
+
+    def _configuration_average(self, h, inv_a, energy, ps, omega, nalpha, ncos):
+        """<Im h |Omega|^2>/(2 pi^4) over the J = 0 hypersphere of three-atom plane waves.
+
+        Omega = A_1 + A_2, A_i = (N_i/2) Omega_unit(P_i) for the two B spectators.  The
+        measure is the same in every mass-scaled Jacobi set, so <|A_i|^2> is a 1-D integral
+        over the hyperangle of set i (where |N_i|^2 ~ 1/q_i^2 meets the measure's q_i^2), and
+        only the cross term 2 Re <A_1 A_2*> (singular like 1/q) is averaged in 2-D (set 3).
+        """
+        g = self.gamma
+        nu_x, mu_bb, nu_b = 1.0 / (1.0 + g), 1.0 / (4.0 * (1.0 - g)), 1.0 / (2.0 * (1.0 - g * g))
+
+        def unit(pb):
+            return np.interp(pb, ps, omega.real) + 1j * np.interp(pb, ps, omega.imag)
+
+        xa, wa = np.polynomial.legendre.leggauss(nalpha)
+        beta = (xa + 1.0) * math.pi / 4.0
+        wb = wa * math.pi / 4.0 * np.sin(beta) ** 2 * np.cos(beta) ** 2
+        pb = math.sqrt(2.0 * nu_b * energy) * np.cos(beta)        # set 1: B spectator
+        qb = math.sqrt(energy) * np.sin(beta)                       # its B-X pair (2 mu = 1)
+        diag = np.sum(wb * np.abs(0.5 * 4.0 * math.pi * unit(pb)) ** 2 / (inv_a ** 2 + qb ** 2))
+        diag = 2.0 * diag / (math.pi / 16.0)
+        xc, wc = np.polynomial.legendre.leggauss(ncos)
+        aa, cc = np.meshgrid(beta, xc, indexing="ij")
+        weight = (wa * math.pi / 4.0)[:, None] * wc[None, :] * np.sin(aa) ** 2 * np.cos(aa) ** 2
+        p3 = math.sqrt(2.0 * nu_x * energy) * np.cos(aa)          # set 3: X momentum
+        q3 = math.sqrt(2.0 * mu_bb * energy) * np.sin(aa)         # B-B relative momentum
+        amps = []
+        for sgn in (-1.0, 1.0):                                   # the two B spectators
+            pk = np.sqrt(np.maximum(p3 * p3 / 4.0 + q3 * q3 + sgn * p3 * q3 * cc, 0.0))
+            qpair = np.sqrt(np.maximum(energy - pk * pk / (2.0 * nu_b), 0.0))
+            amps.append(0.5 * 4.0 * math.pi / (inv_a + 1j * qpair) * unit(pk))  # (2 pi/mu)/(1/a + i q)
+        cross = 2.0 * np.sum(weight * np.real(amps[0] * np.conj(amps[1]))) / np.sum(weight)
+        return float(np.imag(h)) * (diag + cross) / (2.0 * math.pi ** 4) * self.to_mb
+
+    def recombination_energy(self, kappa_a, eta, energy, inv_a=-1.0,
+                             deltas=(0.16, 0.08, 0.04, 0.02), spacing=0.4, npts_p=161,
+                             nalpha=48, ncos=32):
+        """Deep-dimer recombination of three atoms at energy E > 0 (J = 0, a_bb = 0).
+
+        Three-atom plane waves drive the B-X channel with (2 pi/mu)/(1/a + i q_i) at each B
+        spectator momentum P_i; the absorbed flux Im h |Omega|^2/(2 pi^4) is averaged over
+        the hypersphere.  The equation is solved at eps + i delta eps for each of ``deltas``
+        on a grid of spacing ``spacing`` delta sqrt(eps) (the logarithmic singularities of
+        the kernel at real energy are smoothed over delta), and the rates are extrapolated
+        to delta = 0 by a polynomial in sqrt(delta) (the measured approach, docs/stm-mixture.md
+        section 8).
+
+        Parameters
+        ----------
+        kappa_a : float
+            kappa* |a| (inv_a = -1) or kappa* in the momentum units of ``energy`` (inv_a = 0).
+        eta : float
+            Deep-dimer parameter (> 0).
+        energy : float
+            eps = 2 mu E (units 1/a^2 for inv_a = -1).
+        inv_a : {-1.0, 0.0}
+            a < 0 (|a| = 1) or unitarity.
+
+        Returns
+        -------
+        dict
+            k3 (extrapolated, hbar a^4/m_B for inv_a = -1, hbar/m_B in the momentum units
+            otherwise), k3_delta (the rates at each delta), error (difference of the
+            extrapolations through all and through the last three deltas), bound
+            (:meth:`unitarity_bound`), nodes.
+        """
+        if len(self.channels) != 1 or self.statistics != "boson":
+            raise NotImplementedError("finite energy is implemented for a_bb = 0 bosons only")
+        if not energy > 0 or inv_a > 0:
+            raise ValueError("need E > 0 and a < 0 or 1/a = 0")
+        h = self.three_body_force(self._kappa(kappa_a, eta))
+        vals, nodes = [], 0
+        for d in deltas:
+            ps, om, nodes = self._omega_spectator(h, inv_a, energy, d * energy,
+                                                  spacing * d * math.sqrt(energy), npts_p)
+            vals.append(self._configuration_average(h, inv_a, energy, ps, om, nalpha, ncos))
+        x = np.sqrt(np.asarray(deltas))
+        vals = np.asarray(vals)
+        full = float(np.polyval(np.polyfit(x, vals, len(x) - 1), 0.0))
+        part = float(np.polyval(np.polyfit(x[1:], vals[1:], len(x) - 2), 0.0))
+        return {"k3": full, "k3_delta": vals, "error": abs(full - part),
+                "bound": self.unitarity_bound(energy), "nodes": nodes}
