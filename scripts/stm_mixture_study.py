@@ -3,7 +3,7 @@
 Run:  OMP_NUM_THREADS=1 python scripts/stm_mixture_study.py [SECTION ...] [--processes N]
 
 SECTION is any of ``s0``, ``identical``, ``systems``, ``scaling``, ``abb``, ``energy``
-(default: all; about 8 min on two processes).  Prints Markdown tables.  Units: K3 (events, rate K3 n_B^2 n_X) in
+(default: all; about 9 min on two processes).  Prints Markdown tables.  Units: K3 (events, rate K3 n_B^2 n_X) in
 hbar a^4/m_B, beta in hbar a/m_B, kappa* defined by E_T = -hbar^2 kappa*^2/(2 mu) at 1/a = 0
 (docs/stm-mixture.md section 1).
 """
