@@ -41,12 +41,13 @@ from ..inference.temperature_study import temperature_study
 from ..plotting.efimov import efimov_spectrum_plot
 from ..plotting.spectra import corner_plot, spectrum_plot
 from ..plotting.studies import binding_energy_plot, temperature_study_plot
+from ..plotting.universality import universality_plot
 from ..universal.spectrum import kappa_star
 from .exit_codes import EXIT_BAD_INPUT, EXIT_CONFLICT, EXIT_INTERRUPTED, EXIT_OK
 from .jobs import JobError, load_job, parse_job
 from .provenance import now_utc, provenance
 
-OUTPUTS = ("chains.h5", "summary.json", "corner.png", "spectrum.png")
+OUTPUTS = ("chains.h5", "summary.json", "corner.png", "spectrum.png", "universality.png")
 LOCK = ".lossfit.lock"
 
 
@@ -117,7 +118,8 @@ def _atomic_savefig(fig, path):
 
 
 def write_outputs(result, out_dir, provenance_info, *, truths=None):
-    """summary.json, corner.png and spectrum.png (each written atomically)."""
+    """summary.json, corner.png, spectrum.png and, for fits that determine a_-,
+    universality.png (each written atomically)."""
     # figures are only saved: any backend does (matplotlib picks Agg where there is no screen)
     summary = result.to_dict()
     summary["provenance"] = provenance_info
@@ -128,6 +130,11 @@ def write_outputs(result, out_dir, provenance_info, *, truths=None):
     fig = spectrum_plot(result)
     _atomic_savefig(fig, os.path.join(out_dir, "spectrum.png"))
     plt.close(fig)
+    if "a_minus/r_vdw" in result.derived:
+        # the fitted a_- among the published measurements (van der Waals universality chart)
+        fig = universality_plot(result)
+        _atomic_savefig(fig, os.path.join(out_dir, "universality.png"))
+        plt.close(fig)
 
 
 def check_output_folder(out_dir, argument="out"):
