@@ -16,7 +16,11 @@ spectrum fit).
 Conventions of the derived spectrum (:func:`spectrum_from_curves`): the point's
 temperature is the time average of the fitted T(t) over the measured hold times --
 the constant-L3 model cannot say more when L3 depends on T, which is one reason the
-global fit (:mod:`lossfit.inference.global_fit`) starts from the curves instead.
+global fit (:mod:`lossfit.inference.global_fit`) starts from the curves instead. At
+a > 0 the constant L3 of an atom curve is an effective one: it fits the number the image
+counts (N + 2 N_D with ``counts_dimers``) as if the dimers followed the atoms
+quasi-statically, i.e. the observed L3 at the curve's trap depth, which the derived
+spectrum carries (docs/global-fit.md says where that picture fails).
 
 Dimer curves: the atom-dimer mixture loses dimers by relaxation (beta) and one-body
 decay (Gamma_D); the partner atoms are lost by relaxation only (their own three-body
@@ -43,6 +47,7 @@ from scipy.optimize import least_squares
 
 from ..data.curves import DecayCurve, check_curves
 from ..data.spectra import LossSpectrum
+from ..dimer_kinetics import DEFAULT_DEPTH_OVER_T
 from ..errors import ConvergenceWarning, LossfitValueError, check_positive
 from ..experiment.decay import DecayBatch
 from ..experiment.trap import as_trap
@@ -399,7 +404,18 @@ def spectrum_from_curves(curves, *, species, resonance=None, fits=None, **kwargs
     for kind in ("l3", "beta"):
         sel = [f for f in fits if f.kind == kind]
         if sel:
+            mine = [c for c, f in zip(curves, fits) if f.kind == kind]
             out.append(LossSpectrum([f.a for f in sel], [f.temperature for f in sel],
                                     [f.value for f in sel], [f.error for f in sel], kind=kind,
-                                    label=f"{kind} from {len(sel)} decay curves", species=sp.name))
+                                    label=f"{kind} from {len(sel)} decay curves", species=sp.name,
+                                    trap_depth=_trap_depths(mine) if kind == "l3" else None))
     return out
+
+
+def _trap_depths(curves):
+    """The curves' trap depths (nK) for an L3 spectrum: None if no curve gives one, else
+    per point, 10 k_B T0 (T0 the curve's first measured temperature) where missing -- what
+    the global fit assumes (lossfit.inference.curves_likelihood)."""
+    if all(c.trap_depth is None for c in curves):
+        return None
+    return [DEFAULT_DEPTH_OVER_T * c.initial_temperature if c.trap_depth is None else c.trap_depth for c in curves]

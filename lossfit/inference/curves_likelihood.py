@@ -86,6 +86,7 @@ from ..units import NK
 from ..universal.averages import ETA_MIN
 from ..universal.models import get_model, scale_wavenumber_a0
 from .campaign_space import RESONANCE_NAMES
+from .curve_fits import spectrum_from_curves
 from .fit_checks import chi2_summary, poor_fit_message, temperature_plausibility
 from .likelihood import RateBlock
 
@@ -200,7 +201,8 @@ def display_spectra(spectra):
             m = labels == g
             t = float(np.median(s.temperature[m]))
             out.append(LossSpectrum(s.a[m], t, s.value[m], s.error[m], kind=s.kind,
-                                    label=f"{s.kind}, ~{t:.3g} nK (per-curve fits)", species=s.species))
+                                    label=f"{s.kind}, ~{t:.3g} nK (per-curve fits)", species=s.species,
+                                    channel=s.channel, trap_depth=None if s.trap_depth is None else s.trap_depth[m]))
     return out
 
 
@@ -282,14 +284,7 @@ class CurvesLikelihood:
                            field_noise_nodes)
         self._set_reference(np.array([self._coords_of_fit(f) for f in reference_fits]),
                             self._jacobian_of_fits(reference_fits))
-        self.two_stage_spectra = []
-        for kind in ("l3", "beta"):
-            sel = [f for f in reference_fits if f.kind == kind]
-            if sel:
-                self.two_stage_spectra.append(LossSpectrum(
-                    [f.a for f in sel], [f.temperature for f in sel], [f.value for f in sel],
-                    [f.error for f in sel], kind=kind, label=f"{kind} (per-curve fits)",
-                    species=self.species.name))
+        self.two_stage_spectra = spectrum_from_curves(self.curves, species=self.species, fits=reference_fits)
         self.spectra = display_spectra(self.two_stage_spectra)
 
     # -- setup ------------------------------------------------------------------------

@@ -28,7 +28,7 @@ from scipy.stats import chi2
 import lossfit as lf
 from lossfit.errors import ConvergenceWarning, ValidityWarning
 from lossfit.experiment.decay import TabulatedKinetics, simulate_decay
-from lossfit.inference.curve_fits import fit_curve
+from lossfit.inference.curve_fits import fit_curve, spectrum_from_curves
 from lossfit.inference.global_fit import CurvesLikelihood, fit_curves, prepare_curves
 from lossfit.simulate import invented_campaign
 
@@ -188,6 +188,21 @@ def test_counting_the_dimers_changes_the_prediction(campaign):
     assert free.counted[sl] == pytest.approx(counted.atoms[sl], rel=1e-12)
     assert counted.counted[sl] == pytest.approx(counted.atoms[sl] + 2 * counted.dimers[sl], rel=1e-12)
     assert np.all(counted.dimers[sl][1:] > 0)
+
+
+def test_two_stage_spectra_carry_the_trap_depths(campaign):
+    # the per-curve L3 at a > 0 is the observed L3 at the curve's trap depth; curves
+    # without one get the 10 k_B T0 the global fit assumes
+    curves, res, truth, fits, ef = campaign
+    lik = _likelihood(campaign)
+    (l3,) = lik.two_stage_spectra
+    expected = [c.trap_depth if c.trap_depth is not None else 10.0 * c.initial_temperature for c in curves]
+    assert l3.trap_depth.tolist() == pytest.approx(expected, rel=1e-12)
+    shown = np.concatenate([s.trap_depth for s in lik.spectra])
+    assert sorted(shown.tolist()) == pytest.approx(sorted(expected), rel=1e-12)
+    bare = [lf.DecayCurve(t=c.t, atoms=c.atoms, atoms_err=c.atoms_err, temperature=c.temperature,
+                          temperature_err=c.temperature_err, field=c.field, trap_hz=c.trap_hz) for c in curves]
+    assert spectrum_from_curves(bare, species=SP, resonance=res, fits=fits)[0].trap_depth is None
 
 
 @pytest.mark.slow
