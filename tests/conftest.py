@@ -1,6 +1,12 @@
+import os
 import warnings
 
-import matplotlib
+# pytest -n 2 runs two workers on two cores: one BLAS/OpenMP thread each, set before
+# numpy loads (matplotlib brings it), or the workers' threads fight for the cores
+for _var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
+    os.environ.setdefault(_var, "1")
+
+import matplotlib  # noqa: E402
 
 matplotlib.use("Agg")
 

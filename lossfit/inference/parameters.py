@@ -166,6 +166,12 @@ def default_priors(free, spectra, density_sigma=None):
     neg = np.concatenate([-s.a[s.a < 0] for s in spectra] or [np.array([])])
     out = {}
     for name in free:
+        side = neg if name == "a_minus" else pos
+        if name in ("a_minus", "a_star", "a_plus") and np.unique(side).size == 1:
+            raise LossfitValueError("priors", f"{name}'s default prior spans the measured |a| range on its side, "
+                                    f"but the data have a single |a| there ({side[0]:g} a0): give a prior, e.g. "
+                                    f"priors={{'{name}': ({'-' if name == 'a_minus' else ''}{side[0] / 3:g}, "
+                                    f"{'-' if name == 'a_minus' else ''}{side[0] * 3:g})}}")
         if name == "a_minus":
             if neg.size == 0:
                 raise LossfitValueError("free", "a_minus is free but no data point has a < 0")
