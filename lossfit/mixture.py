@@ -34,8 +34,7 @@ from scipy.special import ive
 
 from .constants import ABAR_OVER_RVDW, ELECTRON_MASS, HBAR
 from .errors import LossfitValueError, check_finite, check_positive, is_real
-from .species import Species
-from .species import species as _lookup_species
+from .species import Species, species_argument
 from .units import CM6_PER_S, NK
 
 _C6_DBD = ("C6: Derevianko, Babb & Dalgarno, PRA 63, 052704 (2001) (quoted from memory; "
@@ -381,13 +380,6 @@ class HeteronuclearSystem:
         return _finish(self._bound_constant_si * mean / CM6_PER_S)
 
 
-def _as_species(name, value):
-    if not isinstance(value, (str, Species)):
-        raise LossfitValueError(name, f"must be a species name or a Species, got {value!r}")
-    try:
-        return _lookup_species(value)
-    except LossfitValueError as exc:
-        raise LossfitValueError(name, str(exc).split(": ", 1)[1]) from None
 
 
 def heteronuclear(boson, other, a_bb=0.0, *, c6_bx=None):
@@ -409,8 +401,8 @@ def heteronuclear(boson, other, a_bb=0.0, *, c6_bx=None):
     -------
     HeteronuclearSystem
     """
-    b = _as_species("boson", boson)
-    x = _as_species("other", other)
+    b = species_argument("boson", boson)
+    x = species_argument("other", other)
     if c6_bx is not None:
         return HeteronuclearSystem(b, x, a_bb, c6_bx, "user-defined")
     entry = _C6_TABLE.get(frozenset((b.name, x.name)))

@@ -10,7 +10,7 @@ memory and checked by the tests only against derived r_vdW check values (tests/t
 which are themselves quoted from memory.
 """
 
-__all__ = ["Species", "species", "register_species", "known_species"]
+__all__ = ["Species", "species", "register_species", "known_species", "species_argument"]
 
 import functools
 import math
@@ -133,6 +133,16 @@ def species(name_or_species):
                                     f"{', '.join(matches)}; name one")
     raise LossfitValueError("species", f"unknown species {name_or_species!r}; known: "
                             f"{', '.join(_REGISTRY)} (or build lossfit.Species(name, mass_u, c6_au))")
+
+
+def species_argument(name, value):
+    """:func:`species` for a function argument called ``name``: errors name that argument."""
+    if not isinstance(value, (str, Species)):
+        raise LossfitValueError(name, f"must be a species name or a Species, got {value!r}")
+    try:
+        return species(value)
+    except LossfitValueError as exc:
+        raise LossfitValueError(name, str(exc).split(": ", 1)[1]) from None
 
 
 def register_species(sp):

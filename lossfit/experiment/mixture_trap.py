@@ -31,8 +31,7 @@ from typing import NamedTuple
 import numpy as np
 
 from ..errors import LossfitValueError, check_positive, is_real
-from ..species import Species
-from ..species import species as _lookup_species
+from ..species import species_argument
 from ..units import CM3, HZ_TO_RAD_S, NK
 
 #: Standard acceleration of gravity in m/s^2 (exact by definition, 3rd CGPM 1901).
@@ -79,13 +78,6 @@ def _frequencies(name, value):
     return arr
 
 
-def _as_species(name, value):
-    if not isinstance(value, (str, Species)):
-        raise LossfitValueError(name, f"must be a species name or a Species, got {value!r}")
-    try:
-        return _lookup_species(value)
-    except LossfitValueError as exc:
-        raise LossfitValueError(name, str(exc).split(": ", 1)[1]) from None
 
 
 def _finish(values):
@@ -110,8 +102,8 @@ class MixtureTrap:
     """
 
     def __init__(self, boson, other, frequencies_b_hz, frequencies_x_hz, *, gravity=True):
-        self._boson = _as_species("boson", boson)
-        self._other = _as_species("other", other)
+        self._boson = species_argument("boson", boson)
+        self._other = species_argument("other", other)
         self._f_b = _frequencies("frequencies_b_hz", frequencies_b_hz)
         self._f_x = _frequencies("frequencies_x_hz", frequencies_x_hz)
         if gravity is True:

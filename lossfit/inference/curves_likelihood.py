@@ -88,7 +88,7 @@ from ..universal.models import get_model, scale_wavenumber_a0
 from .campaign_space import RESONANCE_NAMES
 from .curve_fits import spectrum_from_curves
 from .fit_checks import chi2_summary, poor_fit_message, temperature_plausibility
-from .likelihood import RateBlock
+from .likelihood import PreparedPlanCache, RateBlock
 
 # The decay integrator's tolerance: 1e-6 relative is far below counting noise and keeps a
 # batched call of 40 curves near 0.5 ms.
@@ -116,7 +116,7 @@ class _FastKinetics(TabulatedKinetics):
         self.values = None
 
 
-class _KineticsBlock:
+class _KineticsBlock(PreparedPlanCache):
     """The six coefficients of the explicit dimer kinetics at fixed points (a > 0, T,
     trap depth), prepared once as the zero-range model's observed-channel plan.
 
@@ -141,24 +141,6 @@ class _KineticsBlock:
         self.model = model
         self.rtol = rtol
         self.eta_min = ETA_MIN
-
-    @property
-    def eta_min(self):
-        """Smallest eta the prepared averages resolve (setting it discards them)."""
-        return self._eta_min
-
-    @eta_min.setter
-    def eta_min(self, value):
-        self._eta_min = float(value)
-        self._plan = None
-
-    def __getstate__(self):
-        # the plan's arrays are rebuilt where the block is unpickled (pool workers)
-        return {k: v for k, v in self.__dict__.items() if k != "_plan"}
-
-    def __setstate__(self, state):
-        self.__dict__.update(state)
-        self._plan = None
 
     def _plan_at(self, a):
         return self.model.observed_plan(a, a * self.k_s, self.unit, self.depth_over_t, eta_min=self.eta_min,

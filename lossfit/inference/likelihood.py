@@ -6,7 +6,7 @@ model, the data) is prepared once in a :class:`RateBlock`; one evaluation then c
 pass over the prepared quadrature nodes (lossfit.universal.averages).
 """
 
-__all__ = ["SpectrumLikelihood", "RateBlock"]
+__all__ = ["SpectrumLikelihood", "RateBlock", "PreparedPlanCache"]
 
 import math
 
@@ -25,7 +25,33 @@ from ..universal.models import OBSERVED, get_model, scale_wavenumber_a0
 from .fit_checks import goodness_of_fit, input_plausibility, poor_fit_message
 
 
-class RateBlock:
+class PreparedPlanCache:
+    """Base of blocks that hold a prepared thermal-average plan: ``eta_min`` (setting it
+    discards the plan) and pickling without the plan (rebuilt where a pool worker
+    unpickles the block). Subclasses build ``self._plan`` on demand."""
+
+    _plan = None
+
+    @property
+    def eta_min(self):
+        """Smallest eta the prepared averages resolve (setting it discards them)."""
+        return self._eta_min
+
+    @eta_min.setter
+    def eta_min(self, value):
+        self._eta_min = float(value)
+        self._plan = None
+
+    def __getstate__(self):
+        # the plan's arrays are rebuilt where the block is unpickled (pool workers)
+        return {k: v for k, v in self.__dict__.items() if k != "_plan"}
+
+    def __setstate__(self, state):
+        self.__dict__.update(state)
+        self._plan = None
+
+
+class RateBlock(PreparedPlanCache):
     """Thermal L3 or beta at fixed points (a, T), prepared for repeated evaluation.
 
     Parameters
@@ -66,26 +92,7 @@ class RateBlock:
         self.density_power = 2.0 if kind == "l3" else 1.0
         self.model = model
         self.rtol = rtol
-        self._plan = None
         self.eta_min = eta_min
-
-    @property
-    def eta_min(self):
-        """Smallest eta the prepared averages resolve (setting it discards them)."""
-        return self._eta_min
-
-    @eta_min.setter
-    def eta_min(self, value):
-        self._eta_min = float(value)
-        self._plan = None
-
-    def __getstate__(self):
-        # the plan's arrays are rebuilt where the block is unpickled (pool workers)
-        return {k: v for k, v in self.__dict__.items() if k != "_plan"}
-
-    def __setstate__(self, state):
-        self.__dict__.update(state)
-        self._plan = None
 
     @property
     def plan(self):
