@@ -45,3 +45,16 @@ def line_features(p, out):
     out[1] = p[0]
     out[2] = p[0] + p[1]
     return 3
+
+
+class Gaussian:
+    """Analytic multivariate Gaussian log density (picklable): a sampler target whose
+    moments are known exactly."""
+
+    def __init__(self, mean, cov):
+        self.mean = np.asarray(mean)
+        self.icov = np.linalg.inv(cov)
+
+    def __call__(self, x):
+        d = x - self.mean
+        return -0.5 * d @ self.icov @ d

@@ -5,24 +5,13 @@ import warnings
 
 import numpy as np
 import pytest
+from independent import Gaussian
 
 import lossfit as lf
 from lossfit.errors import LossfitValueError
 from lossfit.inference.diagnostics import autocorrelation_times
 from lossfit.inference.sampling import CHECK_EVERY, convergence_state, sample
 from lossfit.simulate import demo_spectra
-
-
-class Gaussian:
-    """Analytic 2-D Gaussian log density (picklable)."""
-
-    def __init__(self, mean, cov):
-        self.mean = np.asarray(mean)
-        self.icov = np.linalg.inv(cov)
-
-    def __call__(self, x):
-        d = x - self.mean
-        return -0.5 * d @ self.icov @ d
 
 
 def _target():

@@ -6,6 +6,7 @@ import warnings
 
 import numpy as np
 import pytest
+from independent import Gaussian
 
 import lossfit as lf
 from lossfit.errors import ConvergenceWarning, LossfitValueError
@@ -14,18 +15,6 @@ from lossfit.inference.priors import LogNormal, LogUniform
 from lossfit.inference.sampling import sample
 
 CS = lf.species("133Cs")
-
-
-class Gaussian:
-    """Analytic 2-D Gaussian log density (picklable)."""
-
-    def __init__(self, mean, cov):
-        self.mean = np.asarray(mean)
-        self.icov = np.linalg.inv(cov)
-
-    def __call__(self, x):
-        d = x - self.mean
-        return -0.5 * d @ self.icov @ d
 
 
 def test_sampler_recovers_mean_and_covariance_of_analytic_gaussian():
