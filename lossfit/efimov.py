@@ -108,7 +108,8 @@ class Efimov:
     @property
     def n_walkers(self):
         """Walkers this set holds: 0 for floats, W when its parameters are arrays of W."""
-        return max((np.size(v) for v in vars(self).values() if v is not None and np.ndim(v) > 0), default=0)
+        # walker arrays are numpy arrays (Efimov.trusted); floats and None are not
+        return max((v.size for v in vars(self).values() if isinstance(v, np.ndarray) and v.ndim), default=0)
 
     def walkers(self):
         """The sets of a walker-array Efimov (see :meth:`trusted`) one by one, as floats."""

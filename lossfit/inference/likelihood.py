@@ -102,12 +102,14 @@ class RateBlock(PreparedPlanCache):
 
     def _make_plan(self, a, eta_min, rtol=None):
         q = a * self.k_s
-        if self.channel == OBSERVED:
+        if self.channel == OBSERVED and (a > 0).any():
             return self.model.observed_plan(a, q, self.unit, self.depth_over_t, eta_min=eta_min, rtol=rtol)
         if rtol is not None:
             return None
         if self.process == THREE_BODY:
-            return self.model.three_body_plan(a, q, self.unit, channel=self.channel, eta_min=eta_min)
+            # a < 0 forms no shallow dimer: there the observed loss is the total rate
+            channel = "total" if self.channel == OBSERVED else self.channel
+            return self.model.three_body_plan(a, q, self.unit, channel=channel, eta_min=eta_min)
         return self.model.atom_dimer_plan(a, q, self.unit, channel=self.channel, eta_min=eta_min)
 
     def predict(self, efimov, a=None):
@@ -128,8 +130,9 @@ class RateBlock(PreparedPlanCache):
         plan = self._make_plan(a, self.eta_min, rtol=self.rtol)
         if plan is not None:
             return plan.evaluate(efimov)
+        channel = "total" if self.channel == OBSERVED else self.channel      # a < 0 only here
         return efimov.each_walker(lambda one: self.model.reference_average(self.process, a, a * self.k_s, one,
-                                                                           self.channel, self.rtol)[0] * self.unit)
+                                                                           channel, self.rtol)[0] * self.unit)
 
 
 def _depth_record(spectrum, channel):
@@ -244,7 +247,10 @@ class SpectrumLikelihood:
         """log L (float), or one per walker (array) for an Efimov set of walker arrays;
         ``density_scale`` a float or one per walker."""
         walkers = efimov.n_walkers
-        scale = np.broadcast_to(np.asarray(density_scale, dtype=float), (max(walkers, 1),))
+        if walkers:
+            scale = np.broadcast_to(np.asarray(density_scale, dtype=float), (walkers,))
+        else:
+            scale = np.array([float(density_scale)])
         chi2 = np.zeros(scale.size)
         for b in self.blocks:
             predicted = b.predict(efimov)
