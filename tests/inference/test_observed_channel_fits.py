@@ -31,7 +31,7 @@ def _fit(a_max, channel):
         spectra.append(lf.LossSpectrum(a, t, v, 0.1 * v, channel=channel, label=f"{t:g} nK"))
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        res = lf.fit(spectra, species="133Cs", free=["a_plus", "eta_plus"], walkers=24, steps=1500, seed=3,
+        res = lf.fit(spectra, species="133Cs", free=["a_plus", "eta_plus"], walkers=16, steps=900, seed=3,
                      progress=False, initial={"a_plus": 4000.0, "eta_plus": 0.1},
                      priors={"a_plus": LogUniform(1000.0, 20000.0)})
     return {row["name"]: row for row in res.summary()}, res
