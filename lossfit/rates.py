@@ -30,6 +30,7 @@ from .universal.models import (
     OBSERVED,
     UNITARITY_ATOM_DIMER,
     UNITARITY_THREE_BODY,
+    channel_at_negative_a,
     get_model,
     scale_wavenumber_a0,
 )
@@ -282,8 +283,9 @@ def _averaged(process, a, temperature, species, efimov, model, rtol, channel, tr
                                          rtol=rtol)
                 out[pos] = plan.evaluate(efimov)
             if not pos.all():
-                # a < 0 forms no shallow dimer: the total rate, by the path a scalar call takes
-                out[~pos] = _averaged(process, a_f[~pos], scale_b.ravel()[~pos], sp, efimov, mdl, rtol, "total")
+                # a < 0 forms no shallow dimer: the formal rate there, by the path a scalar call takes
+                out[~pos] = _averaged(process, a_f[~pos], scale_b.ravel()[~pos], sp, efimov, mdl, rtol,
+                                      channel_at_negative_a(channel))
             return _finish(out, a_b.shape)
         if trap_depth is not None:
             raise LossfitValueError("trap_depth", f"applies to channel='observed' only, not {channel!r}")

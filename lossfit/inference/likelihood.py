@@ -21,7 +21,7 @@ from ..species import species as _species
 from ..thermal import ATOM_DIMER, THREE_BODY
 from ..units import NK
 from ..universal.averages import ETA_MIN
-from ..universal.models import OBSERVED, get_model, scale_wavenumber_a0
+from ..universal.models import OBSERVED, channel_at_negative_a, get_model, scale_wavenumber_a0
 from .fit_checks import goodness_of_fit, input_plausibility, poor_fit_message
 
 
@@ -107,9 +107,9 @@ class RateBlock(PreparedPlanCache):
         if rtol is not None:
             return None
         if self.process == THREE_BODY:
-            # a < 0 forms no shallow dimer: there the observed loss is the total rate
-            channel = "total" if self.channel == OBSERVED else self.channel
-            return self.model.three_body_plan(a, q, self.unit, channel=channel, eta_min=eta_min)
+            # only a < 0 points reach here with the observed channel
+            return self.model.three_body_plan(a, q, self.unit, channel=channel_at_negative_a(self.channel),
+                                              eta_min=eta_min)
         return self.model.atom_dimer_plan(a, q, self.unit, channel=self.channel, eta_min=eta_min)
 
     def predict(self, efimov, a=None):
@@ -130,7 +130,7 @@ class RateBlock(PreparedPlanCache):
         plan = self._make_plan(a, self.eta_min, rtol=self.rtol)
         if plan is not None:
             return plan.evaluate(efimov)
-        channel = "total" if self.channel == OBSERVED else self.channel      # a < 0 only here
+        channel = channel_at_negative_a(self.channel)      # only a < 0 points reach here
         return efimov.each_walker(lambda one: self.model.reference_average(self.process, a, a * self.k_s, one,
                                                                            channel, self.rtol)[0] * self.unit)
 

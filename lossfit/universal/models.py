@@ -44,7 +44,8 @@ and E = hbar^2 k^2/(2 mu); in natural units beta <= (3 sqrt(3) pi / 4) / sqrt(x)
 """
 
 __all__ = ["EnergyModel", "ThresholdModel", "CappedModel", "ZeroRangeModel", "get_model", "register_model",
-           "available_models", "UNITARITY_THREE_BODY", "UNITARITY_ATOM_DIMER", "REFERENCE_RTOL", "OBSERVED"]
+           "available_models", "UNITARITY_THREE_BODY", "UNITARITY_ATOM_DIMER", "REFERENCE_RTOL", "OBSERVED",
+           "channel_at_negative_a"]
 
 import functools
 import math
@@ -85,6 +86,12 @@ from .threshold import beta_coefficient_unchecked, l3_coefficient_unchecked
 # "observed" (what a trapped gas loses) combines them with atom-dimer loss: _ObservedPlan.
 _CHANNEL_WEIGHTS = {"total": (1.0, 1.0), "shallow": (1.0, 0.0), "deep": (0.0, 1.0)}
 OBSERVED = "observed"
+
+
+def channel_at_negative_a(channel):
+    """The formal channel that gives ``channel`` where a < 0: no shallow dimer exists
+    there, so what a gas loses (``"observed"``) is the total (deep-dimer) rate."""
+    return "total" if channel == OBSERVED else channel
 # (relaxation, breakup) weights of the atom-dimer loss channels
 _ATOM_DIMER_CHANNEL_WEIGHTS = {"relaxation": (1.0, 0.0), "breakup": (0.0, 1.0), "total": (1.0, 1.0)}
 UNITARITY_THREE_BODY = averages.UNITARITY_THREE_BODY
