@@ -6,7 +6,8 @@ Every error that bad user input can trigger is a :class:`LossfitValueError`, a
 
 __all__ = ["LossfitError", "LossfitValueError", "Interrupted", "OutputConflict", "ConvergenceWarning",
            "FitCheckWarning", "ValidityWarning",
-           "as_real_array", "check_finite", "check_positive", "check_nonzero", "check_times", "check_table",
+           "as_real_array", "check_finite", "check_positive", "check_frequencies", "check_nonzero", "check_times",
+           "check_table",
            "is_real"]
 
 import numbers
@@ -96,6 +97,20 @@ def check_finite(name, value):
     bad = ~np.isfinite(arr)
     if bad.any():
         raise LossfitValueError(name, f"must be finite, got {_describe(arr[bad])}")
+    return arr
+
+
+def check_frequencies(name, value):
+    """Three trap frequencies (f_x, f_y, f_z) in Hz as a read-only float array, raising
+    (naming ``name``) unless there are exactly three finite positive numbers."""
+    try:
+        arr = np.asarray(value, dtype=float)
+    except (TypeError, ValueError):
+        raise LossfitValueError(name, f"must be three frequencies (f_x, f_y, f_z) in Hz, got {value!r}") from None
+    if arr.shape != (3,):
+        raise LossfitValueError(name, f"must be three frequencies (f_x, f_y, f_z) in Hz, got shape {arr.shape}")
+    arr = np.array(check_positive(name, arr))
+    arr.setflags(write=False)
     return arr
 
 

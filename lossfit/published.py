@@ -33,6 +33,9 @@ COLUMNS = ("species", "field_G", "a_minus", "a_minus_err", "a_minus_over_rvdw", 
 
 _FROM_MEMORY = ("values and journal reference from memory (not verified in the paper's text); authors and title "
                 "checked in the abstract")
+#: Four resonances of one paper (133Cs): its citation once.
+_BERNINGER_2011 = ("M. Berninger, A. Zenesini, B. Huang, W. Harm, H.-C. Nägerl, F. Ferlaino, R. Grimm, "
+                   "P. S. Julienne and J. M. Hutson, Phys. Rev. Lett. 107, 120401 (2011)")
 
 #: The shipped rows: species, Feshbach resonance (G), a_- and its error (a0), eta_- (None where
 #: not recorded here), temperature (nK, None where not recorded here), citation, what was checked.
@@ -42,17 +45,13 @@ PUBLISHED_ROWS = (
      "H.-C. Nägerl and R. Grimm, Nature 440, 315 (2006)",
      "values and citation from memory"),
     ("133Cs", -11.7, -872.0, 22.0, 0.10, None,
-     "M. Berninger, A. Zenesini, B. Huang, W. Harm, H.-C. Nägerl, F. Ferlaino, R. Grimm, P. S. Julienne and "
-     "J. M. Hutson, Phys. Rev. Lett. 107, 120401 (2011)", _FROM_MEMORY),
+     _BERNINGER_2011, _FROM_MEMORY),
     ("133Cs", 548.8, -955.0, 28.0, 0.12, None,
-     "M. Berninger, A. Zenesini, B. Huang, W. Harm, H.-C. Nägerl, F. Ferlaino, R. Grimm, P. S. Julienne and "
-     "J. M. Hutson, Phys. Rev. Lett. 107, 120401 (2011)", _FROM_MEMORY),
+     _BERNINGER_2011, _FROM_MEMORY),
     ("133Cs", 786.8, -1029.0, 58.0, 0.19, None,
-     "M. Berninger, A. Zenesini, B. Huang, W. Harm, H.-C. Nägerl, F. Ferlaino, R. Grimm, P. S. Julienne and "
-     "J. M. Hutson, Phys. Rev. Lett. 107, 120401 (2011)", _FROM_MEMORY),
+     _BERNINGER_2011, _FROM_MEMORY),
     ("133Cs", 853.0, -957.0, 80.0, 0.08, None,
-     "M. Berninger, A. Zenesini, B. Huang, W. Harm, H.-C. Nägerl, F. Ferlaino, R. Grimm, P. S. Julienne and "
-     "J. M. Hutson, Phys. Rev. Lett. 107, 120401 (2011)", _FROM_MEMORY),
+     _BERNINGER_2011, _FROM_MEMORY),
     ("85Rb", 155.0, -759.0, 6.0, 0.057, None,
      "R. J. Wild, P. Makotyn, J. M. Pino, E. A. Cornell and D. S. Jin, Phys. Rev. Lett. 108, 145305 (2012)",
      "values and journal reference from memory (not verified in the paper's text); authors and the located "

@@ -43,7 +43,7 @@ import h5py
 import numpy as np
 
 from .._io import atomic_path, open_checked_h5, read_csv_table, write_h5_header
-from ..errors import LossfitValueError, check_finite, check_positive, check_times
+from ..errors import LossfitValueError, check_finite, check_frequencies, check_positive, check_times
 
 CAMPAIGN_SCHEMA = "lossfit.campaign"
 CAMPAIGN_SCHEMA_VERSION = 2
@@ -239,17 +239,7 @@ def _trap_frequencies(trap_hz, dimer_trap_hz):
                                 "or a HarmonicTrap")
     atom = getattr(trap_hz, "frequencies_hz", trap_hz)
     dimer = getattr(trap_hz, "dimer_frequencies_hz", atom) if dimer_trap_hz is None else dimer_trap_hz
-    out = []
-    for name, f in (("trap_hz", atom), ("dimer_trap_hz", dimer)):
-        try:
-            arr = np.asarray(f, dtype=float)
-        except (TypeError, ValueError):
-            raise LossfitValueError(name, f"must be 3 frequencies in Hz, got {f!r}") from None
-        if arr.shape != (3,):
-            raise LossfitValueError(name, f"must be 3 frequencies in Hz, got shape {arr.shape}")
-        out.append(np.array(check_positive(name, arr)))
-    _readonly(*out)
-    return out[0], out[1]
+    return check_frequencies("trap_hz", atom), check_frequencies("dimer_trap_hz", dimer)
 
 
 def check_curves(curves, name="curves"):

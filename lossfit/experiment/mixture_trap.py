@@ -30,7 +30,7 @@ from typing import NamedTuple
 
 import numpy as np
 
-from ..errors import LossfitValueError, check_positive, is_real
+from ..errors import LossfitValueError, check_frequencies, check_positive, is_real
 from ..species import species_argument
 from ..units import CM3, HZ_TO_RAD_S, NK
 
@@ -67,15 +67,7 @@ class MixtureOverlap(NamedTuple):
 def _frequencies(name, value):
     if value is None:
         raise LossfitValueError(name, "trap frequencies are required: give (f_x, f_y, f_z) in Hz")
-    try:
-        arr = np.asarray(value, dtype=float)
-    except (TypeError, ValueError):
-        raise LossfitValueError(name, f"must be three frequencies (f_x, f_y, f_z) in Hz, got {value!r}") from None
-    if arr.shape != (3,):
-        raise LossfitValueError(name, f"must be three frequencies (f_x, f_y, f_z) in Hz, got {value!r}")
-    arr = check_positive(name, arr)
-    arr.setflags(write=False)
-    return arr
+    return check_frequencies(name, value)
 
 
 
