@@ -17,6 +17,10 @@ error that names the key)::
     # its resonance is the nominal a(B)), with the campaign systematics density_scale,
     # temperature_scale, b0, width, a_bg, sigma_B allowed in [free]
     # campaign = "campaign.h5"
+    exclude = "outside-validity"           # optional, spectra only: leave out points outside the
+                                           # zero-range validity range (|a| < 5 r_vdW or
+                                           # k_B T > 0.1 E_vdW), recorded in summary.json;
+                                           # absent: every point is fitted (lossfit.fit's exclude)
 
     [model]
     name = "zero-range"                    # the default; see lossfit.available_models()
@@ -70,6 +74,7 @@ from ..errors import FitCheckWarning, LossfitValueError
 from ..experiment.feshbach import FeshbachResonance
 from ..inference.campaign_space import SYSTEMATIC_NAMES
 from ..inference.fit_checks import same_species
+from ..inference.fitting import EXCLUDE_CHOICES
 from ..inference.parameters import EFIMOV_NAMES, NUISANCE_NAMES
 from ..inference.priors import LogNormal, LogUniform, Normal, Uniform
 from ..species import species as _species
@@ -85,7 +90,8 @@ class JobError(LossfitValueError):
     """A job file is malformed; ``argument`` is the offending key."""
 
 
-_SECTIONS = {"data": {"species", "spectra", "csv", "campaign", "binding_energies", "allow_species_mismatch"},
+_SECTIONS = {"data": {"species", "spectra", "csv", "campaign", "binding_energies", "allow_species_mismatch",
+                      "exclude"},
              "model": {"name", "tie"},
              "free": None,
              "fixed": None, "sampler": {"walkers", "steps", "max_steps", "seed", "burn", "thin",
@@ -134,6 +140,7 @@ class Job:
     study: object = None
     binding_energies: object = None
     allow_species_mismatch: bool = False
+    exclude: object = None
 
     @property
     def base_dir(self):
@@ -198,7 +205,7 @@ class Job:
         kw = dict(species=self.species, free=self.free, model=self.model, priors=self.priors,
                   walkers=s["walkers"], steps=steps or s["steps"], max_steps=s["max_steps"],
                   burn=None if s["burn"] == "auto" else s["burn"], thin=s["thin"], seed=s["seed"],
-                  fixed=self.fixed, tie=self.tie)
+                  fixed=self.fixed, tie=self.tie, exclude=self.exclude)
         if self.campaign:
             kw["systematics"] = {n: p for n, p in self.priors.items() if n in SYSTEMATIC_NAMES}
             kw["priors"] = {n: p for n, p in self.priors.items() if n not in SYSTEMATIC_NAMES}
@@ -359,10 +366,29 @@ def parse_job(text, path):
                 and par not in priors:
             raise JobError(f"free.{par}", "needs an explicit prior (e.g. log-normal, sigma = 0.2)")
     study = _study(doc.get("study"), campaign, free)
+    exclude = _exclude(data, campaign, study)
     return Job(path=path, text=text, species=sp, spectra=spectra, csv=csv, campaign=campaign, model=name,
                tie=None if tie == "none" else tie, free=free, priors=priors, fixed=fixed, sampler=sampler,
                study=study, binding_energies=binding,
-               allow_species_mismatch=_flag("data.allow_species_mismatch", data.get("allow_species_mismatch", False)))
+               allow_species_mismatch=_flag("data.allow_species_mismatch", data.get("allow_species_mismatch", False)),
+               exclude=exclude)
+
+
+def _exclude(data, campaign, study):
+    """The validated ``[data] exclude`` (lossfit.fit's ``exclude``), or None."""
+    if "exclude" not in data:
+        return None
+    value = data["exclude"]
+    named = [c for c in EXCLUDE_CHOICES if c is not None]
+    if value not in named:
+        raise JobError("data.exclude", f"must be one of {named} (leave the key out to fit every point), "
+                       f"got {value!r}")
+    if campaign is not None:
+        raise JobError("data.exclude", "applies to spectra; a campaign's decay curves are fitted whole")
+    if study is not None and study["kind"] in ("temperature", "calibration"):
+        raise JobError("data.exclude", f"is not used by [study] kind = {study['kind']!r}; select the points "
+                       "in the data files instead")
+    return value
 
 
 #: The analyses a ``[study]`` section may name as ``kind``.

@@ -288,7 +288,7 @@ def load_result(run_dir):
             vals = space.values(best)
             likelihood.refresh(space.efimov(vals), vals)
         else:
-            space, likelihood, _ = prepare(data, **common)
+            space, likelihood, _ = prepare(data, exclude=kw["exclude"], **common)
         # the run's own record of its settings where it has one (they are not recomputed)
         settings = recorded or {"walkers": kw["walkers"], "seed": kw["seed"], "steps": stored["iteration"]}
         return make_result(space, likelihood, stored["chain"], stored["log_prob"],

@@ -1,6 +1,6 @@
 """``lossfit.fit``: posterior Efimov parameters from loss spectra with emcee."""
 
-__all__ = ["fit", "prepare"]
+__all__ = ["fit", "prepare", "EXCLUDE_CHOICES"]
 
 import math
 
@@ -16,7 +16,13 @@ from .global_fit import fit_curves
 from .likelihood import SpectrumLikelihood
 from .parameters import ParameterSpace, default_priors
 from .posterior import Posterior, WalkerBlocks, check_run_settings, coerce_priors, interactive, make_result, walker_ball
+from .result import RANGE_REASONS, validity_findings
 from .sampling import open_backend, sample, stop_record
+
+#: Values of ``exclude`` (:func:`fit`): None keeps every point; ``"outside-validity"``
+#: leaves out the points outside the zero-range theory's range (|a| < 5 r_vdW or
+#: k_B T > 0.1 E_vdW, :data:`lossfit.inference.result.RANGE_REASONS`).
+EXCLUDE_CHOICES = (None, "outside-validity")
 
 
 def _check_constrained(space, spectra):
@@ -31,6 +37,33 @@ def _check_constrained(space, spectra):
         if name in needs and not has[needs[name]]:
             what = {"l3-": "L3 data at a < 0", "l3+": "L3 data at a > 0", "beta": "beta data"}[needs[name]]
             raise LossfitValueError("free", f"{name} is free but there is no {what} to constrain it")
+
+
+def _exclude(spectra, species, exclude):
+    """(spectra to fit, records of the points left out) for ``exclude`` (:func:`fit`)."""
+    if exclude not in EXCLUDE_CHOICES:
+        raise LossfitValueError("exclude", f"must be None (keep every point) or 'outside-validity', got {exclude!r}")
+    if exclude is None:
+        return spectra, []
+    # the findings fit results report, so that exactly the points flagged there are dropped
+    outside = [f for f in validity_findings(spectra, species) if f["outside_range"]]
+    if not outside:
+        return spectra, []
+    range_texts = {text for _, text in RANGE_REASONS}
+    drop = [np.zeros(len(s), dtype=bool) for s in spectra]
+    records = []
+    for f in outside:
+        s, j = spectra[f["spectrum"]], f["point"]
+        drop[f["spectrum"]][j] = True
+        records.append({"spectrum": f["spectrum"], "label": s.label, "kind": s.kind, "point": j, "a": f["a"],
+                        "temperature_nK": f["temperature_nK"], "value": float(s.value[j]),
+                        "error": float(s.error[j]), "reasons": [r for r in f["reasons"] if r in range_texts]})
+    kept = [s.select(~d) for s, d in zip(spectra, drop) if not d.all()]
+    if not kept:
+        raise LossfitValueError("exclude", f"exclude={exclude!r} leaves no data point: all {len(records)} lie "
+                                "outside the validity range (|a| < 5 r_vdW or k_B T > 0.1 E_vdW); fit with "
+                                "exclude=None to keep them")
+    return kept, records
 
 
 def _negative_finite(posterior):
@@ -64,33 +97,44 @@ def _start(posterior, space, walkers, rng, initial):
 
 
 def prepare(data, *, species, free, model=None, priors=None, fixed=None, tie=None,
-            density_sigma=None, rtol=None):
+            density_sigma=None, rtol=None, exclude=None):
     """Validate a fit's inputs and build its pieces: (space, likelihood, posterior).
 
-    Shared by :func:`fit` and by code that rebuilds results from stored chains.
+    Shared by :func:`fit` and by code that rebuilds results from stored chains. Points
+    left out by ``exclude`` are gone before the default priors and the likelihood are
+    built; the likelihood keeps their records as ``excluded``.
     """
     spectra = [data] if isinstance(data, LossSpectrum) else list(data)
     if not spectra or not all(isinstance(s, LossSpectrum) for s in spectra):
         raise LossfitValueError("data", "must be one or more LossSpectrum objects")
     sp = _species(species)
+    spectra, excluded = _exclude(spectra, sp, exclude)
     mdl = get_model(DEFAULT_MODEL if model is None else model)
     free = [free] if isinstance(free, str) else list(free)
     if "density_scale" in free and density_sigma is not None:
         if not (isinstance(density_sigma, (int, float)) and math.isfinite(density_sigma) and density_sigma > 0):
             raise LossfitValueError("density_sigma", f"must be a positive number, got {density_sigma!r}")
     user_priors = coerce_priors(priors)
-    all_priors = default_priors([n for n in free if n not in user_priors], spectra, density_sigma)
-    all_priors.update(user_priors)
-    space = ParameterSpace(free, all_priors, fixed=fixed, tie=tie)
-    _check_constrained(space, spectra)
+    try:
+        all_priors = default_priors([n for n in free if n not in user_priors], spectra, density_sigma)
+        all_priors.update(user_priors)
+        space = ParameterSpace(free, all_priors, fixed=fixed, tie=tie)
+        _check_constrained(space, spectra)
+    except LossfitValueError as err:
+        # a free parameter whose data were all left out: say so in terms of the exclusion
+        if not excluded or err.argument != "free":
+            raise
+        raise LossfitValueError("exclude", f"{str(err).split(': ', 1)[1]} once exclude={exclude!r} has left out "
+                                f"{len(excluded)} point(s) outside the validity range") from None
     likelihood = SpectrumLikelihood(spectra, sp, mdl, rtol=rtol, eta_min=space.eta_floor())
+    likelihood.excluded = excluded
     return space, likelihood, Posterior(space, likelihood)
 
 
 def fit(data, *, species, free, model=None, priors=None, walkers=32, steps=3000, burn=None, thin=1,
         seed=None, backend=None, pool=None, fixed=None, tie=None, density_sigma=None,
         progress=None, initial=None, rtol=None, checkpoint_every=100, log_every=None, metadata=None,
-        max_steps=None, **curve_options):
+        max_steps=None, exclude=None, **curve_options):
     """Sample the posterior of Efimov parameters given loss spectra.
 
     Parameters
@@ -149,6 +193,13 @@ def fit(data, *, species, free, model=None, priors=None, walkers=32, steps=3000,
         Print a progress line every so many steps (batch jobs without a terminal).
     metadata : dict, optional
         Provenance stored in the chain file.
+    exclude : {None, "outside-validity"}
+        None (default): fit every point. ``"outside-validity"``: leave out the points
+        outside the zero-range theory's range (|a| < 5 r_vdW or k_B T > 0.1 E_vdW; the
+        points fit results otherwise list in ``outside_validity`` with
+        ``outside_range``) before the priors and the likelihood are built; the result
+        lists them in ``excluded`` (and ``summary.json``). An error if no point would
+        remain. Spectra only.
 
     Returns
     -------
@@ -156,6 +207,9 @@ def fit(data, *, species, free, model=None, priors=None, walkers=32, steps=3000,
     """
     items = [data] if isinstance(data, (LossSpectrum, DecayCurve)) else list(data)
     if items and all(isinstance(d, DecayCurve) for d in items):
+        if exclude is not None:
+            raise LossfitValueError("exclude", "applies to spectra; a decay-curve fit uses whole curves (pass only "
+                                    "the curves to fit)")
         return fit_curves(items, species=species, free=free, model=model, priors=priors, walkers=walkers,
                           steps=steps, burn=burn, thin=thin, seed=seed, backend=backend, pool=pool,
                           fixed=fixed, tie=tie, density_sigma=density_sigma, progress=progress,
@@ -171,7 +225,8 @@ def fit(data, *, species, free, model=None, priors=None, walkers=32, steps=3000,
         raise LossfitValueError("walkers", f"must be at least twice the number of free parameters "
                                 f"({2 * n_free}), got {walkers}")
     space, likelihood, posterior = prepare(data, species=species, free=free, model=model, priors=priors,
-                                           fixed=fixed, tie=tie, density_sigma=density_sigma, rtol=rtol)
+                                           fixed=fixed, tie=tie, density_sigma=density_sigma, rtol=rtol,
+                                           exclude=exclude)
     rng = np.random.default_rng(seed)
     probe = space.theta([p.sample(rng, 1)[0] for p in space.priors])
     try:
@@ -189,6 +244,6 @@ def fit(data, *, species, free, model=None, priors=None, walkers=32, steps=3000,
                  checkpoint_every=checkpoint_every, names=space.names, metadata=metadata, max_steps=max_steps)
     settings = {"walkers": walkers, "steps": int(run.chain.shape[0]), "seed": seed,
                 "model": likelihood.model.name, "free": ",".join(space.names), "tie": tie or "",
-                "density_sigma": density_sigma, **stop_record(run)}
+                "density_sigma": density_sigma, "exclude": exclude or "", **stop_record(run)}
     return make_result(space, likelihood, run.chain, run.log_prob, run.acceptance, burn=burn, thin=thin,
                        settings=settings)

@@ -1,6 +1,6 @@
 """The result of a fit: posterior samples, summaries, diagnostics and derived ratios."""
 
-__all__ = ["FitResult"]
+__all__ = ["FitResult", "FEATURES", "RANGE_REASONS", "validity_findings"]
 
 import html
 import json
@@ -31,6 +31,17 @@ REFERENCES = {
     "eta_star/eta_minus": (1.0, "one eta for every feature (zero range with one three-body inelasticity)"),
     "eta_plus/eta_minus": (1.0, "one eta for every feature (zero range with one three-body inelasticity)"),
 }
+
+
+#: The Efimov features, lengths in a0: the recombination resonance a_-, the atom-dimer
+#: resonance a* and the recombination minimum a_+.
+FEATURES = ("a_minus", "a_star", "a_plus")
+
+#: Flags of :func:`lossfit.rates.validity_flags` that put a point outside the range in
+#: which the zero-range theory holds, with the text results give as the reason. The
+#: third flag, ``weak_dimer``, is about how the loss is interpreted, not about the
+#: theory's range (docs/conventions.md).
+RANGE_REASONS = (("short_a", "|a| < 5 r_vdW"), ("hot", "k_B T > 0.1 E_vdW"))
 
 
 def _digits(row):
@@ -72,9 +83,15 @@ class FitResult:
         Convergence problems and validity notes (convergence problems are also issued
         as ConvergenceWarning).
     outside_validity : list of dict
-        Data points outside the zero-range theory's range: spectrum index, point index,
-        a (a0), T (nK) and reasons ("|a| < 5 r_vdW", "k_B T > 0.1 E_vdW", and for L3 at
-        a > 0 with k_B T > E_b the loss channel the point was fitted with).
+        Fitted data points outside the zero-range theory's range or with a note on their
+        loss interpretation (:func:`validity_findings`): spectrum index, point index, a
+        (a0), T (nK), reasons ("|a| < 5 r_vdW", "k_B T > 0.1 E_vdW", and for L3 at a > 0
+        with k_B T > E_b the loss channel the point was fitted with) and
+        ``outside_range`` (True for the first two reasons).
+    excluded : list of dict
+        Data points left out of the likelihood by ``lf.fit(..., exclude=...)``: spectrum
+        and point index in the data as given, its label and kind, a (a0), T (nK), value
+        and error (cm^6/s or cm^3/s) and the reasons; empty when every point was fitted.
     loss_channels : list of dict
         Per spectrum: kind, the loss channel fitted (``"observed"``, ``"total"``, ...) and
         how the trap depth entered (given, or assumed 10 k_B T).
@@ -112,7 +129,9 @@ class FitResult:
         self.rhat = dict(zip(self.names, map(float, rhat)))
         self.warnings = []
         self.loss_channels = list(getattr(likelihood, "channels", []))
-        self.outside_validity = _outside_validity(getattr(likelihood, "spectra", []), species, self.loss_channels)
+        self.outside_validity = validity_findings(getattr(likelihood, "spectra", []), species, self.loss_channels)
+        # points the fit left out were chosen before the likelihood was built; it keeps the record
+        self.excluded = list(getattr(likelihood, "excluded", []))
         validity = []
         if self.outside_validity:
             reasons = sorted({r for p in self.outside_validity for r in p["reasons"]})
@@ -203,11 +222,31 @@ class FitResult:
             rows.append({"name": n, "units": "", **_quantiles(x), "reference": ref, "reference_source": source})
         return rows
 
+    def feature_samples(self):
+        """Posterior samples (a0) of the Efimov features the fit determines.
+
+        Returns
+        -------
+        dict name -> ndarray
+            ``a_minus``, ``a_star``, ``a_plus`` where sampled, or tied to a sampled a_- by
+            ``tie="universal"``; fixed features are not fitted and not included.
+        """
+        tied = self.space.tie == "universal" and "a_minus" in self.names
+        wanted = [n for n in FEATURES if n in self.names or tied]
+        if not wanted:
+            return {}
+        efimov = self.space.efimov(self._values_per_sample())
+        return {n: np.asarray(getattr(efimov, n), dtype=float) for n in wanted}
+
     def interval(self, name):
-        """(median, lo68, hi68) of a free parameter or derived quantity, as in :meth:`summary`."""
+        """(median, lo68, hi68) of a free parameter, derived quantity or fitted feature
+        (:meth:`feature_samples`), as in :meth:`summary`."""
         samples = self.samples.get(name, self.derived.get(name))
         if samples is None:
-            raise LossfitValueError("name", f"no parameter {name!r}; have {self.names + list(self.derived)}")
+            samples = self.feature_samples().get(name)
+        if samples is None:
+            raise LossfitValueError("name", f"no parameter {name!r}; have "
+                                            f"{self.names + list(self.derived) + list(self.feature_samples())}")
         q = _quantiles(samples)
         return float(q["median"]), float(q["lo68"]), float(q["hi68"])
 
@@ -265,9 +304,16 @@ class FitResult:
                 lines.append(f"  {n:<{w - 2}}" + " ".join(f"{v:+.2f}" for v in row))
         if self.fit_checks:
             lines.append(self._fit_line())
+        if self.excluded:
+            lines.append(self._excluded_line())
         for w in self.warnings:
             lines.append(f"WARNING: {w}")
         return "\n".join(lines)
+
+    def _excluded_line(self):
+        reasons = sorted({r for p in self.excluded for r in p["reasons"]})
+        return (f"excluded from the fit: {len(self.excluded)} data point(s) outside the validity range "
+                f"({'; '.join(reasons)}); see excluded")
 
     def __str__(self):
         return self.table()
@@ -307,7 +353,8 @@ class FitResult:
                 "summary": [{k: clean(v) for k, v in r.items()} for r in self.summary()],
                 "correlation": {"names": self.names, "matrix": self.correlation().tolist()},
                 "fixed": self.space.fixed, "tie": self.space.tie, "warnings": self.warnings,
-                "outside_validity": self.outside_validity, "loss_channels": self.loss_channels,
+                "outside_validity": self.outside_validity, "excluded": self.excluded,
+                "loss_channels": self.loss_channels,
                 "fit_checks": {k: ([r.tolist() for r in v] if k == "residuals" else clean(v))
                                for k, v in self.fit_checks.items()}}
 
@@ -387,19 +434,40 @@ def _weak_dimer_text(channel):
             "counts them as lost (use the default 'observed')")
 
 
-def _outside_validity(spectra, species, channels=()):
-    """Points of the fitted spectra outside the zero-range validity range, and L3 points
-    at a > 0 where the shallow dimer is bound by less than k_B T (with the channel used)."""
+def validity_findings(spectra, species, channels=()):
+    """Points of spectra outside the zero-range validity range, and L3 points at a > 0
+    where the shallow dimer is bound by less than k_B T (with the channel used).
+
+    The one test of validity that fit results, their warnings, the exclusion of points
+    (``lf.fit(..., exclude="outside-validity")``) and the figures share.
+
+    Parameters
+    ----------
+    spectra : sequence of LossSpectrum
+    species : Species or str
+    channels : sequence of dict, optional
+        The fit's loss channel per spectrum (``SpectrumLikelihood.channels``); a spectrum
+        without an entry is described as fitted with ``"total"``.
+
+    Returns
+    -------
+    list of dict
+        One per flagged point: ``spectrum`` and ``point`` (indices), ``a`` (a0),
+        ``temperature_nK``, ``reasons`` (texts) and ``outside_range``: True where a
+        reason of :data:`RANGE_REASONS` applies (the theory does not hold there), False
+        where the only note is the loss interpretation at k_B T > E_b.
+    """
     out = []
     channel_of = {c["spectrum"]: c["channel"] for c in channels}
     for i, spec in enumerate(spectra):
-        texts = (("short_a", "|a| < 5 r_vdW"), ("hot", "k_B T > 0.1 E_vdW"),
-                 ("weak_dimer", _weak_dimer_text(channel_of.get(i, "total"))))
+        texts = RANGE_REASONS + (("weak_dimer", _weak_dimer_text(channel_of.get(i, "total"))),)
         flags = validity_flags(spec.a, spec.temperature, species)
         if spec.kind != "l3":
             flags["weak_dimer"][...] = False
-        for j in np.flatnonzero(flags["short_a"] | flags["hot"] | flags["weak_dimer"]):
+        outside_range = np.logical_or.reduce([flags[key] for key, _ in RANGE_REASONS])
+        for j in np.flatnonzero(outside_range | flags["weak_dimer"]):
             out.append({"spectrum": i, "point": int(j), "a": float(spec.a[j]),
                         "temperature_nK": float(np.broadcast_to(spec.temperature, spec.a.shape)[j]),
-                        "reasons": [text for key, text in texts if flags[key][j]]})
+                        "reasons": [text for key, text in texts if flags[key][j]],
+                        "outside_range": bool(outside_range[j])})
     return out
