@@ -32,7 +32,7 @@ import numpy as np
 from scipy.optimize import brentq
 from scipy.special import ive
 
-from .constants import ABAR_OVER_RVDW, ELECTRON_MASS, HBAR
+from .constants import ABAR_OVER_RVDW, BOHR, ELECTRON_MASS, HBAR, K_B
 from .errors import LossfitValueError, check_finite, check_positive, is_real
 from .species import Species, species_argument
 from .units import CM6_PER_S, NK
@@ -228,7 +228,23 @@ class HeteronuclearSystem:
                 f"m_B/m_X={self.mass_ratio:.5g}, s0={self.s0:.6f}, scaling={self.scaling:.5g}, "
                 f"a_bb={self.a_bb:g} a0, r_vdW(BX)={self.r_vdw:.2f} a0)")
 
+    @property
+    def name(self):
+        """The system as "B-B-X", e.g. "133Cs-133Cs-6Li" (used in outputs)."""
+        return f"{self.boson.name}-{self.boson.name}-{self.other.name}"
+
+    @property
+    def label(self):
+        """:attr:`name`, with a_bb where it is not zero."""
+        return self.name if self.a_bb == 0.0 else f"{self.name} (a_bb = {self.a_bb:g} a0)"
+
     # -- masses and kinematics -------------------------------------------------------
+
+    @property
+    def mass(self):
+        """The mass of lossfit's natural units for this system, m_B in kg: rates are in
+        hbar^5/(m_B^3 (k_BT)^2) and thermal wavenumbers sqrt(m_B k_BT)/hbar."""
+        return self.boson.mass
 
     @property
     def mass_boson(self):
@@ -275,6 +291,13 @@ class HeteronuclearSystem:
         """B-X van der Waals length r_vdW = (1/2)(2 mu C6/hbar^2)^(1/4), in a0."""
         two_mu_au = 2.0 * self.reduced_mass / ELECTRON_MASS     # atomic units: hbar = m_e = a0 = 1
         return 0.5 * (two_mu_au * self.c6_bx) ** 0.25
+
+    @functools.cached_property
+    def vdw_energy_nK(self):
+        """B-X van der Waals energy hbar^2/(2 mu r_vdW^2) as E/k_B, in nK (the identical-boson
+        hbar^2/(m r_vdW^2) with m = 2 mu): collision energies near it probe the short-range
+        potential, beyond zero-range theory."""
+        return HBAR ** 2 / (2.0 * self.reduced_mass * (self.r_vdw * BOHR) ** 2) / K_B * 1e9
 
     @functools.cached_property
     def abar(self):

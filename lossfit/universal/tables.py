@@ -82,26 +82,35 @@ class S11Table:
         1-D float array consumed by :func:`s11_eval` (layout in :func:`_pack`).
     metadata : dict
         The table's provenance (method, grids, estimated errors, git hash).
-    k3_prefactor : float
-        72 sqrt(3) pi^2: K3 = prefactor hbar/(m k^4) x absorption probability.
+    k3_prefactor : float or None
+        72 sqrt(3) pi^2: K3 = prefactor hbar/(m k^4) x absorption probability (identical
+        bosons; None for a table of two bosons and a third atom, whose prefactor depends
+        on the masses).
+    s0 : float
+        Efimov exponent of the table's system.
     """
 
     def __init__(self, path):
         with _open_table(path) as d:
+            # tables of two identical bosons and a third atom carry their own s0 and no
+            # exact unitarity phase (docs/heteronuclear-rates.md)
+            self.s0 = float(d["s0"]) if "s0" in d.files else S0
+            identical = "k3_prefactor" in d.files
             self.kappa_star_a_minus = float(d["kappa_star_a_minus"])
             x = np.array(d["x"])
             logt = np.array(d["log_transmission"])
             phase = np.array(d["phase"])
             self.c4 = float(d["threshold_c4"])
             self.delta0 = float(d["threshold_phase"])
-            self.k3_prefactor = float(d["k3_prefactor"])
+            self.k3_prefactor = float(d["k3_prefactor"]) if identical else None
             self.metadata = json.loads(str(d["metadata"]))
         lnx = np.log(x)
         step = np.diff(lnx)
         if not np.allclose(step, step[0], rtol=1e-9, atol=0):
             raise LossfitError(f"{path!r}: the x grid is not uniform in ln x")
         self.x = x
-        self.packed = _pack(lnx, logt, phase, self.c4, self.delta0)
+        self.packed = _pack(lnx, logt, phase, self.c4, self.delta0, self.s0,
+                            _unitarity_phase(x[-1]) if identical else None)
 
     def s11(self, x):
         """s11 at x = k|a| (array), evaluated as the runtime kernels do."""
@@ -124,24 +133,31 @@ def _unitarity_phase(x):
     return math.pi - 2.0 * S0 * math.log(x / math.sqrt(2.0)) + 2.0 * ARG_GAMMA_S0
 
 
-_HEADER = 8
+_HEADER = 11
 
 
-def _pack(lnx, logt, phase, c4, delta0):
-    # [n, lnx0, h, c4, delta0, tail_dT, tail_dphase, x_last, c_logt (4*(n-1)), c_phase (4*(n-1))]
+def _pack(lnx, logt, phase, c4, delta0, s0=S0, unitarity_phase_last=None):
+    # [n, lnx0, h, c4, delta0, tail_dT, tail_dphase, x_last, s0, T_unitarity,
+    #  phase at unitarity at x_last, c_logt (4*(n-1)), c_phase (4*(n-1))]
+    # Above the grid arg s11 = (its unitarity value at x_last) - 2 s0 ln(x/x_last) plus the
+    # table's last difference from it decaying like 1/x.  unitarity_phase_last=None takes
+    # the table's own last phase (no exact unitarity phase known in the table's convention:
+    # the difference is then zero).
     n = lnx.size
     c_logt = spline_coefficients(lnx, logt)
     c_phase = spline_coefficients(lnx, phase)
     x_last = math.exp(lnx[-1])
-    tail_dt = math.exp(logt[-1]) - T_UNITARITY
-    # unwrap the unitarity phase onto the table's branch at the last node
-    p_unit = _unitarity_phase(x_last)
-    p_unit += 2.0 * math.pi * round((phase[-1] - p_unit) / (2.0 * math.pi))
-    tail_dp = phase[-1] - p_unit
-    head = np.array([n, lnx[0], lnx[1] - lnx[0], c4, delta0, tail_dt, tail_dp, x_last])
+    t_unitarity = 1.0 - math.exp(-2.0 * math.pi * s0)
+    tail_dt = math.exp(logt[-1]) - t_unitarity
+    if unitarity_phase_last is None:
+        p_unit = phase[-1]
+    else:
+        # unwrap the unitarity phase onto the table's branch at the last node
+        p_unit = unitarity_phase_last + 2.0 * math.pi * round((phase[-1] - unitarity_phase_last) / (2.0 * math.pi))
+    head = np.array([n, lnx[0], lnx[1] - lnx[0], c4, delta0, tail_dt, phase[-1] - p_unit, x_last, s0,
+                     t_unitarity, p_unit])
     assert head.size == _HEADER
-    return np.concatenate([head, c_logt.T.ravel(), c_phase.T.ravel(),
-                           [p_unit - _unitarity_phase(x_last)]])
+    return np.concatenate([head, c_logt.T.ravel(), c_phase.T.ravel()])
 
 
 @numba.njit(cache=True, inline="always")
@@ -176,9 +192,8 @@ def s11_eval(packed, x):
         return t, packed[4] + (ph0 - packed[4]) * r2
     x_last = packed[7]
     if x >= x_last:
-        branch = packed[_HEADER + 8 * (n - 1)]
-        t = T_UNITARITY + packed[5] * x_last / x
-        return t, _unitarity_phase(x) + branch + packed[6] * x_last / x
+        r = x_last / x
+        return packed[9] + packed[5] * r, packed[10] + 2.0 * packed[8] * math.log(r) + packed[6] * r
     i = int((lnx - lnx0) / h)
     if i > n - 2:
         i = n - 2

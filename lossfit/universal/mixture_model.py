@@ -1,0 +1,374 @@
+"""Zero-range recombination of two identical bosons and a third atom, a < 0, thermally averaged.
+
+The B-B-X counterpart of :class:`lossfit.universal.models.ZeroRangeModel` for a < 0 (two
+resonant B-X pairs, a_bb = 0, J = 0). A table of the Efimov-channel reflection amplitude
+s11(x), x = k|a| with E = hbar^2 k^2/(2 mu) (mu the B-X reduced mass), built by
+``scripts/make_mixture_tables.py`` from the B-B-X momentum-space solver, gives the event
+rate (K3 n_B^2 n_X events per volume and time)
+
+    K3(E) = 8 pi^2 hbar^5 (2 m_B + m_X)^{3/2} / (m_B^3 m_X^{3/2} E^2)
+            x (1 - |s11|^2)(1 - e^{-4 eta}) / |1 + s11 exp(2 i theta - 2 eta)|^2,
+
+theta = s0 ln(kappa* |a|), kappa* = (kappa* a_-)/a_- with the table's kappa* a_-. The first
+factor is the J = 0 unitarity bound of docs/heteronuclear.md section 5. Derivation, the
+table's accuracy and the fixed rule's error: docs/heteronuclear-rates.md.
+
+Natural units follow :mod:`lossfit.universal.models` with the boson mass m_B as the mass
+(``HeteronuclearSystem.mass``): K3 in hbar/(m_B k_s^4), k_s = sqrt(m_B E_s)/hbar.
+
+Thermal average at one temperature (the relative energy is then E^2 e^{-E/k_BT}/(2(k_BT)^3)
+for any masses, docs/heteronuclear.md section 4):
+
+    <K3> = [8 pi^2 ((2 m_B + m_X)/m_X)^{3/2} hbar^5/(m_B^3 (k_BT)^2)] (1/2) int_0^inf e^{-u} P(x_T sqrt u) du,
+
+P the absorption probability above and x_T = k_T |a|, k_T = sqrt(2 mu k_BT)/hbar. The fast
+path is a fixed composite Gauss-Legendre rule in ln u whose table values are prepared once
+per point (:class:`MixturePlan`); the reference path is the adaptive engine of
+:mod:`lossfit.thermal` on :attr:`MixtureZeroRangeModel.three_body_kernel`.
+"""
+
+__all__ = ["MixtureZeroRangeModel", "MixturePlan", "mixture_table", "table_name", "shipped_systems",
+           "resolve_model", "resolve_species", "rule_nodes"]
+
+import functools
+import math
+
+import numba
+import numpy as np
+
+from ..errors import LossfitValueError
+from ..mixture import HeteronuclearSystem
+from ..species import species as _species
+from ..thermal import FEATURES_SIGNATURE, KERNEL_SIGNATURE, THREE_BODY, U_MAX
+from .averages import ETA_MIN
+from .models import OBSERVED, EnergyModel, get_model
+from .tables import grid_limits, load_s11_table, s11_eval, table_path
+
+# B-X pairs whose a < 0 table ships with the package (scripts/make_mixture_tables.py)
+_SHIPPED = (("133Cs", "6Li"), ("133Cs", "7Li"), ("87Rb", "40K"), ("87Rb", "41K"))
+
+# Fixed rule in y = ln x (x = k|a|), shared by all points of a plan: Gauss-Legendre panels
+# no wider than _PANEL_MAX, and narrower where the Efimov resonance in x is sharp: its width
+# in y is about (1 - |s11| e^{-2 eta_min})/(|s11| |d arg s11/dy|) (the denominator
+# |1 + s11 e^{2i theta - 2 eta}|^2 passes through its minimum as arg s11 turns), and a panel
+# spans at most _PANEL_PER_WIDTH of it.  Each point integrates u = E/k_BT = (x/x_T)^2 over
+# [_U_LO, _U_HI]: below, the average holds < 1e-8 of its value (P <= 1); above, < e^-48.
+_U_LO, _U_HI = 1e-8, 48.0
+_PANEL_NODES = 8
+_PANEL_MAX = 0.5
+_PANEL_PER_WIDTH = 1.0
+_FINE_STEP = 0.01
+
+
+def rule_nodes(table, y_lo, y_hi, eta_min):
+    """Nodes y = ln x and Gauss-Legendre weights (in y) of the fixed rule over [y_lo, y_hi].
+
+    Parameters
+    ----------
+    table : S11Table
+    y_lo, y_hi : float
+        The range of ln x to cover.
+    eta_min : float
+        The smallest eta the rule must resolve (> 0).
+    """
+    fine = np.arange(y_lo, y_hi + 2.0 * _FINE_STEP + _PANEL_MAX, _FINE_STEP)
+    t, phase = _table_values(table.packed, np.exp(fine))
+    mod = np.sqrt(np.maximum(1.0 - t, 0.0))
+    turn = mod * np.abs(np.gradient(phase, fine))
+    width = np.minimum(_PANEL_MAX, _PANEL_PER_WIDTH * (1.0 - mod * math.exp(-2.0 * eta_min))
+                       / np.maximum(turn, 1e-300))
+    # panel edges also at the ends of the table grid, where the interpolant meets its limits
+    # with a jump in slope
+    kinks = [math.log(v) for v in grid_limits(table.packed) if y_lo < math.log(v) < y_hi]
+    edges = [y_lo]
+    while edges[-1] < y_hi:
+        i = int((edges[-1] - y_lo) / _FINE_STEP)
+        ahead = width[i:i + int(_PANEL_MAX / _FINE_STEP) + 2]
+        # the narrowest width within one maximal panel ahead, so a panel never steps over a
+        # sharp part
+        step = max(float(ahead.min()), _FINE_STEP)
+        nxt = [k for k in kinks if edges[-1] < k < edges[-1] + step]
+        edges.append(nxt[0] if nxt else edges[-1] + step)
+    edges = np.asarray(edges)
+    g, w = np.polynomial.legendre.leggauss(_PANEL_NODES)
+    half = 0.5 * np.diff(edges)
+    y = (0.5 * (edges[:-1] + edges[1:]))[:, None] + half[:, None] * g[None, :]
+    return y.ravel(), (half[:, None] * w[None, :]).ravel()
+
+
+def shipped_systems():
+    """The (boson, other) species pairs whose zero-range tables ship with lossfit."""
+    return list(_SHIPPED)
+
+
+def table_name(system):
+    """File name of the a < 0 table of ``system`` (a :class:`HeteronuclearSystem`)."""
+    return f"s11_mixture_{system.boson.name}_{system.other.name}.npz"
+
+
+def mixture_table(system):
+    """The a < 0 table of ``system`` (:class:`lossfit.universal.tables.S11Table`).
+
+    Raises
+    ------
+    LossfitValueError
+        For a pair without a shipped table, or with a_bb != 0 (tables exist for a_bb = 0).
+    """
+    if system.a_bb != 0.0:
+        raise LossfitValueError("species", f"zero-range rates of {system.label} are tabulated for a_bb = 0 only "
+                                f"(got a_bb = {system.a_bb:g} a0); the finite-a_bb solver gives threshold laws "
+                                "(docs/stm-mixture.md section 6)")
+    if (system.boson.name, system.other.name) not in _SHIPPED:
+        pairs = ", ".join(f"{b}-{b}-{x}" for b, x in _SHIPPED)
+        raise LossfitValueError("species", f"no zero-range table for {system.label}; tables ship for {pairs}. "
+                                "Build one with: python scripts/make_mixture_tables.py "
+                                f"{system.boson.name}-{system.other.name}")
+    return load_s11_table(table_path(table_name(system)))
+
+
+def resolve_species(species):
+    """A :class:`~lossfit.species.Species` (from a name) or a :class:`HeteronuclearSystem`
+    (passed through): the two kinds of ``species=`` lossfit accepts."""
+    if isinstance(species, HeteronuclearSystem):
+        return species
+    return _species(species)
+
+
+def resolve_model(model, species):
+    """The rate model for ``model`` (a name, an EnergyModel or None) and ``species``.
+
+    For a :class:`HeteronuclearSystem` only the zero-range model exists; it is built for
+    that system's masses and table.
+    """
+    if not isinstance(species, HeteronuclearSystem):
+        return get_model("zero-range" if model is None else model)
+    if isinstance(model, MixtureZeroRangeModel):
+        if model.system != species:
+            raise LossfitValueError("model", f"was built for {model.system.label}, not {species.label}")
+        return model
+    name = model.name if isinstance(model, EnergyModel) else model
+    if name not in (None, "zero-range"):
+        raise LossfitValueError("model", f"for two bosons and a third atom ({species.label}) lossfit has the "
+                                f"zero-range model only, got {name!r}")
+    return _mixture_model(species)
+
+
+@functools.lru_cache(maxsize=None)
+def _mixture_model(system):
+    return MixtureZeroRangeModel(system)
+
+
+class MixtureZeroRangeModel(EnergyModel):
+    """Exact zero-range recombination of two identical bosons and a third atom at a < 0.
+
+    Parameters
+    ----------
+    system : HeteronuclearSystem
+        A system with a shipped table (:func:`shipped_systems`), a_bb = 0.
+
+    Notes
+    -----
+    Every event at a < 0 forms a deep dimer and removes two B and one X (docs/heteronuclear.md
+    section 6), so the total, deep and observed channels coincide. Rates are events:
+    d n_X/dt = -K3 n_B^2 n_X.
+    """
+
+    name = "zero-range"
+    description = "exact zero-range recombination of two identical bosons and a third atom (a < 0, a_bb = 0)"
+    approximate = False
+    resolves_channels = False
+
+    def __init__(self, system):
+        if not isinstance(system, HeteronuclearSystem):
+            raise LossfitValueError("system", f"must be a HeteronuclearSystem, got {system!r}")
+        self.system = system
+        self.table = mixture_table(system)
+        m_b, m_x = system.mass_boson, system.mass_other
+        #: K3 (1/x^2) P in natural units: 8 pi^2 ((2 m_B + m_X)/m_X)^{3/2}
+        self.k3_prefactor = 8.0 * math.pi ** 2 * ((2.0 * m_b + m_x) / m_x) ** 1.5
+        #: x = k|a| from q = k_s|a| (mass m_B) at E = E_s: sqrt(2 mu/m_B)
+        self.wavenumber_ratio = math.sqrt(2.0 * system.reduced_mass / m_b)
+        self._kernel = None
+        self._features = None
+
+    def __getstate__(self):
+        return {"system": self.system}
+
+    def __setstate__(self, state):
+        self.__init__(state["system"])
+
+    def __repr__(self):
+        return f"<lossfit model zero-range for {self.system.label}>"
+
+    @property
+    def three_body_kernel(self):
+        # compiled on first use, with the table baked in (not cached on disk)
+        if self._kernel is None:
+            packed = self.table.packed
+            pref = self.k3_prefactor
+
+            @numba.njit(KERNEL_SIGNATURE)
+            def kernel(x, p):
+                # p = [x_s = k_s|a| sqrt(2 mu/m_B), 2 theta, exp(-2 eta), 1 - exp(-4 eta)]
+                t, ph = s11_eval(packed, p[0] * math.sqrt(x))
+                mod = math.sqrt(max(1.0 - t, 0.0)) * p[2]
+                den = 1.0 + 2.0 * mod * math.cos(ph + p[1]) + mod * mod
+                return pref * t * p[3] / (den * x * x)
+
+            lo, hi = grid_limits(packed)
+
+            @numba.njit(FEATURES_SIGNATURE)
+            def features(p, out):
+                # the ends of the table grid, where the interpolant meets its limits
+                out[0] = (lo / p[0]) ** 2
+                out[1] = (hi / p[0]) ** 2
+                return 2
+
+            self._features = features
+            self._kernel = kernel
+        return self._kernel
+
+    @property
+    def three_body_features(self):
+        self.three_body_kernel
+        return self._features
+
+    def _check(self, a, channel):
+        if channel not in ("total", "deep", OBSERVED):
+            raise LossfitValueError("channel", f"at a < 0 every event forms a deep dimer: use 'total', 'deep' or "
+                                    f"'observed' (all the same rate), got {channel!r}")
+        if (np.asarray(a) > 0).any():
+            raise LossfitValueError("a", f"zero-range rates of {self.system.label} are tabulated for a < 0 only; "
+                                    "a > 0 (shallow B-X dimers, atom-dimer loss) is not available yet")
+
+    def two_theta(self, a, a_minus):
+        """2 theta = 2 s0 ln(kappa*|a|) at scattering lengths ``a`` (a0) for a_- (a0)."""
+        kappa_a = self.table.kappa_star_a_minus / np.asarray(a_minus, dtype=float)
+        return 2.0 * self.table.s0 * np.log(np.abs(kappa_a * np.asarray(a, dtype=float)))
+
+    def three_body_rows(self, a, efimov, q, channel="total", x_max=U_MAX ** 2):
+        """Parameter rows of :attr:`three_body_kernel` (a < 0 only); as the base class."""
+        self._check(a, channel)
+        a = np.asarray(a, dtype=float).ravel()
+        a_minus, eta = efimov.require("a_minus", "eta_minus")
+        rows = np.empty((a.size, 4))
+        rows[:, 0] = np.abs(np.ravel(q)) * self.wavenumber_ratio
+        rows[:, 1] = self.two_theta(a, a_minus)
+        rows[:, 2] = math.exp(-2.0 * eta)
+        rows[:, 3] = -math.expm1(-4.0 * eta)
+        return rows
+
+    def atom_dimer_rows(self, a, efimov, q, channel="relaxation", x_max=U_MAX ** 2):
+        raise LossfitValueError("kind", f"atom-dimer rates of {self.system.label} are not available yet "
+                                "(the B + BX tables are not built)")
+
+    def thermal_three_body(self, a, q, efimov, scale, channel="total"):
+        return self.three_body_plan(a, q, scale, channel=channel).evaluate(efimov)
+
+    def three_body_plan(self, a, q, scale, channel="total", eta_min=ETA_MIN):
+        """The fixed rule at fixed points (:class:`MixturePlan`); ``eta_min`` is accepted for
+        the common interface (the rule does not depend on eta)."""
+        self._check(a, channel)
+        return MixturePlan(self, np.ravel(a), np.ravel(q), np.ravel(scale), eta_min=eta_min)
+
+    def atom_dimer_plan(self, a, q, scale, channel="relaxation", eta_min=ETA_MIN):
+        return self.atom_dimer_rows(a, None, q)
+
+
+class MixturePlan:
+    """Thermal K3 of a B-B-X system at fixed points (a, T), prepared for repeated evaluation.
+
+    The table values at every node of :data:`RULE_NODES` are computed once; an evaluation
+    is one pass over them per point (and walker).
+
+    Parameters
+    ----------
+    model : MixtureZeroRangeModel
+    a, q : ndarray
+        Scattering lengths (a0, < 0) and q = k_T |a| with k_T = sqrt(m_B k_BT)/hbar.
+    scale : ndarray
+        The natural unit per point (hbar^5/(m_B^3 (k_BT)^2) in the caller's units).
+    """
+
+    def __init__(self, model, a, q, scale, eta_min=ETA_MIN):
+        self.model = model
+        self.a = np.asarray(a, dtype=float)
+        self.n_points = self.a.size
+        self.eta_min = float(eta_min)
+        if not self.eta_min > 0:
+            raise LossfitValueError("eta_min", f"must be > 0, got {eta_min!r}")
+        x_t = np.abs(np.asarray(q, dtype=float)) * model.wavenumber_ratio
+        ln_x_t = np.log(x_t)
+        y_lo = float(ln_x_t.min()) + 0.5 * math.log(_U_LO)
+        y_hi = float(ln_x_t.max()) + 0.5 * math.log(_U_HI)
+        y, w_y = rule_nodes(model.table, y_lo, y_hi, self.eta_min)
+        self.n_nodes = y.size
+        t, phase = _table_values(model.table.packed, np.exp(y))
+        mod = np.sqrt(np.maximum(1.0 - t, 0.0))
+        # per point only the nodes inside its window [x_T sqrt(u_lo), x_T sqrt(u_hi)]
+        self._first = np.searchsorted(y, ln_x_t + 0.5 * math.log(_U_LO))
+        self._stop = np.searchsorted(y, ln_x_t + 0.5 * math.log(_U_HI))
+        # (1/2) int e^{-u} u P dt = int e^{-u} u P dy (dt = 2 dy), u = (x/x_T)^2 per point
+        # and node: the weights e^{-u} u w_y T per (point, node of its window)
+        self._terms = np.ascontiguousarray(np.stack([mod * np.cos(phase), mod * np.sin(phase), mod * mod]))
+        self._weights = _point_weights(y, w_y * t, ln_x_t, self._first, self._stop)
+        self._theta0 = model.two_theta(self.a, -1.0)          # 2 theta at a_- = -1 a0
+        self._scale = np.asarray(scale, dtype=float) * model.k3_prefactor * np.ones(self.n_points)
+
+    def evaluate(self, efimov, out=None):
+        """Thermal K3 at every point in the builder's units, shape (n_points,) or (W, n_points)
+        for an Efimov set of W walker arrays."""
+        a_minus, eta = efimov.require("a_minus", "eta_minus")
+        walkers = efimov.n_walkers
+        a_minus = np.atleast_1d(np.asarray(a_minus, dtype=float))
+        eta = np.atleast_1d(np.asarray(eta, dtype=float))
+        if (a_minus >= 0).any():
+            raise LossfitValueError("a_minus", f"must be < 0 a0, got {a_minus[a_minus >= 0][:3]!r}")
+        # theta(a_-) = theta(a_- = -1 a0) - s0 ln|a_-|: a rotation of the prepared phases
+        rotation = -2.0 * self.model.table.s0 * np.log(np.abs(a_minus))
+        values = np.empty((rotation.size, self.n_points))
+        if (eta < self.eta_min).any():
+            raise LossfitValueError("eta_minus", f"{eta.min():g} is below eta_min={self.eta_min:g}, the smallest eta "
+                                    "this plan resolves; build it with a smaller eta_min")
+        _evaluate(self._terms, self._weights, self._first, self._stop, self._theta0, rotation, np.exp(-2.0 * eta),
+                  -np.expm1(-4.0 * eta), self._scale, values)
+        result = values if walkers else values[0]
+        if out is None:
+            return result
+        out[...] = result
+        return out
+
+
+@numba.njit(cache=True)
+def _table_values(packed, x):
+    t = np.empty(x.size)
+    ph = np.empty(x.size)
+    for i in range(x.size):
+        t[i], ph[i] = s11_eval(packed, x[i])
+    return t, ph
+
+
+@numba.njit(cache=True)
+def _point_weights(y, weight_t, ln_x_t, first, stop):
+    out = np.zeros((ln_x_t.size, y.size))
+    for i in range(ln_x_t.size):
+        for j in range(first[i], stop[i]):
+            u = math.exp(2.0 * (y[j] - ln_x_t[i]))
+            out[i, j] = u * math.exp(-u) * weight_t[j]
+    return out
+
+
+@numba.njit(cache=True)
+def _evaluate(terms, weights, first, stop, theta0, rotation, e2, g, scale, out):
+    # out[w, i] = scale_i g_w sum_j weight_ij / |1 + s_j e^{i(2 theta0_i + r_w)} e2_w|^2
+    # over the nodes of point i's window
+    for i in range(theta0.size):
+        for w in range(rotation.size):
+            angle = theta0[i] + rotation[w]
+            c, s = math.cos(angle), math.sin(angle)
+            e, e_sq = e2[w], e2[w] * e2[w]
+            total = 0.0
+            for j in range(first[i], stop[i]):
+                re = terms[0, j] * c - terms[1, j] * s
+                total += weights[i, j] / (1.0 + 2.0 * e * re + e_sq * terms[2, j])
+            out[w, i] = scale[i] * g[w] * total
