@@ -39,7 +39,7 @@ import numpy as np
 from ..errors import LossfitValueError
 from ..mixture import HeteronuclearSystem
 from ..species import species as _species
-from ..thermal import FEATURES_SIGNATURE, KERNEL_SIGNATURE, THREE_BODY, U_MAX
+from ..thermal import FEATURES_SIGNATURE, KERNEL_SIGNATURE, U_MAX
 from .averages import ETA_MIN
 from .models import OBSERVED, EnergyModel, get_model
 from .tables import grid_limits, load_s11_table, s11_eval, table_path

@@ -17,6 +17,12 @@ evaluated in numba. Outside the grid the known limits take over:
   s11 = -exp(-pi s0) (x/sqrt 2)^(-2 i s0) Gamma(1 + i s0)/Gamma(1 - i s0),
   plus the table's last difference from it decaying like 1/x (docs/solver.md: the
   table approaches unitarity like 1/x).
+
+The tables ``data/s11_mixture_<B>_<X>.npz`` of two identical bosons and a third atom
+(``scripts/make_mixture_tables.py``, docs/heteronuclear-rates.md) share the layout and
+carry their own ``s0``; above their grid 1 - |s11|^2 tends to 1 - exp(-2 pi s0) and arg s11
+turns as -2 s0 ln x from the last node (no exact unitarity phase is known in their phase
+convention), both with the last difference decaying like 1/x.
 """
 
 __all__ = ["S11Table", "AtomDimerTable", "RecombinationTable", "load_s11_table", "load_atom_dimer_table",
