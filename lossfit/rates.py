@@ -20,18 +20,16 @@ from .constants import HBAR
 from .dimer_kinetics import DEFAULT_DEPTH_OVER_T, saha_ratio
 from .efimov import Efimov
 from .errors import LossfitValueError, ValidityWarning, check_nonzero, check_positive, is_real
-from .species import Species
-from .species import species as _species
+from .mixture import HeteronuclearSystem
 from .thermal import ATOM_DIMER, KERNEL_SIGNATURE, THREE_BODY, U_MAX, LazyCompiled, compiled
 from .units import A0, CM3_PER_S, CM6_PER_S, NK
 from .universal.averages import ETA_MIN
+from .universal.mixture_model import resolve_model, resolve_species
 from .universal.models import (
-    DEFAULT_MODEL,
     OBSERVED,
     UNITARITY_ATOM_DIMER,
     UNITARITY_THREE_BODY,
     channel_at_negative_a,
-    get_model,
     scale_wavenumber_a0,
 )
 
@@ -62,7 +60,7 @@ def validity_flags(a, scale_nk, species):
         not lost on formation (they dissociate again), so ``channel="total"`` may count
         loss that the experiment does not see.
     """
-    sp = species if isinstance(species, Species) else _species(species)
+    sp = resolve_species(species)
     a_b, s_b = np.broadcast_arrays(np.asarray(a, dtype=float), np.asarray(scale_nk, dtype=float))
     # (k_B T/E_b) = (a k_s)^2 with k_s = sqrt(m k_B T)/hbar
     q = a_b * scale_wavenumber_a0(np.maximum(s_b, 0.0) * NK, sp.mass)
@@ -82,10 +80,10 @@ _evaluate_rows = LazyCompiled(_evaluate_rows_py, numba.types.void(
 
 
 def _prepare(a, scale_nk, species, efimov, model, scale_name, process, stacklevel):
-    sp = species if isinstance(species, Species) else _species(species)
+    sp = resolve_species(species)
     if not isinstance(efimov, Efimov):
         raise LossfitValueError("efimov", f"must be a lossfit.Efimov, got {efimov!r}")
-    mdl = get_model(DEFAULT_MODEL if model is None else model)
+    mdl = resolve_model(model, sp)
     if is_real(a) and is_real(scale_nk) and math.isfinite(a) and a != 0 and math.isfinite(scale_nk) \
             and scale_nk > 0 and (process == THREE_BODY or a > 0):
         # one valid point: the same result without a dozen numpy calls on 0-d arrays
@@ -156,8 +154,12 @@ def unitarity_bound(kind, temperature_nk, species):
         Temperature in nK.
     species : Species or str
     """
-    sp = species if isinstance(species, Species) else _species(species)
+    sp = resolve_species(species)
     t = check_positive("temperature", temperature_nk)
+    if isinstance(sp, HeteronuclearSystem):
+        if kind != "l3":
+            raise LossfitValueError("kind", f"only 'l3' (the event rate K3) has a bound for {sp.label} here")
+        return sp.unitarity_bound(t)
     if kind == "l3":
         return 0.5 * UNITARITY_THREE_BODY * natural_unit(THREE_BODY, t, sp.mass).reshape(t.shape)
     if kind == "beta":

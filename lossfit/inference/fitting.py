@@ -10,8 +10,8 @@ from scipy.optimize import minimize
 from ..data.curves import DecayCurve
 from ..data.spectra import LossSpectrum
 from ..errors import LossfitValueError
-from ..species import species as _species
-from ..universal.models import DEFAULT_MODEL, get_model
+from ..mixture import HeteronuclearSystem
+from ..universal.mixture_model import resolve_model, resolve_species
 from .global_fit import fit_curves
 from .likelihood import SpectrumLikelihood
 from .parameters import ParameterSpace, default_priors
@@ -107,16 +107,20 @@ def prepare(data, *, species, free, model=None, priors=None, fixed=None, tie=Non
     spectra = [data] if isinstance(data, LossSpectrum) else list(data)
     if not spectra or not all(isinstance(s, LossSpectrum) for s in spectra):
         raise LossfitValueError("data", "must be one or more LossSpectrum objects")
-    sp = _species(species)
+    sp = resolve_species(species)
     spectra, excluded = _exclude(spectra, sp, exclude)
-    mdl = get_model(DEFAULT_MODEL if model is None else model)
+    mdl = resolve_model(model, sp)
+    # two bosons and a third atom: Efimov features repeat every `scaling` in |a| within a
+    # fit's range, so a_- is sampled over one period (docs/heteronuclear-rates.md)
+    period = sp.scaling if isinstance(sp, HeteronuclearSystem) else None
     free = [free] if isinstance(free, str) else list(free)
     if "density_scale" in free and density_sigma is not None:
         if not (isinstance(density_sigma, (int, float)) and math.isfinite(density_sigma) and density_sigma > 0):
             raise LossfitValueError("density_sigma", f"must be a positive number, got {density_sigma!r}")
     user_priors = coerce_priors(priors)
     try:
-        all_priors = default_priors([n for n in free if n not in user_priors], spectra, density_sigma)
+        all_priors = default_priors([n for n in free if n not in user_priors], spectra, density_sigma,
+                                    period=period)
         all_priors.update(user_priors)
         space = ParameterSpace(free, all_priors, fixed=fixed, tie=tie)
         _check_constrained(space, spectra)

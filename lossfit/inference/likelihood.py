@@ -17,10 +17,10 @@ from ..data.spectra import LossSpectrum
 from ..dimer_kinetics import DEFAULT_DEPTH_OVER_T
 from ..errors import LossfitValueError
 from ..rates import natural_unit
-from ..species import species as _species
 from ..thermal import ATOM_DIMER, THREE_BODY
 from ..units import NK
 from ..universal.averages import ETA_MIN
+from ..universal.mixture_model import resolve_model, resolve_species
 from ..universal.models import OBSERVED, channel_at_negative_a, get_model, scale_wavenumber_a0
 from .fit_checks import goodness_of_fit, input_plausibility, poor_fit_message
 
@@ -165,7 +165,7 @@ class SpectrumLikelihood:
     Parameters
     ----------
     spectra : sequence of LossSpectrum
-    species : Species or str
+    species : Species, str or HeteronuclearSystem
     model : str or EnergyModel
     rtol : float, optional
         None (default): the model's fast thermal averages. A number: the adaptive
@@ -178,8 +178,8 @@ class SpectrumLikelihood:
         spectra = [spectra] if isinstance(spectra, LossSpectrum) else list(spectra)
         if not spectra or not all(isinstance(s, LossSpectrum) for s in spectra):
             raise LossfitValueError("data", "must be one or more LossSpectrum objects")
-        self.species = _species(species)
-        self.model = get_model(model)
+        self.species = resolve_species(species)
+        self.model = resolve_model(model, self.species)
         self.rtol = rtol
         self.spectra = spectra
         self.blocks = []

@@ -158,10 +158,31 @@ class ParameterSpace:
         return min(floors) if floors else math.inf
 
 
-def default_priors(free, spectra, density_sigma=None):
+def first_period_window(spectra, period):
+    """|a| range (a0) of one Efimov period around the first a < 0 loss resonance in the data.
+
+    Where features repeat every ``period`` in |a| (two bosons and a third atom), a_- is
+    defined only up to a power of the period; lossfit samples the resonance of the lowest
+    |a| the data show. Among L3 points within one period of the smallest measured |a|, the
+    one with the largest L3/a^4 (the threshold law's a^4 divided out, so that the Efimov
+    modulation stands out) locates it; the window is that |a| times period^(-1/2)..period^(1/2).
+    """
+    a = np.concatenate([s.a for s in spectra if s.kind == "l3"])
+    value = np.concatenate([s.value for s in spectra if s.kind == "l3"])
+    neg = a < 0
+    a, value = -a[neg], value[neg]
+    first = a <= a.min() * period
+    scaled = value[first] / a[first] ** 4
+    peak = a[first][np.argmax(scaled)]
+    return peak / math.sqrt(period), peak * math.sqrt(period)
+
+
+def default_priors(free, spectra, density_sigma=None, period=None):
     """Default priors: log-uniform lengths over the measured range of |a| on the
     relevant side of the resonance, log-uniform eta in [0.005, 2], and a log-normal
-    density scale of width ``density_sigma``."""
+    density scale of width ``density_sigma``. With ``period`` (the discrete scaling factor
+    of a system whose fit range spans several Efimov periods) a_- is log-uniform over one
+    period (:func:`first_period_window`)."""
     pos = np.concatenate([s.a[s.a > 0] for s in spectra] or [np.array([])])
     neg = np.concatenate([-s.a[s.a < 0] for s in spectra] or [np.array([])])
     out = {}
@@ -175,7 +196,11 @@ def default_priors(free, spectra, density_sigma=None):
         if name == "a_minus":
             if neg.size == 0:
                 raise LossfitValueError("free", "a_minus is free but no data point has a < 0")
-            out[name] = LogUniform(-neg.min(), -neg.max())
+            if period is None:
+                out[name] = LogUniform(-neg.min(), -neg.max())
+            else:
+                low, high = first_period_window(spectra, period)
+                out[name] = LogUniform(-low, -high)
         elif name in ("a_star", "a_plus"):
             if pos.size == 0:
                 raise LossfitValueError("free", f"{name} is free but no data point has a > 0")

@@ -14,6 +14,7 @@ from .._io import atomic_path
 from ..constants import KAPPA_A_MINUS, KAPPA_A_PLUS, UNIVERSAL_A_STAR_OVER_A_MINUS, VDW_A_MINUS_OVER_RVDW
 from ..efimov import Efimov
 from ..errors import ConvergenceWarning, FitCheckWarning, LossfitValueError, ValidityWarning
+from ..mixture import HeteronuclearSystem
 from ..rates import validity_flags
 from .diagnostics import MIN_STEPS_PER_TAU, autocorrelation_times, split_rhat
 from .fit_checks import prior_bound_pileup
@@ -30,6 +31,12 @@ REFERENCES = {
                       "van der Waals universality (Wang, D'Incao, Esry & Greene 2012)"),
     "eta_star/eta_minus": (1.0, "one eta for every feature (zero range with one three-body inelasticity)"),
     "eta_plus/eta_minus": (1.0, "one eta for every feature (zero range with one three-body inelasticity)"),
+}
+#: Beside the ratios of two identical bosons and a third atom (no reference value: None).
+MIXTURE_REFERENCES = {
+    "a_minus/r_vdw": (None, "B-X van der Waals length; lossfit holds no reference value for this system"),
+    "a_minus(1)": (None, "the next a < 0 resonance, scaling x a_- (discrete scale invariance)"),
+    "a_minus(2)": (None, "the one after, scaling^2 x a_-"),
 }
 
 
@@ -200,6 +207,10 @@ class FitResult:
                     if name in vals:
                         out[f"{name}/a_minus"] = vals[name] / a_minus
             out["a_minus/r_vdw"] = a_minus / self.species.r_vdw
+            if isinstance(self.species, HeteronuclearSystem):
+                # the resonances the same a_- and eta give within a few periods
+                out["a_minus(1)"] = a_minus * self.species.scaling
+                out["a_minus(2)"] = a_minus * self.species.scaling ** 2
         if "eta_minus" in self.names:
             # the widths of the features against each other: 1 if one eta serves all
             for name in ("eta_star", "eta_plus"):
@@ -217,8 +228,10 @@ class FitResult:
             row = {"name": n, "units": UNITS.get(n, ""), **_quantiles(self.samples[n]),
                    "tau": self.tau[n], "ess": self.ess[n], "rhat": self.rhat[n]}
             rows.append(row)
+        references = dict(REFERENCES, **MIXTURE_REFERENCES) if isinstance(self.species, HeteronuclearSystem) \
+            else REFERENCES
         for n, x in self.derived.items():
-            ref, source = REFERENCES[n]
+            ref, source = references[n]
             rows.append({"name": n, "units": "", **_quantiles(x), "reference": ref, "reference_source": source})
         return rows
 
@@ -296,8 +309,7 @@ class FitResult:
                 lines.append(f"{name:<{w}}{r['median']:>12.{d + 1}g}{ci68:>26}{ci95:>26}"
                              f"{r['tau']:>8.1f}{r['ess']:>9.0f}{r['rhat']:>7.3f}")
             else:
-                lines.append(f"{name:<{w}}{r['median']:>12.{d + 1}g}{ci68:>26}{ci95:>26}"
-                             f"   reference {r['reference']:.4g}: {r['reference_source']}")
+                lines.append(f"{name:<{w}}{r['median']:>12.{d + 1}g}{ci68:>26}{ci95:>26}   {_reference_text(r)}")
         if len(self.names) > 1:
             lines.append("correlation matrix (" + ", ".join(self.names) + "):")
             for n, row in zip(self.names, self.correlation()):
@@ -327,7 +339,7 @@ class FitResult:
         rows = []
         for r in self.summary():
             extra = (f"<td>{r['tau']:.1f}</td><td>{r['ess']:.0f}</td><td>{r['rhat']:.3f}</td>"
-                     if "tau" in r else f"<td colspan=3>ref. {r['reference']:.4g} ({esc(r['reference_source'])})</td>")
+                     if "tau" in r else f"<td colspan=3>{esc(_reference_text(r))}</td>")
             rows.append(f"<tr><td>{esc(r['name'])}</td><td>{esc(r['units'])}</td><td>{r['median']:.5g}</td>"
                         f"<td>[{r['lo68']:.4g}, {r['hi68']:.4g}]</td><td>[{r['lo95']:.4g}, {r['hi95']:.4g}]</td>"
                         f"{extra}</tr>")
@@ -432,6 +444,12 @@ def _weak_dimer_text(channel):
                 "channel (trap kinetics, docs/conventions.md)")
     return (f"k_B T > E_b: shallow dimers not lost on formation, but fitted with channel {channel!r}, which "
             "counts them as lost (use the default 'observed')")
+
+
+def _reference_text(row):
+    if row["reference"] is None:
+        return row["reference_source"]
+    return f"reference {row['reference']:.4g}: {row['reference_source']}"
 
 
 def validity_findings(spectra, species, channels=()):

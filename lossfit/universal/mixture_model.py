@@ -38,10 +38,11 @@ import numpy as np
 
 from ..errors import LossfitValueError
 from ..mixture import HeteronuclearSystem
+from ..species import Species
 from ..species import species as _species
 from ..thermal import FEATURES_SIGNATURE, KERNEL_SIGNATURE, U_MAX
 from .averages import ETA_MIN
-from .models import OBSERVED, EnergyModel, get_model
+from .models import DEFAULT_MODEL, OBSERVED, EnergyModel, get_model
 from .tables import grid_limits, load_s11_table, s11_eval, table_path
 
 # B-X pairs whose a < 0 table ships with the package (scripts/make_mixture_tables.py)
@@ -131,6 +132,9 @@ def resolve_species(species):
     (passed through): the two kinds of ``species=`` lossfit accepts."""
     if isinstance(species, HeteronuclearSystem):
         return species
+    if not isinstance(species, (str, Species)):
+        raise LossfitValueError("species", f"must be a species name, a Species or a HeteronuclearSystem "
+                                f"(lf.heteronuclear), got {species!r}")
     return _species(species)
 
 
@@ -141,7 +145,7 @@ def resolve_model(model, species):
     that system's masses and table.
     """
     if not isinstance(species, HeteronuclearSystem):
-        return get_model("zero-range" if model is None else model)
+        return get_model(DEFAULT_MODEL if model is None else model)
     if isinstance(model, MixtureZeroRangeModel):
         if model.system != species:
             raise LossfitValueError("model", f"was built for {model.system.label}, not {species.label}")
