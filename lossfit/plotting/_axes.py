@@ -1,9 +1,13 @@
-"""Axis formatting and parameter symbols shared by the figures."""
+"""Axis formatting, parameter symbols, feature colours and labels shared by the figures."""
 
-__all__ = ["tidy_log_axis", "SYMBOLS"]
+__all__ = ["tidy_log_axis", "PlainLogFormatter", "SYMBOLS", "FEATURE_COLOURS", "feature_intervals",
+           "temperature_label"]
 
-import numpy as np
+import math
+
 from matplotlib import ticker
+
+from ..inference.result import FEATURES
 
 #: Typeset symbols of the parameters.
 SYMBOLS = {"a_minus": r"$a_-$", "a_star": r"$a_*$", "a_plus": r"$a_+$", "eta_minus": r"$\eta_-$",
@@ -11,10 +15,53 @@ SYMBOLS = {"a_minus": r"$a_-$", "a_star": r"$a_*$", "a_plus": r"$a_+$", "eta_min
            "density_scale": r"density scale", "temperature_scale": r"temperature scale",
            "b0": r"$B_0$", "width": r"$\Delta$", "a_bg": r"$a_\mathrm{bg}$", "sigma_B": r"$\sigma_B$"}
 
+#: Colour of each Efimov feature wherever a figure marks it.
+FEATURE_COLOURS = {"a_minus": "C3", "a_star": "C2", "a_plus": "C4"}
+
+# Axes spanning more decades than this label only the decades (as 10^n): with the 2x and
+# 5x ticks labelled too their labels would run into each other.
+_PLAIN_MAX_DECADES = 2.2
+
+
+class PlainLogFormatter(ticker.Formatter):
+    """Tick labels of a log axis as plain numbers (200, 500, 1000, 2000, ...) on axes of
+    up to about two decades; on longer axes only the decades are labelled, as 10^n.
+
+    matplotlib's default would write the 2x and 5x ticks as 2×10², 5×10², which a
+    reader has to decode on an axis of scattering lengths or temperatures.
+    """
+
+    def __call__(self, x, pos=None):
+        if not (x > 0 and math.isfinite(x)):
+            return ""
+        lo, hi = sorted(abs(v) for v in self.axis.get_view_interval())
+        exponent = math.floor(math.log10(x) + 1e-9)
+        mantissa = x / 10.0 ** exponent
+        if lo > 0 and math.log10(hi / lo) > _PLAIN_MAX_DECADES:
+            return f"$10^{{{exponent}}}$" if abs(mantissa - 1.0) < 1e-6 else ""
+        return f"{x:.{max(0, -exponent)}f}"
+
 
 def tidy_log_axis(axis):
-    """Label only the 2x and 5x minor ticks of a log axis: by default every minor tick of a
-    short log axis is labelled and the labels collide."""
+    """Ticks at 1, 2 and 5 times the powers of ten, labelled as plain numbers
+    (:class:`PlainLogFormatter`): by default every minor tick of a short log axis is
+    labelled in exponent notation and the labels collide."""
     axis.set_minor_locator(ticker.LogLocator(subs=(2.0, 5.0)))
-    axis.set_minor_formatter(ticker.LogFormatterSciNotation(labelOnlyBase=False,
-                                                           minor_thresholds=(np.inf, np.inf)))
+    axis.set_major_formatter(PlainLogFormatter())
+    axis.set_minor_formatter(PlainLogFormatter())
+
+
+def feature_intervals(result):
+    """(median, lo68, hi68) in a0 of every Efimov feature a fit determines (sampled, or tied
+    to a sampled a_-; :meth:`lossfit.inference.result.FitResult.feature_samples`), in the
+    order a_-, a*, a_+."""
+    fitted = result.feature_samples()
+    return {name: result.interval(name) for name in FEATURES if name in fitted}
+
+
+def temperature_label(t):
+    """A temperature (nK) as given (15 -> "15 nK"); a derived one such as a group median
+    or a fitted time average to three digits (90.2559 -> "≈90.3 nK")."""
+    given = f"{t:g}"
+    digits = sum(ch.isdigit() for ch in given.lstrip("0.").split("e")[0])
+    return f"{given} nK" if digits <= 4 else f"≈{t:.3g} nK"

@@ -12,12 +12,20 @@ from ..data.curves import check_curves
 from ..errors import LossfitValueError
 from ..experiment.decay import simulate_decay
 from ..experiment.trap import as_trap
-from ._axes import tidy_log_axis
+from ._axes import temperature_label, tidy_log_axis
 from .spectra import spectrum_plot
 
 
+def _measured(solution, curve):
+    """The model of what a curve's data measure: the dimer number of a dimer curve, else the
+    number an image counts (N + 2 N_D where the explicit dimer kinetics runs and the curve
+    counts atoms in shallow dimers, the free atoms N otherwise)."""
+    return solution.dimers if curve.kind == "dimers" else solution.counted
+
+
 def _global_models(result, t_fine):
-    """Median-posterior model of every curve from a global FitResult: (fine, at data)."""
+    """Median-posterior model of every curve from a global FitResult: (fine, at data, time
+    average of the fitted T(t) at the data's times on the measured temperature scale, nK)."""
     lik = result.likelihood
     if not hasattr(lik, "nuisances"):
         raise LossfitValueError("result", "needs a FitResult of lossfit.inference.global_fit.fit_curves")
@@ -27,20 +35,20 @@ def _global_models(result, t_fine):
     for j, (c, p) in enumerate(zip(lik.curves, nuis)):
         s_t = p["temperature_scale"]
         kw = dict(species=lik.species, trap_hz=as_trap(c), t0_nK=p["t0_nK"] / s_t,
-                  recombination_heating_nK=float(lik.recombination_heating[j]))
+                  recombination_heating_nK=float(lik.recombination_heating[j]), counts_dimers=p["counts_dimers"])
         if c.kind == "dimers":
             kw.update(n0=p["n_atoms0"], n_dimers0=p["n0"], l3=0.0, beta=p["table"], gamma_dimer=p["gamma"])
         else:
             kw.update(n0=p["n0"], l3=p["table"], gamma=p["gamma"])
-        fine = simulate_decay(t_fine[j], **kw)
         data = simulate_decay(c.t, **kw)
-        pick = (lambda s: s.dimers) if c.kind == "dimers" else (lambda s: s.atoms)
-        out.append((pick(fine), pick(data)))
+        out.append((_measured(simulate_decay(t_fine[j], **kw), c), _measured(data, c),
+                    float(np.mean(s_t * data.temperature))))
     return out
 
 
 def _curve_models(fits, t_fine, species):
-    """Models of per-curve fits (constant L3 or beta): (fine, at data) per curve."""
+    """Models of per-curve fits (constant L3 or beta): (fine, at data, time-averaged fitted
+    temperature in nK) per curve."""
     out = []
     for f, tf in zip(fits, t_fine):
         c, p = f.curve, f.params
@@ -48,16 +56,31 @@ def _curve_models(fits, t_fine, species):
                   recombination_heating_nK=f.recombination_heating_nK)
         if c.kind == "dimers":
             kw.update(n0=p["n_atoms0"], n_dimers0=p["n0"], l3=0.0, beta=p["value"], gamma_dimer=p["gamma"])
-            fine = simulate_decay(tf, **kw).dimers
         else:
             kw.update(n0=p["n0"], l3=p["value"], gamma=p["gamma"])
-            fine = simulate_decay(tf, **kw).atoms
-        out.append((fine, f.model_atoms))
+        out.append((_measured(simulate_decay(tf, **kw), c), f.model_atoms, f.temperature))
     return out
+
+
+def _temperature_line(curve, fitted):
+    """The fitted temperature of a curve with the measured one in brackets: the time
+    average over the hold of a measured T(t), or the single initial value given."""
+    if curve.temperature_series:
+        measured = f"{temperature_label(float(np.mean(curve.temperature)))} measured"
+    else:
+        measured = f"$T_0$ {temperature_label(curve.initial_temperature)} measured"
+    return rf"$\langle T\rangle$ {temperature_label(fitted)} fitted ({measured})"
 
 
 def curves_plot(curves=None, *, fits=None, result=None, species=None, ncols=5, max_curves=None, fig=None):
     """Each curve's data with its fitted model (top) and normalised residuals (bottom).
+
+    The model drawn is what the data are compared with: for atom curves at a > 0 under the
+    global fit's explicit dimer kinetics, the counted number N + 2 N_D when the curve
+    counts atoms in shallow dimers (``DecayCurve.counts_dimers``). Each panel's title gives
+    the curve's label and its fitted temperature, the time average of the fitted T(t) over
+    the hold (the global fit's where given, else the per-curve fit's: the temperature of
+    the derived spectrum), with the measured one in brackets.
 
     Parameters
     ----------
@@ -109,12 +132,14 @@ def curves_plot(curves=None, *, fits=None, result=None, species=None, ncols=5, m
         for models, style, name in ((glob, "-", "global"), (per, "--", "per curve")):
             if models is None:
                 continue
-            fine, at_data = models[j]
+            fine, at_data, _ = models[j]
             line, = ax.plot(t_fine[j], fine, style, lw=1.3, label=name)
             axr.plot(c.t, (c.atoms - at_data) / c.atoms_err, "o", ms=2.5, color=line.get_color())
         axr.axhline(0.0, color="0.5", lw=0.7)
         axr.set_ylim(-4, 4)
-        ax.set_title(c.label, fontsize=9)
+        # the temperature the spectrum figures use: the global fit's where there is one
+        fitted = (glob if glob is not None else per)[j][2]
+        ax.set_title(f"{c.label}\n{_temperature_line(c, fitted)}", fontsize=8)
         ax.tick_params(labelsize=8, labelbottom=False)
         axr.tick_params(labelsize=8)
         # at most 4 time ticks: the hold-time labels of neighbouring panels must not collide

@@ -10,9 +10,7 @@ from ..constants import SCALING_FACTOR
 from ..efimov import Efimov
 from ..errors import LossfitValueError
 from ..universal.spectrum import kappa_star, load_trimer_table
-from ._axes import SYMBOLS
-
-_FEATURE_COLOURS = (("a_minus", "C3"), ("a_star", "C2"), ("a_plus", "C4"))
+from ._axes import FEATURE_COLOURS, SYMBOLS, feature_intervals
 
 
 def _scaled(x):
@@ -31,8 +29,9 @@ def efimov_spectrum_plot(source, *, branches=3, fig=None):
     Parameters
     ----------
     source : FitResult or Efimov
-        A fit (its posterior medians fix kappa*; a_-, a*, a_+ are drawn with their 68 %
-        intervals) or an Efimov parameter set (the features as lines).
+        A fit (its posterior medians fix kappa*; the features it determines, sampled or
+        tied to a sampled a_-, are drawn with their 68 % intervals, fixed ones as lines) or
+        an Efimov parameter set (the features as lines).
     branches : int
         Trimer branches to draw (from the one that meets the three-atom threshold at a_-).
 
@@ -59,15 +58,17 @@ def efimov_spectrum_plot(source, *, branches=3, fig=None):
     ax.axhline(0.0, color="k", lw=1.0, label="three-atom threshold")
     xs = np.linspace(0.0, x_hi, 200)
     ax.plot(xs, -xs, color="0.35", lw=1.0, ls="--", label=r"atom-dimer threshold $E=-\hbar^2/(m a^2)$")
-    for name, colour in _FEATURE_COLOURS:
+    fitted = feature_intervals(source) if samples is not None else {}
+    for name, colour in FEATURE_COLOURS.items():
         symbol = SYMBOLS[name]
         value = getattr(efimov, name)
         if value is None:
             continue
-        if samples is not None and name in samples:
-            lo, med, hi = np.percentile(1.0 / (k_star * samples[name]), [16, 50, 84])
-            ax.axvspan(_scaled(lo), _scaled(hi), color=colour, alpha=0.25, lw=0)
-            position = _scaled(med)
+        if name in fitted:
+            med, lo, hi = fitted[name]
+            # the axis is monotonic in a on each side: the interval's ends map to its ends
+            ax.axvspan(_scaled(1.0 / (k_star * lo)), _scaled(1.0 / (k_star * hi)), color=colour, alpha=0.25, lw=0)
+            position = _scaled(1.0 / (k_star * med))
         else:
             position = _scaled(1.0 / (k_star * value))
         ax.axvline(position, color=colour, lw=1.2, ls=":")

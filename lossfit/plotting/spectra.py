@@ -7,11 +7,12 @@ import os
 import matplotlib.pyplot as plt
 import numpy as np
 from matplotlib.lines import Line2D
+from matplotlib.patches import Patch
 
 from ..errors import LossfitValueError
 from ..inference.likelihood import RateBlock
 from ..inference.parameters import UNITS
-from ._axes import SYMBOLS, tidy_log_axis
+from ._axes import FEATURE_COLOURS, SYMBOLS, feature_intervals, temperature_label, tidy_log_axis
 
 _UNIT_LABELS = {"a0": r"$a_0$", "G": "G"}
 
@@ -112,22 +113,33 @@ def posterior_bands(result, a, temperature, kind, *, draws=200, seed=0, channel=
 
 
 def _panels(spectra):
+    """(kind, side, title, members) per panel; members are (spectrum index, spectrum, mask of
+    its points on the panel's side)."""
     panels = []
     for key, title in ((("l3", -1), "three-body loss, a < 0"), (("l3", 1), "three-body loss, a > 0"),
                        (("beta", 1), "atom-dimer relaxation, a > 0")):
         kind, sign = key
-        members = [(s, s.a * sign > 0) for s in spectra if s.kind == kind and (s.a * sign > 0).any()]
+        members = [(i, s, s.a * sign > 0) for i, s in enumerate(spectra)
+                   if s.kind == kind and (s.a * sign > 0).any()]
         if members:
             panels.append((kind, sign, title, members))
     return panels
 
 
-def _temperature_label(t):
-    """A temperature as given (15 -> "15 nK"); a derived one such as a group median to
-    three digits (90.2559 -> "≈90.3 nK")."""
-    given = f"{t:g}"
-    digits = sum(ch.isdigit() for ch in given.lstrip("0.").split("e")[0])
-    return f"{given} nK" if digits <= 4 else f"≈{t:.3g} nK"
+# The features each panel marks: those the panel's kind of data shows. The observed L3 at
+# a > 0 depends on a* too (trapped dimers relax with an atom, docs/conventions.md).
+_PANEL_FEATURES = {("l3", -1): ("a_minus",), ("l3", 1): ("a_star", "a_plus"), ("beta", 1): ("a_star",)}
+
+# marker styles of points outside the validity range: fitted anyway, or left out of the fit
+_OUTSIDE_STYLE = dict(fmt="o", ms=4.5, mfc="white", mew=1.1, elinewidth=0.8, capsize=2)
+_EXCLUDED_STYLE = dict(fmt="s", ms=4.5, mfc="none", mew=1.0, elinewidth=0.6, capsize=1.5, alpha=0.75)
+_OUTSIDE_TEXT = r"outside validity ($|a|<5\,r_\mathrm{vdW}$ or $k_BT>0.1\,E_\mathrm{vdW}$)"
+
+
+def _legend_marker(style, label):
+    """A legend entry in neutral grey for points drawn with an errorbar ``style``."""
+    return Line2D([], [], marker=style["fmt"], ms=style["ms"], mfc=style["mfc"], mew=style["mew"], mec="0.3",
+                  ls="none", label=label)
 
 
 def _channel_at(result, spectra, kind, temperature):
@@ -142,12 +154,59 @@ def _channel_at(result, spectra, kind, temperature):
     return None, None
 
 
+def _outside_masks(result, spectra):
+    """Per fitted spectrum, the points the result flags as outside the validity range
+    (``outside_validity`` entries with ``outside_range``)."""
+    masks = [np.zeros(len(s), dtype=bool) for s in spectra]
+    for finding in getattr(result, "outside_validity", []):
+        if finding.get("outside_range"):
+            masks[finding["spectrum"]][finding["point"]] = True
+    return masks
+
+
+def _mark_features(ax, result, kind, sign):
+    """Dotted line at the posterior median and a shaded 68 % interval of every feature the
+    fit determines that this panel's data show; legend handles of those drawn. The x range
+    of the data stays (a feature outside it is not drawn)."""
+    lo_x, hi_x = ax.get_xlim()
+    handles = []
+    for name, (med, lo, hi) in feature_intervals(result).items():
+        if name not in _PANEL_FEATURES[(kind, sign)] or not lo_x < abs(med) < hi_x:
+            continue
+        colour = FEATURE_COLOURS[name]
+        ax.axvspan(abs(lo), abs(hi), color=colour, alpha=0.18, lw=0, zorder=0)
+        ax.axvline(abs(med), color=colour, lw=1.1, ls=":", zorder=1)
+        # the symbol just above the frame, clear of the data (the title makes room for it)
+        ax.text(abs(med), 1.005, SYMBOLS[name], color=colour, transform=ax.get_xaxis_transform(), ha="center",
+                va="bottom", fontsize=10)
+        handles.append(Patch(facecolor=colour, alpha=0.35, edgecolor=colour,
+                             label=_title(name, (med, lo, hi)) + " (68 %)"))
+    ax.set_xlim(lo_x, hi_x)
+    return handles
+
+
 def spectrum_plot(result, *, draws=200, points=160, seed=0, fig=None):
     """Data with error bars, the posterior median model and 68/95 % bands on log axes.
 
     One panel per side of the resonance and process present in the data; one colour
     per temperature. The model curves include the fitted density-calibration factor so
-    that they compare with the data as reported.
+    that they compare with the data as reported. The Efimov features the fit determines
+    (a_- on the a < 0 L3 panel, a* and a_+ on the a > 0 L3 panel, a* on the beta panel)
+    are marked at their posterior medians with shaded 68 % intervals. Points outside the
+    zero-range validity range (``result.outside_validity`` with ``outside_range``) are
+    drawn open; points the fit left out (``result.excluded``) as open squares, grey
+    where no fitted temperature matches theirs.
+
+    Parameters
+    ----------
+    result : FitResult
+    draws : int
+        Posterior draws per band.
+    points : int
+        Scattering lengths per band.
+    seed : int
+        Seed of the choice of draws.
+    fig : matplotlib.figure.Figure, optional
 
     Returns
     -------
@@ -155,36 +214,55 @@ def spectrum_plot(result, *, draws=200, points=160, seed=0, fig=None):
     """
     spectra = result.likelihood.spectra
     panels = _panels(spectra)
+    outside = _outside_masks(result, spectra)
+    excluded = getattr(result, "excluded", [])
     if fig is None:
         fig = plt.figure(figsize=(5.2 * len(panels), 4.2), layout="constrained")
     axes = fig.subplots(1, len(panels), squeeze=False)[0]
     colours = plt.rcParams["axes.prop_cycle"].by_key()["color"]
     for ax, (kind, sign, title, members) in zip(axes, panels):
-        temps = sorted({float(t) for s, m in members for t in s.temperature[m]})
-        lo = min(np.abs(s.a[m]).min() for s, m in members)
-        hi = max(np.abs(s.a[m]).max() for s, m in members)
+        temps = sorted({float(t) for _, s, m in members for t in s.temperature[m]})
+        lo = min(np.abs(s.a[m]).min() for _, s, m in members)
+        hi = max(np.abs(s.a[m]).max() for _, s, m in members)
         grid = np.geomspace(lo / 1.15, hi * 1.15, points)
-        for i, t in enumerate(temps):
-            c = colours[i % len(colours)]
+        colour_of = {t: colours[i % len(colours)] for i, t in enumerate(temps)}
+        drawn_outside = False
+        for t in temps:
+            c = colour_of[t]
             channel, depth = _channel_at(result, spectra, kind, t)
             band = posterior_bands(result, sign * grid, t, kind, draws=draws, seed=seed, channel=channel,
                                    trap_depth=depth)
             ax.fill_between(grid, band["lo95"], band["hi95"], color=c, alpha=0.15, lw=0)
             ax.fill_between(grid, band["lo68"], band["hi68"], color=c, alpha=0.3, lw=0)
-            ax.plot(grid, band["median"], color=c, lw=1.5, label=_temperature_label(t))
-            for s, m in members:
-                sel = m & (s.temperature == t)
-                if sel.any():
-                    ax.errorbar(np.abs(s.a[sel]), s.value[sel], yerr=s.error[sel], fmt="o", ms=4,
-                                color=c, mec="k", mew=0.4, elinewidth=0.8, capsize=2)
+            ax.plot(grid, band["median"], color=c, lw=1.5, label=temperature_label(t))
+            for i, s, m in members:
+                at_t = m & (s.temperature == t)
+                for sel, style in ((at_t & ~outside[i], dict(fmt="o", ms=4, mec="k", mew=0.4, elinewidth=0.8,
+                                                             capsize=2)),
+                                   (at_t & outside[i], dict(_OUTSIDE_STYLE, mec=c))):
+                    if sel.any():
+                        ax.errorbar(np.abs(s.a[sel]), s.value[sel], yerr=s.error[sel], color=c, **style)
+                drawn_outside |= bool((at_t & outside[i]).any())
+        mine = [p for p in excluded if p["kind"] == kind and p["a"] * sign > 0]
+        for p in mine:
+            c = colour_of.get(p["temperature_nK"], "0.45")
+            ax.errorbar([abs(p["a"])], [p["value"]], yerr=[p["error"]], color=c, mec=c, **_EXCLUDED_STYLE)
         ax.set_xscale("log")
         ax.set_yscale("log")
         tidy_log_axis(ax.xaxis)
         ax.set_xlabel(r"$|a|$ ($a_0$)" + (", $a<0$" if sign < 0 else ", $a>0$"))
         ax.set_ylabel(r"$L_3$ (cm$^6$/s)" if kind == "l3" else r"$\beta$ (cm$^3$/s)")
+        handles, _ = ax.get_legend_handles_labels()
+        features = _mark_features(ax, result, kind, sign)
         used = sorted({_channel_at(result, spectra, kind, t)[0] for t in temps} - {None})
-        ax.set_title(title + (f" ({', '.join(used)})" if kind == "l3" and sign > 0 and used else ""), fontsize=10)
-        ax.legend(fontsize=8, title="median, 68/95 % bands", title_fontsize=7)
+        ax.set_title(title + (f" ({', '.join(used)})" if kind == "l3" and sign > 0 and used else ""), fontsize=10,
+                     pad=16 if features else 6)
+        handles += features
+        if drawn_outside:
+            handles.append(_legend_marker(_OUTSIDE_STYLE, _OUTSIDE_TEXT))
+        if mine:
+            handles.append(_legend_marker(_EXCLUDED_STYLE, "outside validity, excluded from the fit"))
+        ax.legend(handles=handles, fontsize=7, title="median, 68/95 % bands", title_fontsize=7)
     fig.suptitle(f"model: {result.model.label}", fontsize=8)
     return fig
 

@@ -11,20 +11,15 @@ then look at the new images in tests/plotting/reference/ before committing them.
 """
 
 import os
-import warnings
 
 import matplotlib.pyplot as plt
-import numpy as np
 import pytest
 from matplotlib.testing.compare import compare_images
 from matplotlib.testing.decorators import remove_ticks_and_titles
 from matplotlib.text import Text
 
 import lossfit as lf
-from lossfit.errors import ConvergenceWarning
 from lossfit.inference.curve_fits import fit_curves_individually, spectrum_from_curves
-from lossfit.inference.fitting import prepare
-from lossfit.inference.posterior import make_result
 from lossfit.plotting import corner_plot, curves_plot, derived_spectrum_plot, efimov_spectrum_plot, spectrum_plot
 from lossfit.simulate import demo_spectra, invented_campaign
 
@@ -35,16 +30,10 @@ TOLERANCE = 2.0
 
 
 @pytest.fixture(scope="module")
-def spectrum_result():
+def spectrum_result(synthetic_result):
     spectra, truth = demo_spectra()
-    l3_only = [s for s in spectra if s.kind == "l3"]
-    space, likelihood, _ = prepare(l3_only, species="133Cs", free=["a_minus", "eta_minus"])
-    rng = np.random.default_rng(7)
-    centre = np.log([abs(truth["a_minus"]), truth["eta_minus"]])
-    chain = centre + np.array([0.03, 0.15]) * rng.standard_normal((80, 12, 2))
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", ConvergenceWarning)
-        result = make_result(space, likelihood, chain, np.zeros((80, 12)), np.full(12, 0.4), burn=20)
+    result = synthetic_result([s for s in spectra if s.kind == "l3"], ["a_minus", "eta_minus"],
+                              [truth["a_minus"], truth["eta_minus"]], [0.03, 0.15])
     return result, truth
 
 

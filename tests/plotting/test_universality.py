@@ -6,7 +6,6 @@ tests/plotting/reference/universality_plot.png before committing it.
 """
 
 import os
-import warnings
 
 import matplotlib.pyplot as plt
 import numpy as np
@@ -16,9 +15,7 @@ from matplotlib.testing.decorators import remove_ticks_and_titles
 from matplotlib.text import Text
 
 import lossfit as lf
-from lossfit.errors import ConvergenceWarning, FitCheckWarning, LossfitValueError
-from lossfit.inference.fitting import prepare
-from lossfit.inference.posterior import make_result
+from lossfit.errors import LossfitValueError
 from lossfit.plotting import universality_plot
 from lossfit.simulate import demo_spectra
 
@@ -28,19 +25,12 @@ TOLERANCE = 2.0          # RMS of 0-255 pixel values, as tests/plotting/test_fig
 
 
 @pytest.fixture(scope="module")
-def result():
+def result(synthetic_result):
     """The demo's invented a < 0 spectra with a synthetic, seeded chain around the truth
-    (no sampling; the same construction as tests/plotting/test_figures.py)."""
+    (no sampling; tests/plotting/conftest.py)."""
     spectra, truth = demo_spectra()
-    space, likelihood, _ = prepare([s for s in spectra if s.kind == "l3"], species="133Cs",
-                                   free=["a_minus", "eta_minus"])
-    rng = np.random.default_rng(7)
-    centre = np.log([abs(truth["a_minus"]), truth["eta_minus"]])
-    chain = centre + np.array([0.03, 0.15]) * rng.standard_normal((80, 12, 2))
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", ConvergenceWarning)
-        warnings.simplefilter("ignore", FitCheckWarning)
-        return make_result(space, likelihood, chain, np.zeros((80, 12)), np.full(12, 0.4), burn=20)
+    return synthetic_result([s for s in spectra if s.kind == "l3"], ["a_minus", "eta_minus"],
+                            [truth["a_minus"], truth["eta_minus"]], [0.03, 0.15])
 
 
 def _texts(fig):
