@@ -41,13 +41,25 @@ EXIT_CODES = f"""exit codes:
 # library's import chain costs ~1 s, which --help and argument errors should not pay.
 
 def _cmd_demo(args):
-    from .batch.demo import CURVES_DEMO_STEPS, run_curves_demo, run_demo  # loaded when the command runs
+    from .batch.demo import (  # loaded when the command runs
+        CURVES_DEMO_STEPS,
+        MIXTURE_DEMO_STEPS,
+        run_curves_demo,
+        run_demo,
+        run_mixture_demo,
+    )
+
+    if args.from_curves and args.mixture:
+        raise LossfitValueError("mixture", "the mixture demo fits spectra; it does not combine with --from-curves")
 
     progress = None if not args.quiet else False
     with warnings.catch_warnings():
         if args.quiet:
             warnings.simplefilter("ignore")
-        if args.from_curves:
+        if args.mixture:
+            run_mixture_demo(args.out, walkers=args.walkers or 24, steps=args.steps or MIXTURE_DEMO_STEPS,
+                             seed=args.seed, overwrite=args.overwrite, progress=progress, quiet=args.quiet)
+        elif args.from_curves:
             run_curves_demo(args.out, walkers=args.walkers or 16, steps=args.steps or CURVES_DEMO_STEPS, seed=args.seed,
                             overwrite=args.overwrite, progress=progress, quiet=args.quiet)
         else:
@@ -111,7 +123,10 @@ def build_parser():
     demo.add_argument("--out", required=True, help="output folder (created; existing results are kept)")
     demo.add_argument("--from-curves", action="store_true",
                       help="start from invented raw decay curves (global fit) instead of spectra")
-    demo.add_argument("--walkers", type=int, default=None, help="default 32 (16 with --from-curves)")
+    demo.add_argument("--mixture", action="store_true",
+                      help="the invented mixture scenario instead: two identical bosons and a third atom "
+                           "(133Cs-133Cs-6Li, three a<0 resonances at two temperatures)")
+    demo.add_argument("--walkers", type=int, default=None, help="default 32 (16 with --from-curves, 24 with --mixture)")
     demo.add_argument("--steps", type=int, default=None,
                       help=f"default {DEMO_STEPS} (fewer with --from-curves: lossfit.batch.demo.CURVES_DEMO_STEPS)")
     demo.add_argument("--seed", type=int, default=1)

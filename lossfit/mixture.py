@@ -20,7 +20,7 @@ Units as everywhere in lossfit (docs/architecture.md): lengths in a0, temperatur
 energies in nK (energy as E/k_B), K3 in cm^6/s, C6 in atomic units (E_h a0^6).
 """
 
-__all__ = ["HeteronuclearSystem", "heteronuclear", "efimov_exponent", "known_pairs",
+__all__ = ["HeteronuclearSystem", "heteronuclear", "system_from_name", "efimov_exponent", "known_pairs",
            "three_body_energy_density", "mean_inverse_square_energy", "K3_CONVENTIONS",
            "convert_k3", "loss_rates"]
 
@@ -434,6 +434,15 @@ def heteronuclear(boson, other, a_bb=0.0, *, c6_bx=None):
         raise LossfitValueError("c6_bx", f"no interspecies C6 known for {b.name}-{x.name}; pass c6_bx= "
                                 f"(atomic units). Known pairs: {known}")
     return HeteronuclearSystem(b, x, a_bb, entry[0], entry[1])
+
+
+def system_from_name(name):
+    """The :class:`HeteronuclearSystem` named "B-B-X" (e.g. "133Cs-133Cs-6Li", a_bb = 0), or
+    None if ``name`` is not of that form (then it names one species)."""
+    parts = name.split("-") if isinstance(name, str) else []
+    if len(parts) != 3 or parts[0].lower() != parts[1].lower():
+        return None
+    return heteronuclear(parts[0], parts[2])
 
 
 # -- loss conventions ----------------------------------------------------------------

@@ -8,6 +8,10 @@ No laboratory's measurement is used.
   a < 0 side (L3) and one on the a > 0 side (atom-dimer beta), with a density-calibration
   error of +8 % (L3 scales as 1/s^2, beta as 1/s); each point scatters normally with its
   stated error (the noise model the Gaussian likelihood assumes). ``lossfit demo`` fits it.
+* :data:`MIXTURE_SCENARIO`: the same kind of spectra for two identical bosons and a third
+  atom: L3 of an invented 133Cs-133Cs-6Li mixture through three a < 0 resonances at two
+  temperatures, with a_bb = 0 (an idealisation: in Cs-Li the Cs-Cs interaction changes the
+  loss strongly, Petrov & Werner, PRA 92, 022704 (2015)). ``lossfit demo --mixture`` fits it.
 * :func:`simulate_curve`: one decay curve from the rate equations with a noise model
   (atom curves at a > 0: the explicit trapped-dimer kinetics by default).
 * :data:`INVENTED_CAMPAIGN` / :func:`invented_campaign`: a campaign of such curves near an
@@ -15,7 +19,8 @@ No laboratory's measurement is used.
   ``lossfit demo --from-curves`` fits it.
 """
 
-__all__ = ["SCENARIO", "demo_spectra", "simulate_curve", "INVENTED_CAMPAIGN", "DEMO_CAMPAIGN", "invented_campaign"]
+__all__ = ["SCENARIO", "MIXTURE_SCENARIO", "demo_spectra", "simulate_curve", "INVENTED_CAMPAIGN", "DEMO_CAMPAIGN",
+           "invented_campaign"]
 
 import math
 import warnings
@@ -31,6 +36,7 @@ from .experiment.feshbach import FeshbachResonance
 from .experiment.trap import as_trap
 from .rates import beta, l3
 from .species import species
+from .universal.mixture_model import resolve_species
 from .universal.models import DEFAULT_MODEL, get_model
 
 SCENARIO = {
@@ -50,10 +56,24 @@ SCENARIO = {
 }
 
 
+MIXTURE_SCENARIO = {
+    "description": "invented demo scenario (not measured data): 133Cs-133Cs-6Li mixture with a_bb = 0 "
+                   "(an idealisation), L3 (loss of 6Li, events) through three a<0 resonances at 100 and 400 nK",
+    "species": "133Cs-133Cs-6Li",
+    "truth": {"a_minus": -320.0, "eta_minus": 0.12, "density_scale": 1.1},
+    "l3_temperatures_nK": [100.0, 400.0],
+    "l3_a_range_a0": [-12000.0, -260.0],
+    "l3_points": 26,
+    "relative_error": 0.2,
+    "seed": 20261204,
+}
+
+
 def demo_spectra(scenario=SCENARIO):
-    """The demo's synthetic spectra (list of LossSpectrum) and the truth dict."""
+    """The demo's synthetic spectra (list of LossSpectrum) and the truth dict (a scenario
+    without ``beta_points`` has L3 spectra only)."""
     rng = np.random.default_rng(scenario["seed"])
-    sp = species(scenario["species"])
+    sp = resolve_species(scenario["species"])
     truth = scenario["truth"]
     ef = Efimov(**{k: v for k, v in truth.items() if k != "density_scale"})
     s = truth["density_scale"]
@@ -68,6 +88,8 @@ def demo_spectra(scenario=SCENARIO):
             value = model * (1.0 + rel * rng.standard_normal(a.size))
             out.append(LossSpectrum(a, t, value, rel * model, kind="l3", label=f"L3, {t:g} nK",
                                     species=sp.name))
+        if "beta_points" not in scenario:
+            return out, dict(truth)
         lo, hi = scenario["beta_a_range_a0"]
         a = np.geomspace(lo, hi, scenario["beta_points"])
         t = scenario["beta_temperature_nK"]

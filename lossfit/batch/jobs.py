@@ -77,7 +77,7 @@ from ..inference.fit_checks import same_species
 from ..inference.fitting import EXCLUDE_CHOICES
 from ..inference.parameters import EFIMOV_NAMES, NUISANCE_NAMES
 from ..inference.priors import LogNormal, LogUniform, Normal, Uniform
-from ..species import species as _species
+from ..universal.mixture_model import resolve_species
 from ..universal.models import DEFAULT_MODEL, available_models
 
 try:
@@ -277,7 +277,7 @@ def parse_job(text, path):
     if "species" not in data:
         raise JobError("data.species", "missing")
     try:
-        sp = _species(data["species"]).name
+        sp = resolve_species(data["species"]).name
     except LossfitValueError as err:
         raise JobError("data.species", str(err)) from None
     spectra = data.get("spectra", [])

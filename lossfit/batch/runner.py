@@ -38,6 +38,7 @@ from ..inference.model_comparison import compare_models
 from ..inference.pools import make_pool
 from ..inference.posterior import check_run_settings, make_result
 from ..inference.temperature_study import temperature_study
+from ..mixture import HeteronuclearSystem
 from ..plotting.efimov import efimov_spectrum_plot
 from ..plotting.spectra import corner_plot, spectrum_plot
 from ..plotting.studies import binding_energy_plot, temperature_study_plot
@@ -130,8 +131,9 @@ def write_outputs(result, out_dir, provenance_info, *, truths=None):
     fig = spectrum_plot(result)
     _atomic_savefig(fig, os.path.join(out_dir, "spectrum.png"))
     plt.close(fig)
-    if "a_minus/r_vdw" in result.derived:
-        # the fitted a_- among the published measurements (van der Waals universality chart)
+    if "a_minus/r_vdw" in result.derived and not isinstance(result.species, HeteronuclearSystem):
+        # the fitted a_- among the published measurements of identical bosons (van der
+        # Waals universality chart; lossfit holds no such table for mixtures)
         fig = universality_plot(result)
         _atomic_savefig(fig, os.path.join(out_dir, "universality.png"))
         plt.close(fig)

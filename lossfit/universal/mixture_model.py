@@ -37,7 +37,7 @@ import numba
 import numpy as np
 
 from ..errors import LossfitValueError
-from ..mixture import HeteronuclearSystem
+from ..mixture import HeteronuclearSystem, system_from_name
 from ..species import Species
 from ..species import species as _species
 from ..thermal import FEATURES_SIGNATURE, KERNEL_SIGNATURE, U_MAX
@@ -129,9 +129,13 @@ def mixture_table(system):
 
 def resolve_species(species):
     """A :class:`~lossfit.species.Species` (from a name) or a :class:`HeteronuclearSystem`
-    (passed through): the two kinds of ``species=`` lossfit accepts."""
+    (passed through, or from a name "B-B-X" such as "133Cs-133Cs-6Li"): the two kinds of
+    ``species=`` lossfit accepts."""
     if isinstance(species, HeteronuclearSystem):
         return species
+    system = system_from_name(species)
+    if system is not None:
+        return system
     if not isinstance(species, (str, Species)):
         raise LossfitValueError("species", f"must be a species name, a Species or a HeteronuclearSystem "
                                 f"(lf.heteronuclear), got {species!r}")
