@@ -59,15 +59,17 @@ def channel_fit(theta, p, eta):
 
 
 def blended_transmission(t_fit, s11):
-    """1 - |s11|^2 from the two fitted quantities, weighted by |s11|^2.
+    """1 - |s11|^2 from the two fitted quantities, weighted by 1 - T.
 
     T = 1 - |s11|^2 is exact, but each fitted value carries the extrapolation error: a
     common relative error of the rates at one x goes into T alone (|s11| comes from a
-    ratio), so where |s11| is small 1 - |s11|^2 is the better value; where |s11| -> 1
-    (threshold) 1 - |s11|^2 loses every digit and the fitted T is the one to keep.
+    ratio), so where T -> 1 (|s11| small) 1 - |s11|^2 is the better value; where T -> 0
+    (threshold) 1 - |s11|^2 loses every digit (its absolute error, ~1e-5, exceeds T there)
+    and the fitted T is the one to keep.  The weight 1 - T of the fitted T makes the other
+    term T (1 - |s11|^2), negligible at threshold.
     """
-    r2 = np.abs(s11) ** 2
-    return r2 * t_fit + (1.0 - r2) * (1.0 - r2)
+    t_fit = np.clip(t_fit, 0.0, 1.0)
+    return (1.0 - t_fit) * t_fit + t_fit * (1.0 - np.abs(s11) ** 2)
 
 
 def one_x(args):
