@@ -1,0 +1,90 @@
+"""Speed and accuracy of the zero-range rates of two identical bosons and a third atom.
+
+Prints, for each shipped system, the worst relative difference of the fixed thermal rule
+(lossfit.universal.mixture_model.MixturePlan) from the adaptive reference quadrature over
+a grid of points, temperatures and eta, and the time of a 60-point spectrum likelihood
+(min/median of repeats) against two baselines measured in the same run: the same
+likelihood on the reference path (adaptive quadrature at rtol 1e-7) and the identical-boson
+zero-range likelihood of 60 a < 0 points (133Cs). Machines are shared: compare ratios.
+
+Run: python benchmarks/bench_mixture.py
+"""
+
+import statistics
+import time
+import warnings
+
+import numpy as np
+
+import lossfit as lf
+from lossfit.inference.likelihood import SpectrumLikelihood
+from lossfit.mixture import heteronuclear
+from lossfit.rates import natural_unit
+from lossfit.thermal import THREE_BODY
+from lossfit.units import NK
+from lossfit.universal.mixture_model import resolve_model, shipped_systems
+from lossfit.universal.models import scale_wavenumber_a0
+
+
+def _times(func, repeat=7, number=20):
+    func()
+    out = []
+    for _ in range(repeat):
+        t0 = time.perf_counter()
+        for _ in range(number):
+            func()
+        out.append((time.perf_counter() - t0) / number)
+    return min(out), statistics.median(out)
+
+
+def accuracy(system):
+    model = resolve_model(None, system)
+    a = -np.geomspace(5.5 * system.r_vdw, 1e5, 60)
+    worst = 0.0
+    for temperature in (10.0, 100.0, 1000.0):
+        q = a * scale_wavenumber_a0(temperature * NK, system.mass)
+        unit = natural_unit(THREE_BODY, np.full(a.size, temperature), system.mass)
+        plan = model.three_body_plan(a, q, unit)
+        for a_minus in (-300.0, -2000.0):
+            for eta in (0.005, 0.05, 0.5):
+                efimov = lf.Efimov(a_minus=a_minus, eta_minus=eta)
+                fast = plan.evaluate(efimov) / unit
+                ref, _ = model.reference_average(THREE_BODY, a, q, efimov, "total", 1e-10)
+                worst = max(worst, float(np.max(np.abs(fast / ref - 1.0))))
+    return worst
+
+
+def spectrum(system, a_minus):
+    efimov = lf.Efimov(a_minus=a_minus, eta_minus=0.1)
+    a = -np.geomspace(5.5 * system.r_vdw, 30.0 * abs(a_minus), 60)
+    values = lf.l3(a, 100.0, species=system, efimov=efimov)
+    return lf.LossSpectrum(a=a, temperature=np.full(a.size, 100.0), value=values, error=0.2 * values, kind="l3"), efimov
+
+
+def main():
+    warnings.simplefilter("ignore")
+    print("fixed rule vs adaptive reference (rtol 1e-10): 60 points 5.5 r_vdW..1e5 a0, 10/100/1000 nK, "
+          "a_- -300/-2000 a0, eta 0.005/0.05/0.5")
+    for boson, other in shipped_systems():
+        system = heteronuclear(boson, other)
+        print(f"  {system.name:<18} worst relative difference {accuracy(system):.1e}")
+    print("\n60-point L3 likelihood, one walker (min / median of 7 x 20 calls)")
+    cs_li = heteronuclear("133Cs", "6Li")
+    data, efimov = spectrum(cs_li, -320.0)
+    fast = SpectrumLikelihood(data, cs_li, None)
+    reference = SpectrumLikelihood(data, cs_li, None, rtol=1e-7)
+    cs = lf.species("133Cs")
+    cs_data, cs_efimov = spectrum(cs, -900.0)
+    identical = SpectrumLikelihood(cs_data, cs, None)
+    t_fast = _times(lambda: fast(efimov))
+    t_ref = _times(lambda: reference(efimov), repeat=3, number=2)
+    t_identical = _times(lambda: identical(cs_efimov))
+    print(f"  133Cs-133Cs-6Li fixed rule   {t_fast[0] * 1e6:8.1f} / {t_fast[1] * 1e6:8.1f} us")
+    print(f"  same, reference path         {t_ref[0] * 1e6:8.1f} / {t_ref[1] * 1e6:8.1f} us   "
+          f"ratio {t_ref[1] / t_fast[1]:.0f}x")
+    print(f"  133Cs identical bosons       {t_identical[0] * 1e6:8.1f} / {t_identical[1] * 1e6:8.1f} us   "
+          f"mixture/identical {t_fast[1] / t_identical[1]:.2f}")
+
+
+if __name__ == "__main__":
+    main()
