@@ -348,7 +348,8 @@ class FitResult:
                 f"{self.chain.shape[1]} walkers × {self.chain.shape[0]} steps (burn-in {self.burn}); "
                 f"acceptance {self.acceptance_fraction:.2f}</p><table><tr><th>parameter</th><th>units</th>"
                 f"<th>median</th><th>68 %</th><th>95 %</th><th>τ</th><th>ESS</th><th>R̂</th></tr>"
-                + "".join(rows) + f"</table><p>{esc(self._fit_line())}</p>{warn}</div>")
+                + "".join(rows) + f"</table><p>{esc(self._fit_line())}</p>"
+                + (f"<p>{esc(self._excluded_line())}</p>" if self.excluded else "") + f"{warn}</div>")
 
     def to_dict(self):
         """JSON-ready summary: settings, summary rows, correlation, diagnostics, warnings."""

@@ -72,6 +72,7 @@ def test_the_result_and_its_summary_record_what_was_left_out():
     assert record["excluded"][1]["reasons"] == ["k_B T > 0.1 E_vdW"]
     assert record["settings"]["exclude"] == "outside-validity"
     assert "excluded from the fit: 2 data point(s) outside the validity range" in res.table()
+    assert "excluded from the fit: 2 data point(s)" in res._repr_html_()
     # without exclude the same data are fitted whole and flagged as before
     res = _quick_fit(_spectrum())
     assert res.excluded == [] and res.settings["exclude"] == ""
