@@ -1,6 +1,6 @@
 """Command line for interactive and batch use.
 
-``lossfit demo --out DIR [--from-curves]``
+``lossfit demo --out DIR [--from-curves | --mixture]``
     Fit the built-in invented scenario; writes data, job file, chain, summary, figures.
     ``--from-curves`` starts from invented raw decay curves (global fit).
 ``lossfit run JOB.toml --out DIR [--pool serial|processes|mpi] [--workers N] [--steps N|auto]``
@@ -8,6 +8,8 @@
     ``mpiexec -n N lossfit run JOB.toml --out DIR --pool mpi``.
 ``lossfit report DIR``
     Re-create summary and figures from the stored chain.
+``lossfit tables BOSON OTHER [--c6 C6]``
+    Build and cache the zero-range table of a B-B-X pair that does not ship with lossfit.
 
 Exit codes: 0 success; 2 bad input (the message names the argument or job key);
 3 the output folder is locked or holds results that need ``--overwrite``;
@@ -17,6 +19,7 @@ Exit codes: 0 success; 2 bad input (the message names the argument or job key);
 __all__ = ["main"]
 
 import argparse
+import os
 import signal
 import sys
 import warnings
@@ -99,6 +102,26 @@ def _cmd_report(args):
     return 0
 
 
+def _cmd_tables(args):
+    from .mixture import heteronuclear  # loaded when the command runs
+    from .universal.mixture_model import shipped_systems, table_name
+    from .universal.solver.mixture_tables import build_table
+    from .universal.tables import cache_directory
+
+    system = heteronuclear(args.boson, args.other, c6_bx=args.c6)
+    if (system.boson.name, system.other.name) in shipped_systems():
+        _notice(args, f"the table of {system.name} ships with lossfit; nothing to build")
+        return 0
+    path = os.path.join(cache_directory(), table_name(system))
+    if os.path.exists(path) and not args.overwrite:
+        raise OutputConflict(f"{path!r} exists; pass --overwrite to rebuild it")
+    _notice(args, f"building the a < 0 table of {system.name} (s0 = {system.s0:.6f}) into {path}")
+    meta = build_table(system, path, processes=args.processes, progress=not args.quiet)
+    _notice(args, f"done: largest Efimov-channel fit residual {meta['channel_fit_residual_max']:.1e}, largest "
+            f"extrapolation error {meta['extrapolation_error_rel_max']:.1e} (docs/heteronuclear-rates.md)")
+    return 0
+
+
 def _steps(text):
     """--steps: an integer >= 2 or 'auto'."""
     if text == "auto":
@@ -151,6 +174,17 @@ def build_parser():
     rep.add_argument("dir", help="output folder of a run")
     rep.add_argument("--overwrite", action="store_true", help="replace existing summary and figures")
     rep.set_defaults(func=_cmd_report)
+    tab = sub.add_parser("tables", help="build the zero-range table of two identical bosons and a third atom "
+                         "for a pair that does not ship with lossfit (10-30 min; cached)", epilog=EXIT_CODES,
+                         formatter_class=argparse.RawDescriptionHelpFormatter)
+    tab.add_argument("boson", help="species of the two identical bosons, e.g. 87Rb")
+    tab.add_argument("other", help="species of the third atom, e.g. 7Li")
+    tab.add_argument("--c6", type=float, default=None, help="interspecies C6 in atomic units (needed for pairs "
+                     "lossfit holds no C6 for)")
+    tab.add_argument("--processes", type=int, default=2, help="worker processes (default 2)")
+    tab.add_argument("--overwrite", action="store_true", help="rebuild a table already in the cache")
+    tab.add_argument("--quiet", action="store_true", help="no progress bar or messages")
+    tab.set_defaults(func=_cmd_tables)
     return parser
 
 

@@ -32,6 +32,7 @@ __all__ = ["MixtureZeroRangeModel", "MixturePlan", "mixture_table", "table_name"
 
 import functools
 import math
+import os
 
 import numba
 import numpy as np
@@ -43,7 +44,7 @@ from ..species import species as _species
 from ..thermal import FEATURES_SIGNATURE, KERNEL_SIGNATURE, U_MAX
 from .averages import ETA_MIN
 from .models import DEFAULT_MODEL, OBSERVED, EnergyModel, get_model
-from .tables import grid_limits, load_s11_table, s11_eval, table_path
+from .tables import cache_directory, grid_limits, load_s11_table, s11_eval, table_path
 
 # B-X pairs whose a < 0 table ships with the package (scripts/make_mixture_tables.py)
 _SHIPPED = (("133Cs", "6Li"), ("133Cs", "7Li"), ("87Rb", "40K"), ("87Rb", "41K"))
@@ -108,7 +109,8 @@ def table_name(system):
 
 
 def mixture_table(system):
-    """The a < 0 table of ``system`` (:class:`lossfit.universal.tables.S11Table`).
+    """The a < 0 table of ``system`` (:class:`lossfit.universal.tables.S11Table`): shipped,
+    or built by ``lossfit tables`` into :func:`lossfit.universal.tables.cache_directory`.
 
     Raises
     ------
@@ -119,12 +121,19 @@ def mixture_table(system):
         raise LossfitValueError("species", f"zero-range rates of {system.label} are tabulated for a_bb = 0 only "
                                 f"(got a_bb = {system.a_bb:g} a0); the finite-a_bb solver gives threshold laws "
                                 "(docs/stm-mixture.md section 6)")
-    if (system.boson.name, system.other.name) not in _SHIPPED:
+    if (system.boson.name, system.other.name) in _SHIPPED:
+        return load_s11_table(table_path(table_name(system)))
+    cached = os.path.join(cache_directory(), table_name(system))
+    if not os.path.exists(cached):
         pairs = ", ".join(f"{b}-{b}-{x}" for b, x in _SHIPPED)
         raise LossfitValueError("species", f"no zero-range table for {system.label}; tables ship for {pairs}. "
-                                "Build one with: python scripts/make_mixture_tables.py "
-                                f"{system.boson.name}-{system.other.name}")
-    return load_s11_table(table_path(table_name(system)))
+                                f"Build one (10-30 min) with: lossfit tables {system.boson.name} "
+                                f"{system.other.name}")
+    table = load_s11_table(cached)
+    if not math.isclose(table.mass_ratio, system.mass_ratio, rel_tol=1e-9):
+        raise LossfitValueError("species", f"the cached table {cached!r} was built for mass ratio "
+                                f"{table.mass_ratio:.8g}, not {system.mass_ratio:.8g}; rebuild it")
+    return table
 
 
 def resolve_species(species):

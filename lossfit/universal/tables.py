@@ -26,7 +26,7 @@ convention), both with the last difference decaying like 1/x.
 """
 
 __all__ = ["S11Table", "AtomDimerTable", "RecombinationTable", "load_s11_table", "load_atom_dimer_table",
-           "load_recombination_table", "table_path", "spline_coefficients"]
+           "load_recombination_table", "table_path", "cache_directory", "spline_coefficients"]
 
 import cmath
 import json
@@ -79,6 +79,12 @@ def table_path(name="s11_negative_a.npz"):
     return os.path.join(_DATA, name)
 
 
+def cache_directory():
+    """Where tables built on demand (``lossfit tables``) are kept: $LOSSFIT_CACHE, else
+    ~/.cache/lossfit."""
+    return os.environ.get("LOSSFIT_CACHE") or os.path.join(os.path.expanduser("~"), ".cache", "lossfit")
+
+
 class S11Table:
     """Spline coefficients and limits of s11(x) for a < 0, packed for numba.
 
@@ -101,6 +107,7 @@ class S11Table:
             # tables of two identical bosons and a third atom carry their own s0 and no
             # exact unitarity phase (docs/heteronuclear-rates.md)
             self.s0 = float(d["s0"]) if "s0" in d.files else S0
+            self.mass_ratio = float(d["mass_ratio"]) if "mass_ratio" in d.files else 1.0
             identical = "k3_prefactor" in d.files
             self.kappa_star_a_minus = float(d["kappa_star_a_minus"])
             x = np.array(d["x"])
