@@ -113,7 +113,7 @@ def _attribute_doc(module, name):
 #: Modules with a reference page (docs/api/<module>.rst), in the order of the reference.
 API_MODULES = ["lossfit", "lossfit.plotting", "lossfit.inference", "lossfit.inference.curve_fits",
                "lossfit.inference.temperature_study", "lossfit.inference.model_comparison", "lossfit.rates",
-               "lossfit.batch.jobs", "lossfit.constants", "lossfit.units", "lossfit.errors"]
+               "lossfit.mixture", "lossfit.batch.jobs", "lossfit.constants", "lossfit.units", "lossfit.errors"]
 
 
 def _homes():

@@ -99,7 +99,8 @@ def test_tutorial_runs(tmp_path, monkeypatch):
 @pytest.mark.slow
 @pytest.mark.parametrize("page", ["guide/getting-started.md", "guide/howto/models-and-channels.md",
                                   "guide/howto/decay-curves.md", "guide/howto/field-calibration.md",
-                                  "guide/howto/exports.md", "guide/howto/universality.md"])
+                                  "guide/howto/exports.md", "guide/howto/universality.md",
+                                  "guide/howto/mixtures.md"])
 def test_guide_page_code_runs(page, tmp_path, monkeypatch):
     monkeypatch.chdir(tmp_path)
     matplotlib.use("Agg")
