@@ -56,10 +56,11 @@ _SHIPPED = (("133Cs", "6Li"), ("133Cs", "7Li"), ("87Rb", "40K"), ("87Rb", "41K")
 # spans at most _PANEL_PER_WIDTH of it.  Each point integrates u = E/k_BT = (x/x_T)^2 over
 # [_U_LO, _U_HI]: below, the average holds < 1e-8 of its value (P <= 1); above, < e^-48.
 _U_LO, _U_HI = 1e-8, 48.0
-_PANEL_NODES = 8
+_PANEL_NODES = 6
 _PANEL_MAX = 0.5
 _PANEL_PER_WIDTH = 1.0
 _FINE_STEP = 0.01
+_TRIM = 1e-7
 
 
 def rule_nodes(table, y_lo, y_hi, eta_min):
@@ -329,26 +330,50 @@ class MixturePlan:
         # and node: the weights e^{-u} u w_y T per (point, node of its window)
         self._terms = np.ascontiguousarray(np.stack([mod * np.cos(phase), mod * np.sin(phase), mod * mod]))
         self._weights = _point_weights(y, w_y * t, ln_x_t, self._first, self._stop)
-        self._theta0 = model.two_theta(self.a, -1.0)          # 2 theta at a_- = -1 a0
+        # drop the window's ends whose largest possible share (each node's weight over the
+        # smallest denominator (1 - |s11| e^{-2 eta_min})^2 it can have) stays below
+        # _TRIM of the smallest possible total (denominators <= (1 + |s11|)^2)
+        _trim(self._weights, mod, math.exp(-2.0 * self.eta_min), _TRIM, self._first, self._stop)
+        theta0 = model.two_theta(self.a, -1.0)          # 2 theta at a_- = -1 a0
+        self._theta0 = np.ascontiguousarray(np.stack([np.cos(theta0), np.sin(theta0)]))
         self._scale = np.asarray(scale, dtype=float) * model.k3_prefactor * np.ones(self.n_points)
+        self._one = np.empty((3, 1))          # rotation, e^{-2 eta}, 1 - e^{-4 eta} of one walker
 
     def evaluate(self, efimov, out=None):
         """Thermal K3 at every point in the builder's units, shape (n_points,) or (W, n_points)
         for an Efimov set of W walker arrays."""
-        a_minus, eta = efimov.require("a_minus", "eta_minus")
+        a_minus, eta = efimov.a_minus, efimov.eta_minus
+        if a_minus is None or eta is None:
+            efimov.require("a_minus", "eta_minus")
         walkers = efimov.n_walkers
-        a_minus = np.atleast_1d(np.asarray(a_minus, dtype=float))
-        eta = np.atleast_1d(np.asarray(eta, dtype=float))
-        if (a_minus >= 0).any():
-            raise LossfitValueError("a_minus", f"must be < 0 a0, got {a_minus[a_minus >= 0][:3]!r}")
-        # theta(a_-) = theta(a_- = -1 a0) - s0 ln|a_-|: a rotation of the prepared phases
-        rotation = -2.0 * self.model.table.s0 * np.log(np.abs(a_minus))
-        values = np.empty((rotation.size, self.n_points))
-        if (eta < self.eta_min).any():
-            raise LossfitValueError("eta_minus", f"{eta.min():g} is below eta_min={self.eta_min:g}, the smallest eta "
-                                    "this plan resolves; build it with a smaller eta_min")
-        _evaluate(self._terms, self._weights, self._first, self._stop, self._theta0, rotation, np.exp(-2.0 * eta),
-                  -np.expm1(-4.0 * eta), self._scale, values)
+        s0 = self.model.table.s0
+        if not walkers:
+            # one Efimov set of floats: scalars by math, into preallocated buffers
+            if not a_minus < 0:
+                raise LossfitValueError("a_minus", f"must be < 0 a0, got {a_minus!r}")
+            if eta < self.eta_min:
+                raise LossfitValueError("eta_minus", f"{eta:g} is below eta_min={self.eta_min:g}, the smallest eta "
+                                        "this plan resolves; build it with a smaller eta_min")
+            # theta(a_-) = theta(a_- = -1 a0) - s0 ln|a_-|: a rotation of the prepared phases
+            self._one[0, 0] = -2.0 * s0 * math.log(-a_minus)
+            self._one[1, 0] = math.exp(-2.0 * eta)
+            self._one[2, 0] = -math.expm1(-4.0 * eta)
+            values = np.empty((1, self.n_points))
+            _evaluate(self._terms, self._weights, self._first, self._stop, self._theta0, self._one[0], self._one[1],
+                      self._one[2], self._scale, values)
+        else:
+            a_minus = np.asarray(a_minus, dtype=float)
+            eta = np.asarray(eta, dtype=float)
+            if (a_minus >= 0).any():
+                raise LossfitValueError("a_minus", f"must be < 0 a0, got {a_minus[a_minus >= 0][:3]!r}")
+            if (eta < self.eta_min).any():
+                raise LossfitValueError("eta_minus", f"{eta.min():g} is below eta_min={self.eta_min:g}, the "
+                                        "smallest eta this plan resolves; build it with a smaller eta_min")
+            rotation = np.broadcast_to(-2.0 * s0 * np.log(-a_minus), (walkers,))
+            values = np.empty((walkers, self.n_points))
+            _evaluate(self._terms, self._weights, self._first, self._stop, self._theta0, np.ascontiguousarray(rotation),
+                      np.broadcast_to(np.exp(-2.0 * eta), (walkers,)).copy(),
+                      np.broadcast_to(-np.expm1(-4.0 * eta), (walkers,)).copy(), self._scale, values)
         result = values if walkers else values[0]
         if out is None:
             return result
@@ -376,16 +401,42 @@ def _point_weights(y, weight_t, ln_x_t, first, stop):
 
 
 @numba.njit(cache=True)
+def _trim(weights, mod, e2_min, tol, first, stop):
+    for i in range(first.size):
+        lower = 0.0
+        for j in range(first[i], stop[i]):
+            lower += weights[i, j] / (1.0 + mod[j]) ** 2
+        budget = 0.5 * tol * lower
+        dropped = 0.0
+        while first[i] < stop[i]:
+            j = first[i]
+            share = weights[i, j] / (1.0 - mod[j] * e2_min) ** 2
+            if dropped + share > budget:
+                break
+            dropped += share
+            first[i] += 1
+        dropped = 0.0
+        while stop[i] > first[i]:
+            j = stop[i] - 1
+            share = weights[i, j] / (1.0 - mod[j] * e2_min) ** 2
+            if dropped + share > budget:
+                break
+            dropped += share
+            stop[i] -= 1
+
+
+@numba.njit(cache=True, fastmath=True)
 def _evaluate(terms, weights, first, stop, theta0, rotation, e2, g, scale, out):
     # out[w, i] = scale_i g_w sum_j weight_ij / |1 + s_j e^{i(2 theta0_i + r_w)} e2_w|^2
-    # over the nodes of point i's window
-    for i in range(theta0.size):
-        for w in range(rotation.size):
-            angle = theta0[i] + rotation[w]
-            c, s = math.cos(angle), math.sin(angle)
-            e, e_sq = e2[w], e2[w] * e2[w]
+    # over the nodes of point i's window; theta0 holds cos and sin of 2 theta0_i
+    for w in range(rotation.size):
+        cos_r, sin_r = math.cos(rotation[w]), math.sin(rotation[w])
+        for i in range(theta0.shape[1]):
+            c = theta0[0, i] * cos_r - theta0[1, i] * sin_r
+            s = theta0[1, i] * cos_r + theta0[0, i] * sin_r
+            # 1 + 2 e Re(s_j e^{i angle}) + e^2 |s_j|^2 = 1 + a_j ca - b_j sa + e^2 |s_j|^2
+            ca, sa, e_sq = 2.0 * e2[w] * c, 2.0 * e2[w] * s, e2[w] * e2[w]
             total = 0.0
             for j in range(first[i], stop[i]):
-                re = terms[0, j] * c - terms[1, j] * s
-                total += weights[i, j] / (1.0 + 2.0 * e * re + e_sq * terms[2, j])
+                total += weights[i, j] / (1.0 + terms[0, j] * ca - terms[1, j] * sa + e_sq * terms[2, j])
             out[w, i] = scale[i] * g[w] * total
