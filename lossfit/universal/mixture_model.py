@@ -27,8 +27,8 @@ per point (:class:`MixturePlan`); the reference path is the adaptive engine of
 :mod:`lossfit.thermal` on :attr:`MixtureZeroRangeModel.three_body_kernel`.
 """
 
-__all__ = ["MixtureZeroRangeModel", "MixturePlan", "mixture_table", "table_name", "shipped_systems",
-           "resolve_model", "resolve_species", "rule_nodes"]
+__all__ = ["MixtureZeroRangeModel", "MixtureThresholdModel", "MixturePlan", "mixture_table", "table_name",
+           "shipped_systems", "resolve_model", "resolve_species", "rule_nodes"]
 
 import functools
 import math
@@ -155,8 +155,9 @@ def resolve_species(species):
 def resolve_model(model, species):
     """The rate model for ``model`` (a name, an EnergyModel or None) and ``species``.
 
-    For a :class:`HeteronuclearSystem` only the zero-range model exists; it is built for
-    that system's masses and table.
+    For a :class:`HeteronuclearSystem`: ``"zero-range"`` (default) or ``"threshold"`` (the
+    zero-energy law from the same table, for comparison), built for that system's masses
+    and table.
     """
     if not isinstance(species, HeteronuclearSystem):
         return get_model(DEFAULT_MODEL if model is None else model)
@@ -165,15 +166,15 @@ def resolve_model(model, species):
             raise LossfitValueError("model", f"was built for {model.system.label}, not {species.label}")
         return model
     name = model.name if isinstance(model, EnergyModel) else model
-    if name not in (None, "zero-range"):
-        raise LossfitValueError("model", f"for two bosons and a third atom ({species.label}) lossfit has the "
-                                f"zero-range model only, got {name!r}")
-    return _mixture_model(species)
+    if name not in (None, "zero-range", "threshold"):
+        raise LossfitValueError("model", f"for two bosons and a third atom ({species.label}) lossfit has "
+                                f"'zero-range' and 'threshold', got {name!r}")
+    return _mixture_model(species, name or "zero-range")
 
 
 @functools.lru_cache(maxsize=None)
-def _mixture_model(system):
-    return MixtureZeroRangeModel(system)
+def _mixture_model(system, name):
+    return MixtureThresholdModel(system) if name == "threshold" else MixtureZeroRangeModel(system)
 
 
 class MixtureZeroRangeModel(EnergyModel):
@@ -216,7 +217,7 @@ class MixtureZeroRangeModel(EnergyModel):
         self.__init__(state["system"])
 
     def __repr__(self):
-        return f"<lossfit model zero-range for {self.system.label}>"
+        return f"<lossfit model {self.name} for {self.system.label}>"
 
     @property
     def three_body_kernel(self):
@@ -378,6 +379,69 @@ class MixturePlan:
         if out is None:
             return result
         out[...] = result
+        return out
+
+
+class MixtureThresholdModel(MixtureZeroRangeModel):
+    """The zero-energy law of two identical bosons and a third atom at a < 0 (no thermal
+    average): K3 = 8 pi^2 ((2 m_B + m_X)/m_X)^{3/2} c4 (k|a|)^4/(E/E_s)^2 ... in the limit
+    E -> 0, i.e. hbar a^4/m_B times a function of theta and eta from the table's threshold
+    law (T -> c4 x^4, arg s11 -> delta0). What a fit that ignores the collision energy
+    assumes; compare it with the zero-range model to see the thermal shifts."""
+
+    name = "threshold"
+    description = "zero-energy law of two identical bosons and a third atom (no thermal average)"
+    approximate = True
+
+    @property
+    def three_body_kernel(self):
+        if self._kernel is None:
+            pref = self.k3_prefactor * self.table.c4
+            delta0 = self.table.delta0
+
+            @numba.njit(KERNEL_SIGNATURE)
+            def kernel(x, p):
+                # independent of the energy x: pref c4 x_s^4 (1 - e^-4eta)/|1 + e^{i d0} e^{2 i theta - 2 eta}|^2
+                x4 = p[0] * p[0] * p[0] * p[0]
+                den = 1.0 + 2.0 * p[2] * math.cos(delta0 + p[1]) + p[2] * p[2]
+                return pref * x4 * p[3] / den
+
+            @numba.njit(FEATURES_SIGNATURE)
+            def features(p, out):
+                return 0
+
+            self._features = features
+            self._kernel = kernel
+        return self._kernel
+
+    def three_body_plan(self, a, q, scale, channel="total", eta_min=ETA_MIN):
+        self._check(a, channel)
+        return _ThresholdPlan(self, np.ravel(a), np.ravel(q), np.ravel(scale))
+
+
+class _ThresholdPlan:
+    """The zero-energy law at fixed points: closed form per walker."""
+
+    def __init__(self, model, a, q, scale):
+        self.model, self.a = model, np.asarray(a, dtype=float)
+        self.n_points = self.a.size
+        x4 = (np.abs(np.asarray(q, dtype=float)) * model.wavenumber_ratio) ** 4
+        self._scale = np.asarray(scale, dtype=float) * model.k3_prefactor * model.table.c4 * x4
+        self._theta0 = model.two_theta(self.a, -1.0) + model.table.delta0
+
+    def evaluate(self, efimov, out=None):
+        a_minus, eta = efimov.require("a_minus", "eta_minus")
+        a_minus = np.asarray(a_minus, dtype=float)[..., None]
+        eta = np.asarray(eta, dtype=float)[..., None]
+        if (a_minus >= 0).any():
+            raise LossfitValueError("a_minus", "must be < 0 a0")
+        e2 = np.exp(-2.0 * eta)
+        angle = self._theta0 - 2.0 * self.model.table.s0 * np.log(-a_minus)
+        # (n_points,) for one walker (scalars broadcast), (W, n_points) for walker arrays
+        values = self._scale * -np.expm1(-4.0 * eta) / (1.0 + 2.0 * e2 * np.cos(angle) + e2 * e2)
+        if out is None:
+            return values
+        out[...] = values
         return out
 
 

@@ -159,3 +159,39 @@ def test_fit_of_an_invented_spectrum_through_three_resonances(cs_li):
     assert rows["eta_minus"]["lo95"] < 0.15 < rows["eta_minus"]["hi95"]
     assert rows["a_minus(1)"]["median"] == pytest.approx(rows["a_minus"]["median"] * cs_li.scaling, rel=1e-9)
     assert result.species.name == "133Cs-133Cs-6Li"
+
+
+@pytest.mark.slow
+def test_zero_temperature_law_shows_the_thermal_shift_that_the_exact_fit_removes(cs_li):
+    # invented noiseless spectra (not measured data) of Cs-Cs-6Li through three resonances
+    # at 100 and 400 nK: the thermally averaged fit returns a_- within its 68 % interval;
+    # the zero-energy law, fitted resonance by resonance, puts the higher resonances at
+    # smaller |a| than lambda^n a_- (the thermal shift; common practice, no source)
+    truth = lf.Efimov(a_minus=-320.0, eta_minus=0.12)
+    lam = cs_li.scaling
+    spectra = []
+    for temperature in (100.0, 400.0):
+        a = -np.geomspace(250.0, 12000.0, 40)
+        l3 = lf.l3(a, temperature, species=cs_li, efimov=truth)
+        spectra.append(lf.LossSpectrum(a=a, temperature=np.full(a.size, temperature), value=l3, error=0.2 * l3,
+                                       kind="l3"))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        exact = lf.fit(spectra, species=cs_li, free=["a_minus", "eta_minus"], walkers=16, steps=500, seed=1,
+                       progress=False)
+        row = {r["name"]: r for r in exact.summary()}["a_minus"]
+        assert row["lo68"] < -320.0 < row["hi68"]
+        apparent = []
+        for n in (0, 1, 2):
+            centre = 320.0 * lam ** n
+            window = [s for s in spectra if s.temperature[0] == 400.0][0]
+            keep = (np.abs(window.a) > centre / lam ** 0.5) & (np.abs(window.a) < centre * lam ** 0.5)
+            part = lf.LossSpectrum(a=window.a[keep], temperature=window.temperature[keep], value=window.value[keep],
+                                   error=window.error[keep], kind="l3")
+            fit = lf.fit(part, species=cs_li, model="threshold", free=["a_minus", "eta_minus"], walkers=16,
+                         steps=400, seed=2, progress=False,
+                         priors={"a_minus": (-centre / lam ** 0.5, -centre * lam ** 0.5)})
+            apparent.append({r["name"]: r for r in fit.summary()}["a_minus"]["median"] / -centre)
+    # the first resonance (k_T |a| ~ 0.05 at 400 nK) barely moves; the higher ones move inwards
+    assert abs(apparent[0] - 1.0) < 0.03
+    assert apparent[1] < 0.97 and apparent[2] < apparent[1]
