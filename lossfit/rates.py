@@ -268,12 +268,22 @@ def _smallest_eta(efimov):
     return min(etas) if etas else ETA_MIN
 
 
-def _averaged(process, a, temperature, species, efimov, model, rtol, channel, trap_depth=None):
+def _averaged(process, a, temperature, species, efimov, model, rtol, channel, trap_depth=None, temperature_x=None):
     if rtol is not None and not (is_real(rtol) and 0 < rtol < 1):
         raise LossfitValueError("rtol", f"must be None or a number in (0, 1), got {rtol!r}")
     sp, mdl, a_b, scale_b, q = _prepare(a, temperature, species, efimov, model, "temperature", process, 5)
     unit = natural_unit(process, scale_b, sp.mass)
     a_f, q_f = a_b.ravel(), q.ravel()
+    if temperature_x is not None:
+        if not isinstance(sp, HeteronuclearSystem):
+            raise LossfitValueError("temperature_x", "applies to two identical bosons and a third atom "
+                                    "(species=lf.heteronuclear(...)), the third atom's temperature")
+        if rtol is not None:
+            raise LossfitValueError("rtol", "the reference path averages at one temperature; leave rtol=None "
+                                    "with temperature_x")
+        ratio = np.broadcast_to(check_positive("temperature_x", temperature_x), a_b.shape).ravel() / scale_b.ravel()
+        return _finish(mdl.thermal_three_body(a_f, q_f, efimov, unit, channel=mdl.resolve_channel(channel),
+                                              temperature_ratio=ratio), a_b.shape)
     if process == THREE_BODY:
         channel = mdl.resolve_channel(channel)
         if channel == OBSERVED:
@@ -302,7 +312,8 @@ def _averaged(process, a, temperature, species, efimov, model, rtol, channel, tr
     return _finish(mdl.thermal(process, a_f, q_f, efimov, unit, channel=channel), a_b.shape)
 
 
-def l3(a, temperature, *, species, efimov, model=None, rtol=None, channel=None, trap_depth=None):
+def l3(a, temperature, *, species, efimov, model=None, rtol=None, channel=None, trap_depth=None,
+       temperature_x=None):
     """Thermally averaged three-body loss coefficient of a non-degenerate gas.
 
     ``L3(a, T) = ∫ K3(a, E) P3(E) dE`` with P3(E) = E^2 exp(-E/k_BT)/(2 (k_BT)^3), for
@@ -333,13 +344,20 @@ def l3(a, temperature, *, species, efimov, model=None, rtol=None, channel=None, 
     trap_depth : float or array_like, optional
         Atom trap depth U/k_B in nK (``"observed"`` only), broadcast against the points;
         None assumes U = 10 k_B T (common practice after evaporation, no source).
+    temperature_x : float or array_like, optional
+        Two identical bosons and a third atom only: the third atom's temperature in nK
+        where it differs from ``temperature`` (the bosons'); the relative energy then has
+        the two-temperature distribution of docs/heteronuclear.md section 4 (the absorption
+        probability keeps its one-temperature average over directions: an approximation,
+        docs/heteronuclear-rates.md).
 
     Returns
     -------
     float or ndarray
-        L3 in cm^6/s.
+        L3 in cm^6/s; for ``species=lf.heteronuclear(...)`` the event coefficient K3
+        (d n_X/dt = -K3 n_B^2 n_X, docs/heteronuclear-rates.md).
     """
-    return _averaged(THREE_BODY, a, temperature, species, efimov, model, rtol, channel, trap_depth)
+    return _averaged(THREE_BODY, a, temperature, species, efimov, model, rtol, channel, trap_depth, temperature_x)
 
 
 class DimerKineticsRates(NamedTuple):

@@ -1,16 +1,18 @@
 """Loss-spectrum containers, validation, the HDF5 schema and CSV import.
 
-HDF5 schema ``lossfit.spectra``, version 2
+HDF5 schema ``lossfit.spectra``, version 3
 -----------------------------------------
-File attributes: ``schema = "lossfit.spectra"``, ``schema_version = 2``,
+File attributes: ``schema = "lossfit.spectra"``, ``schema_version = 3``,
 ``lossfit_version``. One group per spectrum under ``/spectra/<name>`` with attributes
 ``kind`` (``"l3"`` or ``"beta"``), ``label``, ``species`` (may be empty), ``channel``
 (the loss channel the data measure, empty for the model's default) and datasets
 ``a`` (attribute ``units = "a0"``), ``temperature`` (``"nK"``), ``value`` and
 ``error`` (``"cm^6/s"`` for L3, ``"cm^3/s"`` for beta) and, optionally,
-``trap_depth`` (``"nK"``, the atoms' trap depth U/k_B per point). Version 1 files (no
-``channel``, no ``trap_depth``) are read as such. Readers refuse files with an unknown
-schema or a newer version.
+``trap_depth`` (``"nK"``, the atoms' trap depth U/k_B per point) and ``temperature_x``
+(``"nK"``, the temperature of the third atom X of a mixture where it differs from the
+bosons' ``temperature``; version 3). Version 1 files (no ``channel``, no ``trap_depth``)
+and version 2 files (no ``temperature_x``) are read as such. Readers refuse files with an
+unknown schema or a newer version.
 
 CSV import: a header line naming the columns ``a``, ``temperature``, ``value``,
 ``error`` (any order, extra columns ignored; ``L3``/``beta`` and ``L3_err``/``beta_err``
@@ -33,9 +35,14 @@ from ..errors import LossfitValueError, check_finite, check_nonzero, check_posit
 from ..units import COLUMN_UNITS
 
 SCHEMA = "lossfit.spectra"
-SCHEMA_VERSION = 2
+SCHEMA_VERSION = 3
 KINDS = {"l3": "cm^6/s", "beta": "cm^3/s"}
 #: Loss channels a spectrum may measure, by kind (None: the model's default, docs/conventions.md).
+#: Optional per-point columns, each a temperature in nK (> 0), and why they exist.
+OPTIONAL_COLUMNS = {
+    "trap_depth": "applies to L3 spectra (the observed three-body loss) only",
+    "temperature_x": "applies to L3 spectra of two identical bosons and a third atom only",
+}
 CHANNELS = {"l3": ("observed", "total", "shallow", "deep"), "beta": ("relaxation", "breakup", "total")}
 
 
@@ -65,10 +72,14 @@ class LossSpectrum:
     trap_depth : float or array_like, optional
         Trap depth of the atoms, U/k_B in nK (> 0), per point or one value; used by the
         observed L3 channel. None: the fit assumes 10 k_B T and records that.
+    temperature_x : float or array_like, optional
+        For two identical bosons B and a third atom X: the temperature of X in nK, per
+        point or one value, where it differs from ``temperature`` (that of B). None: X
+        shares the bosons' temperature.
     """
 
     def __init__(self, a, temperature, value, error, kind="l3", label=None, species=None, channel=None,
-                 trap_depth=None):
+                 trap_depth=None, temperature_x=None):
         if kind not in KINDS:
             raise LossfitValueError("kind", f"must be one of {list(KINDS)}, got {kind!r}")
         if channel is not None and channel not in CHANNELS[kind]:
@@ -91,20 +102,23 @@ class LossSpectrum:
         if kind == "beta" and (a <= 0).any():
             raise LossfitValueError("a", "beta (atom-dimer relaxation) needs a > 0 (a shallow dimer); "
                                     f"got {a[a <= 0][:5]!r}")
-        if trap_depth is not None:
+        for name, raw in (("trap_depth", trap_depth), ("temperature_x", temperature_x)):
+            if raw is None:
+                continue
             if kind != "l3":
-                raise LossfitValueError("trap_depth", "applies to L3 spectra (the observed three-body loss) only")
-            depth = np.atleast_1d(check_positive("trap_depth", trap_depth)).astype(float)
-            if depth.size == 1:
-                depth = np.full(n, depth.item())
-            if depth.shape != (n,):
-                raise LossfitValueError("trap_depth", f"has {depth.size} entries but a has {n}")
-            arrays["trap_depth"] = depth
+                raise LossfitValueError(name, OPTIONAL_COLUMNS[name])
+            column = np.atleast_1d(check_positive(name, raw)).astype(float)
+            if column.size == 1:
+                column = np.full(n, column.item())
+            if column.shape != (n,):
+                raise LossfitValueError(name, f"has {column.size} entries but a has {n}")
+            arrays[name] = column
         for arr in (a, *arrays.values()):
             arr.setflags(write=False)
         self.a = a
         self.channel = channel
         self.trap_depth = arrays.get("trap_depth")
+        self.temperature_x = arrays.get("temperature_x")
         self.temperature = arrays["temperature"]
         self.value = arrays["value"]
         self.error = arrays["error"]
@@ -129,9 +143,11 @@ class LossSpectrum:
     def select(self, mask):
         """A new spectrum with only the points where ``mask`` is true."""
         mask = np.asarray(mask, dtype=bool)
+        optional = {name: None if getattr(self, name) is None else getattr(self, name)[mask]
+                    for name in OPTIONAL_COLUMNS}
         return LossSpectrum(self.a[mask], self.temperature[mask], self.value[mask],
                             self.error[mask], kind=self.kind, label=self.label, species=self.species,
-                            channel=self.channel, trap_depth=None if self.trap_depth is None else self.trap_depth[mask])
+                            channel=self.channel, **optional)
 
 
 def write_spectra(path, spectra, *, overwrite=False):
@@ -159,8 +175,7 @@ def write_spectra(path, spectra, *, overwrite=False):
             g.attrs["channel"] = s.channel or ""
             columns = [("a", s.a, "a0"), ("temperature", s.temperature, "nK"), ("value", s.value, s.units),
                        ("error", s.error, s.units)]
-            if s.trap_depth is not None:
-                columns.append(("trap_depth", s.trap_depth, "nK"))
+            columns += [(name, getattr(s, name), "nK") for name in OPTIONAL_COLUMNS if getattr(s, name) is not None]
             for name, arr, unit in columns:
                 g.create_dataset(name, data=arr).attrs["units"] = unit
 
@@ -195,20 +210,22 @@ def read_spectra(path):
                     raise LossfitValueError("path", f"{path!r}: spectra/{key}/{name} has units "
                                             f"{g[name].attrs.get('units')!r}, expected {unit!r} (lossfit "
                                             "converts nothing on reading)")
-            if "trap_depth" in g and g["trap_depth"].attrs.get("units") != "nK":
-                raise LossfitValueError("path", f"{path!r}: spectra/{key}/trap_depth has units "
-                                        f"{g['trap_depth'].attrs.get('units')!r}, expected 'nK'")
+            for name in OPTIONAL_COLUMNS:
+                if name in g and g[name].attrs.get("units") != "nK":
+                    raise LossfitValueError("path", f"{path!r}: spectra/{key}/{name} has units "
+                                            f"{g[name].attrs.get('units')!r}, expected 'nK'")
             out.append(LossSpectrum(g["a"][()], g["temperature"][()], g["value"][()], g["error"][()],
                                     kind=kind, label=g.attrs.get("label", key),
                                     species=g.attrs.get("species", "") or None,
                                     channel=g.attrs.get("channel", "") or None,
-                                    trap_depth=g["trap_depth"][()] if "trap_depth" in g else None))
+                                    **{name: g[name][()] if name in g else None for name in OPTIONAL_COLUMNS}))
         return out
 
 
 def read_csv(path, *, kind="l3", label=None, species=None, channel=None, trap_depth=None):
     """Import one spectrum from a CSV file with columns a, temperature, value, error and,
-    optionally, trap_depth (the atoms' trap depth U/k_B per point, a temperature).
+    optionally, trap_depth (the atoms' trap depth U/k_B per point, a temperature) and
+    temperature_x (the third atom's temperature in a mixture).
 
     Units as in :class:`LossSpectrum` (a0, nK, cm^6/s or cm^3/s); ``channel`` and
     ``trap_depth`` (nK, used where the file has no such column) as there.
@@ -223,9 +240,9 @@ def read_csv(path, *, kind="l3", label=None, species=None, channel=None, trap_de
         m = re.fullmatch(r"\s*([^()]*?)\s*(?:\(([^()]*)\))?\s*", header)
         name, unit = m.group(1), m.group(2)
         canonical = aliases.get(name.lower(), name)
-        if unit is not None and canonical in ("a", "temperature", "value", "error", "trap_depth"):
+        if unit is not None and canonical in ("a", "temperature", "value", "error", *OPTIONAL_COLUMNS):
             table = COLUMN_UNITS["a" if canonical == "a" else "temperature"
-                                 if canonical in ("temperature", "trap_depth") else kind]
+                                 if canonical in ("temperature", *OPTIONAL_COLUMNS) else kind]
             key = unit.strip().lower().replace(" ", "")
             if key not in table:
                 raise LossfitValueError("path", f"{path!r}: column {header!r} has unit {unit!r}; known: "
@@ -235,7 +252,7 @@ def read_csv(path, *, kind="l3", label=None, species=None, channel=None, trap_de
 
     rows, _ = read_csv_table(path, ("a", "temperature", "value", "error"), rename=rename)
     cols = {}
-    names = ("a", "temperature", "value", "error") + (("trap_depth",) if rows and "trap_depth" in rows[0] else ())
+    names = ("a", "temperature", "value", "error") + tuple(c for c in OPTIONAL_COLUMNS if rows and c in rows[0])
     for c in names:
         try:
             cols[c] = [float(r[c]) * factors.get(c, 1.0) for r in rows]
@@ -243,4 +260,5 @@ def read_csv(path, *, kind="l3", label=None, species=None, channel=None, trap_de
             raise LossfitValueError("path", f"{path!r}: column {c!r} has a non-numeric entry ({err})") from None
     return LossSpectrum(cols["a"], cols["temperature"], cols["value"], cols["error"], kind=kind,
                         label=label or os.path.splitext(os.path.basename(path))[0], species=species,
-                        channel=channel, trap_depth=cols.get("trap_depth", trap_depth))
+                        channel=channel, trap_depth=cols.get("trap_depth", trap_depth),
+                        temperature_x=cols.get("temperature_x"))

@@ -16,6 +16,7 @@ import numpy as np
 from ..data.spectra import LossSpectrum
 from ..dimer_kinetics import DEFAULT_DEPTH_OVER_T
 from ..errors import LossfitValueError
+from ..mixture import HeteronuclearSystem
 from ..rates import natural_unit
 from ..thermal import ATOM_DIMER, THREE_BODY
 from ..units import NK
@@ -72,10 +73,13 @@ class RateBlock(PreparedPlanCache):
     trap_depth : ndarray, optional
         Atom trap depth U/k_B in nK per point for the observed channel; NaN or None:
         10 k_B T (:data:`lossfit.dimer_kinetics.DEFAULT_DEPTH_OVER_T`).
+    temperature_x : ndarray, optional
+        Two identical bosons and a third atom: the third atom's temperature in nK per
+        point; NaN or None: that of the bosons.
     """
 
     def __init__(self, kind, a, temperature, species, model, eta_min=ETA_MIN, rtol=None, channel=None,
-                 trap_depth=None):
+                 trap_depth=None, temperature_x=None):
         self.kind = kind
         self.process = THREE_BODY if kind == "l3" else ATOM_DIMER
         self.a = np.asarray(a, dtype=float)
@@ -90,6 +94,12 @@ class RateBlock(PreparedPlanCache):
         depth = np.full(self.a.shape, np.nan) if trap_depth is None else np.asarray(trap_depth, dtype=float)
         self.depth_over_t = np.where(np.isnan(depth), DEFAULT_DEPTH_OVER_T, depth / temperature)
         self.density_power = 2.0 if kind == "l3" else 1.0
+        self.temperature_ratio = None
+        if temperature_x is not None and not np.isnan(temperature_x).all():
+            if rtol is not None:
+                raise LossfitValueError("rtol", "the reference path averages at one temperature; data with "
+                                        "temperature_x need rtol=None")
+            self.temperature_ratio = np.where(np.isnan(temperature_x), 1.0, temperature_x / temperature)
         self.model = model
         self.rtol = rtol
         self.eta_min = eta_min
@@ -107,9 +117,11 @@ class RateBlock(PreparedPlanCache):
         if rtol is not None:
             return None
         if self.process == THREE_BODY:
-            # only a < 0 points reach here with the observed channel
+            # only a < 0 points reach here with the observed channel; a third atom's own
+            # temperature only with a mixture model (checked by SpectrumLikelihood)
+            extra = {} if self.temperature_ratio is None else {"temperature_ratio": self.temperature_ratio}
             return self.model.three_body_plan(a, q, self.unit, channel=channel_at_negative_a(self.channel),
-                                              eta_min=eta_min)
+                                              eta_min=eta_min, **extra)
         return self.model.atom_dimer_plan(a, q, self.unit, channel=self.channel, eta_min=eta_min)
 
     def predict(self, efimov, a=None):
@@ -180,6 +192,9 @@ class SpectrumLikelihood:
             raise LossfitValueError("data", "must be one or more LossSpectrum objects")
         self.species = resolve_species(species)
         self.model = resolve_model(model, self.species)
+        if any(s.temperature_x is not None for s in spectra) and not isinstance(self.species, HeteronuclearSystem):
+            raise LossfitValueError("data", "spectra with temperature_x (a third atom's temperature) need "
+                                    "species=lf.heteronuclear(...)")
         self.rtol = rtol
         self.spectra = spectra
         self.blocks = []
@@ -188,9 +203,12 @@ class SpectrumLikelihood:
         for key in dict.fromkeys(zip((s.kind for s in spectra), channels)):
             members = [i for i, s in enumerate(spectra) if (s.kind, channels[i]) == key]
             sel = [spectra[i] for i in members]
-            depth = np.concatenate([np.full(len(s), np.nan) if s.trap_depth is None else s.trap_depth for s in sel])
+            depth, temperature_x = (np.concatenate([np.full(len(s), np.nan) if getattr(s, name) is None
+                                                    else getattr(s, name) for s in sel])
+                                    for name in ("trap_depth", "temperature_x"))
             block = RateBlock(key[0], np.concatenate([s.a for s in sel]), np.concatenate([s.temperature for s in sel]),
-                              self.species, self.model, eta_min=eta_min, rtol=rtol, channel=key[1], trap_depth=depth)
+                              self.species, self.model, eta_min=eta_min, rtol=rtol, channel=key[1], trap_depth=depth,
+                              temperature_x=temperature_x)
             block.members = members
             block.sizes = [len(s) for s in sel]
             block.value = np.concatenate([s.value for s in sel])

@@ -281,14 +281,19 @@ class MixtureZeroRangeModel(EnergyModel):
         raise LossfitValueError("kind", f"atom-dimer rates of {self.system.label} are not available yet "
                                 "(the B + BX tables are not built)")
 
-    def thermal_three_body(self, a, q, efimov, scale, channel="total"):
-        return self.three_body_plan(a, q, scale, channel=channel).evaluate(efimov)
+    def thermal_three_body(self, a, q, efimov, scale, channel="total", temperature_ratio=None):
+        # one-off averages: a rule built for the eta at hand
+        eta = efimov.eta_minus
+        eta_min = ETA_MIN if eta is None else min(ETA_MIN, float(np.min(eta)))
+        return self.three_body_plan(a, q, scale, channel=channel, eta_min=eta_min,
+                                    temperature_ratio=temperature_ratio).evaluate(efimov)
 
-    def three_body_plan(self, a, q, scale, channel="total", eta_min=ETA_MIN):
-        """The fixed rule at fixed points (:class:`MixturePlan`); ``eta_min`` is accepted for
-        the common interface (the rule does not depend on eta)."""
+    def three_body_plan(self, a, q, scale, channel="total", eta_min=ETA_MIN, temperature_ratio=None):
+        """The fixed rule at fixed points (:class:`MixturePlan`, which explains
+        ``temperature_ratio``)."""
         self._check(a, channel)
-        return MixturePlan(self, np.ravel(a), np.ravel(q), np.ravel(scale), eta_min=eta_min)
+        return MixturePlan(self, np.ravel(a), np.ravel(q), np.ravel(scale), eta_min=eta_min,
+                           temperature_ratio=temperature_ratio)
 
     def atom_dimer_plan(self, a, q, scale, channel="relaxation", eta_min=ETA_MIN):
         return self.atom_dimer_rows(a, None, q)
@@ -307,9 +312,17 @@ class MixturePlan:
         Scattering lengths (a0, < 0) and q = k_T |a| with k_T = sqrt(m_B k_BT)/hbar.
     scale : ndarray
         The natural unit per point (hbar^5/(m_B^3 (k_BT)^2) in the caller's units).
+    eta_min : float
+        The smallest eta the rule resolves.
+    temperature_ratio : ndarray, optional
+        T_X/T_B per point where the third atom's temperature differs: the relative energy
+        then follows :meth:`HeteronuclearSystem.collision_energy_density` instead of
+        E^2 e^{-E/k_BT}/(2 (k_BT)^3), with the absorption probability averaged over the
+        directions of the incoming wave as at one temperature (an approximation,
+        docs/heteronuclear-rates.md).
     """
 
-    def __init__(self, model, a, q, scale, eta_min=ETA_MIN):
+    def __init__(self, model, a, q, scale, eta_min=ETA_MIN, temperature_ratio=None):
         self.model = model
         self.a = np.asarray(a, dtype=float)
         self.n_points = self.a.size
@@ -318,19 +331,31 @@ class MixturePlan:
             raise LossfitValueError("eta_min", f"must be > 0, got {eta_min!r}")
         x_t = np.abs(np.asarray(q, dtype=float)) * model.wavenumber_ratio
         ln_x_t = np.log(x_t)
+        ratio = None if temperature_ratio is None else np.broadcast_to(np.asarray(temperature_ratio, float), x_t.shape)
+        # the energies reach as far as the hotter of the two parts of E (T_B and T_3)
+        _, t_3 = model.system.effective_temperatures(1.0, 1.0 if ratio is None else ratio)
+        u_hi = _U_HI * np.maximum(1.0, t_3)
         y_lo = float(ln_x_t.min()) + 0.5 * math.log(_U_LO)
-        y_hi = float(ln_x_t.max()) + 0.5 * math.log(_U_HI)
+        y_hi = float(np.max(ln_x_t + 0.5 * np.log(u_hi)))
         y, w_y = rule_nodes(model.table, y_lo, y_hi, self.eta_min)
         self.n_nodes = y.size
         t, phase = _table_values(model.table.packed, np.exp(y))
         mod = np.sqrt(np.maximum(1.0 - t, 0.0))
         # per point only the nodes inside its window [x_T sqrt(u_lo), x_T sqrt(u_hi)]
         self._first = np.searchsorted(y, ln_x_t + 0.5 * math.log(_U_LO))
-        self._stop = np.searchsorted(y, ln_x_t + 0.5 * math.log(_U_HI))
+        self._stop = np.searchsorted(y, ln_x_t + 0.5 * np.log(u_hi))
         # (1/2) int e^{-u} u P dt = int e^{-u} u P dy (dt = 2 dy), u = (x/x_T)^2 per point
         # and node: the weights e^{-u} u w_y T per (point, node of its window)
         self._terms = np.ascontiguousarray(np.stack([mod * np.cos(phase), mod * np.sin(phase), mod * mod]))
         self._weights = _point_weights(y, w_y * t, ln_x_t, self._first, self._stop)
+        if ratio is not None:
+            # (1/2) u e^{-u} at one temperature becomes p(u) / u per unit y (dE = 2E dy,
+            # K3 ~ 1/E^2), p the density of u = E/k_BT_B at T_X/T_B = ratio
+            for i in range(self.n_points):
+                j = slice(self._first[i], self._stop[i])
+                u = np.exp(2.0 * (y[j] - ln_x_t[i]))
+                self._weights[i, j] = (2.0 * model.system.collision_energy_density(u, 1.0, ratio[i]) / u
+                                       * w_y[j] * t[j])
         # drop the window's ends whose largest possible share (each node's weight over the
         # smallest denominator (1 - |s11| e^{-2 eta_min})^2 it can have) stays below
         # _TRIM of the smallest possible total (denominators <= (1 + |s11|)^2)
@@ -414,7 +439,8 @@ class MixtureThresholdModel(MixtureZeroRangeModel):
             self._kernel = kernel
         return self._kernel
 
-    def three_body_plan(self, a, q, scale, channel="total", eta_min=ETA_MIN):
+    def three_body_plan(self, a, q, scale, channel="total", eta_min=ETA_MIN, temperature_ratio=None):
+        # the zero-energy law does not depend on the collision energies
         self._check(a, channel)
         return _ThresholdPlan(self, np.ravel(a), np.ravel(q), np.ravel(scale))
 

@@ -56,7 +56,7 @@ def test_hdf5_round_trip_with_units(tmp_path):
             assert np.array_equal(getattr(orig, name), getattr(new, name))
         assert new.label == orig.label
     with h5py.File(path) as h5:
-        assert h5.attrs["schema"] == "lossfit.spectra" and h5.attrs["schema_version"] == 2
+        assert h5.attrs["schema"] == "lossfit.spectra" and h5.attrs["schema_version"] == 3
         assert h5["spectra/000/a"].attrs["units"] == "a0"
         assert h5["spectra/001/value"].attrs["units"] == "cm^3/s"
         assert h5["spectra/000/temperature"].attrs["units"] == "nK"
@@ -155,3 +155,18 @@ def test_csv_units_in_headers_are_converted(tmp_path):
     path.write_text("a (furlong),temperature,value,error\n-50,50,1e-24,1e-25\n")
     with pytest.raises(lf.LossfitValueError, match="furlong"):
         lf.read_csv(path)
+
+
+def test_third_atom_temperature_round_trips_in_hdf5_and_csv(tmp_path):
+    # version 3: the X temperature of a mixture, per point, in nK
+    s = lf.LossSpectrum([-400.0, -900.0], 100.0, [1e-24, 1e-23], [1e-25, 1e-24], temperature_x=[150.0, 160.0])
+    path = tmp_path / "mixture.h5"
+    lf.write_spectra(path, s)
+    back = lf.read_spectra(path)[0]
+    assert back.temperature_x.tolist() == [150.0, 160.0] and back.trap_depth is None
+    assert back.select([True, False]).temperature_x.tolist() == [150.0]
+    csv = tmp_path / "mixture.csv"
+    csv.write_text("a,temperature (uK),temperature_x (uK),value,error\n-400,0.1,0.15,1e-24,1e-25\n")
+    assert lf.read_csv(csv).temperature_x.tolist() == pytest.approx([150.0])
+    with pytest.raises(lf.errors.LossfitValueError, match="temperature_x"):
+        lf.LossSpectrum([400.0], 100.0, [1e-10], [1e-11], kind="beta", temperature_x=120.0)

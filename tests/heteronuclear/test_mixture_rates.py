@@ -10,6 +10,7 @@ from scipy.integrate import quad
 
 import lossfit as lf
 from lossfit.errors import LossfitValueError
+from lossfit.inference.likelihood import SpectrumLikelihood
 from lossfit.mixture import heteronuclear
 from lossfit.rates import natural_unit
 from lossfit.thermal import THREE_BODY
@@ -129,7 +130,7 @@ def test_refusals_name_the_argument(cs_li):
     efimov = lf.Efimov(a_minus=-320.0, eta_minus=0.1)
     with pytest.raises(LossfitValueError, match="a:.*a < 0 only"):
         lf.l3(500.0, 100.0, species=cs_li, efimov=efimov)
-    with pytest.raises(LossfitValueError, match="model:.*zero-range model only"):
+    with pytest.raises(LossfitValueError, match="model:.*'zero-range' and 'threshold'"):
         lf.l3(-500.0, 100.0, species=cs_li, efimov=efimov, model="capped")
     with pytest.raises(LossfitValueError, match="species:.*a_bb = 0 only"):
         lf.l3(-500.0, 100.0, species=heteronuclear("133Cs", "6Li", a_bb=-100.0), efimov=efimov)
@@ -195,3 +196,30 @@ def test_zero_temperature_law_shows_the_thermal_shift_that_the_exact_fit_removes
     # the first resonance (k_T |a| ~ 0.05 at 400 nK) barely moves; the higher ones move inwards
     assert abs(apparent[0] - 1.0) < 0.03
     assert apparent[1] < 0.97 and apparent[2] < apparent[1]
+
+
+def test_unequal_temperatures(cs_li):
+    # X hotter than B: the relative energy has the two-temperature density of
+    # docs/heteronuclear.md section 4. Exact checks: far from any structure (threshold
+    # regime) K3 does not depend on E, so the average equals the one-temperature value;
+    # at |a| -> infinity with eta -> infinity the absorption is 1 - e^{-2 pi s0} at every E and
+    # the average is that times the two-temperature unitarity bound (<1/E^2>, closed form)
+    efimov = lf.Efimov(a_minus=-320.0, eta_minus=0.12)
+    a = -np.array([300.0, 1500.0, 7000.0])
+    same = lf.l3(a, 100.0, species=cs_li, efimov=efimov)
+    np.testing.assert_allclose(lf.l3(a, 100.0, species=cs_li, efimov=efimov, temperature_x=100.0), same, rtol=1e-12)
+    cold = lf.l3(-300.0, 0.05, species=cs_li, efimov=efimov)
+    assert lf.l3(-300.0, 0.05, species=cs_li, efimov=efimov, temperature_x=0.2) == pytest.approx(cold, rel=1e-4)
+    opaque = lf.Efimov(a_minus=-320.0, eta_minus=6.0)
+    core = 1.0 - math.exp(-2.0 * math.pi * cs_li.s0)
+    value = lf.l3(-1e9, 100.0, species=cs_li, efimov=opaque, temperature_x=400.0)
+    assert value == pytest.approx(core * cs_li.unitarity_bound(100.0, 400.0), rel=1e-4)
+    with pytest.raises(LossfitValueError, match="temperature_x"):
+        lf.l3(-500.0, 100.0, species="133Cs", efimov=efimov, temperature_x=200.0)
+    # in fits: spectra carry the X temperature per point
+    l3 = lf.l3(a, 100.0, species=cs_li, efimov=efimov, temperature_x=300.0)
+    spectrum = lf.LossSpectrum(a=a, temperature=100.0, value=l3, error=0.2 * l3, temperature_x=300.0)
+    likelihood = SpectrumLikelihood(spectrum, cs_li, None)
+    assert likelihood(efimov) == pytest.approx(0.0, abs=1e-9)      # the data are the model (log L = 0)
+    with pytest.raises(LossfitValueError, match="data"):
+        SpectrumLikelihood(spectrum, "133Cs", None)
