@@ -4,6 +4,7 @@ averaged (lossfit.universal.mixture_model, docs/heteronuclear-rates.md)."""
 import math
 import warnings
 
+import matplotlib.pyplot as plt
 import numpy as np
 import pytest
 from scipy.integrate import quad
@@ -12,10 +13,12 @@ import lossfit as lf
 from lossfit.errors import LossfitValueError
 from lossfit.inference.likelihood import SpectrumLikelihood
 from lossfit.mixture import heteronuclear
+from lossfit.plotting import efimov_spectrum_plot
 from lossfit.rates import natural_unit
 from lossfit.thermal import THREE_BODY
 from lossfit.units import A0, NK
 from lossfit.universal.mixture_model import resolve_model
+from lossfit.universal.mixture_spectrum import mixture_trimer_branch
 from lossfit.universal.models import scale_wavenumber_a0
 from lossfit.universal.solver.stm_mixture import MixtureSTM
 
@@ -223,3 +226,24 @@ def test_unequal_temperatures(cs_li):
     assert likelihood(efimov) == pytest.approx(0.0, abs=1e-9)      # the data are the model (log L = 0)
     with pytest.raises(LossfitValueError, match="data"):
         SpectrumLikelihood(spectrum, "133Cs", None)
+
+
+@pytest.mark.slow
+def test_efimov_spectrum_of_the_mixture(cs_li):
+    # the trimer branch followed by the bound-state solver meets the three-atom threshold
+    # at the a_- of the independent scattering solve behind the table, and the atom-dimer
+    # threshold at the a* of the atom-dimer scattering solve, kappa* a* = 0.16522 at
+    # Lambda a = 1e6 (docs/stm-mixture.md section 6); E = -hbar^2 kappa*^2/(2 mu) at 1/a = 0
+    branch = mixture_trimer_branch(cs_li)
+    table = resolve_model(None, cs_li).table
+    assert 1.0 / branch.x_minus == pytest.approx(table.kappa_star_a_minus, rel=1e-4)
+    assert 1.0 / branch.x_star == pytest.approx(0.16522, rel=2e-3)
+    assert np.all(np.diff(branch.x) > 0)
+    assert branch.energy[np.argmin(np.abs(branch.x))] == pytest.approx(-1.0, rel=1e-6)
+    fig = efimov_spectrum_plot(lf.Efimov(a_minus=-320.0, eta_minus=0.1), species=cs_li, branches=2)
+    lines = [ln for ln in fig.axes[0].get_lines() if ln.get_label().startswith("trimer branch")]
+    assert len(lines) == 2
+    # branch 1 is branch 0 scaled by lambda: its end at the three-atom threshold lies lambda^(1/2) closer in
+    assert lines[0].get_xdata()[0] / lines[1].get_xdata()[0] == pytest.approx(cs_li.scaling ** 0.5, rel=1e-9)
+    assert "133Cs-133Cs-6Li" in fig.axes[0].get_title()
+    plt.close(fig)

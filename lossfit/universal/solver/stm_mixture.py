@@ -571,6 +571,11 @@ class MixtureSTM:
         float
             H(xi_end) (units kappa*).
         """
+        return float(self.trimer_branch_path(xi_end, level, steps, cutoff)[1][-1])
+
+    def trimer_branch_path(self, xi_end, level=0, steps=12, cutoff=None):
+        """The whole path of :meth:`trimer_branch`: (xi, H) at its ``steps + 1`` points,
+        from xi = pi/2 to ``xi_end`` (units kappa* = 1)."""
         cut = self.cutoff if cutoff is None else cutoff
         h = self.three_body_force(1.0, cutoff=cut)
         lnh = -level * math.pi / self.s0
@@ -581,7 +586,7 @@ class MixtureSTM:
         for i, xi in enumerate(xs[1:]):
             guess = hist[-1] if len(hist) < 2 else 2.0 * hist[-1] - hist[-2]
             hist.append(self._root_h(xi, h, cut, guess, at_threshold=thr and i == steps - 1))
-        return math.exp(hist[-1])
+        return xs, np.exp(np.asarray(hist))
 
     def threshold_angle(self):
         """Polar angle of the lowest two-body threshold at a > 0 in the Efimov plane.
