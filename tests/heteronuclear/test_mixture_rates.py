@@ -247,3 +247,19 @@ def test_efimov_spectrum_of_the_mixture(cs_li):
     assert lines[0].get_xdata()[0] / lines[1].get_xdata()[0] == pytest.approx(cs_li.scaling ** 0.5, rel=1e-9)
     assert "133Cs-133Cs-6Li" in fig.axes[0].get_title()
     plt.close(fig)
+
+
+@pytest.mark.parametrize("boson, other", [("133Cs", "6Li"), ("133Cs", "7Li"), ("87Rb", "40K"), ("87Rb", "41K")])
+def test_unitarity_at_every_tabulated_energy(boson, other):
+    # J = 0 unitarity (docs/heteronuclear.md section 5): the absorption probability
+    # T (1 - e^{-4 eta})/|1 + s11 e^{2 i theta - 2 eta}|^2 <= 1 at every node of the table and
+    # between, for every phase and eta, because the table keeps T = 1 - |s11|^2 <= 1 exactly
+    table = resolve_model(None, heteronuclear(boson, other)).table
+    x = np.geomspace(table.x[0] / 3.0, table.x[-1] * 3.0, 400)
+    s11 = table.s11(x)
+    assert np.all(np.abs(s11) <= 1.0)
+    theta = np.linspace(0.0, 2.0 * np.pi, 181)[:, None]
+    for eta in (0.005, 0.1, 1.0):
+        p = ((1.0 - np.abs(s11) ** 2) * (1.0 - np.exp(-4.0 * eta))
+             / np.abs(1.0 + s11 * np.exp(1j * theta - 2.0 * eta)) ** 2)
+        assert p.max() <= 1.0 + 1e-12
