@@ -560,21 +560,39 @@ def _cuts(cut, n):
 
 
 def _efimov_arrays(family, efimov, eta_min, walkers):
-    """(2 Phi - 2 s0 ln|a|, e^{-2 eta}, 1 - e^{-4 eta}) of one kernel family for every
-    walker: arrays of max(walkers, 1)."""
+    """(cos, sin of 2 Phi - 2 s0 ln|a|, e^{-2 eta}, 1 - e^{-4 eta}) of one kernel family for
+    every walker: arrays of max(walkers, 1), computed in one compiled pass (this runs at
+    every sampler step)."""
     feature, eta_name, kappa = _feature(family)
     a_f = getattr(efimov, feature)
     eta = getattr(efimov, eta_name)
     if a_f is None or eta is None:
         efimov.require(feature, eta_name)
-    shape = (max(walkers, 1),)
-    a_f = np.broadcast_to(np.asarray(a_f, dtype=float), shape)
-    eta = np.broadcast_to(np.asarray(eta, dtype=float), shape)
-    if (eta < eta_min).any():
+    n = max(walkers, 1)
+    a_f = np.asarray(a_f, dtype=float)
+    eta = np.asarray(eta, dtype=float)
+    if a_f.shape != (n,) or eta.shape != (n,):
+        a_f, eta = np.broadcast_to(a_f, (n,)), np.broadcast_to(eta, (n,))
+    out = np.empty((4, n))
+    if _walker_terms(a_f, eta, kappa, eta_min, out):
         raise LossfitValueError(eta_name, f"{eta.min():g} is below eta_min={eta_min:g}, the smallest eta this "
                                 "fast rule resolves; build a plan with a smaller eta_min or use rtol=")
-    off = 2.0 * (S0 * np.log(kappa / a_f / math.sqrt(2.0)) - ARG_GAMMA_S0)
-    return off, np.exp(-2.0 * eta), -np.expm1(-4.0 * eta)
+    return out[0], out[1], out[2], out[3]
+
+
+@numba.njit(cache=True)
+def _walker_terms(a_f, eta, kappa, eta_min, out):
+    # the expressions of phase_offset and _efimov_scalars, per walker; True if an eta is
+    # below eta_min
+    low = False
+    for w in range(a_f.size):
+        off = 2.0 * (S0 * math.log(kappa / a_f[w] / math.sqrt(2.0)) - ARG_GAMMA_S0)
+        out[0, w] = math.cos(off)
+        out[1, w] = math.sin(off)
+        out[2, w] = math.exp(-2.0 * eta[w])
+        out[3, w] = -math.expm1(-4.0 * eta[w])
+        low |= eta[w] < eta_min
+    return low
 
 
 def general_average(family, a, scale_q, efimov, scale, weights=(1.0, 1.0), parts=(0,), cut=None):
@@ -703,8 +721,7 @@ class ShallowPartsPlan:
     def evaluate(self, efimov):
         walkers = efimov.n_walkers
         if walkers:
-            off, e2, g = _efimov_arrays(POSITIVE_A, efimov, self.eta_min, walkers)
-            cos_off, sin_off = np.cos(off), np.sin(off)
+            cos_off, sin_off, e2, g = _efimov_arrays(POSITIVE_A, efimov, self.eta_min, walkers)
         else:
             # one Efimov set of floats: scalars by math (a one-walker batch)
             off, e2, g = _efimov_scalars(POSITIVE_A, efimov, self.eta_min)
@@ -762,9 +779,9 @@ class ThermalPlan:
             return self._evaluate_one(efimov, out)
         values = np.zeros((walkers, self.n_points))
         for grp in self.groups:
-            off, e2, g = _efimov_arrays(grp.family, efimov, self.eta_min, walkers)
-            target = values if grp.index is None else np.zeros((off.size, grp.buffer.size))
-            _plan_evaluate_many(*grp.head, np.cos(off), np.sin(off), e2, g, grp.w_a, grp.w_b, target)
+            cos_off, sin_off, e2, g = _efimov_arrays(grp.family, efimov, self.eta_min, walkers)
+            target = values if grp.index is None else np.zeros((cos_off.size, grp.buffer.size))
+            _plan_evaluate_many(*grp.head, cos_off, sin_off, e2, g, grp.w_a, grp.w_b, target)
             if grp.index is not None:
                 values[:, grp.index] += target
         if out is None:
