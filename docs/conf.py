@@ -80,6 +80,7 @@ GROUPS = {
         ("Fits and results", ["fit", "FitResult", "LogUniform", "Uniform", "LogNormal", "Normal", "fit_curve",
                               "spectrum_from_curves", "load_result"]),
         ("Analyses", ["temperature_study", "compare_models", "published_results"]),
+        ("Two identical bosons and a third atom", ["heteronuclear", "HeteronuclearSystem", "scaling_test"]),
         ("The experiment: traps, decay, resonances",
          ["HarmonicTrap", "simulate_decay", "TabulatedRate", "FeshbachResonance", "OverlappingResonances",
           "ScatteringLengthTable", "average_over_field_noise", "calibrate_from_binding_energies"]),

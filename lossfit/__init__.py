@@ -25,7 +25,7 @@ __all__ = ["__version__", "errors", "S0", "SCALING_FACTOR", "LossfitError", "Los
            "OverlappingResonances", "ScatteringLengthTable", "average_over_field_noise",
            "calibrate_from_binding_energies", "DecayCurve", "write_campaign", "read_campaign",
            "read_curves_csv", "fit_curve", "spectrum_from_curves", "load_result", "trimer_energies", "compare_models",
-           "temperature_study", "published_results", "heteronuclear", "HeteronuclearSystem"]
+           "temperature_study", "published_results", "heteronuclear", "HeteronuclearSystem", "scaling_test"]
 
 # Everything beyond the foundations loads on first use: the rates (numba, ~0.4 s), data
 # files and h5py, decay curves and scipy.optimize, the inference layer with emcee
@@ -50,6 +50,7 @@ _LAZY["load_result"] = "lossfit.batch.runner"
 _LAZY["trimer_energies"] = "lossfit.universal.spectrum"
 _LAZY["compare_models"] = "lossfit.inference.model_comparison"
 _LAZY["temperature_study"] = "lossfit.inference.temperature_study"
+_LAZY["scaling_test"] = "lossfit.inference.scaling_test"
 _LAZY["published_results"] = "lossfit.published"
 
 

@@ -263,3 +263,28 @@ def test_unitarity_at_every_tabulated_energy(boson, other):
         p = ((1.0 - np.abs(s11) ** 2) * (1.0 - np.exp(-4.0 * eta))
              / np.abs(1.0 + s11 * np.exp(1j * theta - 2.0 * eta)) ** 2)
         assert p.max() <= 1.0 + 1e-12
+
+
+@pytest.mark.slow
+def test_scaling_test_accepts_universal_spacing_and_rejects_a_stretched_one(cs_li):
+    # invented spectra (not measured data) through three resonances at 100 nK, 15 % scatter:
+    # generated with the model, the neighbouring positions are lambda apart (z within 2);
+    # generated on an |a| axis stretched so that resonances sit 5.6 apart (a made-up
+    # non-universal system), the first ratio is far from lambda
+    truth = lf.Efimov(a_minus=-320.0, eta_minus=0.12)
+    lam = cs_li.scaling
+    rng = np.random.default_rng(3)
+    a = -np.geomspace(250.0, 12000.0, 40)
+    l3 = lf.l3(a, 100.0, species=cs_li, efimov=truth)
+    data = lf.LossSpectrum(a=a, temperature=100.0, value=l3 * np.exp(rng.normal(0.0, 0.15, a.size)), error=0.15 * l3)
+    result = lf.scaling_test(data, species=cs_li, steps=400)
+    assert len(result.positions) == 3 and result.consistent
+    assert result.positions[0][1] < -320.0 * 0.99 and result.positions[0][2] > -320.0 * 1.01
+    stretched = -320.0 * (np.abs(a) / 320.0) ** (math.log(lam) / math.log(5.6))
+    l3s = lf.l3(stretched, 100.0, species=cs_li, efimov=truth) * (a / stretched) ** 4
+    data = lf.LossSpectrum(a=a, temperature=100.0, value=l3s * np.exp(rng.normal(0.0, 0.15, a.size)), error=0.15 * l3s)
+    result = lf.scaling_test(data, species=cs_li, steps=400)
+    assert not result.consistent and result.z[0] > 5.0
+    assert "NOT consistent" in result.table()
+    with pytest.raises(LossfitValueError, match="species"):
+        lf.scaling_test(data, species="133Cs")
