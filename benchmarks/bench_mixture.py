@@ -10,8 +10,8 @@ zero-range likelihood of 60 a < 0 points (133Cs). Machines are shared: compare r
 Run: python benchmarks/bench_mixture.py
 """
 
-import statistics
-import time
+import os
+import sys
 import warnings
 
 import numpy as np
@@ -25,16 +25,13 @@ from lossfit.units import NK
 from lossfit.universal.mixture_model import resolve_model, shipped_systems
 from lossfit.universal.models import scale_wavenumber_a0
 
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+from bench_targets import _times as bench_times  # noqa: E402
+
 
 def _times(func, repeat=7, number=20):
-    func()
-    out = []
-    for _ in range(repeat):
-        t0 = time.perf_counter()
-        for _ in range(number):
-            func()
-        out.append((time.perf_counter() - t0) / number)
-    return min(out), statistics.median(out)
+    # the timing of bench_targets.py, with more calls per repeat
+    return bench_times(func, repeat, number)
 
 
 def accuracy(system):
