@@ -31,11 +31,15 @@ def _spectra(efimov, seed):
 
 
 def _both_fits(spectra):
+    # 16 walkers x 2000 steps (~25600 draws after burn-in) for PSIS-LOO; measured with sampler
+    # seeds 2, 3, 4: the same 95 % intervals of eta*/eta_- to 0.03 and the same preferences,
+    # d_elpd of the one-eta data 1.17 +- 0.51 (32 walkers: 1.22 +- 0.50)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        free = lf.fit(spectra, species=CS, free=["a_minus", "eta_minus", "a_star", "eta_star"], steps=2000, seed=2,
-                      progress=False)
-        shared = lf.fit(spectra, species=CS, free=["a_minus", "a_star", "eta"], steps=2000, seed=2, progress=False)
+        free = lf.fit(spectra, species=CS, free=["a_minus", "eta_minus", "a_star", "eta_star"], walkers=16,
+                      steps=2000, seed=2, progress=False)
+        shared = lf.fit(spectra, species=CS, free=["a_minus", "a_star", "eta"], walkers=16, steps=2000, seed=2,
+                        progress=False)
     return free, shared
 
 
