@@ -23,10 +23,15 @@ The tables ``data/s11_mixture_<B>_<X>.npz`` of two identical bosons and a third 
 carry their own ``s0``; above their grid 1 - |s11|^2 tends to 1 - exp(-2 pi s0) and arg s11
 turns as -2 s0 ln x from the last node (no exact unitarity phase is known in their phase
 convention), both with the last difference decaying like 1/x.
+
+The tables ``data/s_ad_mixture_<B>_<X>.npz`` (``scripts/make_mixture_atom_dimer_tables.py``,
+docs/heteronuclear-rates.md) hold s_AD(k a) of a boson B colliding with the shallow B-X
+dimer at a > 0, below breakup: :class:`MixtureAtomDimerTable`.
 """
 
-__all__ = ["S11Table", "AtomDimerTable", "RecombinationTable", "load_s11_table", "load_atom_dimer_table",
-           "load_recombination_table", "table_path", "cache_directory", "spline_coefficients"]
+__all__ = ["S11Table", "AtomDimerTable", "RecombinationTable", "MixtureAtomDimerTable", "load_s11_table",
+           "load_atom_dimer_table", "load_recombination_table", "load_mixture_atom_dimer_table", "table_path",
+           "cache_directory", "spline_coefficients"]
 
 import cmath
 import json
@@ -127,12 +132,18 @@ class S11Table:
 
     def s11(self, x):
         """s11 at x = k|a| (array), evaluated as the runtime kernels do."""
+        return self.amplitudes(x)[1]
+
+    def amplitudes(self, x):
+        """(1 - |s11|^2, s11) at x = k|a| (arrays), evaluated as the runtime kernels do."""
         x = np.asarray(x, dtype=float)
-        out = np.empty(x.size, dtype=complex)
-        for i, v in enumerate(x.ravel()):
-            t, ph = s11_eval(self.packed, v)
-            out[i] = math.sqrt(max(1.0 - t, 0.0)) * complex(math.cos(ph), math.sin(ph))
-        return out.reshape(x.shape)
+        t, ph = s11_values(self.packed, np.ascontiguousarray(x.ravel()))
+        mod = np.sqrt(np.maximum(1.0 - t, 0.0))
+        return t.reshape(x.shape), (mod * np.cos(ph) + 1j * mod * np.sin(ph)).reshape(x.shape)
+
+    def grid_ends(self):
+        """(first, last) grid point in x: the kernels' kinks."""
+        return grid_limits(self.packed)
 
 
 #: 1 - |s|^2 of the Efimov channel at |a| = infinity (both signs of a).
@@ -214,6 +225,16 @@ def s11_eval(packed, x):
     logt = _spline(packed, _HEADER, i, dx)
     ph = _spline(packed, _HEADER + 4 * (n - 1), i, dx)
     return math.exp(logt), ph
+
+
+@numba.njit(cache=True)
+def s11_values(packed, x):
+    """:func:`s11_eval` at every x of an array: (1 - |s11|^2, arg s11) arrays."""
+    t = np.empty(x.size)
+    ph = np.empty(x.size)
+    for i in range(x.size):
+        t[i], ph[i] = s11_eval(packed, x[i])
+    return t, ph
 
 
 _CACHE = {}
@@ -588,3 +609,132 @@ def load_recombination_table(path=None, high_energy_path=None):
     if key not in _CACHE:
         _CACHE[key] = RecombinationTable(path, load_atom_dimer_table(), high_energy_path)
     return _CACHE[key]
+
+
+# --- two identical bosons and a third atom, a > 0: B + (BX) relaxation below breakup ------
+# ``data/s_ad_mixture_<B>_<X>.npz`` (``scripts/make_mixture_atom_dimer_tables.py``,
+# :mod:`lossfit.universal.solver.mixture_atom_dimer`) holds s_AD(x), x = k a with
+# E = hbar^2 k^2/(2 mu_AD), on one grid uniform in ln x from 1e-3 to the breakup threshold
+# x_b. Splined (not-a-knot, in ln x): ln T_AD, Re s_AD and Im s_AD (Re/Im rather than the
+# phase and 1 - T_AD: for heavy bosons |s_AD| falls to ~6e-6 at breakup, where the modulus
+# from 1 - T_AD would lose every digit). Below the grid T_AD and arg s_AD run linearly in x
+# from the threshold limits c1 x and delta0 to the first node (an s-wave two-cluster
+# collision: corrections linear in k, measured T_AD/x - c1 proportional to x there), with
+# |s_AD| = sqrt(1 - T_AD). Above breakup nothing is tabulated: the values are held at the
+# breakup node (an approximation that the runtime limits to a stated Boltzmann weight,
+# docs/heteronuclear-rates.md).
+
+_MAD_HEADER = 7          # n, ln x_0, step, c1, delta0, x_last, (unused)
+_MAD_SPLINES = 3         # ln T_AD, Re s_AD, Im s_AD
+
+
+class MixtureAtomDimerTable:
+    """Spline coefficients of s_AD(k a) below breakup for two bosons and a third atom, packed
+    for numba.
+
+    Attributes
+    ----------
+    packed : ndarray
+        1-D float array consumed by :func:`mixture_s_ad_eval`.
+    x : ndarray
+        The grid of x = k a (E = hbar^2 k^2/(2 mu_AD)); it ends at the breakup threshold.
+    breakup_x : float
+        x_b = (m_B + m_X)/sqrt(m_X (2 m_B + m_X)), the breakup threshold.
+    s0, mass_ratio : float
+        Efimov exponent and m_B/m_X of the table's system.
+    kappa_star_a_star : float
+        kappa* a* (kappa* with E_T = -hbar^2 kappa*^2/(2 mu), mu the B-X reduced mass;
+        docs/stm-mixture.md section 1): theta = s0 ln(kappa* a), kappa* = kappa_star_a_star/a*.
+    c1, delta0 : float
+        Threshold limits T_AD/x -> c1 and arg s_AD -> delta0 (on the grid's branch).
+    c_beta : float
+        beta -> C_beta sinh(2 eta)/(sin^2[s0 ln(a/a*)] + sinh^2 eta) hbar a/m_B at threshold.
+    metadata : dict
+    """
+
+    def __init__(self, path):
+        with _open_table(path) as d:
+            x = np.array(d["x"])
+            s_ad = np.array(d["s_ad"])
+            columns = [np.array(d["log_transmission"]), s_ad.real.copy(), s_ad.imag.copy()]
+            phase0 = float(np.array(d["phase"])[0])
+            self.c1 = float(d["threshold_c1"])
+            delta0 = float(d["threshold_phase"])
+            self.kappa_star_a_star = float(d["kappa_star_a_star"])
+            self.c_beta = float(d["c_beta"])
+            self.s0 = float(d["s0"])
+            self.mass_ratio = float(d["mass_ratio"])
+            self.breakup_x = float(d["breakup_x"])
+            self.metadata = json.loads(str(d["metadata"]))
+        lnx = np.log(x)
+        if not np.allclose(np.diff(lnx), lnx[1] - lnx[0], rtol=1e-9, atol=0):
+            raise LossfitError(f"{path!r}: the x grid is not uniform in ln x")
+        if not math.isclose(x[-1], self.breakup_x, rel_tol=1e-12):
+            raise LossfitError(f"{path!r}: the grid does not end at the breakup threshold")
+        self.delta0 = delta0 + 2.0 * math.pi * round((phase0 - delta0) / (2.0 * math.pi))
+        self.x = x
+        head = np.array([x.size, lnx[0], lnx[1] - lnx[0], self.c1, self.delta0, x[-1], 0.0])
+        assert head.size == _MAD_HEADER
+        self.packed = np.concatenate([head] + [spline_coefficients(lnx, c).T.ravel() for c in columns])
+
+    def evaluate(self, x):
+        """(T_AD, s_AD) at x = k a (arrays), evaluated as the runtime kernels do."""
+        x = np.asarray(x, dtype=float)
+        t, re, im = mixture_s_ad_values(self.packed, np.ascontiguousarray(x.ravel()))
+        return t.reshape(x.shape), (re + 1j * im).reshape(x.shape)
+
+    amplitudes = evaluate
+
+    def grid_ends(self):
+        """(first grid point, breakup threshold) in x: the kernels' kinks."""
+        return float(self.x[0]), float(self.x[-1])
+
+
+@numba.njit(cache=True)
+def _mad_column(packed, c, n, i, dx):
+    return _spline(packed, _MAD_HEADER + c * 4 * (n - 1), i, dx)
+
+
+@numba.njit(cache=True)
+def mixture_s_ad_eval(packed, x):
+    """(T_AD, Re s_AD, Im s_AD) at x = k a > 0 from a packed :class:`MixtureAtomDimerTable`
+    (held at the breakup node above breakup)."""
+    n = int(packed[0])
+    lnx0, h = packed[1], packed[2]
+    if x >= packed[5]:
+        # the right end of the last interval: the breakup node
+        i, dx = n - 2, h
+        return math.exp(_mad_column(packed, 0, n, i, dx)), _mad_column(packed, 1, n, i, dx), \
+            _mad_column(packed, 2, n, i, dx)
+    lnx = math.log(x)
+    if lnx <= lnx0:
+        # T_AD and arg s_AD linear in x from their threshold limits to the first node
+        x0 = math.exp(lnx0)
+        r = x / x0
+        t0 = math.exp(_mad_column(packed, 0, n, 0, 0.0))
+        ph0 = math.atan2(_mad_column(packed, 2, n, 0, 0.0), _mad_column(packed, 1, n, 0, 0.0))
+        ph0 += 2.0 * math.pi * round((packed[4] - ph0) / (2.0 * math.pi))
+        t = x * (packed[3] + (t0 / x0 - packed[3]) * r)
+        ph = packed[4] + (ph0 - packed[4]) * r
+        mod = math.sqrt(max(1.0 - t, 0.0))
+        return t, mod * math.cos(ph), mod * math.sin(ph)
+    i = min(int((lnx - lnx0) / h), n - 2)
+    dx = lnx - (lnx0 + i * h)
+    return math.exp(_mad_column(packed, 0, n, i, dx)), _mad_column(packed, 1, n, i, dx), \
+        _mad_column(packed, 2, n, i, dx)
+
+
+@numba.njit(cache=True)
+def mixture_s_ad_values(packed, x):
+    """:func:`mixture_s_ad_eval` at every x of an array: (T_AD, Re s_AD, Im s_AD) arrays."""
+    t, re, im = np.empty(x.size), np.empty(x.size), np.empty(x.size)
+    for j in range(x.size):
+        t[j], re[j], im[j] = mixture_s_ad_eval(packed, x[j])
+    return t, re, im
+
+
+def load_mixture_atom_dimer_table(path):
+    """A mixture's a > 0 atom-dimer table (loaded once per process)."""
+    if path not in _CACHE:
+        _CACHE[path] = MixtureAtomDimerTable(path)
+    return _CACHE[path]

@@ -16,7 +16,7 @@ The shipped tables are written by ``scripts/make_mixture_tables.py``; tables of 
 pairs by ``lossfit tables BOSON OTHER`` into :func:`lossfit.universal.tables.cache_directory`.
 """
 
-__all__ = ["build_table", "channel_fit", "blended_transmission", "X_GRID", "N_THETA"]
+__all__ = ["build_table", "channel_fit", "blended_transmission", "period_kappas", "git_hash", "X_GRID", "N_THETA"]
 
 import json
 import math
@@ -81,14 +81,24 @@ def blended_transmission(t_fit, s11):
     return (1.0 - t_fit) * t_fit + t_fit * (1.0 - np.abs(s11) ** 2)
 
 
-def _kappas(s0, kappa_a_minus, n_theta):
-    return abs(kappa_a_minus) * np.exp(np.arange(n_theta) * math.pi / (n_theta * s0))
+def git_hash():
+    """The commit of the code that builds a table (``git rev-parse HEAD``; empty outside a
+    git checkout)."""
+    return subprocess.run(["git", "rev-parse", "HEAD"], capture_output=True, text=True,
+                          cwd=os.path.dirname(os.path.abspath(__file__))).stdout.strip()
+
+
+def period_kappas(s0, kappa_a, n_theta):
+    """``n_theta`` values of kappa* |a| spread evenly over one Efimov period from |kappa_a|:
+    |kappa_a| exp(j pi/(n_theta s0)), j = 0 .. n_theta - 1 (theta = s0 ln(kappa*|a|) steps by
+    pi/n_theta)."""
+    return abs(kappa_a) * np.exp(np.arange(n_theta) * math.pi / (n_theta * s0))
 
 
 def _one_x(args):
     ratio, kappa_a_minus, x, n_theta, cutoff = args
     solver = stm_mixture.MixtureSTM(ratio, cutoff=cutoff, qmin=QMIN)
-    kappas = _kappas(solver.s0, kappa_a_minus, n_theta)
+    kappas = period_kappas(solver.s0, kappa_a_minus, n_theta)
     p, err = [], []
     for k in kappas:
         out = solver.recombination_energy(k, ETA, x * x)
@@ -130,7 +140,7 @@ def build_table(system, path, *, x_grid=X_GRID, n_theta=N_THETA, cutoff=CUTOFF, 
     ratio = system.mass_ratio
     solver = stm_mixture.MixtureSTM(ratio, cutoff=cutoff, qmin=QMIN)
     kappa_a_minus = solver.kappa_a_minus()
-    kappas = _kappas(solver.s0, kappa_a_minus, n_theta)
+    kappas = period_kappas(solver.s0, kappa_a_minus, n_theta)
     # threshold: K3(0)/bound(eps = 1) = c4 (1 - e^-4eta)/|1 + e^{i delta0} e^{2 i theta - 2 eta}|^2
     prefactor = solver.unitarity_bound(1.0)
     k3 = [solver.recombination(k, ETA, negative_a=True)["deep"] for k in kappas]
@@ -147,8 +157,7 @@ def build_table(system, path, *, x_grid=X_GRID, n_theta=N_THETA, cutoff=CUTOFF, 
     delta0 += 2.0 * math.pi * round((phase[0] - delta0) / (2.0 * math.pi))   # onto the table's branch
     residual = np.array([r[1]["residual"] for r in rows])
     extrapolation = np.array([r[2] for r in rows])
-    git = subprocess.run(["git", "rev-parse", "HEAD"], capture_output=True, text=True,
-                         cwd=os.path.dirname(os.path.abspath(__file__))).stdout.strip()
+    git = git_hash()
     meta = {
         "quantity": f"s11(k|a|) for a < 0, J = 0, a_bb = 0, {system.name} (two identical bosons B and X)",
         "energy_convention": "E = hbar^2 k^2/(2 mu), mu the B-X reduced mass; x = k|a|",

@@ -1,0 +1,261 @@
+"""Build the a > 0 atom-dimer table s_AD(k a) of B + (BX) below breakup (a_bb = 0, J = 0).
+
+Two identical bosons B and a third atom X with a resonant B-X scattering length a > 0: a
+boson B collides with the shallow B-X dimer (binding energy hbar^2/(2 mu a^2), mu the B-X
+reduced mass) at the relative energy
+
+    E = hbar^2 k^2/(2 mu_AD),   mu_AD = m_B (m_B + m_X)/(2 m_B + m_X),   x = k a,
+
+and relaxes into deep dimers. Between the atom-dimer threshold and the breakup threshold
+x_b = 1/cos(phi) = (m_B + m_X)/sqrt(m_X (2 m_B + m_X)) (E = hbar^2/(2 mu a^2)) only the
+atom-dimer channel is open at large distances, so, in zero-range theory, the probability of
+relaxation in the s-wave is
+
+    P(x) = T_AD (1 - e^{-4 eta}) / |1 + s_AD(x) e^{2 i theta - 2 eta}|^2,
+    theta = s0 ln(kappa* a),   T_AD = 1 - |s_AD|^2,
+
+with one complex universal function s_AD(x) per mass ratio (docs/heteronuclear-rates.md,
+"Atom-dimer relaxation at a > 0", derives the form). The rate coefficient, counting dimers
+lost (dn_D/dt = -beta n_B n_D), is beta(E) = pi hbar P/(mu_AD k).
+
+For each x of a grid uniform in ln x from :data:`X_MIN` to x_b, the B-B-X solver
+(:meth:`.stm_mixture.MixtureSTM.atom_dimer_amplitude`, exact below breakup: real energy,
+one pole subtracted) gives P at ``n_theta`` values of kappa* a over one Efimov period at
+eta = :data:`ETA`; :func:`.mixture_tables.channel_fit` fits the form. The threshold limit
+(T_AD -> c1 x, arg s_AD -> delta0) comes from the same fit of the zero-energy relaxation
+rates (:meth:`.stm_mixture.MixtureSTM.relaxation_beta`), and kappa* a* from
+:meth:`.stm_mixture.MixtureSTM.kappa_a_star` (the pole of a_AD). The builder also measures
+the table's errors: the fit residual, the unitarity identity (all inelastic flux is deep
+below breakup), a cutoff and a quadrature change at every ``check_every``-th node, and the
+cubic-spline interpolation against direct solves at every interval midpoint.
+
+Nothing above breakup is computed (docs/heteronuclear-rates.md says what the runtime does
+there). The shipped tables are written by ``scripts/make_mixture_atom_dimer_tables.py``;
+the file layout is what :class:`lossfit.universal.tables.MixtureAtomDimerTable` reads.
+"""
+
+__all__ = ["build_table", "breakup_wavenumber", "atom_dimer_grid", "solver_for", "X_MIN", "PER_DECADE",
+           "N_THETA", "ETA", "CUTOFF", "GRID_PER_DECADE"]
+
+import json
+import math
+import os
+from concurrent.futures import ProcessPoolExecutor
+
+import numpy as np
+from scipy.interpolate import CubicSpline
+from tqdm.auto import tqdm
+
+from ..._io import atomic_path
+from . import stm_mixture
+from .mixture_tables import blended_transmission, channel_fit, git_hash, period_kappas
+
+#: First grid point in x = k a (the runtime runs linearly to the threshold limits below it).
+X_MIN = 1e-3
+#: Grid points per decade of x.
+PER_DECADE = 32
+#: kappa* values per x, spread evenly over one Efimov period.
+N_THETA = 6
+#: eta of the solves (the form carries every other eta).
+ETA = 0.1
+#: Lambda a of the solver.
+CUTOFF = 1e6
+#: Momentum-grid nodes per decade of the solver: 24 leaves a 1.2e-7 misfit of the
+#: Efimov-channel form for Cs-Cs-6Li (s0 = 1.98 oscillates twice as fast in ln q as the
+#: equal-mass amplitudes), 48 brings it to 4e-13 (measured, docs/heteronuclear-rates.md).
+GRID_PER_DECADE = 48
+QMIN = 1e-4
+
+
+def breakup_wavenumber(mass_ratio):
+    """x_b = k a at the breakup threshold: 1/cos(phi) = 1/sqrt(1 - gamma^2), gamma = m_B/(m_B + m_X).
+
+    Parameters
+    ----------
+    mass_ratio : float
+        m_B/m_X.
+
+    Returns
+    -------
+    float
+        (m_B + m_X)/sqrt(m_X (2 m_B + m_X)); 2/sqrt(3) at equal masses.
+    """
+    g = stm_mixture.mass_parameter(mass_ratio)
+    return 1.0 / math.sqrt(1.0 - g * g)
+
+
+def atom_dimer_grid(mass_ratio, x_min=X_MIN, per_decade=PER_DECADE):
+    """x = k a uniform in ln x from ``x_min`` to the breakup threshold (both included).
+
+    Returns
+    -------
+    ndarray
+    """
+    x_b = breakup_wavenumber(mass_ratio)
+    n = int(math.ceil(per_decade * math.log10(x_b / x_min))) + 1
+    grid = np.exp(np.linspace(math.log(x_min), math.log(x_b), n))
+    grid[-1] = x_b
+    return grid
+
+
+def solver_for(mass_ratio, cutoff=CUTOFF, per_decade=GRID_PER_DECADE):
+    """The B-B-X solver the table is built with (a_bb = 0; Lambda a = ``cutoff``)."""
+    return stm_mixture.MixtureSTM(mass_ratio, cutoff=cutoff, qmin=QMIN, per_decade=per_decade)
+
+
+def _one_x(args):
+    """Fit of the form at one x: (T_fit, s_AD, fit residual, max |p_total - p_deep|)."""
+    ratio, kappa_a_star, x, n_theta, cutoff, per_decade = args
+    solver = solver_for(ratio, cutoff, per_decade)
+    kappas = period_kappas(solver.s0, kappa_a_star, n_theta)
+    p, unitarity = [], 0.0
+    for k in kappas:
+        out = solver.atom_dimer_amplitude(x, k, ETA)
+        p.append(out["p_deep"])
+        # below breakup the only inelastic channel is relaxation: 1 - |S|^2 = p_deep
+        unitarity = max(unitarity, abs(out["p_total"] - out["p_deep"]))
+    fit = channel_fit(solver.s0 * np.log(kappas), np.asarray(p), ETA)
+    return fit["T"], fit["s11"], fit["residual"], unitarity
+
+
+def _threshold(ratio, kappa_a_star, n_theta, cutoff, per_decade):
+    """(c1, s_AD(0), residual): beta m_B/(hbar a) = pi (1 + gamma) c1 (1 - e^-4eta)/|1 + s e^{2i theta - 2eta}|^2."""
+    solver = solver_for(ratio, cutoff, per_decade)
+    kappas = period_kappas(solver.s0, kappa_a_star, n_theta)
+    beta = np.array([solver.relaxation_beta(k, ETA) for k in kappas])
+    # beta = pi hbar P/(mu_AD k) with T_AD -> c1 k a and m_B/mu_AD = 1 + gamma
+    fit = channel_fit(solver.s0 * np.log(kappas), beta / (math.pi * (1.0 + solver.gamma)), ETA)
+    return fit["T"], fit["s11"], fit["residual"]
+
+
+def _map(pool, tasks, progress, desc):
+    return list(tqdm(pool.map(_one_x, tasks), total=len(tasks), disable=not progress, desc=desc, unit="x"))
+
+
+def build_table(system, path, *, x_min=X_MIN, per_decade=PER_DECADE, n_theta=N_THETA, cutoff=CUTOFF,
+                grid_per_decade=GRID_PER_DECADE, check_every=4, processes=2, progress=True):
+    """Solve, fit, check and write the a > 0 atom-dimer table of ``system`` to ``path`` (.npz).
+
+    Parameters
+    ----------
+    system : HeteronuclearSystem
+        a_bb must be 0.
+    path : str
+        Output file, written atomically.
+    x_min : float
+        First grid point in x = k a (the grid ends at the breakup threshold).
+    per_decade : int
+        Grid points per decade of x (at least 4 points in all).
+    n_theta : int
+        kappa* values per x (at least 3).
+    cutoff : float
+        Lambda a of the solver.
+    grid_per_decade : int
+        Momentum-grid nodes per decade of the solver.
+    check_every : int
+        The cutoff (x 10) and quadrature (x 4/3 nodes per decade) changes are measured at
+        every ``check_every``-th node and the last.
+    processes : int
+        Worker processes.
+    progress : bool
+        Show tqdm progress bars.
+
+    Returns
+    -------
+    dict
+        The table's metadata (grid, errors, residuals).
+    """
+    if system.a_bb != 0.0:
+        raise ValueError("atom-dimer tables are built for a_bb = 0")
+    ratio = system.mass_ratio
+    grid = atom_dimer_grid(ratio, x_min, per_decade)
+    if grid.size < 4 or n_theta < 3:
+        raise ValueError("need at least 4 x values and 3 kappa* values")
+    solver = solver_for(ratio, cutoff, grid_per_decade)
+    gamma, s0 = solver.gamma, solver.s0
+    kappa_a_star = solver.kappa_a_star()
+    c1, s_thr, thr_residual = _threshold(ratio, kappa_a_star, n_theta, cutoff, grid_per_decade)
+    mids = np.sqrt(grid[:-1] * grid[1:])
+    checked = np.unique(np.r_[np.arange(0, grid.size, check_every), grid.size - 1])
+    base = (ratio, kappa_a_star)
+    with ProcessPoolExecutor(max_workers=processes) as pool:
+        rows = _map(pool, [base + (float(x), n_theta, cutoff, grid_per_decade) for x in grid], progress,
+                    f"{system.name} atom-dimer")
+        mid_rows = _map(pool, [base + (float(x), n_theta, cutoff, grid_per_decade) for x in mids], progress,
+                        "midpoints")
+        cut_rows = _map(pool, [base + (float(grid[i]), n_theta, 10.0 * cutoff, grid_per_decade)
+                               for i in checked], progress, "cutoff x 10")
+        quad_rows = _map(pool, [base + (float(grid[i]), n_theta, cutoff, grid_per_decade * 4 // 3)
+                                for i in checked], progress, "finer grid")
+    c1_cut = _threshold(ratio, kappa_a_star, n_theta, 10.0 * cutoff, grid_per_decade)[0]
+    t_fit = np.array([r[0] for r in rows])
+    s_ad = np.array([r[1] for r in rows])
+    residual = np.array([r[2] for r in rows])
+    unitarity = np.array([r[3] for r in rows])
+    transmission = blended_transmission(t_fit, s_ad)
+    phase = np.unwrap(np.angle(s_ad))
+    delta0 = float(np.angle(s_thr))
+    delta0 += 2.0 * math.pi * round((phase[0] - delta0) / (2.0 * math.pi))      # onto the grid's branch
+    # the eta -> 0 threshold relaxation peaks where delta0 + 2 theta = pi (mod 2 pi): a check
+    # of the fitted phase against kappa* a* from the pole of a_AD
+    ln_peak = (math.pi - delta0) / (2.0 * s0)
+    period = math.pi / s0
+    ln_peak += period * round((math.log(kappa_a_star) - ln_peak) / period)
+
+    def errors(other, index):
+        t_o = blended_transmission(np.array([r[0] for r in other]), np.array([r[1] for r in other]))
+        s_o = np.array([r[1] for r in other])
+        return np.abs(t_o / transmission[index] - 1.0), np.abs(s_o - s_ad[index])
+
+    err_cut_t, err_cut_s = errors(cut_rows, checked)
+    err_quad_t, err_quad_s = errors(quad_rows, checked)
+    # the runtime's interpolant (tables.MixtureAtomDimerTable): not-a-knot cubic splines of
+    # ln T, Re s and Im s in ln x (tables.spline_coefficients gives scipy's CubicSpline
+    # coefficients, tested)
+    t_mid = blended_transmission(np.array([r[0] for r in mid_rows]), np.array([r[1] for r in mid_rows]))
+    s_mid = np.array([r[1] for r in mid_rows])
+    lnx, lnm = np.log(grid), np.log(mids)
+    spline_t = np.exp(CubicSpline(lnx, np.log(transmission))(lnm))
+    spline_s = CubicSpline(lnx, s_ad.real)(lnm) + 1j * CubicSpline(lnx, s_ad.imag)(lnm)
+    mid_t = np.abs(spline_t / t_mid - 1.0)
+    mid_s = np.abs(spline_s - s_mid)
+    meta = {
+        "quantity": f"s_AD(k a) of B + (BX) -> deep dimers below breakup, a > 0, J = 0, a_bb = 0, {system.name}",
+        "energy_convention": "E = hbar^2 k^2/(2 mu_AD) relative atom-dimer energy above the dimer threshold, "
+                             "mu_AD = m_B (m_B + m_X)/(2 m_B + m_X); x = k a; breakup at x_b = 1/sqrt(1 - gamma^2), "
+                             "gamma = m_B/(m_B + m_X) (E = hbar^2/(2 mu a^2), mu the B-X reduced mass)",
+        "beta_formula": "beta (dimers lost, dn_D/dt = -beta n_B n_D) = pi hbar P/(mu_AD k), "
+                        "P = T_AD (1 - exp(-4 eta))/|1 + s_AD exp(2 i theta - 2 eta)|^2, theta = s0 ln(kappa* a), "
+                        "kappa* = kappa_star_a_star/a_*, T_AD = 1 - |s_AD|^2 (below breakup)",
+        "threshold": "T_AD -> threshold_c1 x, arg s_AD -> threshold_phase; beta(E -> 0) = pi (1 + gamma) c1 "
+                     "(1 - exp(-4 eta))/|...|^2 hbar a/m_B = C_beta sinh(2 eta)/(sin^2 + sinh^2 eta) hbar a/m_B",
+        "method": "B-B-X STM equations at real energy below breakup (MixtureSTM.atom_dimer_amplitude, "
+                  "docs/stm-mixture.md section 3); Efimov-channel fit over one period of kappa* (channel_fit); "
+                  "T blended from the fitted T and 1 - |s_AD|^2 (blended_transmission)",
+        "cutoff": cutoff, "qmin": QMIN, "grid_per_decade": grid_per_decade, "eta_used": ETA, "n_theta": n_theta,
+        "x_grid": {"kind": "logspace", "start": float(grid[0]), "stop": float(grid[-1]), "num": int(grid.size),
+                   "per_decade": per_decade, "ends_at": "breakup threshold"},
+        "channel_fit_residual_max": float(residual.max()),
+        "threshold_fit_residual": float(thr_residual),
+        "unitarity_identity_max": float(unitarity.max()),
+        "t_fit_vs_one_minus_abs_s2_max": float(np.max(np.abs(t_fit - (1.0 - np.abs(s_ad) ** 2)))),
+        "cutoff_x10_error": {"t_rel_max": float(err_cut_t.max()), "s_abs_max": float(err_cut_s.max()),
+                             "c1_rel": abs(c1_cut / c1 - 1.0)},
+        "finer_grid_error": {"t_rel_max": float(err_quad_t.max()), "s_abs_max": float(err_quad_s.max())},
+        "spline_midpoint_error": {"t_rel_max": float(mid_t.max()), "s_abs_max": float(mid_s.max())},
+        "kappa_star_a_star_from_threshold_phase": math.exp(ln_peak),
+        "above_breakup": "not tabulated; the runtime refuses temperatures whose Boltzmann weight above breakup "
+                         "exceeds its stated fraction and holds s_AD, T_AD at their breakup values beyond",
+        "git_hash": git_hash(),
+    }
+    os.makedirs(os.path.dirname(os.path.abspath(path)), exist_ok=True)
+    with atomic_path(path) as tmp, open(tmp, "wb") as fh:
+        np.savez(fh, x=grid, log_transmission=np.log(transmission), transmission_fit=t_fit, phase=phase,
+                 s_ad=s_ad, fit_residual=residual, unitarity_identity=unitarity,
+                 threshold_c1=c1, threshold_phase=delta0, threshold_s_ad=s_thr, kappa_star_a_star=kappa_a_star,
+                 c_beta=0.5 * math.pi * (1.0 + gamma) * c1, s0=s0, mass_ratio=ratio,
+                 breakup_x=breakup_wavenumber(ratio), x_checked=grid[checked],
+                 cutoff_error_t=err_cut_t, cutoff_error_s=err_cut_s, grid_error_t=err_quad_t,
+                 grid_error_s=err_quad_s, x_mid=mids, spline_error_t=mid_t, spline_error_s=mid_s,
+                 metadata=json.dumps(meta, sort_keys=True))
+    return meta
