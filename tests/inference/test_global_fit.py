@@ -149,10 +149,12 @@ def test_bad_input_is_named():
 def test_global_fit_recovers_the_truth_and_plots(tmp_path):
     from lossfit.plotting.curves import curves_plot, derived_spectrum_plot
     curves, res, truth = invented_campaign(21, n_fields=8)
+    # 16 walkers x 300 steps (tau ~ 19): measured with sampler seeds 3, 4, 5, every truth lies
+    # within 0.52 of the 95 % half-width from the interval's centre (500 steps: 0.43)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ConvergenceWarning)
         result = fit_curves(curves, species=SP, free=["a_minus", "eta_minus"], resonance=res,
-                            systematics={"density_scale": 0.2, "b0": 0.005}, walkers=16, steps=500,
+                            systematics={"density_scale": 0.2, "b0": 0.005}, walkers=16, steps=300,
                             seed=3, progress=False)
     rows = {r["name"]: r for r in result.summary()}
     assert result.names == ["a_minus", "eta_minus", "density_scale", "b0"]

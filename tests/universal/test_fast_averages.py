@@ -160,9 +160,10 @@ def test_plans_for_small_eta_are_finer_and_refuse_below_their_floor():
 def test_fit_gives_the_same_posterior_on_fast_and_reference_paths():
     # demo scenario, fixed seed and start: the two likelihoods differ by ~1e-7
     # relative, so the chains agree and the medians coincide far within 0.05 sigma
+    # (measured: identical chains, median difference 0, at 100 and at 150 steps)
     from lossfit.simulate import demo_spectra
     spectra, truth = demo_spectra()
-    kw = dict(species="133Cs", free=["a_minus", "eta_minus", "a_star", "eta_star"], walkers=12, steps=150,
+    kw = dict(species="133Cs", free=["a_minus", "eta_minus", "a_star", "eta_star"], walkers=12, steps=100,
               seed=4, progress=False, initial={k: truth[k] for k in ("a_minus", "eta_minus", "a_star", "eta_star")})
     fast = lf.fit(spectra, **kw)
     ref = lf.fit(spectra, rtol=1e-10, **kw)
