@@ -8,11 +8,24 @@ __all__ = ["LossfitError", "LossfitValueError", "Interrupted", "OutputConflict",
            "FitCheckWarning", "ValidityWarning",
            "as_real_array", "check_finite", "check_positive", "check_frequencies", "check_nonzero", "check_times",
            "check_table",
-           "is_real"]
+           "is_real", "user_stacklevel"]
 
 import numbers
+import os
+import sys
 
 import numpy as np
+
+_PACKAGE = os.path.dirname(os.path.abspath(__file__))
+
+
+def user_stacklevel():
+    """The ``stacklevel`` that makes a warning point at the first caller outside lossfit
+    (the user's script or notebook cell), however deep inside lossfit it is raised."""
+    frame, level = sys._getframe(1), 1
+    while frame is not None and os.path.abspath(frame.f_code.co_filename).startswith(_PACKAGE):
+        frame, level = frame.f_back, level + 1
+    return level
 
 
 def is_real(value):

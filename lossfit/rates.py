@@ -19,7 +19,7 @@ import numpy as np
 from .constants import HBAR
 from .dimer_kinetics import DEFAULT_DEPTH_OVER_T, saha_ratio
 from .efimov import Efimov
-from .errors import LossfitValueError, ValidityWarning, check_nonzero, check_positive, is_real
+from .errors import LossfitValueError, ValidityWarning, check_nonzero, check_positive, is_real, user_stacklevel
 from .mixture import HeteronuclearSystem
 from .thermal import ATOM_DIMER, KERNEL_SIGNATURE, THREE_BODY, U_MAX, LazyCompiled, compiled
 from .units import A0, CM3_PER_S, CM6_PER_S, NK
@@ -79,7 +79,7 @@ _evaluate_rows = LazyCompiled(_evaluate_rows_py, numba.types.void(
     numba.types.float64[::1]))
 
 
-def _prepare(a, scale_nk, species, efimov, model, scale_name, process, stacklevel):
+def _prepare(a, scale_nk, species, efimov, model, scale_name, process):
     sp = resolve_species(species)
     if not isinstance(efimov, Efimov):
         raise LossfitValueError("efimov", f"must be a lossfit.Efimov, got {efimov!r}")
@@ -88,9 +88,9 @@ def _prepare(a, scale_nk, species, efimov, model, scale_name, process, stackleve
             and scale_nk > 0 and (process == THREE_BODY or a > 0):
         # one valid point: the same result without a dozen numpy calls on 0-d arrays
         if abs(a) < MIN_ABS_A_OVER_RVDW * sp.r_vdw:
-            _warn_short(sp, stacklevel + 1)
+            _warn_short(sp)
         if scale_nk > MAX_ENERGY_OVER_VDW * sp.vdw_energy_nK:
-            _warn_hot(sp, scale_name, stacklevel + 1)
+            _warn_hot(sp, scale_name)
         # the array path's expression, so that scalars and arrays give identical bits
         k_s = scale_wavenumber_a0(float(scale_nk) * NK, sp.mass)
         return sp, mdl, np.array(float(a)), np.array(float(scale_nk)), np.array(float(a) * k_s)
@@ -105,25 +105,25 @@ def _prepare(a, scale_nk, species, efimov, model, scale_name, process, stackleve
         raise LossfitValueError("a", f"shape {a.shape} does not broadcast against "
                                 f"{scale_name} shape {scale.shape}") from None
     if (np.abs(a_b) < MIN_ABS_A_OVER_RVDW * sp.r_vdw).any():
-        _warn_short(sp, stacklevel + 1)
+        _warn_short(sp)
     if (scale_b > MAX_ENERGY_OVER_VDW * sp.vdw_energy_nK).any():
-        _warn_hot(sp, scale_name, stacklevel + 1)
+        _warn_hot(sp, scale_name)
     q = a_b * scale_wavenumber_a0(scale_b * NK, sp.mass)
     return sp, mdl, a_b, scale_b, q
 
 
-def _warn_hot(sp, scale_name, stacklevel):
+def _warn_hot(sp, scale_name):
     what = "k_B T" if scale_name == "temperature" else "the collision energy"
     warnings.warn(f"{what} above {MAX_ENERGY_OVER_VDW:g} hbar^2/(m r_vdW^2) "
                   f"({MAX_ENERGY_OVER_VDW * sp.vdw_energy_nK:.4g} nK for {sp.name}): the collisions probe the "
                   "van der Waals potential, where zero-range theory does not apply", ValidityWarning,
-                  stacklevel=stacklevel)
+                  stacklevel=user_stacklevel())
 
 
-def _warn_short(sp, stacklevel):
+def _warn_short(sp):
     warnings.warn(f"|a| < {MIN_ABS_A_OVER_RVDW:g} r_vdW ({MIN_ABS_A_OVER_RVDW * sp.r_vdw:.0f} a0 "
                   f"for {sp.name}): zero-range theory is not reliable there", ValidityWarning,
-                  stacklevel=stacklevel)
+                  stacklevel=user_stacklevel())
 
 
 def _x_max(scale_name):
@@ -167,20 +167,20 @@ def unitarity_bound(kind, temperature_nk, species):
     raise LossfitValueError("kind", f"must be 'l3' or 'beta', got {kind!r}")
 
 
-def three_body_rows(a, scale_nk, species, efimov, model, stacklevel=4, scale_name="temperature",
+def three_body_rows(a, scale_nk, species, efimov, model, scale_name="temperature",
                     channel="total"):
     """Parameter rows of the reference path: (model, params, natural unit in cm^6/s, shape)."""
     sp, mdl, a_b, scale_b, q = _prepare(a, scale_nk, species, efimov, model, scale_name,
-                                        THREE_BODY, stacklevel)
+                                        THREE_BODY)
     params = mdl.three_body_rows(a_b, efimov, q, channel=channel, x_max=_x_max(scale_name))
     return mdl, params, natural_unit(THREE_BODY, scale_b, sp.mass), a_b.shape
 
 
-def atom_dimer_rows(a, scale_nk, species, efimov, model, stacklevel=4, scale_name="temperature",
+def atom_dimer_rows(a, scale_nk, species, efimov, model, scale_name="temperature",
                     channel="relaxation"):
     """Parameter rows of the reference path: (model, params, natural unit in cm^3/s, shape)."""
     sp, mdl, a_b, scale_b, q = _prepare(a, scale_nk, species, efimov, model, scale_name,
-                                        ATOM_DIMER, stacklevel)
+                                        ATOM_DIMER)
     params = mdl.atom_dimer_rows(a_b, efimov, q, channel=channel, x_max=_x_max(scale_name))
     return mdl, params, natural_unit(ATOM_DIMER, scale_b, sp.mass), a_b.shape
 
@@ -271,7 +271,7 @@ def _smallest_eta(efimov):
 def _averaged(process, a, temperature, species, efimov, model, rtol, channel, trap_depth=None, temperature_x=None):
     if rtol is not None and not (is_real(rtol) and 0 < rtol < 1):
         raise LossfitValueError("rtol", f"must be None or a number in (0, 1), got {rtol!r}")
-    sp, mdl, a_b, scale_b, q = _prepare(a, temperature, species, efimov, model, "temperature", process, 5)
+    sp, mdl, a_b, scale_b, q = _prepare(a, temperature, species, efimov, model, "temperature", process)
     unit = natural_unit(process, scale_b, sp.mass)
     a_f, q_f = a_b.ravel(), q.ravel()
     if temperature_x is not None:
@@ -307,7 +307,7 @@ def _averaged(process, a, temperature, species, efimov, model, rtol, channel, tr
         bad = err > max(rtol, 1e-7) * np.abs(value) * 10.0
         if bad.any():
             warnings.warn(f"thermal quadrature did not reach rtol={rtol:g} at {bad.sum()} point(s)",
-                          RuntimeWarning, stacklevel=3)
+                          RuntimeWarning, stacklevel=user_stacklevel())
         return _finish(value * unit, a_b.shape)
     return _finish(mdl.thermal(process, a_f, q_f, efimov, unit, channel=channel), a_b.shape)
 
@@ -400,7 +400,7 @@ def dimer_kinetics_rates(a, temperature, *, species, efimov, trap_depth=None, mo
     -------
     DimerKineticsRates
     """
-    sp, mdl, a_b, scale_b, q = _prepare(a, temperature, species, efimov, model, "temperature", ATOM_DIMER, 3)
+    sp, mdl, a_b, scale_b, q = _prepare(a, temperature, species, efimov, model, "temperature", ATOM_DIMER)
     if not mdl.resolves_channels:
         raise LossfitValueError("model", f"{mdl.name!r} does not resolve shallow and deep dimers; use 'zero-range'")
     unit = natural_unit(THREE_BODY, scale_b, sp.mass)

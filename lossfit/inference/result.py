@@ -13,7 +13,7 @@ import numpy as np
 from .._io import atomic_path
 from ..constants import KAPPA_A_MINUS, KAPPA_A_PLUS, UNIVERSAL_A_STAR_OVER_A_MINUS, VDW_A_MINUS_OVER_RVDW
 from ..efimov import Efimov
-from ..errors import ConvergenceWarning, FitCheckWarning, LossfitValueError, ValidityWarning
+from ..errors import ConvergenceWarning, FitCheckWarning, LossfitValueError, ValidityWarning, user_stacklevel
 from ..mixture import HeteronuclearSystem
 from ..rates import validity_flags
 from .diagnostics import MIN_STEPS_PER_TAU, autocorrelation_times, split_rhat
@@ -155,15 +155,16 @@ class FitResult:
             self.warnings.append(f"split-R-hat above 1.05 for {bad_rhat}")
         if not (0.15 <= self.acceptance_fraction <= 0.8):
             self.warnings.append(f"acceptance fraction {self.acceptance_fraction:.2f} outside 0.15-0.8")
+        # each warning points at the user's call (lf.fit, a study, load_result), not here
         for w in self.warnings:
-            warnings.warn(w, ConvergenceWarning, stacklevel=3)
+            warnings.warn(w, ConvergenceWarning, stacklevel=user_stacklevel())
         # validity findings are about the model and the data, not the chain
         for w in validity:
-            warnings.warn(w, ValidityWarning, stacklevel=3)
+            warnings.warn(w, ValidityWarning, stacklevel=user_stacklevel())
         self.warnings = validity + self.warnings
         self.check_warnings = self._run_checks()
         for w in self.check_warnings:
-            warnings.warn(w, FitCheckWarning, stacklevel=3)
+            warnings.warn(w, FitCheckWarning, stacklevel=user_stacklevel())
         self.warnings += self.check_warnings
         self.derived = self._derived_samples()
 

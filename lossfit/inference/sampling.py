@@ -19,7 +19,14 @@ from dataclasses import dataclass
 
 import emcee
 import numpy as np
-from tqdm.auto import tqdm
+
+try:
+    # notebook progress widgets where ipywidgets is installed; tqdm.auto would otherwise
+    # warn at import in every notebook without it
+    import ipywidgets  # noqa: F401
+    from tqdm.auto import tqdm
+except ImportError:
+    from tqdm.std import tqdm
 
 from ..errors import Interrupted, LossfitValueError
 from .backends import CheckpointBackend
