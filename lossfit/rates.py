@@ -24,7 +24,7 @@ from .mixture import HeteronuclearSystem
 from .thermal import ATOM_DIMER, KERNEL_SIGNATURE, THREE_BODY, U_MAX, LazyCompiled, compiled
 from .units import A0, CM3_PER_S, CM6_PER_S, NK
 from .universal.averages import ETA_MIN
-from .universal.mixture_model import resolve_model, resolve_species
+from .universal.mixture_model import beta_unitarity_prefactor, resolve_model, resolve_species
 from .universal.models import (
     OBSERVED,
     UNITARITY_ATOM_DIMER,
@@ -145,7 +145,10 @@ def unitarity_bound(kind, temperature_nk, species):
     """The J = 0 unitarity bound of the thermally averaged coefficient at |a| = infinity,
     without the Efimov modulation: L3 = 36 sqrt3 pi^2 hbar^5/(m^3 (k_B T)^2) in cm^6/s
     (Rem et al., PRL 110, 163202 (2013)) or beta = (2/sqrt pi) 3 sqrt3 pi hbar/(4 m k_T)
-    in cm^3/s, the limits of the "capped" model (docs/conventions.md).
+    in cm^3/s, the limits of the "capped" model (docs/conventions.md). For two bosons and
+    a third atom: the event rate's bound (docs/heteronuclear.md section 5) and, for beta,
+    the s-wave bound pi hbar/(mu_AD k) averaged over the atom-dimer relative energy,
+    2 sqrt(pi) hbar^2/(mu_AD sqrt(2 mu_AD k_BT)) (docs/heteronuclear-rates.md).
 
     Parameters
     ----------
@@ -157,8 +160,11 @@ def unitarity_bound(kind, temperature_nk, species):
     sp = resolve_species(species)
     t = check_positive("temperature", temperature_nk)
     if isinstance(sp, HeteronuclearSystem):
+        if kind == "beta":
+            return (2.0 / math.sqrt(math.pi) * beta_unitarity_prefactor(sp.mass_ratio)
+                    * natural_unit(ATOM_DIMER, t, sp.mass).reshape(t.shape))
         if kind != "l3":
-            raise LossfitValueError("kind", f"only 'l3' (the event rate K3) has a bound for {sp.label} here")
+            raise LossfitValueError("kind", f"must be 'l3' or 'beta', got {kind!r}")
         return sp.unitarity_bound(t)
     if kind == "l3":
         return 0.5 * UNITARITY_THREE_BODY * natural_unit(THREE_BODY, t, sp.mass).reshape(t.shape)

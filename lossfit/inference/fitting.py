@@ -113,6 +113,10 @@ def prepare(data, *, species, free, model=None, priors=None, fixed=None, tie=Non
     # two bosons and a third atom: Efimov features repeat every `scaling` in |a| within a
     # fit's range, so a_- is sampled over one period (docs/heteronuclear-rates.md)
     period = sp.scaling if isinstance(sp, HeteronuclearSystem) else None
+    if period is not None and tie == "universal":
+        # the tie's relations (a*/a_-, a_+/a_-) are those of three identical bosons
+        raise LossfitValueError("tie", f"'universal' ties a* and a_+ to a_- by the relations of three identical "
+                                f"bosons, not those of {sp.label}: fit a_star and a_minus as separate parameters")
     free = [free] if isinstance(free, str) else list(free)
     if "density_scale" in free and density_sigma is not None:
         if not (isinstance(density_sigma, (int, float)) and math.isfinite(density_sigma) and density_sigma > 0):
@@ -236,6 +240,9 @@ def fit(data, *, species, free, model=None, priors=None, walkers=32, steps=3000,
     try:
         likelihood(space.efimov(space.values(probe)))
     except LossfitValueError as err:
+        if err.argument != "efimov":
+            # a refusal about the data themselves (e.g. temperatures beyond a table): as it is
+            raise
         raise LossfitValueError("fixed", f"the data need a parameter that is neither free nor fixed: {err}") from None
 
     store, done = open_backend(backend, walkers, space.ndim, every=checkpoint_every,

@@ -158,21 +158,29 @@ class ParameterSpace:
         return min(floors) if floors else math.inf
 
 
-def first_period_window(spectra, period):
-    """|a| range (a0) of one Efimov period around the first a < 0 loss resonance in the data.
+# per kind of data: the sign of a where its resonance lies and the power of a in its
+# threshold law (L3 ~ a^4 at a < 0, beta ~ a at a > 0)
+_RESONANCE_SIDE = {"l3": (-1.0, 4), "beta": (1.0, 1)}
 
-    Where features repeat every ``period`` in |a| (two bosons and a third atom), a_- is
-    defined only up to a power of the period; lossfit samples the resonance of the lowest
-    |a| the data show. Among L3 points within one period of the smallest measured |a|, the
-    one with the largest L3/a^4 (the threshold law's a^4 divided out, so that the Efimov
-    modulation stands out) locates it; the window is that |a| times period^(-1/2)..period^(1/2).
+
+def first_period_window(spectra, period, kind="l3"):
+    """|a| range (a0) of one Efimov period around the first loss resonance in the data.
+
+    Where features repeat every ``period`` in |a| (two bosons and a third atom), a_- and a*
+    are defined only up to a power of the period; lossfit samples the resonance of the
+    lowest |a| the data show. Among the points of ``kind`` on the resonance's side ("l3":
+    L3 at a < 0 for a_-; "beta": beta at a > 0 for a*) within one period of the smallest
+    measured |a|, the one with the largest value/|a|^p (the threshold law's power divided
+    out, p = 4 for L3 and 1 for beta, so that the Efimov modulation stands out) locates it;
+    the window is that |a| times period^(-1/2)..period^(1/2).
     """
-    a = np.concatenate([s.a for s in spectra if s.kind == "l3"])
-    value = np.concatenate([s.value for s in spectra if s.kind == "l3"])
-    neg = a < 0
-    a, value = -a[neg], value[neg]
+    sign, power = _RESONANCE_SIDE[kind]
+    a = np.concatenate([s.a for s in spectra if s.kind == kind])
+    value = np.concatenate([s.value for s in spectra if s.kind == kind])
+    side = a * sign > 0
+    a, value = np.abs(a[side]), value[side]
     first = a <= a.min() * period
-    scaled = value[first] / a[first] ** 4
+    scaled = value[first] / a[first] ** power
     peak = a[first][np.argmax(scaled)]
     return peak / math.sqrt(period), peak * math.sqrt(period)
 
@@ -181,8 +189,8 @@ def default_priors(free, spectra, density_sigma=None, period=None):
     """Default priors: log-uniform lengths over the measured range of |a| on the
     relevant side of the resonance, log-uniform eta in [0.005, 2], and a log-normal
     density scale of width ``density_sigma``. With ``period`` (the discrete scaling factor
-    of a system whose fit range spans several Efimov periods) a_- is log-uniform over one
-    period (:func:`first_period_window`)."""
+    of a system whose fit range spans several Efimov periods) a_- and, with beta data, a*
+    are log-uniform over one period (:func:`first_period_window`)."""
     pos = np.concatenate([s.a[s.a > 0] for s in spectra] or [np.array([])])
     neg = np.concatenate([-s.a[s.a < 0] for s in spectra] or [np.array([])])
     out = {}
@@ -201,6 +209,9 @@ def default_priors(free, spectra, density_sigma=None, period=None):
             else:
                 low, high = first_period_window(spectra, period)
                 out[name] = LogUniform(-low, -high)
+        elif name == "a_star" and period is not None and any((s.kind == "beta") & (s.a > 0).any()
+                                                               for s in spectra):
+            out[name] = LogUniform(*first_period_window(spectra, period, kind="beta"))
         elif name in ("a_star", "a_plus"):
             if pos.size == 0:
                 raise LossfitValueError("free", f"{name} is free but no data point has a > 0")

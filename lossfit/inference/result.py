@@ -37,6 +37,9 @@ MIXTURE_REFERENCES = {
     "a_minus/r_vdw": (None, "B-X van der Waals length; lossfit holds no reference value for this system"),
     "a_minus(1)": (None, "the next a < 0 resonance, scaling x a_- (discrete scale invariance)"),
     "a_minus(2)": (None, "the one after, scaling^2 x a_-"),
+    "a_star(1)": (None, "the next atom-dimer resonance, scaling x a* (discrete scale invariance)"),
+    "a_star/a_minus": (None, "zero range: kappa* a*/(kappa* a_-) of the mass ratio's tables, times a power of "
+                             "the scaling factor that depends on which resonances a* and a_- label"),
 }
 
 
@@ -212,6 +215,9 @@ class FitResult:
                 # the resonances the same a_- and eta give within a few periods
                 out["a_minus(1)"] = a_minus * self.species.scaling
                 out["a_minus(2)"] = a_minus * self.species.scaling ** 2
+        if "a_star" in self.names and isinstance(self.species, HeteronuclearSystem):
+            # the next atom-dimer resonance the same a* and eta* give
+            out["a_star(1)"] = vals["a_star"] * self.species.scaling
         if "eta_minus" in self.names:
             # the widths of the features against each other: 1 if one eta serves all
             for name in ("eta_star", "eta_plus"):

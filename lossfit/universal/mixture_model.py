@@ -25,14 +25,29 @@ P the absorption probability above and x_T = k_T |a|, k_T = sqrt(2 mu k_BT)/hbar
 path is a fixed composite Gauss-Legendre rule in ln u whose table values are prepared once
 per point (:class:`MixturePlan`); the reference path is the adaptive engine of
 :mod:`lossfit.thermal` on :attr:`MixtureZeroRangeModel.three_body_kernel`.
+
+Atom-dimer relaxation at a > 0, B + (BX) -> deep dimers (dimers lost, dn_D/dt = -beta n_B n_D),
+has the same Efimov-channel form with the table s_AD(x) of
+:class:`lossfit.universal.tables.MixtureAtomDimerTable`, x = k a, E = hbar^2 k^2/(2 mu_AD),
+mu_AD = m_B (m_B + m_X)/(2 m_B + m_X):
+
+    beta(E) = pi hbar/(mu_AD k) x T_AD (1 - e^{-4 eta*})/|1 + s_AD(x) exp(2 i theta - 2 eta*)|^2,
+
+theta = s0 ln(kappa* a), kappa* = (kappa* a*)/a*, averaged over the atom-dimer relative energy
+(2/sqrt pi) E^{1/2} (k_BT)^{-3/2} e^{-E/k_BT} by the same fixed rule (the weight u e^{-u} per
+unit ln x is common to both rates, only the constant differs). The tables end at the breakup
+threshold E = hbar^2/(2 mu a^2): temperatures that put more than :data:`BREAKUP_WEIGHT_MAX`
+of the Boltzmann weight above it are refused (docs/heteronuclear-rates.md).
 """
 
 __all__ = ["MixtureZeroRangeModel", "MixtureThresholdModel", "MixturePlan", "mixture_table", "table_name",
-           "shipped_systems", "resolve_model", "resolve_species", "rule_nodes"]
+           "atom_dimer_table_name", "mixture_atom_dimer_table", "shipped_systems", "resolve_model",
+           "resolve_species", "rule_nodes", "breakup_weight", "beta_unitarity_prefactor", "BREAKUP_WEIGHT_MAX"]
 
 import functools
 import math
 import os
+from dataclasses import dataclass
 
 import numba
 import numpy as np
@@ -41,10 +56,18 @@ from ..errors import LossfitValueError
 from ..mixture import HeteronuclearSystem, system_from_name
 from ..species import Species
 from ..species import species as _species
-from ..thermal import FEATURES_SIGNATURE, KERNEL_SIGNATURE, U_MAX
+from ..thermal import ATOM_DIMER, FEATURES_SIGNATURE, KERNEL_SIGNATURE, THREE_BODY, U_MAX
 from .averages import ETA_MIN
 from .models import DEFAULT_MODEL, OBSERVED, EnergyModel, get_model
-from .tables import cache_directory, grid_limits, load_s11_table, s11_eval, table_path
+from .tables import (
+    cache_directory,
+    grid_limits,
+    load_mixture_atom_dimer_table,
+    load_s11_table,
+    mixture_s_ad_eval,
+    s11_eval,
+    table_path,
+)
 
 # B-X pairs whose a < 0 table ships with the package (scripts/make_mixture_tables.py)
 _SHIPPED = (("133Cs", "6Li"), ("133Cs", "7Li"), ("87Rb", "40K"), ("87Rb", "41K"))
@@ -61,6 +84,10 @@ _PANEL_MAX = 0.5
 _PANEL_PER_WIDTH = 1.0
 _FINE_STEP = 0.01
 _TRIM = 1e-7
+#: Largest Boltzmann weight of atom-dimer energies above the breakup threshold that
+#: atom-dimer rates accept: the tables end there, and beyond it the rates hold s_AD and T_AD
+#: at their breakup values (docs/heteronuclear-rates.md bounds the error this makes).
+BREAKUP_WEIGHT_MAX = 1e-3
 
 
 def rule_nodes(table, y_lo, y_hi, eta_min):
@@ -68,21 +95,22 @@ def rule_nodes(table, y_lo, y_hi, eta_min):
 
     Parameters
     ----------
-    table : S11Table
+    table : S11Table or MixtureAtomDimerTable
+        Anything with ``amplitudes(x) -> (T, s)`` and ``grid_ends()``.
     y_lo, y_hi : float
         The range of ln x to cover.
     eta_min : float
         The smallest eta the rule must resolve (> 0).
     """
     fine = np.arange(y_lo, y_hi + 2.0 * _FINE_STEP + _PANEL_MAX, _FINE_STEP)
-    t, phase = _table_values(table.packed, np.exp(fine))
-    mod = np.sqrt(np.maximum(1.0 - t, 0.0))
-    turn = mod * np.abs(np.gradient(phase, fine))
+    _, s = table.amplitudes(np.exp(fine))
+    mod = np.abs(s)
+    turn = mod * np.abs(np.gradient(np.unwrap(np.angle(s)), fine))
     width = np.minimum(_PANEL_MAX, _PANEL_PER_WIDTH * (1.0 - mod * math.exp(-2.0 * eta_min))
                        / np.maximum(turn, 1e-300))
     # panel edges also at the ends of the table grid, where the interpolant meets its limits
     # with a jump in slope
-    kinks = [math.log(v) for v in grid_limits(table.packed) if y_lo < math.log(v) < y_hi]
+    kinks = [math.log(v) for v in table.grid_ends() if y_lo < math.log(v) < y_hi]
     edges = [y_lo]
     while edges[-1] < y_hi:
         i = int((edges[-1] - y_lo) / _FINE_STEP)
@@ -109,6 +137,92 @@ def table_name(system):
     return f"s11_mixture_{system.boson.name}_{system.other.name}.npz"
 
 
+def atom_dimer_table_name(system):
+    """File name of the a > 0 atom-dimer table of ``system`` (a :class:`HeteronuclearSystem`)."""
+    return f"s_ad_mixture_{system.boson.name}_{system.other.name}.npz"
+
+
+def _require_a_bb_zero(system):
+    if system.a_bb != 0.0:
+        raise LossfitValueError("species", f"zero-range rates of {system.label} are tabulated for a_bb = 0 only "
+                                f"(got a_bb = {system.a_bb:g} a0); the finite-a_bb solver gives threshold laws "
+                                "(docs/stm-mixture.md section 6)")
+
+
+def _checked_mass_ratio(table, system, path):
+    if not math.isclose(table.mass_ratio, system.mass_ratio, rel_tol=1e-9):
+        raise LossfitValueError("species", f"the cached table {path!r} was built for mass ratio "
+                                f"{table.mass_ratio:.8g}, not {system.mass_ratio:.8g}; rebuild it")
+    return table
+
+
+def mixture_atom_dimer_table(system):
+    """The a > 0 atom-dimer table of ``system``
+    (:class:`lossfit.universal.tables.MixtureAtomDimerTable`): shipped, or built by
+    :func:`lossfit.universal.solver.mixture_atom_dimer.build_table` into
+    :func:`lossfit.universal.tables.cache_directory`.
+
+    Raises
+    ------
+    LossfitValueError
+        For a pair without a table, or with a_bb != 0.
+    """
+    _require_a_bb_zero(system)
+    name = atom_dimer_table_name(system)
+    if (system.boson.name, system.other.name) in _SHIPPED:
+        return load_mixture_atom_dimer_table(table_path(name))
+    cached = os.path.join(cache_directory(), name)
+    if not os.path.exists(cached):
+        pairs = ", ".join(f"{b}-{b}-{x}" for b, x in _SHIPPED)
+        raise LossfitValueError("species", f"no atom-dimer table for {system.label}; tables ship for {pairs}. "
+                                "Build one (a few minutes) with lossfit.universal.solver.mixture_atom_dimer."
+                                f"build_table(system, {cached!r})")
+    return _checked_mass_ratio(load_mixture_atom_dimer_table(cached), system, cached)
+
+
+def beta_unitarity_prefactor(mass_ratio):
+    """The s-wave bound of atom-dimer relaxation in natural units: beta <= c/sqrt(x).
+
+    beta(E) <= pi hbar/(mu_AD k) (sigma <= pi/k^2, velocity hbar k/mu_AD) with
+    E = hbar^2 k^2/(2 mu_AD) = x E_s, in units hbar/(m_B k_s), k_s = sqrt(m_B E_s)/hbar:
+    k = sqrt(2 mu_AD/m_B) k_s sqrt(x), so c = pi (m_B/mu_AD)^{3/2}/sqrt 2 with
+    m_B/mu_AD = (2 m_B + m_X)/(m_B + m_X).
+
+    Parameters
+    ----------
+    mass_ratio : float
+        m_B/m_X.
+
+    Returns
+    -------
+    float
+        c; 3 sqrt(3) pi/4 at equal masses (:data:`lossfit.universal.models.UNITARITY_ATOM_DIMER`).
+    """
+    ratio = (2.0 * mass_ratio + 1.0) / (mass_ratio + 1.0)
+    return math.pi * ratio ** 1.5 / math.sqrt(2.0)
+
+
+def breakup_weight(x_t, x_b):
+    """Boltzmann weight of atom-dimer energies above breakup: Q(3/2, (x_b/x_T)^2).
+
+    Parameters
+    ----------
+    x_t : ndarray
+        k a at E = k_BT (E = hbar^2 k^2/(2 mu_AD)).
+    x_b : float
+        k a at the breakup threshold.
+
+    Returns
+    -------
+    ndarray
+        The fraction of (2/sqrt pi) E^{1/2} (k_BT)^{-3/2} e^{-E/k_BT} above
+        E_b = hbar^2/(2 mu a^2): erfc(sqrt y) + 2 sqrt(y/pi) e^{-y}, y = E_b/k_BT.
+    """
+    y = (x_b / np.asarray(x_t, dtype=float)) ** 2
+    root = np.sqrt(y)
+    return np.vectorize(math.erfc)(root) + 2.0 * root / math.sqrt(math.pi) * np.exp(-y)
+
+
 def mixture_table(system):
     """The a < 0 table of ``system`` (:class:`lossfit.universal.tables.S11Table`): shipped,
     or built by ``lossfit tables`` into :func:`lossfit.universal.tables.cache_directory`.
@@ -118,10 +232,7 @@ def mixture_table(system):
     LossfitValueError
         For a pair without a shipped table, or with a_bb != 0 (tables exist for a_bb = 0).
     """
-    if system.a_bb != 0.0:
-        raise LossfitValueError("species", f"zero-range rates of {system.label} are tabulated for a_bb = 0 only "
-                                f"(got a_bb = {system.a_bb:g} a0); the finite-a_bb solver gives threshold laws "
-                                "(docs/stm-mixture.md section 6)")
+    _require_a_bb_zero(system)
     if (system.boson.name, system.other.name) in _SHIPPED:
         return load_s11_table(table_path(table_name(system)))
     cached = os.path.join(cache_directory(), table_name(system))
@@ -130,11 +241,7 @@ def mixture_table(system):
         raise LossfitValueError("species", f"no zero-range table for {system.label}; tables ship for {pairs}. "
                                 f"Build one (10-30 min) with: lossfit tables {system.boson.name} "
                                 f"{system.other.name}")
-    table = load_s11_table(cached)
-    if not math.isclose(table.mass_ratio, system.mass_ratio, rel_tol=1e-9):
-        raise LossfitValueError("species", f"the cached table {cached!r} was built for mass ratio "
-                                f"{table.mass_ratio:.8g}, not {system.mass_ratio:.8g}; rebuild it")
-    return table
+    return _checked_mass_ratio(load_s11_table(cached), system, cached)
 
 
 def resolve_species(species):
@@ -172,6 +279,29 @@ def resolve_model(model, species):
     return _mixture_model(species, name or "zero-range")
 
 
+@dataclass(frozen=True)
+class _EfimovChannel:
+    """What the fixed rule needs of one rate of the Efimov-channel form
+    prefactor x P(x) (1/x^2 for K3, 1/sqrt x for beta, in the natural energy unit):
+    its table (``amplitudes(x) -> (T, s)``, ``grid_ends()``, ``s0``), kappa* times the
+    feature's length, the ratio x/(q sqrt u) (q = k_T |a| with k_T = sqrt(m_B k_BT)/hbar),
+    the constant c of the average c int u e^{-u} P dy (y = ln x, u = E/k_BT), and the
+    names and sign of the feature's parameters."""
+
+    table: object
+    kappa_feature: float
+    wavenumber_ratio: float
+    average_prefactor: float
+    feature: str
+    eta: str
+    sign: float
+
+    def two_theta(self, a, feature):
+        """2 theta = 2 s0 ln(kappa* |a|) at ``a`` (a0) for the feature's length (a0)."""
+        kappa = self.kappa_feature / np.asarray(feature, dtype=float)
+        return 2.0 * self.table.s0 * np.log(np.abs(kappa * np.asarray(a, dtype=float)))
+
+
 @functools.lru_cache(maxsize=None)
 def _mixture_model(system, name):
     return MixtureThresholdModel(system) if name == "threshold" else MixtureZeroRangeModel(system)
@@ -207,8 +337,19 @@ class MixtureZeroRangeModel(EnergyModel):
         self.k3_prefactor = 8.0 * math.pi ** 2 * ((2.0 * m_b + m_x) / m_x) ** 1.5
         #: x = k|a| from q = k_s|a| (mass m_B) at E = E_s: sqrt(2 mu/m_B)
         self.wavenumber_ratio = math.sqrt(2.0 * system.reduced_mass / m_b)
+        mu_ad = m_b * (m_b + m_x) / (2.0 * m_b + m_x)
+        #: beta = (this/sqrt x) P in natural units hbar/(m_B k_s) (the s-wave bound)
+        self.beta_prefactor = beta_unitarity_prefactor(system.mass_ratio)
+        #: k a of the atom-dimer collision from q = k_s a at E = E_s: sqrt(2 mu_AD/m_B)
+        self.atom_dimer_wavenumber_ratio = math.sqrt(2.0 * mu_ad / m_b)
         self._kernel = None
         self._features = None
+        self._ad_kernel = None
+        self._ad_features = None
+        self._ad_channel = None
+        # (1/2) int u^2 e^-u (pref P/u^2) du = pref int u e^-u P dy
+        self._three_body_channel = _EfimovChannel(self.table, self.table.kappa_star_a_minus, self.wavenumber_ratio,
+                                                  self.k3_prefactor, "a_minus", "eta_minus", -1.0)
 
     def __getstate__(self):
         return {"system": self.system}
@@ -262,8 +403,7 @@ class MixtureZeroRangeModel(EnergyModel):
 
     def two_theta(self, a, a_minus):
         """2 theta = 2 s0 ln(kappa*|a|) at scattering lengths ``a`` (a0) for a_- (a0)."""
-        kappa_a = self.table.kappa_star_a_minus / np.asarray(a_minus, dtype=float)
-        return 2.0 * self.table.s0 * np.log(np.abs(kappa_a * np.asarray(a, dtype=float)))
+        return self._three_body_channel.two_theta(a, a_minus)
 
     def three_body_rows(self, a, efimov, q, channel="total", x_max=U_MAX ** 2):
         """Parameter rows of :attr:`three_body_kernel` (a < 0 only); as the base class."""
@@ -277,9 +417,103 @@ class MixtureZeroRangeModel(EnergyModel):
         rows[:, 3] = -math.expm1(-4.0 * eta)
         return rows
 
+    # -- atom-dimer relaxation at a > 0 -------------------------------------------------
+    @property
+    def atom_dimer_table(self):
+        """The a > 0 table s_AD(k a) (:func:`mixture_atom_dimer_table`), loaded on first use."""
+        return self.atom_dimer_channel.table
+
+    @property
+    def atom_dimer_channel(self):
+        if self._ad_channel is None:
+            table = mixture_atom_dimer_table(self.system)
+            # (2/sqrt pi) int sqrt(u) e^-u (pref P/sqrt u) du = (4 pref/sqrt pi) int u e^-u P dy
+            self._ad_channel = _EfimovChannel(table, table.kappa_star_a_star, self.atom_dimer_wavenumber_ratio,
+                                              4.0 * self.beta_prefactor / math.sqrt(math.pi), "a_star", "eta_star",
+                                              1.0)
+        return self._ad_channel
+
+    @property
+    def atom_dimer_kernel(self):
+        # compiled on first use, with the table baked in (not cached on disk)
+        if self._ad_kernel is None:
+            packed = self.atom_dimer_table.packed
+            pref = self.beta_prefactor
+
+            @numba.njit(KERNEL_SIGNATURE)
+            def kernel(x, p):
+                # p = [k a at E = E_s, 2 theta, exp(-2 eta*), 1 - exp(-4 eta*)]; x = E/E_s
+                t, re, im = mixture_s_ad_eval(packed, p[0] * math.sqrt(x))
+                c, s = math.cos(p[1]), math.sin(p[1])
+                den = 1.0 + 2.0 * p[2] * (re * c - im * s) + p[2] * p[2] * (re * re + im * im)
+                return pref * t * p[3] / (den * math.sqrt(x))
+
+            lo, hi = self.atom_dimer_table.grid_ends()
+
+            @numba.njit(FEATURES_SIGNATURE)
+            def features(p, out):
+                # the first grid point and the breakup threshold, where the interpolant
+                # meets its limits
+                out[0] = (lo / p[0]) ** 2
+                out[1] = (hi / p[0]) ** 2
+                return 2
+
+            self._ad_features = features
+            self._ad_kernel = kernel
+        return self._ad_kernel
+
+    @property
+    def atom_dimer_features(self):
+        self.atom_dimer_kernel
+        return self._ad_features
+
+    def _check_atom_dimer(self, a, q, channel, thermal):
+        """Refuse what the atom-dimer tables do not give: a <= 0, channels other than
+        relaxation, energies above breakup (fixed energy) or temperatures that put more than
+        BREAKUP_WEIGHT_MAX of the Boltzmann weight there."""
+        if channel != "relaxation":
+            raise LossfitValueError("channel", f"atom-dimer rates of {self.system.label} give relaxation into deep "
+                                    f"dimers only (below breakup; no breakup channel), got {channel!r}")
+        if (np.asarray(a) <= 0).any():
+            raise LossfitValueError("a", "atom-dimer relaxation needs a shallow B-X dimer: a must be > 0 a0")
+        x_e = np.abs(np.ravel(q)) * self.atom_dimer_wavenumber_ratio
+        x_b = self.atom_dimer_table.breakup_x
+        if not thermal:
+            if (x_e > x_b).any():
+                raise LossfitValueError("energy", f"atom-dimer rates of {self.system.label} are tabulated below the "
+                                        f"breakup threshold E = hbar^2/(2 mu a^2) only (k a < {x_b:.6g}); got k a up "
+                                        f"to {x_e.max():.4g}")
+            return
+        weight = breakup_weight(x_e, x_b)
+        if (weight > BREAKUP_WEIGHT_MAX).any():
+            worst = int(np.argmax(weight))
+            raise LossfitValueError("temperature", f"{weight[worst]:.2g} of the atom-dimer collisions (point "
+                                    f"{worst}: k_BT = {1.0 / (x_b / x_e[worst]) ** 2:.3g} of the dimer binding "
+                                    f"energy) lie above the breakup threshold, where the atom-dimer tables of "
+                                    f"{self.system.label} end; lossfit accepts at most {BREAKUP_WEIGHT_MAX:g} "
+                                    "(k_BT below about 1/8 of hbar^2/(2 mu a^2)): lower the temperature or leave "
+                                    "such points out")
+
     def atom_dimer_rows(self, a, efimov, q, channel="relaxation", x_max=U_MAX ** 2):
-        raise LossfitValueError("kind", f"atom-dimer rates of {self.system.label} are not available yet "
-                                "(the B + BX tables are not built)")
+        """Parameter rows of :attr:`atom_dimer_kernel` (a > 0, relaxation); as the base class.
+        ``x_max`` = 1 (fixed energy) refuses energies above breakup, larger values (thermal
+        averages) temperatures with more than :data:`BREAKUP_WEIGHT_MAX` above it."""
+        self._check_atom_dimer(a, q, channel, thermal=x_max > 1.0)
+        channel_ad = self.atom_dimer_channel
+        a = np.asarray(a, dtype=float).ravel()
+        a_star, eta = efimov.require("a_star", "eta_star")
+        rows = np.empty((a.size, 4))
+        rows[:, 0] = np.abs(np.ravel(q)) * channel_ad.wavenumber_ratio
+        rows[:, 1] = channel_ad.two_theta(a, a_star)
+        rows[:, 2] = math.exp(-2.0 * eta)
+        rows[:, 3] = -math.expm1(-4.0 * eta)
+        return rows
+
+    def thermal_atom_dimer(self, a, q, efimov, scale, channel="relaxation"):
+        # one-off averages: a rule built for the eta at hand
+        eta = efimov.eta_star
+        eta_min = ETA_MIN if eta is None else min(ETA_MIN, float(np.min(eta)))
+        return self.atom_dimer_plan(a, q, scale, channel=channel, eta_min=eta_min).evaluate(efimov)
 
     def thermal_three_body(self, a, q, efimov, scale, channel="total", temperature_ratio=None):
         # one-off averages: a rule built for the eta at hand
@@ -296,40 +530,54 @@ class MixtureZeroRangeModel(EnergyModel):
                            temperature_ratio=temperature_ratio)
 
     def atom_dimer_plan(self, a, q, scale, channel="relaxation", eta_min=ETA_MIN):
-        return self.atom_dimer_rows(a, None, q)
+        """The fixed rule of thermal beta at fixed points (a > 0; :class:`MixturePlan`)."""
+        self._check_atom_dimer(a, q, channel, thermal=True)
+        return MixturePlan(self, np.ravel(a), np.ravel(q), np.ravel(scale), eta_min=eta_min, process=ATOM_DIMER)
 
 
 class MixturePlan:
-    """Thermal K3 of a B-B-X system at fixed points (a, T), prepared for repeated evaluation.
+    """Thermal K3 (a < 0) or beta (a > 0) of a B-B-X system at fixed points (a, T), prepared
+    for repeated evaluation.
 
-    The table values at every node of :data:`RULE_NODES` are computed once; an evaluation
-    is one pass over them per point (and walker).
+    The table values at every node of the rule (:func:`rule_nodes`) are computed once; an
+    evaluation is one pass over them per point (and walker). Both rates are
+    prefactor x P(x) with P of the Efimov-channel form, and both thermal averages are
+    c int u e^{-u} P dy in y = ln x (u = E/k_BT): K3 over E^2 e^{-u}/(2 (k_BT)^3) with
+    K3 ~ P/u^2, beta over (2/sqrt pi) u^{1/2} e^{-u}/k_BT with beta ~ P/u^{1/2}; only c, the
+    table and the feature (a_-, eta_- or a*, eta*) differ.
 
     Parameters
     ----------
     model : MixtureZeroRangeModel
     a, q : ndarray
-        Scattering lengths (a0, < 0) and q = k_T |a| with k_T = sqrt(m_B k_BT)/hbar.
+        Scattering lengths (a0; < 0 for K3, > 0 for beta) and q = k_T |a| with
+        k_T = sqrt(m_B k_BT)/hbar.
     scale : ndarray
-        The natural unit per point (hbar^5/(m_B^3 (k_BT)^2) in the caller's units).
+        The natural unit per point (hbar^5/(m_B^3 (k_BT)^2) for K3, hbar/(m_B k_T) for beta,
+        in the caller's units).
     eta_min : float
         The smallest eta the rule resolves.
     temperature_ratio : ndarray, optional
-        T_X/T_B per point where the third atom's temperature differs: the relative energy
-        then follows :meth:`HeteronuclearSystem.collision_energy_density` instead of
+        K3 only: T_X/T_B per point where the third atom's temperature differs: the relative
+        energy then follows :meth:`HeteronuclearSystem.collision_energy_density` instead of
         E^2 e^{-E/k_BT}/(2 (k_BT)^3), with the absorption probability averaged over the
         directions of the incoming wave as at one temperature (an approximation,
         docs/heteronuclear-rates.md).
+    process : int
+        :data:`lossfit.thermal.THREE_BODY` (K3, default) or :data:`lossfit.thermal.ATOM_DIMER`.
     """
 
-    def __init__(self, model, a, q, scale, eta_min=ETA_MIN, temperature_ratio=None):
+    def __init__(self, model, a, q, scale, eta_min=ETA_MIN, temperature_ratio=None, process=THREE_BODY):
         self.model = model
         self.a = np.asarray(a, dtype=float)
         self.n_points = self.a.size
         self.eta_min = float(eta_min)
         if not self.eta_min > 0:
             raise LossfitValueError("eta_min", f"must be > 0, got {eta_min!r}")
-        x_t = np.abs(np.asarray(q, dtype=float)) * model.wavenumber_ratio
+        if process == ATOM_DIMER and temperature_ratio is not None:
+            raise LossfitValueError("temperature_x", "applies to three-body rates only")
+        self.channel = channel = model.atom_dimer_channel if process == ATOM_DIMER else model._three_body_channel
+        x_t = np.abs(np.asarray(q, dtype=float)) * channel.wavenumber_ratio
         ln_x_t = np.log(x_t)
         ratio = None if temperature_ratio is None else np.broadcast_to(np.asarray(temperature_ratio, float), x_t.shape)
         # the energies reach as far as the hotter of the two parts of E (T_B and T_3)
@@ -337,16 +585,16 @@ class MixturePlan:
         u_hi = _U_HI * np.maximum(1.0, t_3)
         y_lo = float(ln_x_t.min()) + 0.5 * math.log(_U_LO)
         y_hi = float(np.max(ln_x_t + 0.5 * np.log(u_hi)))
-        y, w_y = rule_nodes(model.table, y_lo, y_hi, self.eta_min)
+        y, w_y = rule_nodes(channel.table, y_lo, y_hi, self.eta_min)
         self.n_nodes = y.size
-        t, phase = _table_values(model.table.packed, np.exp(y))
-        mod = np.sqrt(np.maximum(1.0 - t, 0.0))
+        t, s = channel.table.amplitudes(np.exp(y))
+        mod = np.abs(s)
         # per point only the nodes inside its window [x_T sqrt(u_lo), x_T sqrt(u_hi)]
         self._first = np.searchsorted(y, ln_x_t + 0.5 * math.log(_U_LO))
         self._stop = np.searchsorted(y, ln_x_t + 0.5 * np.log(u_hi))
         # (1/2) int e^{-u} u P dt = int e^{-u} u P dy (dt = 2 dy), u = (x/x_T)^2 per point
         # and node: the weights e^{-u} u w_y T per (point, node of its window)
-        self._terms = np.ascontiguousarray(np.stack([mod * np.cos(phase), mod * np.sin(phase), mod * mod]))
+        self._terms = np.ascontiguousarray(np.stack([s.real, s.imag, mod * mod]))
         self._weights = _point_weights(y, w_y * t, ln_x_t, self._first, self._stop)
         if ratio is not None:
             # (1/2) u e^{-u} at one temperature becomes p(u) / u per unit y (dE = 2E dy,
@@ -360,42 +608,46 @@ class MixturePlan:
         # smallest denominator (1 - |s11| e^{-2 eta_min})^2 it can have) stays below
         # _TRIM of the smallest possible total (denominators <= (1 + |s11|)^2)
         _trim(self._weights, mod, math.exp(-2.0 * self.eta_min), _TRIM, self._first, self._stop)
-        theta0 = model.two_theta(self.a, -1.0)          # 2 theta at a_- = -1 a0
+        theta0 = channel.two_theta(self.a, channel.sign)       # 2 theta at a_- = -1 a0 or a* = 1 a0
         self._theta0 = np.ascontiguousarray(np.stack([np.cos(theta0), np.sin(theta0)]))
-        self._scale = np.asarray(scale, dtype=float) * model.k3_prefactor * np.ones(self.n_points)
+        self._scale = np.asarray(scale, dtype=float) * channel.average_prefactor * np.ones(self.n_points)
         self._one = np.empty((3, 1))          # rotation, e^{-2 eta}, 1 - e^{-4 eta} of one walker
 
     def evaluate(self, efimov, out=None):
-        """Thermal K3 at every point in the builder's units, shape (n_points,) or (W, n_points)
-        for an Efimov set of W walker arrays."""
-        a_minus, eta = efimov.a_minus, efimov.eta_minus
-        if a_minus is None or eta is None:
-            efimov.require("a_minus", "eta_minus")
+        """Thermal K3 or beta at every point in the builder's units, shape (n_points,) or
+        (W, n_points) for an Efimov set of W walker arrays."""
+        channel = self.channel
+        feature, eta = getattr(efimov, channel.feature), getattr(efimov, channel.eta)
+        if feature is None or eta is None:
+            efimov.require(channel.feature, channel.eta)
         walkers = efimov.n_walkers
-        s0 = self.model.table.s0
+        s0 = channel.table.s0
+        side = "< 0" if channel.sign < 0 else "> 0"
         if not walkers:
             # one Efimov set of floats: scalars by math, into preallocated buffers
-            if not a_minus < 0:
-                raise LossfitValueError("a_minus", f"must be < 0 a0, got {a_minus!r}")
+            if not feature * channel.sign > 0:
+                raise LossfitValueError(channel.feature, f"must be {side} a0, got {feature!r}")
             if eta < self.eta_min:
-                raise LossfitValueError("eta_minus", f"{eta:g} is below eta_min={self.eta_min:g}, the smallest eta "
+                raise LossfitValueError(channel.eta, f"{eta:g} is below eta_min={self.eta_min:g}, the smallest eta "
                                         "this plan resolves; build it with a smaller eta_min")
-            # theta(a_-) = theta(a_- = -1 a0) - s0 ln|a_-|: a rotation of the prepared phases
-            self._one[0, 0] = -2.0 * s0 * math.log(-a_minus)
+            # theta(a_-) = theta(a_- = -1 a0) - s0 ln|a_-| (likewise a*): a rotation of the
+            # prepared phases
+            self._one[0, 0] = -2.0 * s0 * math.log(abs(feature))
             self._one[1, 0] = math.exp(-2.0 * eta)
             self._one[2, 0] = -math.expm1(-4.0 * eta)
             values = np.empty((1, self.n_points))
             _evaluate(self._terms, self._weights, self._first, self._stop, self._theta0, self._one[0], self._one[1],
                       self._one[2], self._scale, values)
         else:
-            a_minus = np.asarray(a_minus, dtype=float)
+            feature = np.asarray(feature, dtype=float)
             eta = np.asarray(eta, dtype=float)
-            if (a_minus >= 0).any():
-                raise LossfitValueError("a_minus", f"must be < 0 a0, got {a_minus[a_minus >= 0][:3]!r}")
+            if (feature * channel.sign <= 0).any():
+                raise LossfitValueError(channel.feature, f"must be {side} a0, got "
+                                        f"{feature[feature * channel.sign <= 0][:3]!r}")
             if (eta < self.eta_min).any():
-                raise LossfitValueError("eta_minus", f"{eta.min():g} is below eta_min={self.eta_min:g}, the "
+                raise LossfitValueError(channel.eta, f"{eta.min():g} is below eta_min={self.eta_min:g}, the "
                                         "smallest eta this plan resolves; build it with a smaller eta_min")
-            rotation = np.broadcast_to(-2.0 * s0 * np.log(-a_minus), (walkers,))
+            rotation = np.broadcast_to(-2.0 * s0 * np.log(np.abs(feature)), (walkers,))
             values = np.empty((walkers, self.n_points))
             _evaluate(self._terms, self._weights, self._first, self._stop, self._theta0, np.ascontiguousarray(rotation),
                       np.broadcast_to(np.exp(-2.0 * eta), (walkers,)).copy(),
@@ -439,6 +691,10 @@ class MixtureThresholdModel(MixtureZeroRangeModel):
             self._kernel = kernel
         return self._kernel
 
+    def _check_atom_dimer(self, a, q, channel, thermal):
+        raise LossfitValueError("model", f"'threshold' gives the zero-energy three-body law of {self.system.label} "
+                                "at a < 0 only; atom-dimer relaxation needs model='zero-range'")
+
     def three_body_plan(self, a, q, scale, channel="total", eta_min=ETA_MIN, temperature_ratio=None):
         # the zero-energy law does not depend on the collision energies
         self._check(a, channel)
@@ -469,15 +725,6 @@ class _ThresholdPlan:
             return values
         out[...] = values
         return out
-
-
-@numba.njit(cache=True)
-def _table_values(packed, x):
-    t = np.empty(x.size)
-    ph = np.empty(x.size)
-    for i in range(x.size):
-        t[i], ph[i] = s11_eval(packed, x[i])
-    return t, ph
 
 
 @numba.njit(cache=True)
