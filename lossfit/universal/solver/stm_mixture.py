@@ -50,6 +50,51 @@ from scipy.optimize import brentq, minimize_scalar
 
 from .stm import momentum_grid
 
+
+def _contour(cutoff, phi, big_q, per_decade, narc, dense_hi, dmax, order=8, qmin=1e-6):
+    """Nodes and weights in path order: the ray q = y e^{-i phi} (0 <= y <= Q; geometric
+    panels, those below ``dense_hi`` split to width <= ``dmax``), the arc |q| = Q back to the
+    real axis, the real tail [Q, Lambda]."""
+    npan = max(1, int(math.ceil(math.log10(big_q / qmin) * per_decade / order)))
+    geometric = np.geomspace(qmin, big_q, npan + 1)
+    edges = [0.0]
+    for lo, hi in zip(geometric[:-1], geometric[1:]):
+        nsub = max(1, int(math.ceil((hi - lo) / dmax))) if dmax is not None and lo < dense_hi else 1
+        edges.extend(np.linspace(lo, hi, nsub + 1)[1:])
+    edges = np.asarray(edges)
+    x, w = np.polynomial.legendre.leggauss(order)
+    lo, hi = edges[:-1, None], edges[1:, None]
+    y = (0.5 * (hi - lo) * x + 0.5 * (hi + lo)).ravel()
+    wy = (0.5 * (hi - lo) * w).ravel()
+    rot = np.exp(-1j * phi)
+    xa, wa = np.polynomial.legendre.leggauss(narc)
+    angle = (0.5 * phi * (xa + 1.0))[::-1]
+    qa = big_q * np.exp(-1j * angle)
+    wqa = 1j * qa * (0.5 * phi * wa)[::-1]                # dq = i Q e^{-i alpha} d alpha
+    yt, wt = momentum_grid(cutoff, qmin=big_q, per_decade=per_decade, order=order)
+    keep = yt > big_q
+    return (np.concatenate([y * rot, qa, yt[keep] + 0j]), np.concatenate([wy * rot, wqa, wt[keep] + 0j]))
+
+
+def _contour_kernel(p, q, energy, blocks):
+    """:func:`exchange_kernel` for complex p, q on the contour (principal log of the ratio)."""
+    a_c, b_c, c_c = blocks
+    pq = c_c * p[:, None] * q[None, :]
+    base = a_c * p[:, None] ** 2 + b_c * q[None, :] ** 2 - energy
+    return np.log1p(2.0 * pq / (base - pq)) / pq
+
+
+def _onshell_kernel(k, q, energy, blocks):
+    """K(k, q) for real k and q along the contour, each logarithm continued along the path
+    from q -> 0 (where both arguments are A k^2 - eps > 0)."""
+    a_c, b_c, c_c = blocks
+    plus = a_c * k * k + c_c * k * q + b_c * q * q - energy
+    minus = a_c * k * k - c_c * k * q + b_c * q * q - energy
+    log_plus = np.log(np.abs(plus)) + 1j * np.unwrap(np.angle(plus))
+    log_minus = np.log(np.abs(minus)) + 1j * np.unwrap(np.angle(minus))
+    return (log_plus - log_minus) / (c_c * k * q)
+
+
 # block coefficients (A, B, C) of K_cc' as functions of gamma (docs/stm-mixture.md section 1)
 _BLOCKS = {
     (0, 0): lambda g: (1.0, 1.0, 2.0 * g),
@@ -452,6 +497,72 @@ class MixtureSTM:
         s = 1.0 + 2j * kad * f
         p_deep = kad * np.imag(h) * abs(omega) ** 2 / (math.pi ** 4 * g2)
         return {"f": f, "S": s, "p_total": 1.0 - abs(s) ** 2, "p_deep": float(p_deep)}
+
+    def atom_dimer_contour(self, kad, kappa_a, eta=0.0, phi=None, per_decade=48, narc=32, q_factor=20.0,
+                           dmax_factor=0.4):
+        """B + (BX) s-wave scattering below and above breakup on a deformed contour (a_bb = 0).
+
+        Above breakup (eps = -1 + (1 - gamma^2) k^2 > 0) the real-axis kernel has logarithmic
+        singularities where p^2 + q^2 +- 2 gamma p q = eps and the propagator a branch point,
+        all at +i0. The integral therefore runs along the ray q = y e^{-i phi} up to
+        Q = q_factor max(k, 1), the arc |q| = Q back to the real axis and the real axis to
+        Lambda, so that the regulator and h are the real-axis ones (the method of
+        :func:`lossfit.universal.solver.stm.above_breakup` for identical bosons, docs/stm.md
+        section 5). Conditions for this kernel: the ray passes above the singularity
+        gamma k - i of the on-shell kernel K(k, q) (tan phi < 1/(gamma k)), and below
+        acos(gamma), beyond which p^2 + q^2 - 2 gamma p q - eps vanishes for p on the ray and
+        q on the tail (docs/heteronuclear-rates.md).
+
+        Parameters
+        ----------
+        kad : float
+            Atom-dimer wave number k a (> 0).
+        kappa_a, eta : float
+            As in :meth:`atom_dimer_length`.
+        phi : float, optional
+            Ray angle; default 0.6 min(acos gamma, atan(1/(gamma k a))).
+        per_decade, narc, q_factor : int, int, float
+            Nodes per decade on the ray and the tail, arc nodes, Q/max(k a, 1).
+        dmax_factor : float
+            Panels on the ray below 1.5 max(k a, 1) are at most dmax_factor k a tan(phi)
+            wide when k a > 2 (the kernel varies on the scale 1/a next to q ~ k there).
+
+        Returns
+        -------
+        dict
+            S, p_total = 1 - abs(S)^2, p_deep = k Im(h) abs(Omega_Z)^2/(pi^4 (1 - gamma^2))
+            (the local unitarity identity, docs/stm-mixture.md section 3), p_breakup =
+            p_total - p_deep, phi, nodes.
+        """
+        if len(self.channels) != 1 or self.statistics != "boson":
+            raise NotImplementedError("the contour is implemented for a_bb = 0 bosons only")
+        g = self.gamma
+        g2 = 1.0 - g * g
+        energy = -1.0 + g2 * kad * kad
+        limit = min(math.acos(g), math.atan(1.0 / (g * kad)))
+        phi = 0.6 * limit if phi is None else float(phi)
+        if not 0.0 < phi < limit:
+            raise ValueError(f"need 0 < phi < {limit:.6g} (acos gamma and atan(1/(gamma k a)))")
+        h = self.three_body_force(self._kappa(kappa_a, eta))
+        big_q = q_factor * max(kad, 1.0)
+        dmax = dmax_factor * kad * math.tan(phi) if kad > 2.0 else None
+        q, w = _contour(self.cutoff, phi, big_q, per_decade, narc, 1.5 * max(kad, 1.0), dmax,
+                        self.grid["order"])
+        cw = (1.0 / math.pi) * w * q * q / (-1.0 + np.sqrt(g2 * q * q - energy + 0j))
+        blocks = _BLOCKS[(0, 0)](g)
+        # principal logarithm of the ratio between contour nodes (both arguments stay in
+        # the lower half plane there); the on-shell row continued along the path
+        kern = _contour_kernel(q, q, energy, blocks)
+        onshell = _onshell_kernel(kad, q, energy, blocks)
+        z = np.linalg.solve(np.eye(q.size) - (kern + h) * cw[None, :], -2.0 * math.pi ** 2 * (onshell + h))
+        k_kk = exchange_kernel(np.array([kad]), np.array([kad]), energy, *blocks)[0, 0]
+        z_k = -2.0 * math.pi ** 2 * (k_kk + h) + np.sum((onshell + h) * cw * z)
+        s = 1.0 - 2j * kad * z_k / (2.0 * math.pi ** 2 * g2)
+        omega = -2.0 * math.pi ** 2 + np.sum(cw * z)
+        p_deep = float(kad * np.imag(h) * abs(omega) ** 2 / (math.pi ** 4 * g2))
+        p_total = 1.0 - abs(s) ** 2
+        return {"S": complex(s), "p_total": p_total, "p_deep": p_deep, "p_breakup": p_total - p_deep,
+                "phi": phi, "nodes": q.size}
 
     def relaxation_beta(self, kappa_a, eta):
         """Threshold relaxation B + (BX) -> deep, beta m_B/(hbar a) (dimers lost).
