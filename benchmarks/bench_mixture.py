@@ -7,7 +7,7 @@ a grid of points, temperatures and eta, and the time of a 60-point spectrum like
 likelihood on the reference path (adaptive quadrature at rtol 1e-7) and the identical-boson
 zero-range likelihood of 60 a < 0 points (133Cs). The same for atom-dimer relaxation at a > 0
 (beta of B + (BX), MixturePlan with process=ATOM_DIMER): accuracy over points whose
-Boltzmann weight above breakup is within the accepted limit, and a 60-point beta likelihood
+Boltzmann weight beyond the table's end is within the accepted limit, and a 60-point beta likelihood
 against the identical-boson one (133Cs). Machines are shared: compare ratios.
 
 Run: python benchmarks/bench_mixture.py
@@ -25,7 +25,7 @@ from lossfit.mixture import heteronuclear
 from lossfit.rates import natural_unit
 from lossfit.thermal import ATOM_DIMER, THREE_BODY
 from lossfit.units import NK
-from lossfit.universal.mixture_model import BREAKUP_WEIGHT_MAX, breakup_weight, resolve_model, shipped_systems
+from lossfit.universal.mixture_model import WEIGHT_BEYOND_TABLE_MAX, resolve_model, shipped_systems, weight_above
 from lossfit.universal.models import scale_wavenumber_a0
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
@@ -63,8 +63,8 @@ def atom_dimer_accuracy(system):
     worst, nodes = 0.0, []
     for temperature in (1.0, 10.0, 100.0):
         q = a * scale_wavenumber_a0(temperature * NK, system.mass)
-        inside = breakup_weight(q * model.atom_dimer_wavenumber_ratio, model.atom_dimer_table.breakup_x) \
-            <= BREAKUP_WEIGHT_MAX
+        inside = weight_above(q * model.atom_dimer_wavenumber_ratio, model.atom_dimer_table.x_max) \
+            <= WEIGHT_BEYOND_TABLE_MAX
         a_t, q_t = a[inside], q[inside]
         unit = natural_unit(ATOM_DIMER, np.full(a_t.size, temperature), system.mass)
         plan = model.atom_dimer_plan(a_t, q_t, unit)
@@ -123,7 +123,7 @@ def main():
           f"mixture/identical {t_fast[1] / t_identical[1]:.2f}")
 
     print(f"\natom-dimer beta (a > 0): fixed rule vs adaptive reference (rtol 1e-10): 60 points "
-          f"5.5 r_vdW..1e5 a0 less those with more than {BREAKUP_WEIGHT_MAX:g} of the weight above breakup, "
+          f"5.5 r_vdW..1e5 a0 less those with more than {WEIGHT_BEYOND_TABLE_MAX:g} of the weight beyond the table, "
           "1/10/100 nK, a* 300/2000 a0, eta* 0.005/0.05/0.5")
     for boson, other in shipped_systems():
         system = heteronuclear(boson, other)

@@ -35,14 +35,15 @@ mu_AD = m_B (m_B + m_X)/(2 m_B + m_X):
 
 theta = s0 ln(kappa* a), kappa* = (kappa* a*)/a*, averaged over the atom-dimer relative energy
 (2/sqrt pi) E^{1/2} (k_BT)^{-3/2} e^{-E/k_BT} by the same fixed rule (the weight u e^{-u} per
-unit ln x is common to both rates, only the constant differs). The tables end at the breakup
-threshold E = hbar^2/(2 mu a^2): temperatures that put more than :data:`BREAKUP_WEIGHT_MAX`
-of the Boltzmann weight above it are refused (docs/heteronuclear-rates.md).
+unit ln x is common to both rates, only the constant differs). The tables reach sixteen times
+the dimer binding energy hbar^2/(2 mu a^2) (k a = 4 x_b, x_b the breakup threshold);
+temperatures that put more than :data:`WEIGHT_BEYOND_TABLE_MAX` of the Boltzmann weight beyond
+are refused (docs/heteronuclear-rates.md).
 """
 
 __all__ = ["MixtureZeroRangeModel", "MixtureThresholdModel", "MixturePlan", "mixture_table", "table_name",
            "atom_dimer_table_name", "mixture_atom_dimer_table", "shipped_systems", "resolve_model",
-           "resolve_species", "rule_nodes", "breakup_weight", "beta_unitarity_prefactor", "BREAKUP_WEIGHT_MAX"]
+           "resolve_species", "rule_nodes", "weight_above", "beta_unitarity_prefactor", "WEIGHT_BEYOND_TABLE_MAX"]
 
 import functools
 import math
@@ -84,10 +85,10 @@ _PANEL_MAX = 0.5
 _PANEL_PER_WIDTH = 1.0
 _FINE_STEP = 0.01
 _TRIM = 1e-7
-#: Largest Boltzmann weight of atom-dimer energies above the breakup threshold that
-#: atom-dimer rates accept: the tables end there, and beyond it the rates hold s_AD and T_AD
-#: at their breakup values (docs/heteronuclear-rates.md bounds the error this makes).
-BREAKUP_WEIGHT_MAX = 1e-3
+#: Largest Boltzmann weight of atom-dimer energies beyond the end of the atom-dimer table
+#: that atom-dimer rates accept: beyond it the rates hold s_AD and T_AD at their last values
+#: (docs/heteronuclear-rates.md bounds the error this makes).
+WEIGHT_BEYOND_TABLE_MAX = 1e-3
 
 
 def rule_nodes(table, y_lo, y_hi, eta_min):
@@ -96,7 +97,7 @@ def rule_nodes(table, y_lo, y_hi, eta_min):
     Parameters
     ----------
     table : S11Table or MixtureAtomDimerTable
-        Anything with ``amplitudes(x) -> (T, s)`` and ``grid_ends()``.
+        Anything with ``amplitudes(x) -> (T, s)`` and ``kinks()``.
     y_lo, y_hi : float
         The range of ln x to cover.
     eta_min : float
@@ -110,7 +111,7 @@ def rule_nodes(table, y_lo, y_hi, eta_min):
                        / np.maximum(turn, 1e-300))
     # panel edges also at the ends of the table grid, where the interpolant meets its limits
     # with a jump in slope
-    kinks = [math.log(v) for v in table.grid_ends() if y_lo < math.log(v) < y_hi]
+    kinks = [math.log(v) for v in table.kinks() if y_lo < math.log(v) < y_hi]
     edges = [y_lo]
     while edges[-1] < y_hi:
         i = int((edges[-1] - y_lo) / _FINE_STEP)
@@ -202,23 +203,24 @@ def beta_unitarity_prefactor(mass_ratio):
     return math.pi * ratio ** 1.5 / math.sqrt(2.0)
 
 
-def breakup_weight(x_t, x_b):
-    """Boltzmann weight of atom-dimer energies above breakup: Q(3/2, (x_b/x_T)^2).
+def weight_above(x_t, x_edge):
+    """Boltzmann weight of atom-dimer energies above k a = x_edge: Q(3/2, (x_edge/x_T)^2).
 
     Parameters
     ----------
     x_t : ndarray
         k a at E = k_BT (E = hbar^2 k^2/(2 mu_AD)).
-    x_b : float
-        k a at the breakup threshold.
+    x_edge : float
+        k a of the edge (the breakup threshold x_b, or the table's end).
 
     Returns
     -------
     ndarray
         The fraction of (2/sqrt pi) E^{1/2} (k_BT)^{-3/2} e^{-E/k_BT} above
-        E_b = hbar^2/(2 mu a^2): erfc(sqrt y) + 2 sqrt(y/pi) e^{-y}, y = E_b/k_BT.
+        E_edge = (x_edge/x_b)^2 hbar^2/(2 mu a^2): erfc(sqrt y) + 2 sqrt(y/pi) e^{-y},
+        y = E_edge/k_BT.
     """
-    y = (x_b / np.asarray(x_t, dtype=float)) ** 2
+    y = (x_edge / np.asarray(x_t, dtype=float)) ** 2
     root = np.sqrt(y)
     return np.vectorize(math.erfc)(root) + 2.0 * root / math.sqrt(math.pi) * np.exp(-y)
 
@@ -283,7 +285,7 @@ def resolve_model(model, species):
 class _EfimovChannel:
     """What the fixed rule needs of one rate of the Efimov-channel form
     prefactor x P(x) (1/x^2 for K3, 1/sqrt x for beta, in the natural energy unit):
-    its table (``amplitudes(x) -> (T, s)``, ``grid_ends()``, ``s0``), kappa* times the
+    its table (``amplitudes(x) -> (T, s)``, ``kinks()``, ``s0``), kappa* times the
     feature's length, the ratio x/(q sqrt u) (q = k_T |a| with k_T = sqrt(m_B k_BT)/hbar),
     the constant c of the average c int u e^{-u} P dy (y = ln x, u = E/k_BT), and the
     names and sign of the feature's parameters."""
@@ -448,15 +450,16 @@ class MixtureZeroRangeModel(EnergyModel):
                 den = 1.0 + 2.0 * p[2] * (re * c - im * s) + p[2] * p[2] * (re * re + im * im)
                 return pref * t * p[3] / (den * math.sqrt(x))
 
-            lo, hi = self.atom_dimer_table.grid_ends()
+            first, breakup, last = self.atom_dimer_table.kinks()
 
             @numba.njit(FEATURES_SIGNATURE)
             def features(p, out):
-                # the first grid point and the breakup threshold, where the interpolant
-                # meets its limits
-                out[0] = (lo / p[0]) ** 2
-                out[1] = (hi / p[0]) ** 2
-                return 2
+                # the grid's ends, where the interpolant meets its limits, and the breakup
+                # threshold between its two segments
+                out[0] = (first / p[0]) ** 2
+                out[1] = (breakup / p[0]) ** 2
+                out[2] = (last / p[0]) ** 2
+                return 3
 
             self._ad_features = features
             self._ad_kernel = kernel
@@ -469,35 +472,38 @@ class MixtureZeroRangeModel(EnergyModel):
 
     def _check_atom_dimer(self, a, q, channel, thermal):
         """Refuse what the atom-dimer tables do not give: a <= 0, channels other than
-        relaxation, energies above breakup (fixed energy) or temperatures that put more than
-        BREAKUP_WEIGHT_MAX of the Boltzmann weight there."""
+        relaxation, energies beyond the table (fixed energy) or temperatures that put more
+        than WEIGHT_BEYOND_TABLE_MAX of the Boltzmann weight there."""
         if channel != "relaxation":
             raise LossfitValueError("channel", f"atom-dimer rates of {self.system.label} give relaxation into deep "
-                                    f"dimers only (below breakup; no breakup channel), got {channel!r}")
+                                    f"dimers only (no breakup channel), got {channel!r}")
         if (np.asarray(a) <= 0).any():
             raise LossfitValueError("a", "atom-dimer relaxation needs a shallow B-X dimer: a must be > 0 a0")
+        table = self.atom_dimer_table
         x_e = np.abs(np.ravel(q)) * self.atom_dimer_wavenumber_ratio
-        x_b = self.atom_dimer_table.breakup_x
+        # the table's end in units of the dimer binding energy hbar^2/(2 mu a^2)
+        reach = (table.x_max / table.breakup_x) ** 2
         if not thermal:
-            if (x_e > x_b).any():
-                raise LossfitValueError("energy", f"atom-dimer rates of {self.system.label} are tabulated below the "
-                                        f"breakup threshold E = hbar^2/(2 mu a^2) only (k a < {x_b:.6g}); got k a up "
-                                        f"to {x_e.max():.4g}")
+            if (x_e > table.x_max).any():
+                raise LossfitValueError("energy", f"atom-dimer rates of {self.system.label} are tabulated up to "
+                                        f"{reach:.3g} hbar^2/(2 mu a^2) (k a = {table.x_max:.6g}); got k a up to "
+                                        f"{x_e.max():.4g}")
             return
-        weight = breakup_weight(x_e, x_b)
-        if (weight > BREAKUP_WEIGHT_MAX).any():
+        weight = weight_above(x_e, table.x_max)
+        if (weight > WEIGHT_BEYOND_TABLE_MAX).any():
             worst = int(np.argmax(weight))
+            ratio = (x_e[worst] / table.breakup_x) ** 2
             raise LossfitValueError("temperature", f"{weight[worst]:.2g} of the atom-dimer collisions (point "
-                                    f"{worst}: k_BT = {1.0 / (x_b / x_e[worst]) ** 2:.3g} of the dimer binding "
-                                    f"energy) lie above the breakup threshold, where the atom-dimer tables of "
-                                    f"{self.system.label} end; lossfit accepts at most {BREAKUP_WEIGHT_MAX:g} "
-                                    "(k_BT below about 1/8 of hbar^2/(2 mu a^2)): lower the temperature or leave "
-                                    "such points out")
+                                    f"{worst}: k_BT = {ratio:.3g} times the dimer binding energy hbar^2/(2 mu a^2)) "
+                                    f"lie beyond {reach:.3g} times it, where the atom-dimer tables of "
+                                    f"{self.system.label} end; lossfit accepts at most {WEIGHT_BEYOND_TABLE_MAX:g} "
+                                    f"(k_BT below {0.123 * reach:.3g} times the binding energy): lower the "
+                                    "temperature or leave such points out")
 
     def atom_dimer_rows(self, a, efimov, q, channel="relaxation", x_max=U_MAX ** 2):
         """Parameter rows of :attr:`atom_dimer_kernel` (a > 0, relaxation); as the base class.
-        ``x_max`` = 1 (fixed energy) refuses energies above breakup, larger values (thermal
-        averages) temperatures with more than :data:`BREAKUP_WEIGHT_MAX` above it."""
+        ``x_max`` = 1 (fixed energy) refuses energies beyond the table, larger values (thermal
+        averages) temperatures with more than :data:`WEIGHT_BEYOND_TABLE_MAX` beyond it."""
         self._check_atom_dimer(a, q, channel, thermal=x_max > 1.0)
         channel_ad = self.atom_dimer_channel
         a = np.asarray(a, dtype=float).ravel()

@@ -25,8 +25,8 @@ turns as -2 s0 ln x from the last node (no exact unitarity phase is known in the
 convention), both with the last difference decaying like 1/x.
 
 The tables ``data/s_ad_mixture_<B>_<X>.npz`` (``scripts/make_mixture_atom_dimer_tables.py``,
-docs/heteronuclear-rates.md) hold s_AD(k a) of a boson B colliding with the shallow B-X
-dimer at a > 0, below breakup: :class:`MixtureAtomDimerTable`.
+docs/heteronuclear-rates.md) hold s_AD(k a) and T_AD(k a) of a boson B colliding with the
+shallow B-X dimer at a > 0, below and above breakup: :class:`MixtureAtomDimerTable`.
 """
 
 __all__ = ["S11Table", "AtomDimerTable", "RecombinationTable", "MixtureAtomDimerTable", "load_s11_table",
@@ -141,8 +141,8 @@ class S11Table:
         mod = np.sqrt(np.maximum(1.0 - t, 0.0))
         return t.reshape(x.shape), (mod * np.cos(ph) + 1j * mod * np.sin(ph)).reshape(x.shape)
 
-    def grid_ends(self):
-        """(first, last) grid point in x: the kernels' kinks."""
+    def kinks(self):
+        """(first, last) grid point in x: where the kernels have kinks."""
         return grid_limits(self.packed)
 
 
@@ -611,35 +611,39 @@ def load_recombination_table(path=None, high_energy_path=None):
     return _CACHE[key]
 
 
-# --- two identical bosons and a third atom, a > 0: B + (BX) relaxation below breakup ------
+# --- two identical bosons and a third atom, a > 0: B + (BX) relaxation ------------------------
 # ``data/s_ad_mixture_<B>_<X>.npz`` (``scripts/make_mixture_atom_dimer_tables.py``,
-# :mod:`lossfit.universal.solver.mixture_atom_dimer`) holds s_AD(x), x = k a with
-# E = hbar^2 k^2/(2 mu_AD), on one grid uniform in ln x from 1e-3 to the breakup threshold
-# x_b. Splined (not-a-knot, in ln x): ln T_AD, Re s_AD and Im s_AD (Re/Im rather than the
-# phase and 1 - T_AD: for heavy bosons |s_AD| falls to ~6e-6 at breakup, where the modulus
-# from 1 - T_AD would lose every digit). Below the grid T_AD and arg s_AD run linearly in x
-# from the threshold limits c1 x and delta0 to the first node (an s-wave two-cluster
-# collision: corrections linear in k, measured T_AD/x - c1 proportional to x there), with
-# |s_AD| = sqrt(1 - T_AD). Above breakup nothing is tabulated: the values are held at the
-# breakup node (an approximation that the runtime limits to a stated Boltzmann weight,
+# :mod:`lossfit.universal.solver.mixture_atom_dimer`) holds s_AD(x) and T_AD(x), x = k a with
+# E = hbar^2 k^2/(2 mu_AD), on two grids uniform in ln x that meet at the breakup threshold x_b
+# (a kink: each side has its own splines): 1e-3 to x_b and x_b to 4 x_b. Splined
+# (not-a-knot, in ln x): ln T_AD, Re s_AD and Im s_AD (Re/Im rather than the phase and
+# 1 - T_AD: for heavy bosons |s_AD| falls to ~6e-6 at breakup, where the modulus from 1 - T_AD
+# would lose every digit; above breakup T_AD < 1 - |s_AD|^2 anyway). Below the grid T_AD and
+# arg s_AD run linearly in x from the threshold limits c1 x and delta0 to the first node (an
+# s-wave two-cluster collision: corrections linear in k, measured T_AD/x - c1 proportional to x
+# there), with |s_AD| = sqrt(1 - T_AD). Beyond the last node nothing is tabulated: the values
+# are held there (an approximation that the runtime limits to a stated Boltzmann weight,
 # docs/heteronuclear-rates.md).
 
-_MAD_HEADER = 7          # n, ln x_0, step, c1, delta0, x_last, (unused)
+_MAD_HEADER = 10         # n1, ln x_0, step1, c1, delta0, x_b, n2, ln x_b, step2, x_last
 _MAD_SPLINES = 3         # ln T_AD, Re s_AD, Im s_AD
 
 
 class MixtureAtomDimerTable:
-    """Spline coefficients of s_AD(k a) below breakup for two bosons and a third atom, packed
-    for numba.
+    """Spline coefficients of s_AD(k a) and T_AD(k a) of two bosons and a third atom (a > 0),
+    packed for numba.
 
     Attributes
     ----------
     packed : ndarray
         1-D float array consumed by :func:`mixture_s_ad_eval`.
     x : ndarray
-        The grid of x = k a (E = hbar^2 k^2/(2 mu_AD)); it ends at the breakup threshold.
+        The grid of x = k a (E = hbar^2 k^2/(2 mu_AD)): two segments meeting at breakup.
     breakup_x : float
         x_b = (m_B + m_X)/sqrt(m_X (2 m_B + m_X)), the breakup threshold.
+    x_max : float
+        The last grid point; beyond it the values are held (the runtime limits the weight
+        there).
     s0, mass_ratio : float
         Efimov exponent and m_B/m_X of the table's system.
     kappa_star_a_star : float
@@ -655,6 +659,7 @@ class MixtureAtomDimerTable:
     def __init__(self, path):
         with _open_table(path) as d:
             x = np.array(d["x"])
+            j = int(d["junction_index"])
             s_ad = np.array(d["s_ad"])
             columns = [np.array(d["log_transmission"]), s_ad.real.copy(), s_ad.imag.copy()]
             phase0 = float(np.array(d["phase"])[0])
@@ -666,16 +671,22 @@ class MixtureAtomDimerTable:
             self.mass_ratio = float(d["mass_ratio"])
             self.breakup_x = float(d["breakup_x"])
             self.metadata = json.loads(str(d["metadata"]))
-        lnx = np.log(x)
-        if not np.allclose(np.diff(lnx), lnx[1] - lnx[0], rtol=1e-9, atol=0):
-            raise LossfitError(f"{path!r}: the x grid is not uniform in ln x")
-        if not math.isclose(x[-1], self.breakup_x, rel_tol=1e-12):
-            raise LossfitError(f"{path!r}: the grid does not end at the breakup threshold")
+        if not math.isclose(x[j], self.breakup_x, rel_tol=1e-12):
+            raise LossfitError(f"{path!r}: the grids do not meet at the breakup threshold")
+        splines, head = [], []
+        for part in (slice(0, j + 1), slice(j, None)):
+            lnx = np.log(x[part])
+            if lnx.size < 4 or not np.allclose(np.diff(lnx), lnx[1] - lnx[0], rtol=1e-9, atol=0):
+                raise LossfitError(f"{path!r}: a grid segment is not uniform in ln x (or has < 4 points)")
+            head.append((lnx.size, lnx[0], lnx[1] - lnx[0]))
+            splines += [spline_coefficients(lnx, c[part]).T.ravel() for c in columns]
         self.delta0 = delta0 + 2.0 * math.pi * round((phase0 - delta0) / (2.0 * math.pi))
         self.x = x
-        head = np.array([x.size, lnx[0], lnx[1] - lnx[0], self.c1, self.delta0, x[-1], 0.0])
-        assert head.size == _MAD_HEADER
-        self.packed = np.concatenate([head] + [spline_coefficients(lnx, c).T.ravel() for c in columns])
+        self.x_max = float(x[-1])
+        (n1, lnx0, h1), (n2, lnxb, h2) = head
+        header = np.array([n1, lnx0, h1, self.c1, self.delta0, x[j], n2, lnxb, h2, x[-1]])
+        assert header.size == _MAD_HEADER
+        self.packed = np.concatenate([header] + splines)
 
     def evaluate(self, x):
         """(T_AD, s_AD) at x = k a (arrays), evaluated as the runtime kernels do."""
@@ -685,43 +696,46 @@ class MixtureAtomDimerTable:
 
     amplitudes = evaluate
 
-    def grid_ends(self):
-        """(first grid point, breakup threshold) in x: the kernels' kinks."""
-        return float(self.x[0]), float(self.x[-1])
+    def kinks(self):
+        """(first grid point, breakup threshold, last grid point) in x: where the kernels
+        have kinks."""
+        return float(self.x[0]), self.breakup_x, self.x_max
 
 
 @numba.njit(cache=True)
-def _mad_column(packed, c, n, i, dx):
-    return _spline(packed, _MAD_HEADER + c * 4 * (n - 1), i, dx)
+def _mad_segment(packed, offset, n, i, dx):
+    stride = 4 * (n - 1)
+    return (math.exp(_spline(packed, offset, i, dx)), _spline(packed, offset + stride, i, dx),
+            _spline(packed, offset + 2 * stride, i, dx))
 
 
 @numba.njit(cache=True)
 def mixture_s_ad_eval(packed, x):
     """(T_AD, Re s_AD, Im s_AD) at x = k a > 0 from a packed :class:`MixtureAtomDimerTable`
-    (held at the breakup node above breakup)."""
-    n = int(packed[0])
-    lnx0, h = packed[1], packed[2]
-    if x >= packed[5]:
-        # the right end of the last interval: the breakup node
-        i, dx = n - 2, h
-        return math.exp(_mad_column(packed, 0, n, i, dx)), _mad_column(packed, 1, n, i, dx), \
-            _mad_column(packed, 2, n, i, dx)
+    (held at the last node beyond the grid)."""
+    n1, lnx0, h1 = int(packed[0]), packed[1], packed[2]
+    n2, lnxb, h2 = int(packed[6]), packed[7], packed[8]
+    second = _MAD_HEADER + _MAD_SPLINES * 4 * (n1 - 1)
+    if x >= packed[9]:
+        # the right end of the last interval: the last node
+        return _mad_segment(packed, second, n2, n2 - 2, h2)
     lnx = math.log(x)
     if lnx <= lnx0:
         # T_AD and arg s_AD linear in x from their threshold limits to the first node
         x0 = math.exp(lnx0)
         r = x / x0
-        t0 = math.exp(_mad_column(packed, 0, n, 0, 0.0))
-        ph0 = math.atan2(_mad_column(packed, 2, n, 0, 0.0), _mad_column(packed, 1, n, 0, 0.0))
+        t0, re0, im0 = _mad_segment(packed, _MAD_HEADER, n1, 0, 0.0)
+        ph0 = math.atan2(im0, re0)
         ph0 += 2.0 * math.pi * round((packed[4] - ph0) / (2.0 * math.pi))
         t = x * (packed[3] + (t0 / x0 - packed[3]) * r)
         ph = packed[4] + (ph0 - packed[4]) * r
         mod = math.sqrt(max(1.0 - t, 0.0))
         return t, mod * math.cos(ph), mod * math.sin(ph)
-    i = min(int((lnx - lnx0) / h), n - 2)
-    dx = lnx - (lnx0 + i * h)
-    return math.exp(_mad_column(packed, 0, n, i, dx)), _mad_column(packed, 1, n, i, dx), \
-        _mad_column(packed, 2, n, i, dx)
+    if x <= packed[5]:
+        i = min(int((lnx - lnx0) / h1), n1 - 2)
+        return _mad_segment(packed, _MAD_HEADER, n1, i, lnx - (lnx0 + i * h1))
+    i = min(max(int((lnx - lnxb) / h2), 0), n2 - 2)
+    return _mad_segment(packed, second, n2, i, lnx - (lnxb + i * h2))
 
 
 @numba.njit(cache=True)

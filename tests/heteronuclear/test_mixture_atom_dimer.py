@@ -18,11 +18,11 @@ from lossfit.rates import beta_energy, natural_unit
 from lossfit.thermal import ATOM_DIMER
 from lossfit.units import A0, NK
 from lossfit.universal.mixture_model import (
-    BREAKUP_WEIGHT_MAX,
+    WEIGHT_BEYOND_TABLE_MAX,
     beta_unitarity_prefactor,
-    breakup_weight,
     mixture_atom_dimer_table,
     resolve_model,
+    weight_above,
 )
 from lossfit.universal.models import UNITARITY_ATOM_DIMER, scale_wavenumber_a0
 from lossfit.universal.solver.mixture_atom_dimer import breakup_wavenumber, solver_for
@@ -72,8 +72,9 @@ def test_zero_temperature_limit_is_the_solvers_threshold_relaxation(boson, other
 @pytest.mark.parametrize("boson, other", SYSTEMS)
 def test_table_against_direct_solves_at_another_eta_and_kappa(boson, other):
     # the form fitted at eta = 0.1 over six kappa* a of one period, against direct solves
-    # (MixtureSTM.atom_dimer_amplitude, same cutoff and grid) at eta = 0.02 and 0.4 and kappa*
-    # between the fit's nodes, at grid midpoints (spline) and a node; within twice the
+    # (same cutoff and grid; MixtureSTM.atom_dimer_amplitude below breakup, the contour
+    # MixtureSTM.atom_dimer_contour above) at eta = 0.02 and 0.4 and kappa* between the fit's
+    # nodes, at grid midpoints (spline) and a node on each side of breakup; within twice the
     # table's stated error (fit residual and spline error of T and s_AD, carried into P)
     system = heteronuclear(boson, other)
     table = resolve_model(None, system).atom_dimer_table
@@ -82,13 +83,14 @@ def test_table_against_direct_solves_at_another_eta_and_kappa(boson, other):
     d_s = meta["spline_midpoint_error"]["s_abs_max"] + meta["channel_fit_residual_max"]
     solver = solver_for(system.mass_ratio)
     x_b = table.breakup_x
+    j = meta["x_grid"]["junction_index"]
     kappa_a = table.kappa_star_a_star * math.exp(0.37 * math.pi / table.s0)      # theta 0.37 pi past a*
-    xs = np.sqrt(table.x[[10, 40, -3]] * table.x[[11, 41, -2]])               # three midpoints
-    xs = np.append(xs, table.x[25])
-    assert xs.max() < x_b
+    nodes = np.array([10, 40, j - 2, j, j + 6, table.x.size - 2])
+    xs = np.append(np.sqrt(table.x[nodes] * table.x[nodes + 1]), table.x[[25, j + 10]])   # midpoints, nodes
     for eta in (0.02, 0.4):
         for x in xs:
-            direct = solver.atom_dimer_amplitude(x, kappa_a, eta)["p_deep"]
+            solve = solver.atom_dimer_contour if x > x_b else solver.atom_dimer_amplitude
+            direct = solve(x, kappa_a, eta)["p_deep"]
             t, s = table.evaluate(np.array([x]))
             two_theta = 2.0 * table.s0 * math.log(kappa_a)
             p = _p_form(t[0], s[0], two_theta, eta)
@@ -97,21 +99,47 @@ def test_table_against_direct_solves_at_another_eta_and_kappa(boson, other):
             assert p == pytest.approx(direct, rel=2.0 * stated + 1e-10)
 
 
+@pytest.mark.slow
+def test_contour_solver_against_the_real_axis_and_detailed_balance():
+    # MixtureSTM.atom_dimer_contour (the table above breakup) against two independent routes:
+    # below breakup the real-axis solve (they differ by the finite cutoff, measured 1.7e-6 at
+    # Lambda a = 1e6 and 1.7e-7 at 1e7); just above breakup, at eta = 0, time reversal ties the
+    # breakup probability to threshold recombination into the shallow dimer,
+    # K3_shallow(E -> 0) = bound(E) P_breakup(E) with the J = 0 bound of
+    # MixtureSTM.unitarity_bound (docs/stm-mixture.md section 8) -- measured -4.2e-3 at
+    # eps = 1e-2 (kappa* a = 1, Rb-Rb-41K), where K3_shallow still moves with E
+    system = heteronuclear("87Rb", "41K")
+    solver = solver_for(system.mass_ratio)
+    x_b = breakup_wavenumber(system.mass_ratio)
+    for x in (0.3 * x_b, 0.99 * x_b):
+        contour = solver.atom_dimer_contour(x, 0.05, 0.2)["p_deep"]
+        assert contour == pytest.approx(solver.atom_dimer_amplitude(x, 0.05, 0.2)["p_deep"], rel=5e-6)
+    eps = 1e-2
+    above = solver.atom_dimer_contour(x_b * math.sqrt(1.0 + eps), 1.0, 0.0)
+    assert above["p_deep"] == 0.0 and above["p_breakup"] > 0.0
+    k3 = solver.recombination(1.0, 0.0)["shallow_bx"]
+    assert solver.unitarity_bound(eps) * above["p_breakup"] == pytest.approx(k3, rel=1e-2)
+
+
 @pytest.mark.parametrize("boson, other", SYSTEMS)
 def test_beta_reaches_the_s_wave_bound_and_no_more_at_every_tabulated_energy(boson, other):
     # beta(E) <= pi hbar/(mu_AD k) (s-wave, atom and dimer distinguishable); in the form the
-    # largest P over theta and eta is T/(1 - |s_AD|^2), reached where arg s_AD + 2 theta = pi
-    # and e^{-2 eta} = |s_AD|; below breakup it is 1. At every tabulated k a it must not
-    # exceed 1, and at every fourth one (and breakup) the fixed-energy rate at the a* and eta
-    # that reach it must equal the bound built here from the masses and CODATA hbar: a check
-    # of the prefactor, the units and T = 1 - |s_AD|^2 together
+    # largest P over theta and eta is T_AD/(1 - |s_AD|^2), reached where arg s_AD + 2 theta = pi
+    # and e^{-2 eta} = |s_AD|: 1 below breakup, less above (flux also leaves as three atoms).
+    # At every tabulated k a it must not exceed 1, and at every fourth node below breakup (and
+    # at breakup) the fixed-energy rate at the a* and eta that reach it must equal the bound
+    # built here from the masses and CODATA hbar: a check of the prefactor, the units and
+    # T = 1 - |s_AD|^2 together
     system = heteronuclear(boson, other)
     table = resolve_model(None, system).atom_dimer_table
+    j = table.metadata["x_grid"]["junction_index"]
     t, s = table.evaluate(table.x)
-    assert np.all(t / (1.0 - np.abs(s) ** 2) <= 1.0 + 1e-9) and np.all(np.abs(s) < 1.0)
+    ceiling = t / (1.0 - np.abs(s) ** 2)
+    assert np.all(ceiling <= 1.0 + 1e-9) and np.all(np.abs(s) < 1.0)
+    assert np.all(ceiling[j + 1:] < 1.0 - 1e-6)
     mu = _mu_ad(system)
     a = 1500.0
-    every = np.r_[np.arange(0, table.x.size, 4), table.x.size - 1]
+    every = np.r_[np.arange(0, j, 4), j]
     for x, s_x in zip(table.x[every], s[every]):
         k = x / (a * A0)                                                  # 1/m
         energy_nk = (HBAR * k) ** 2 / (2.0 * mu) / K_B * 1e9
@@ -170,7 +198,7 @@ def test_fixed_rule_against_scipy_quad_of_the_kernel(cs_li, eta):
             def integrand(t, row=row):
                 u = math.exp(t)
                 return 2.0 / math.sqrt(math.pi) * u ** 1.5 * math.exp(-u) * kernel(u, row)
-            breaks = [2.0 * math.log(x / row[0]) for x in model.atom_dimer_table.grid_ends()]
+            breaks = [2.0 * math.log(x / row[0]) for x in model.atom_dimer_table.kinks()]
             ref, _ = quad(integrand, math.log(1e-14), math.log(60.0), points=breaks, limit=4000, epsabs=0.0,
                           epsrel=1e-11)
             assert value == pytest.approx(ref, rel=1e-5)
@@ -224,22 +252,24 @@ def test_threshold_coefficients_against_the_cot_fit(boson, other, c_beta, kappa_
                                                                                       rel=1e-6)
 
 
-def test_breakup_weight_and_refusals(cs_li):
-    # the Boltzmann weight above breakup is Q(3/2, E_b/k_BT); by quadrature here
+def test_weight_beyond_the_table_and_refusals(cs_li):
+    # the Boltzmann weight above an energy E_edge is Q(3/2, E_edge/k_BT); by quadrature here
     y = 7.5
     weight = quad(lambda e: 2.0 / math.sqrt(math.pi) * math.sqrt(e) * math.exp(-e), y, math.inf)[0]
-    assert breakup_weight(np.array([1.0]), math.sqrt(y))[0] == pytest.approx(weight, rel=1e-12)
+    assert weight_above(np.array([1.0]), math.sqrt(y))[0] == pytest.approx(weight, rel=1e-12)
     efimov = lf.Efimov(a_star=900.0, eta_star=0.1)
-    # E_b/k_B = hbar^2/(2 mu a^2 k_B) at a = 4000 a0 for Cs-Li: ~940 nK; 200 nK puts ~1 % above
-    with pytest.raises(LossfitValueError, match="temperature:.*above the breakup threshold"):
-        lf.beta(4000.0, 200.0, species=cs_li, efimov=efimov)
-    assert BREAKUP_WEIGHT_MAX == 1e-3
+    # E_D/k_B = hbar^2/(2 mu a^2 k_B) at a = 4000 a0 for Cs-Li: 941 nK; the table reaches
+    # 16 E_D, and 4000 nK puts 6 % of the collisions beyond it; 200 nK (0.2 E_D) is accepted
+    with pytest.raises(LossfitValueError, match="temperature:.*beyond 16 times it"):
+        lf.beta(4000.0, 4000.0, species=cs_li, efimov=efimov)
+    assert lf.beta(4000.0, 200.0, species=cs_li, efimov=efimov) > 0.0
+    assert WEIGHT_BEYOND_TABLE_MAX == 1e-3
     with pytest.raises(LossfitValueError, match="channel:.*relaxation"):
         lf.beta(1000.0, 10.0, species=cs_li, efimov=efimov, channel="breakup")
     with pytest.raises(LossfitValueError, match="a:"):
         lf.beta(-1000.0, 10.0, species=cs_li, efimov=efimov)
-    with pytest.raises(LossfitValueError, match="energy:.*breakup"):
-        beta_energy(4000.0, 2000.0, species=cs_li, efimov=efimov)
+    with pytest.raises(LossfitValueError, match="energy:.*tabulated up to 16"):
+        beta_energy(4000.0, 20000.0, species=cs_li, efimov=efimov)
     with pytest.raises(LossfitValueError, match="eta_star|a_star"):
         lf.beta(1000.0, 10.0, species=cs_li, efimov=lf.Efimov(a_minus=-300.0, eta_minus=0.1))
     with pytest.raises(LossfitValueError, match="model:"):
@@ -294,12 +324,13 @@ def test_universal_tie_is_refused_for_a_mixture(cs_li):
                progress=False)
 
 
-def test_a_fit_with_points_beyond_the_breakup_limit_names_the_temperature(cs_li):
-    # invented data at 200 nK up to 4000 a0: 2.4 % of the collisions at the last point lie
-    # above breakup; the fit refuses with the plan's own message (not as a missing parameter)
+def test_a_fit_with_points_beyond_the_table_names_the_temperature(cs_li):
+    # invented data at 2000 nK up to 4000 a0: at the last point 1.8e-3 of the collisions lie
+    # beyond the table (16 E_D); the fit refuses with the plan's own message (not as a
+    # missing parameter)
     a = np.geomspace(300.0, 4000.0, 10)
     value = lf.beta(a, 20.0, species=cs_li, efimov=lf.Efimov(a_star=900.0, eta_star=0.1))
-    spectrum = lf.LossSpectrum(a=a, temperature=np.full(a.size, 200.0), value=value, error=0.2 * value,
+    spectrum = lf.LossSpectrum(a=a, temperature=np.full(a.size, 2000.0), value=value, error=0.2 * value,
                                kind="beta")
-    with pytest.raises(LossfitValueError, match=r"^temperature: 0.024 of the atom-dimer collisions \(point 9"):
+    with pytest.raises(LossfitValueError, match=r"^temperature: 0.0018 of the atom-dimer collisions \(point 9"):
         lf.fit(spectrum, species=cs_li, free=["a_star", "eta_star"], walkers=8, steps=10, progress=False)

@@ -498,7 +498,7 @@ class MixtureSTM:
         p_deep = kad * np.imag(h) * abs(omega) ** 2 / (math.pi ** 4 * g2)
         return {"f": f, "S": s, "p_total": 1.0 - abs(s) ** 2, "p_deep": float(p_deep)}
 
-    def atom_dimer_contour(self, kad, kappa_a, eta=0.0, phi=None, per_decade=48, narc=32, q_factor=20.0,
+    def atom_dimer_contour(self, kad, kappa_a, eta=0.0, phi=None, per_decade=None, narc=32, q_factor=20.0,
                            dmax_factor=0.4):
         """B + (BX) s-wave scattering below and above breakup on a deformed contour (a_bb = 0).
 
@@ -522,7 +522,8 @@ class MixtureSTM:
         phi : float, optional
             Ray angle; default 0.6 min(acos gamma, atan(1/(gamma k a))).
         per_decade, narc, q_factor : int, int, float
-            Nodes per decade on the ray and the tail, arc nodes, Q/max(k a, 1).
+            Nodes per decade on the ray and the tail (default: the solver's), arc nodes,
+            Q/max(k a, 1).
         dmax_factor : float
             Panels on the ray below 1.5 max(k a, 1) are at most dmax_factor k a tan(phi)
             wide when k a > 2 (the kernel varies on the scale 1/a next to q ~ k there).
@@ -545,6 +546,7 @@ class MixtureSTM:
             raise ValueError(f"need 0 < phi < {limit:.6g} (acos gamma and atan(1/(gamma k a)))")
         h = self.three_body_force(self._kappa(kappa_a, eta))
         big_q = q_factor * max(kad, 1.0)
+        per_decade = self.grid["per_decade"] if per_decade is None else per_decade
         dmax = dmax_factor * kad * math.tan(phi) if kad > 2.0 else None
         q, w = _contour(self.cutoff, phi, big_q, per_decade, narc, 1.5 * max(kad, 1.0), dmax,
                         self.grid["order"])
