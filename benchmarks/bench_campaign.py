@@ -30,7 +30,8 @@ sigma_B = 3 mG) after one refinement there; the mode search of ``fit_curves`` is
 timed. Wall times depend on the machine and on what else runs: the load averages are
 printed with the numbers.
 
-Usage (from the repository root; ``--quick`` checks the plumbing in about a minute):
+Usage (from the repository root; ``--quick`` checks the plumbing in about a minute;
+``--profile 200`` prints instead a cProfile of the log-posterior at 200 curves):
     python -m benchmarks.bench_campaign [--curves 300] [--ess-curves 20] [--target-ess 1000]
 """
 
@@ -42,7 +43,9 @@ for _var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
     os.environ.setdefault(_var, "1")
 
 import argparse  # noqa: E402
+import cProfile  # noqa: E402
 import json  # noqa: E402
+import pstats  # noqa: E402
 import statistics  # noqa: E402
 import subprocess  # noqa: E402
 import sys  # noqa: E402
@@ -223,6 +226,22 @@ def amdahl(f, ranks):
     return 1.0 / (f + (1.0 - f) / ranks)
 
 
+def profile(n_curves, calls=64, top=18):
+    """cProfile of ``calls`` log-posterior calls at the points of a walker ball of an
+    ``n_curves`` campaign: the functions with the most time of their own, then by
+    cumulative time."""
+    space, lik, post, theta0, p0, _, _ = build(n_curves, calls)
+    post(theta0)                   # prepared plans and compiled kernels before profiling
+    prof = cProfile.Profile()
+    t0 = time.perf_counter()
+    prof.runcall(lambda: [post(theta) for theta in p0])
+    print(f"{lik.n_curves} curves, {space.ndim} parameters: {calls} log-posterior calls under cProfile, "
+          f"{(time.perf_counter() - t0) / calls * 1e3:.1f} ms per call with the profiler's overhead")
+    stats_ = pstats.Stats(prof, stream=sys.stdout).strip_dirs()
+    stats_.sort_stats("tottime").print_stats(top)
+    stats_.sort_stats("cumulative").print_stats(top)
+
+
 def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     ap.add_argument("--curves", type=int, default=300, help="curves of the campaign for (a), (b), step cost")
@@ -233,6 +252,8 @@ def main(argv=None):
     ap.add_argument("--target-ess", type=float, default=1000.0)
     ap.add_argument("--max-steps", type=int, default=4000, help="cap of the runs to the target ESS")
     ap.add_argument("--quick", action="store_true", help="tiny sizes: check that everything runs")
+    ap.add_argument("--profile", type=int, metavar="CURVES",
+                    help="instead: cProfile of the log-posterior at this many curves")
     ap.add_argument("--mpi", choices=("steps", "ess"), help=argparse.SUPPRESS)
     args = ap.parse_args(argv)
     if args.quick:
@@ -242,6 +263,9 @@ def main(argv=None):
     warnings.simplefilter("ignore", ConvergenceWarning)
     if args.mpi:
         mpi_main(args)
+        return
+    if args.profile:
+        profile(args.profile)
         return
 
     print(f"invented campaign (not measured data), every systematic free; {args.walkers} walkers; {loads()}")
