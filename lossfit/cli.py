@@ -104,21 +104,30 @@ def _cmd_report(args):
 
 def _cmd_tables(args):
     from .mixture import heteronuclear  # loaded when the command runs
-    from .universal.mixture_model import shipped_systems, table_name
-    from .universal.solver.mixture_tables import build_table
+    from .universal.mixture_model import atom_dimer_table_name, shipped_systems, table_name
+    from .universal.solver import mixture_atom_dimer, mixture_tables
     from .universal.tables import cache_directory
 
     system = heteronuclear(args.boson, args.other, c6_bx=args.c6)
+    if args.atom_dimer:
+        name, build, what = atom_dimer_table_name(system), mixture_atom_dimer.build_table, "a > 0 atom-dimer"
+    else:
+        name, build, what = table_name(system), mixture_tables.build_table, "a < 0"
     if (system.boson.name, system.other.name) in shipped_systems():
-        _notice(args, f"the table of {system.name} ships with lossfit; nothing to build")
+        _notice(args, f"the {what} table of {system.name} ships with lossfit; nothing to build")
         return 0
-    path = os.path.join(cache_directory(), table_name(system))
+    path = os.path.join(cache_directory(), name)
     if os.path.exists(path) and not args.overwrite:
         raise OutputConflict(f"{path!r} exists; pass --overwrite to rebuild it")
-    _notice(args, f"building the a < 0 table of {system.name} (s0 = {system.s0:.6f}) into {path}")
-    meta = build_table(system, path, processes=args.processes, progress=not args.quiet)
-    _notice(args, f"done: largest Efimov-channel fit residual {meta['channel_fit_residual_max']:.1e}, largest "
-            f"extrapolation error {meta['extrapolation_error_rel_max']:.1e} (docs/heteronuclear-rates.md)")
+    _notice(args, f"building the {what} table of {system.name} (s0 = {system.s0:.6f}) into {path}")
+    meta = build(system, path, processes=args.processes, progress=not args.quiet)
+    if args.atom_dimer:
+        _notice(args, f"done: largest Efimov-channel fit residual {meta['channel_fit_residual_max']:.1e}, "
+                f"largest spline error of T_AD {meta['spline_midpoint_error']['t_rel_max']:.1e} "
+                "(docs/heteronuclear-rates.md)")
+    else:
+        _notice(args, f"done: largest Efimov-channel fit residual {meta['channel_fit_residual_max']:.1e}, largest "
+                f"extrapolation error {meta['extrapolation_error_rel_max']:.1e} (docs/heteronuclear-rates.md)")
     return 0
 
 
@@ -174,7 +183,7 @@ def build_parser():
     rep.add_argument("dir", help="output folder of a run")
     rep.add_argument("--overwrite", action="store_true", help="replace existing summary and figures")
     rep.set_defaults(func=_cmd_report)
-    tab = sub.add_parser("tables", help="build the zero-range table of two identical bosons and a third atom "
+    tab = sub.add_parser("tables", help="build a zero-range table of two identical bosons and a third atom "
                          "for a pair that does not ship with lossfit (10-30 min; cached)", epilog=EXIT_CODES,
                          formatter_class=argparse.RawDescriptionHelpFormatter)
     tab.add_argument("boson", help="species of the two identical bosons, e.g. 87Rb")
@@ -182,6 +191,8 @@ def build_parser():
     tab.add_argument("--c6", type=float, default=None, help="interspecies C6 in atomic units (needed for pairs "
                      "lossfit holds no C6 for)")
     tab.add_argument("--processes", type=int, default=2, help="worker processes (default 2)")
+    tab.add_argument("--atom-dimer", action="store_true", help="build the a > 0 atom-dimer relaxation table "
+                     "(a few minutes) instead of the a < 0 recombination table")
     tab.add_argument("--overwrite", action="store_true", help="rebuild a table already in the cache")
     tab.add_argument("--quiet", action="store_true", help="no progress bar or messages")
     tab.set_defaults(func=_cmd_tables)

@@ -160,7 +160,8 @@ def _checked_mass_ratio(table, system, path):
 def mixture_atom_dimer_table(system):
     """The a > 0 atom-dimer table of ``system``
     (:class:`lossfit.universal.tables.MixtureAtomDimerTable`): shipped, or built by
-    :func:`lossfit.universal.solver.mixture_atom_dimer.build_table` into
+    ``lossfit tables BOSON OTHER --atom-dimer``
+    (:func:`lossfit.universal.solver.mixture_atom_dimer.build_table`) into
     :func:`lossfit.universal.tables.cache_directory`.
 
     Raises
@@ -176,8 +177,8 @@ def mixture_atom_dimer_table(system):
     if not os.path.exists(cached):
         pairs = ", ".join(f"{b}-{b}-{x}" for b, x in _SHIPPED)
         raise LossfitValueError("species", f"no atom-dimer table for {system.label}; tables ship for {pairs}. "
-                                "Build one (a few minutes) with lossfit.universal.solver.mixture_atom_dimer."
-                                f"build_table(system, {cached!r})")
+                                f"Build one (a few minutes) with: lossfit tables {system.boson.name} "
+                                f"{system.other.name} --atom-dimer")
     return _checked_mass_ratio(load_mixture_atom_dimer_table(cached), system, cached)
 
 
@@ -333,7 +334,6 @@ class MixtureZeroRangeModel(EnergyModel):
         if not isinstance(system, HeteronuclearSystem):
             raise LossfitValueError("system", f"must be a HeteronuclearSystem, got {system!r}")
         self.system = system
-        self.table = mixture_table(system)
         m_b, m_x = system.mass_boson, system.mass_other
         #: K3 (1/x^2) P in natural units: 8 pi^2 ((2 m_B + m_X)/m_X)^{3/2}
         self.k3_prefactor = 8.0 * math.pi ** 2 * ((2.0 * m_b + m_x) / m_x) ** 1.5
@@ -349,12 +349,26 @@ class MixtureZeroRangeModel(EnergyModel):
         self._ad_kernel = None
         self._ad_features = None
         self._ad_channel = None
-        # (1/2) int u^2 e^-u (pref P/u^2) du = pref int u e^-u P dy
-        self._three_body_channel = _EfimovChannel(self.table, self.table.kappa_star_a_minus, self.wavenumber_ratio,
-                                                  self.k3_prefactor, "a_minus", "eta_minus", -1.0)
+        self._k3_channel = None
 
     def __getstate__(self):
         return {"system": self.system}
+
+    # each table is loaded on first use, so that K3 at a < 0 and beta at a > 0 each need only
+    # their own (a pair built on demand may have one of them)
+    @property
+    def table(self):
+        """The a < 0 table s11(k|a|) (:func:`mixture_table`)."""
+        return self._three_body_channel.table
+
+    @property
+    def _three_body_channel(self):
+        if self._k3_channel is None:
+            table = mixture_table(self.system)
+            # (1/2) int u^2 e^-u (pref P/u^2) du = pref int u e^-u P dy
+            self._k3_channel = _EfimovChannel(table, table.kappa_star_a_minus, self.wavenumber_ratio,
+                                              self.k3_prefactor, "a_minus", "eta_minus", -1.0)
+        return self._k3_channel
 
     def __setstate__(self, state):
         self.__init__(state["system"])

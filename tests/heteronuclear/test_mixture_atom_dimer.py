@@ -11,6 +11,7 @@ import pytest
 from scipy.integrate import quad
 
 import lossfit as lf
+from lossfit.cli import main
 from lossfit.errors import LossfitValueError
 from lossfit.inference.parameters import default_priors
 from lossfit.mixture import heteronuclear
@@ -19,13 +20,14 @@ from lossfit.thermal import ATOM_DIMER
 from lossfit.units import A0, NK
 from lossfit.universal.mixture_model import (
     WEIGHT_BEYOND_TABLE_MAX,
+    atom_dimer_table_name,
     beta_unitarity_prefactor,
     mixture_atom_dimer_table,
     resolve_model,
     weight_above,
 )
 from lossfit.universal.models import UNITARITY_ATOM_DIMER, scale_wavenumber_a0
-from lossfit.universal.solver.mixture_atom_dimer import breakup_wavenumber, solver_for
+from lossfit.universal.solver.mixture_atom_dimer import breakup_wavenumber, build_table, solver_for
 
 # CODATA 2018, independent of lossfit's constants module
 HBAR = 1.054571817e-34        # J s
@@ -73,9 +75,10 @@ def test_zero_temperature_limit_is_the_solvers_threshold_relaxation(boson, other
 def test_table_against_direct_solves_at_another_eta_and_kappa(boson, other):
     # the form fitted at eta = 0.1 over six kappa* a of one period, against direct solves
     # (same cutoff and grid; MixtureSTM.atom_dimer_amplitude below breakup, the contour
-    # MixtureSTM.atom_dimer_contour above) at eta = 0.02 and 0.4 and kappa* between the fit's
-    # nodes, at grid midpoints (spline) and a node on each side of breakup; within twice the
-    # table's stated error (fit residual and spline error of T and s_AD, carried into P)
+    # MixtureSTM.atom_dimer_contour above) at eta = 0.02 and 0.4 (alternately) and kappa*
+    # between the fit's nodes, at grid midpoints (spline) and a node on each side of breakup;
+    # within twice the table's stated error (fit residual and spline error of T and s_AD,
+    # carried into P)
     system = heteronuclear(boson, other)
     table = resolve_model(None, system).atom_dimer_table
     meta = table.metadata
@@ -87,16 +90,16 @@ def test_table_against_direct_solves_at_another_eta_and_kappa(boson, other):
     kappa_a = table.kappa_star_a_star * math.exp(0.37 * math.pi / table.s0)      # theta 0.37 pi past a*
     nodes = np.array([10, 40, j - 2, j, j + 6, table.x.size - 2])
     xs = np.append(np.sqrt(table.x[nodes] * table.x[nodes + 1]), table.x[[25, j + 10]])   # midpoints, nodes
-    for eta in (0.02, 0.4):
-        for x in xs:
-            solve = solver.atom_dimer_contour if x > x_b else solver.atom_dimer_amplitude
-            direct = solve(x, kappa_a, eta)["p_deep"]
-            t, s = table.evaluate(np.array([x]))
-            two_theta = 2.0 * table.s0 * math.log(kappa_a)
-            p = _p_form(t[0], s[0], two_theta, eta)
-            den = abs(1.0 + s[0] * complex(math.cos(two_theta), math.sin(two_theta)) * math.exp(-2.0 * eta))
-            stated = d_t + 2.0 * d_s * math.exp(-2.0 * eta) / den
-            assert p == pytest.approx(direct, rel=2.0 * stated + 1e-10)
+    for i, x in enumerate(xs):
+        eta = (0.02, 0.4)[i % 2]
+        solve = solver.atom_dimer_contour if x > x_b else solver.atom_dimer_amplitude
+        direct = solve(x, kappa_a, eta)["p_deep"]
+        t, s = table.evaluate(np.array([x]))
+        two_theta = 2.0 * table.s0 * math.log(kappa_a)
+        p = _p_form(t[0], s[0], two_theta, eta)
+        den = abs(1.0 + s[0] * complex(math.cos(two_theta), math.sin(two_theta)) * math.exp(-2.0 * eta))
+        stated = d_t + 2.0 * d_s * math.exp(-2.0 * eta) / den
+        assert p == pytest.approx(direct, rel=2.0 * stated + 1e-10)
 
 
 @pytest.mark.slow
@@ -274,7 +277,7 @@ def test_weight_beyond_the_table_and_refusals(cs_li):
         lf.beta(1000.0, 10.0, species=cs_li, efimov=lf.Efimov(a_minus=-300.0, eta_minus=0.1))
     with pytest.raises(LossfitValueError, match="model:"):
         lf.beta(1000.0, 10.0, species=cs_li, efimov=efimov, model="threshold")
-    with pytest.raises(LossfitValueError, match="species:.*no atom-dimer table.*build_table"):
+    with pytest.raises(LossfitValueError, match="species:.*no atom-dimer table.*lossfit tables 87Rb 7Li --atom-dimer"):
         mixture_atom_dimer_table(heteronuclear("87Rb", "7Li", c6_bx=2500.0))
 
 
@@ -334,3 +337,35 @@ def test_a_fit_with_points_beyond_the_table_names_the_temperature(cs_li):
                                kind="beta")
     with pytest.raises(LossfitValueError, match=r"^temperature: 0.0018 of the atom-dimer collisions \(point 9"):
         lf.fit(spectrum, species=cs_li, free=["a_star", "eta_star"], walkers=8, steps=10, progress=False)
+
+
+def test_the_tables_command_knows_the_shipped_atom_dimer_tables(capsys):
+    assert main(["tables", "133Cs", "6Li", "--atom-dimer"]) == 0
+    assert "a > 0 atom-dimer table of 133Cs-133Cs-6Li ships with lossfit" in capsys.readouterr().err
+
+
+@pytest.mark.slow
+def test_an_atom_dimer_table_built_on_demand_reaches_the_threshold_law(tmp_path, monkeypatch):
+    # a coarse table (8 points per decade to 2 x_b, 3 kappa*, Lambda a = 1e4) of a pair that
+    # does not ship, into the cache where lf.beta finds it: the T -> 0 limit of the thermal
+    # beta equals the zero-energy solve at the same cutoff, whatever the grid (C6 invented for
+    # the test). For this mass ratio (12.4) the trimer tracking loses the state next to the
+    # atom-dimer threshold, so the builder takes the pole of a_AD in one period instead.
+    monkeypatch.setenv("LOSSFIT_CACHE", str(tmp_path))
+    system = heteronuclear("87Rb", "7Li", c6_bx=2500.0)
+    path = str(tmp_path / atom_dimer_table_name(system))
+    meta = build_table(system, path, x_min=0.05, above=2.0, per_decade=8, n_theta=3, cutoff=1e4,
+                       grid_per_decade=24, check_every=100, progress=False)
+    assert meta["kappa_star_a_star_found"].startswith("pole of a_AD")
+    assert sorted(p.name for p in tmp_path.iterdir()) == [atom_dimer_table_name(system)]
+    table = mixture_atom_dimer_table(system)
+    a, a_star, eta = 2000.0, 700.0, 0.15
+    kappa_a = table.kappa_star_a_star * a / a_star
+    beta = solver_for(system.mass_ratio, cutoff=1e4, per_decade=24).relaxation_beta(kappa_a, eta)
+    expected = beta * HBAR * a * A0 / system.mass_boson * 1e6
+    model = resolve_model(None, system)
+    q = np.array([a]) * scale_wavenumber_a0(1e-9 * NK, system.mass)
+    unit = natural_unit(ATOM_DIMER, np.array([1e-9]), system.mass)
+    # the a < 0 table of this pair is not built, so the atom-dimer plan is used directly
+    value = model.atom_dimer_plan(np.array([a]), q, unit).evaluate(lf.Efimov(a_star=a_star, eta_star=eta))[0]
+    assert value == pytest.approx(expected, rel=1e-4)

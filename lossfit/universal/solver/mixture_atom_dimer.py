@@ -42,6 +42,7 @@ the file layout is what :class:`lossfit.universal.tables.MixtureAtomDimerTable` 
 __all__ = ["build_table", "breakup_wavenumber", "atom_dimer_grid", "solver_for", "X_MIN", "ABOVE", "PER_DECADE",
            "N_THETA", "ETA", "CUTOFF", "GRID_PER_DECADE"]
 
+import functools
 import json
 import math
 import os
@@ -112,8 +113,10 @@ def atom_dimer_grid(mass_ratio, x_min=X_MIN, per_decade=PER_DECADE, above=ABOVE)
     return np.concatenate([segments[0], segments[1][1:]]), segments[0].size - 1
 
 
+@functools.lru_cache(maxsize=None)
 def solver_for(mass_ratio, cutoff=CUTOFF, per_decade=GRID_PER_DECADE):
-    """The B-B-X solver the table is built with (a_bb = 0; Lambda a = ``cutoff``)."""
+    """The B-B-X solver the table is built with (a_bb = 0; Lambda a = ``cutoff``); one per
+    process and setting (its constructor finds s0 by root search, ~0.1 s)."""
     return stm_mixture.MixtureSTM(mass_ratio, cutoff=cutoff, qmin=QMIN, per_decade=per_decade)
 
 
@@ -133,6 +136,27 @@ def _one_x(args):
         check = min(check, breakup) if above else max(check, abs(breakup))
     fit = channel_fit(solver.s0 * np.log(kappas), np.asarray(p), ETA)
     return fit["T"], fit["s11"], fit["residual"], check
+
+
+def _kappa_a_star(solver):
+    """(kappa* a*, how it was found). On the branch of a_- where the trimer tracking reaches
+    the atom-dimer threshold (:meth:`.stm_mixture.MixtureSTM.kappa_a_star`); for mass ratios
+    where it loses the state next to the threshold (measured: 87Rb-87Rb-7Li), the pole of
+    a_AD in the period above kappa* a = 0.1, whose branch is then not identified: beta as a
+    function of a and a* does not depend on the choice (its peaks sit at a* lambda^n either
+    way), only the relation of a* to a_- does."""
+    try:
+        return solver.kappa_a_star(), "on the branch of a_- (trimer tracking)"
+    except RuntimeError:
+        lam = solver.scaling_factor
+        low = 0.1
+
+        def inverse(ln_kappa):
+            return 1.0 / solver.atom_dimer_length(math.exp(ln_kappa)).real
+
+        # the root of 1/Re a_AD within one period [low, lambda low] (rel spans it)
+        value = solver._bracketed_root(inverse, low * math.sqrt(lam), (lam - 1.0) / (lam + 1.0) * 0.999, npts=17)
+        return value, "pole of a_AD in the period above kappa* a = 0.1 (branch not identified)"
 
 
 def _threshold(ratio, kappa_a_star, n_theta, cutoff, per_decade):
@@ -199,7 +223,7 @@ def build_table(system, path, *, x_min=X_MIN, above=ABOVE, per_decade=PER_DECADE
     x_b = grid[junction]
     solver = solver_for(ratio, cutoff, grid_per_decade)
     gamma, s0 = solver.gamma, solver.s0
-    kappa_a_star = solver.kappa_a_star()
+    kappa_a_star, how = _kappa_a_star(solver)
     c1, s_thr, thr_residual = _threshold(ratio, kappa_a_star, n_theta, cutoff, grid_per_decade)
     mids = np.sqrt(grid[:-1] * grid[1:])
     checked = np.unique(np.r_[np.arange(0, grid.size, check_every), junction, grid.size - 1])
@@ -285,6 +309,7 @@ def build_table(system, path, *, x_min=X_MIN, above=ABOVE, per_decade=PER_DECADE
         "finer_grid_error": {"t_rel_max": float(err_quad_t.max()), "s_abs_max": float(err_quad_s.max())},
         "spline_midpoint_error": {"t_rel_max": float(mid_t.max()), "s_abs_max": float(mid_s.max())},
         "kappa_star_a_star_from_threshold_phase": math.exp(ln_peak),
+        "kappa_star_a_star_found": how,
         "beyond_grid": "not tabulated; the runtime refuses temperatures whose Boltzmann weight beyond the last "
                        "grid point exceeds its stated fraction and holds s_AD, T_AD at their last values there",
         "git_hash": git_hash(),
