@@ -311,22 +311,25 @@ def _mixture_model(system, name):
 
 
 class MixtureZeroRangeModel(EnergyModel):
-    """Exact zero-range recombination of two identical bosons and a third atom at a < 0.
+    """Exact zero-range rates of two identical bosons and a third atom: recombination at a < 0
+    and atom-dimer relaxation B + (BX) -> deep dimers at a > 0.
 
     Parameters
     ----------
     system : HeteronuclearSystem
-        A system with a shipped table (:func:`shipped_systems`), a_bb = 0.
+        A system with shipped or cached tables (:func:`shipped_systems`), a_bb = 0; each table
+        is loaded when its rate is first used.
 
     Notes
     -----
     Every event at a < 0 forms a deep dimer and removes two B and one X (docs/heteronuclear.md
     section 6), so the total, deep and observed channels coincide. Rates are events:
-    d n_X/dt = -K3 n_B^2 n_X.
+    d n_X/dt = -K3 n_B^2 n_X. beta counts dimers lost: d n_D/dt = -beta n_B n_D (cm^3/s).
     """
 
     name = "zero-range"
-    description = "exact zero-range recombination of two identical bosons and a third atom (a < 0, a_bb = 0)"
+    description = ("exact zero-range rates of two identical bosons and a third atom (K3 at a < 0, atom-dimer "
+                   "relaxation at a > 0, a_bb = 0)")
     approximate = False
     resolves_channels = False
 
