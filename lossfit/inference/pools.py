@@ -67,15 +67,14 @@ class MPIPool:
         return self.rank == 0
 
     def _receive(self):
-        # a non-blocking receive polled with a growing sleep: idle ranks leave the CPU free
-        request = self.comm.irecv(source=0, tag=self._TAG)
+        # probe polled with a growing sleep (idle ranks leave the CPU free), then a blocking
+        # receive sized to the message: irecv's default 32 KiB buffer truncates a pickled
+        # campaign posterior (tens of KiB to MBs) and left the master waiting forever
         pause = self._BACKOFF[0]
-        while True:
-            done, message = request.test()
-            if done:
-                return message
+        while not self.comm.Iprobe(source=0, tag=self._TAG):
             time.sleep(pause)
             pause = min(2.0 * pause, self._BACKOFF[1])
+        return self.comm.recv(source=0, tag=self._TAG)
 
     def wait(self):
         """Worker loop: serve map requests until the master closes the pool."""

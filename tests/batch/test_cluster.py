@@ -250,3 +250,32 @@ checkpoint_every = 20
     after = {r["name"]: r["median"] for r in again["summary"]}
     assert after == pytest.approx(before, rel=1e-12)
     assert (tmp_path / "out" / "spectrum.png").stat().st_size > 0
+
+
+@pytest.mark.slow
+def test_mpi_pool_carries_functions_larger_than_the_default_receive_buffer(tmp_path):
+    # a campaign posterior pickles to tens of KiB to MBs; a receive with mpi4py's default
+    # 32 KiB buffer truncated it and the master waited forever (docs/cluster.md)
+    mpiexec = find_mpiexec()
+    assert mpiexec, "mpiexec (from the mpich wheel, extra 'test') is not on PATH"
+    script = tmp_path / "big.py"
+    script.write_text(
+        "import numpy as np\n"
+        "from lossfit.inference.pools import make_pool\n"
+        "class Big:\n"
+        "    def __init__(self):\n"
+        "        self.data = np.arange(200000.0)\n"
+        "    def __call__(self, x):\n"
+        "        return float(self.data[int(x)])\n"
+        "pool = make_pool('mpi')\n"
+        "if not pool.is_master():\n"
+        "    pool.wait()\n"
+        "else:\n"
+        "    print(sum(pool.map(Big(), range(8))))\n"
+        "    pool.close()\n")
+    root = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
+    env = dict(os.environ, PYTHONPATH=os.pathsep.join(filter(None, [root, os.environ.get("PYTHONPATH")])))
+    proc = subprocess.run([mpiexec, "-n", "2", sys.executable, str(script)], capture_output=True, text=True,
+                          env=env, timeout=120)
+    assert proc.returncode == 0, proc.stderr
+    assert proc.stdout.strip() == "28.0"
