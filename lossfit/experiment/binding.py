@@ -88,19 +88,21 @@ def vdw_kappa(a_beta6, x_short=X_SHORT, rtol=RTOL):
     -C6/r^6 with scattering length ``a_beta6`` (> abar/beta6 = 0.478)."""
     y0 = list(_zero_energy(x_short, a_beta6))
 
-    def growing(kappa):
-        # the sign of the e^(+kappa x) component at large x: it changes sign at a bound state
-        x_far = max(8.0, 12.0 / kappa)
+    def growing(kappa, x_far):
+        # u -> A e^(kappa x) + B e^(-kappa x) at large x, and a bound state is A = 0:
+        # A = (u' + kappa u) e^(-kappa x) / (2 kappa), smooth in kappa at a fixed x_far, so
+        # brentq converges superlinearly (a normalised sign would reduce it to bisection)
         u, du = _outward(kappa, y0, x_short, x_far, rtol)
-        return (du + kappa * u) / (abs(du) + kappa * abs(u))
+        return (du + kappa * u) * math.exp(-kappa * x_far) / (2.0 * kappa)
 
     # the weakest bound state lies near the universal 1/(a - abar), below the next one
     guess = 1.0 / (a_beta6 - ABAR_BETA6)
     grid = np.geomspace(0.2 * guess, 2.0 * guess, 12)
-    values = [growing(k) for k in grid]
+    values = [growing(k, max(8.0, 12.0 / k)) for k in grid]
     for k0, k1, v0, v1 in zip(grid[:-1], grid[1:], values[:-1], values[1:]):
         if v0 * v1 < 0:
-            return brentq(growing, k0, k1, xtol=1e-14, rtol=1e-12)
+            # x_far >= 12/kappa over the whole bracket: the decaying part is e^-24 down
+            return brentq(growing, k0, k1, args=(max(8.0, 12.0 / k0),), xtol=1e-14, rtol=1e-12)
     raise LossfitValueError("a", f"no weakly bound van der Waals state found for a = {a_beta6:g} beta6")
 
 
