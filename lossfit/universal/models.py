@@ -278,17 +278,25 @@ class _ClosedFormPlan:
         self.coefficients, self.a, self.q, self.scale = coefficients, a, q, scale
         self.weight, self.capped = weight, capped
         self.n_points = a.size
+        self._tiles = (1, q, scale)
 
     def evaluate(self, efimov, out=None):
-        if efimov.n_walkers:
-            value = efimov.each_walker(self.evaluate)
-            if out is None:
-                return value
-            out[...] = value
-            return out
-        out = np.empty(self.n_points) if out is None else out
-        _closed_form(self.coefficients(self.a, efimov), self.q, self.scale, self.weight, self.capped, out)
+        # every walker in one pass: the coefficients come as rows (W, points)
+        coefficients = self.coefficients(self.a, efimov)
+        count = coefficients.shape[0] if coefficients.ndim == 2 else 1
+        if out is None:
+            out = np.empty(coefficients.shape)
+        result = out if out.flags.c_contiguous else np.empty(coefficients.shape)
+        q, scale = self._tiled(count)
+        _closed_form(coefficients.ravel(), q, scale, self.weight, self.capped, result.reshape(-1))
+        if result is not out:
+            out[...] = result
         return out
+
+    def _tiled(self, count):
+        if self._tiles[0] != count:
+            self._tiles = (count, np.tile(self.q, count), np.tile(self.scale, count))
+        return self._tiles[1:]
 
 
 @feature_points

@@ -126,38 +126,54 @@ def c_atom_dimer(a_over_a_star, eta):
 
 @numba.njit(cache=True)
 def _l3_coefficients(a, a_minus, eta_minus, a_plus, eta_plus, bh_to_l3):
-    # lossfit's dimensionless L3 m / (hbar a^4) for either sign of a.
-    out = np.empty(a.size)
-    for i in range(a.size):
-        if a[i] < 0.0:
-            out[i] = bh_to_l3 * c_negative(a[i] / a_minus, eta_minus)
-        else:
-            out[i] = bh_to_l3 * c_positive(a[i] / a_plus, eta_plus)
+    # lossfit's dimensionless L3 m / (hbar a^4) for either sign of a; one row per walker
+    out = np.empty((a_minus.size, a.size))
+    for w in range(a_minus.size):
+        for i in range(a.size):
+            if a[i] < 0.0:
+                out[w, i] = bh_to_l3 * c_negative(a[i] / a_minus[w], eta_minus[w])
+            else:
+                out[w, i] = bh_to_l3 * c_positive(a[i] / a_plus[w], eta_plus[w])
     return out
 
 
 @numba.njit(cache=True)
 def _beta_coefficients(a, a_star, eta_star):
-    out = np.empty(a.size)
-    for i in range(a.size):
-        out[i] = c_atom_dimer(a[i] / a_star, eta_star)
+    out = np.empty((a_star.size, a.size))
+    for w in range(a_star.size):
+        for i in range(a.size):
+            out[w, i] = c_atom_dimer(a[i] / a_star[w], eta_star[w])
     return out
 
 
+def _walker_columns(efimov, values):
+    """``values`` (floats, or walker arrays of an :meth:`Efimov.trusted` set) as
+    contiguous float arrays of one length: 1 for a set of floats, W for W walkers."""
+    count = max(efimov.n_walkers, 1)
+    return [np.ascontiguousarray(np.broadcast_to(np.asarray(v, dtype=float), (count,))) for v in values]
+
+
+def _one_row_unless_walkers(out, efimov):
+    return out if efimov.n_walkers else out[0]
+
+
 def l3_coefficient_unchecked(a, efimov):
-    """As :func:`l3_coefficient` for a validated 1-D float array ``a`` (fast path)."""
+    """As :func:`l3_coefficient` for a validated 1-D float array ``a`` (fast path); for a
+    set of W walker arrays (``Efimov.trusted``) an array (W, a.size)."""
     nan = math.nan
     has_neg = a.size > 0 and a.min() < 0.0
     has_pos = a.size > 0 and a.max() > 0.0
     a_minus, eta_minus = efimov.require("a_minus", "eta_minus") if has_neg else (nan, nan)
     a_plus, eta_plus = efimov.require("a_plus", "eta_plus") if has_pos else (nan, nan)
-    return _l3_coefficients(a, a_minus, eta_minus, a_plus, eta_plus, BH_TO_L3)
+    columns = _walker_columns(efimov, (a_minus, eta_minus, a_plus, eta_plus))
+    return _one_row_unless_walkers(_l3_coefficients(a, *columns, BH_TO_L3), efimov)
 
 
 def beta_coefficient_unchecked(a, efimov):
-    """As :func:`beta_coefficient` for a validated 1-D float array of a > 0 (fast path)."""
-    a_star, eta_star = efimov.require("a_star", "eta_star")
-    return _beta_coefficients(a, a_star, eta_star)
+    """As :func:`beta_coefficient` for a validated 1-D float array of a > 0 (fast path);
+    for W walker arrays an array (W, a.size)."""
+    columns = _walker_columns(efimov, efimov.require("a_star", "eta_star"))
+    return _one_row_unless_walkers(_beta_coefficients(a, *columns), efimov)
 
 
 def l3_coefficient(a, efimov):

@@ -30,9 +30,11 @@ def _spectra():
     return out
 
 
-@pytest.fixture(scope="module")
-def posterior():
+@pytest.fixture(scope="module", params=["zero-range", "threshold", "capped"])
+def posterior(request):
+    # the closed-form models (threshold law, capped) take their own many-walker path
     space, likelihood, post = prepare(_spectra(), species=CS, free=["a_minus", "eta", "density_scale"],
+                                      model=request.param,
                                       tie="universal", priors={"a_minus": LogUniform(-3000.0, -450.0),
                                                                "density_scale": LogNormal(1.0, 0.2)})
     return post
