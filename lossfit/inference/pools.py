@@ -52,6 +52,7 @@ class MPIPool:
 
     _TAG = 11
     _BACKOFF = (1e-5, 1e-3)
+    _SPIN = 2e-3
 
     def __init__(self, comm=None):
         try:
@@ -70,6 +71,14 @@ class MPIPool:
         # probe polled with a growing sleep (idle ranks leave the CPU free), then a blocking
         # receive sized to the message: irecv's default 32 KiB buffer truncates a pickled
         # campaign posterior (tens of KiB to MBs) and left the master waiting forever
+        # receive. During a run the next map follows within a few ms, so the probe spins for
+        # _SPIN seconds before it starts to sleep (sleeping at once cost ~1 ms per map)
+        spin_until = time.perf_counter() + self._SPIN
+        while not self.comm.Iprobe(source=0, tag=self._TAG):
+            if time.perf_counter() > spin_until:
+                break
+        else:
+            return self.comm.recv(source=0, tag=self._TAG)
         pause = self._BACKOFF[0]
         while not self.comm.Iprobe(source=0, tag=self._TAG):
             time.sleep(pause)
@@ -91,7 +100,9 @@ class MPIPool:
     def map(self, func, iterable):
         items = list(iterable)
         workers = range(1, self.size)
-        if func is not self._func:
+        # equality, not identity: ``obj.method`` is a new bound-method object at every
+        # access, and identity re-sent the pickled posterior with every map
+        if func != self._func:
             for r in workers:
                 self.comm.send(("func", func), dest=r, tag=self._TAG)
             self._func = func

@@ -61,6 +61,7 @@ class WalkerBlocks:
     def __init__(self, posterior, pool=None):
         self.posterior = posterior
         self.pool = pool
+        self._batch = posterior.batch          # one bound method: the pool sends it once
         size = getattr(pool, "size", None) or getattr(pool, "_processes", None)
         self.blocks = int(size) if size else (2 if pool is not None else 1)
 
@@ -68,7 +69,7 @@ class WalkerBlocks:
         if self.pool is None or self.blocks == 1:
             return self.posterior.batch(coords)
         parts = [p for p in np.array_split(coords, self.blocks) if len(p)]
-        return np.concatenate(list(self.pool.map(self.posterior.batch, parts)))
+        return np.concatenate(list(self.pool.map(self._batch, parts)))
 
 
 def interactive():
