@@ -104,9 +104,14 @@ def _cmd_report(args):
 
 def _cmd_tables(args):
     from .mixture import heteronuclear  # loaded when the command runs
-    from .universal.mixture_model import atom_dimer_table_name, shipped_systems, table_name
-    from .universal.solver import mixture_atom_dimer, mixture_tables
-    from .universal.tables import cache_directory
+    from .universal.mixture_model import (
+        atom_dimer_table_name,
+        recombination_table_name,
+        shipped_systems,
+        table_name,
+    )
+    from .universal.solver import mixture_atom_dimer, mixture_recombination, mixture_tables
+    from .universal.tables import cache_directory, load_mixture_atom_dimer_table
 
     system = heteronuclear(args.boson, args.other, c6_bx=args.c6)
     if args.atom_dimer:
@@ -125,6 +130,13 @@ def _cmd_tables(args):
         _notice(args, f"done: largest Efimov-channel fit residual {meta['channel_fit_residual_max']:.1e}, "
                 f"largest spline error of T_AD {meta['spline_midpoint_error']['t_rel_max']:.1e} "
                 "(docs/heteronuclear-rates.md)")
+        # a > 0 recombination (shallow and deep, J = 0) in the atom-dimer table's phase convention
+        kappa_a_star = load_mixture_atom_dimer_table(path).kappa_star_a_star
+        k3_path = os.path.join(cache_directory(), recombination_table_name(system))
+        _notice(args, f"building the a > 0 recombination table of {system.name} into {k3_path}")
+        meta = mixture_recombination.build_table(system, k3_path, kappa_a_star, progress=not args.quiet)
+        _notice(args, f"done: largest breakup fit residual {meta['breakup_fit_residual_max']:.1e}, largest J = 0 "
+                f"share {meta['j0_bound_largest_share']:.4f} (docs/heteronuclear-rates.md)")
     else:
         _notice(args, f"done: largest Efimov-channel fit residual {meta['channel_fit_residual_max']:.1e}, largest "
                 f"extrapolation error {meta['extrapolation_error_rel_max']:.1e} (docs/heteronuclear-rates.md)")

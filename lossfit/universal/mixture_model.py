@@ -42,7 +42,8 @@ are refused (docs/heteronuclear-rates.md).
 """
 
 __all__ = ["MixtureZeroRangeModel", "MixtureThresholdModel", "MixturePlan", "mixture_table", "table_name",
-           "atom_dimer_table_name", "mixture_atom_dimer_table", "shipped_systems", "resolve_model",
+           "atom_dimer_table_name", "recombination_table_name", "mixture_atom_dimer_table",
+           "mixture_recombination_table", "shipped_systems", "resolve_model",
            "resolve_species", "rule_nodes", "weight_above", "beta_unitarity_prefactor", "WEIGHT_BEYOND_TABLE_MAX"]
 
 import functools
@@ -52,6 +53,7 @@ from dataclasses import dataclass
 
 import numba
 import numpy as np
+from scipy.special import gammaincc
 
 from ..errors import LossfitValueError
 from ..mixture import HeteronuclearSystem, system_from_name
@@ -64,7 +66,9 @@ from .tables import (
     cache_directory,
     grid_limits,
     load_mixture_atom_dimer_table,
+    load_mixture_recombination_table,
     load_s11_table,
+    mixture_recombination_eval,
     mixture_s_ad_eval,
     s11_eval,
     table_path,
@@ -89,6 +93,11 @@ _TRIM = 1e-7
 #: that atom-dimer rates accept: beyond it the rates hold s_AD and T_AD at their last values
 #: (docs/heteronuclear-rates.md bounds the error this makes).
 WEIGHT_BEYOND_TABLE_MAX = 1e-3
+# length of the stand-in for a missing table in the compiled kernels
+_U_EMPTY = 16
+_POSITIVE_COLUMNS = 7
+# (deep, shallow) weights of the a > 0 recombination channels
+_POSITIVE_CHANNELS = {"deep": (1.0, 0.0), "shallow": (0.0, 1.0), "total": (1.0, 1.0)}
 
 
 def rule_nodes(table, y_lo, y_hi, eta_min):
@@ -143,6 +152,11 @@ def atom_dimer_table_name(system):
     return f"s_ad_mixture_{system.boson.name}_{system.other.name}.npz"
 
 
+def recombination_table_name(system):
+    """File name of the a > 0 recombination table of ``system`` (a :class:`HeteronuclearSystem`)."""
+    return f"k3_positive_mixture_{system.boson.name}_{system.other.name}.npz"
+
+
 def _require_a_bb_zero(system):
     if system.a_bb != 0.0:
         raise LossfitValueError("species", f"zero-range rates of {system.label} are tabulated for a_bb = 0 only "
@@ -169,17 +183,38 @@ def mixture_atom_dimer_table(system):
     LossfitValueError
         For a pair without a table, or with a_bb != 0.
     """
+    return _table_of(system, atom_dimer_table_name(system), load_mixture_atom_dimer_table, "atom-dimer",
+                     "a few minutes", " --atom-dimer")
+
+
+def _table_of(system, name, loader, what, minutes, flag):
+    """A table of ``system`` read by ``loader``: shipped, or built by ``lossfit tables BOSON
+    OTHER`` (with ``flag``) into the cache."""
     _require_a_bb_zero(system)
-    name = atom_dimer_table_name(system)
     if (system.boson.name, system.other.name) in _SHIPPED:
-        return load_mixture_atom_dimer_table(table_path(name))
+        return loader(table_path(name))
     cached = os.path.join(cache_directory(), name)
     if not os.path.exists(cached):
         pairs = ", ".join(f"{b}-{b}-{x}" for b, x in _SHIPPED)
-        raise LossfitValueError("species", f"no atom-dimer table for {system.label}; tables ship for {pairs}. "
-                                f"Build one (a few minutes) with: lossfit tables {system.boson.name} "
-                                f"{system.other.name} --atom-dimer")
-    return _checked_mass_ratio(load_mixture_atom_dimer_table(cached), system, cached)
+        raise LossfitValueError("species", f"no {what} table for {system.label}; tables ship for {pairs}. "
+                                f"Build one ({minutes}) with: lossfit tables {system.boson.name} "
+                                f"{system.other.name}{flag}")
+    return _checked_mass_ratio(loader(cached), system, cached)
+
+
+def mixture_recombination_table(system):
+    """The a > 0 recombination table of ``system``
+    (:class:`lossfit.universal.tables.MixtureRecombinationTable`): shipped, or built with the
+    atom-dimer table by ``lossfit tables BOSON OTHER --atom-dimer``
+    (:func:`lossfit.universal.solver.mixture_recombination.build_table`).
+
+    Raises
+    ------
+    LossfitValueError
+        For a pair without a table, or with a_bb != 0.
+    """
+    return _table_of(system, recombination_table_name(system), load_mixture_recombination_table,
+                     "a > 0 recombination", "a few minutes", " --atom-dimer")
 
 
 def beta_unitarity_prefactor(mass_ratio):
@@ -204,26 +239,28 @@ def beta_unitarity_prefactor(mass_ratio):
     return math.pi * ratio ** 1.5 / math.sqrt(2.0)
 
 
-def weight_above(x_t, x_edge):
-    """Boltzmann weight of atom-dimer energies above k a = x_edge: Q(3/2, (x_edge/x_T)^2).
+def weight_above(x_t, x_edge, shape=1.5):
+    """Boltzmann weight of collision energies above k a = x_edge: Q(shape, (x_edge/x_T)^2).
 
     Parameters
     ----------
     x_t : ndarray
-        k a at E = k_BT (E = hbar^2 k^2/(2 mu_AD)).
+        k a at E = k_BT (E = hbar^2 k^2/(2 mu_AD) for atom + dimer, hbar^2 k^2/(2 mu) for
+        three atoms).
     x_edge : float
         k a of the edge (the breakup threshold x_b, or the table's end).
+    shape : float
+        3/2 for the atom-dimer energy density (2/sqrt pi) E^{1/2} (k_BT)^{-3/2} e^{-E/k_BT},
+        3 for the three-atom density E^2 e^{-E/k_BT}/(2 (k_BT)^3).
 
     Returns
     -------
     ndarray
-        The fraction of (2/sqrt pi) E^{1/2} (k_BT)^{-3/2} e^{-E/k_BT} above
-        E_edge = (x_edge/x_b)^2 hbar^2/(2 mu a^2): erfc(sqrt y) + 2 sqrt(y/pi) e^{-y},
-        y = E_edge/k_BT.
+        The regularised upper incomplete gamma function Q(shape, y), y = E_edge/k_BT:
+        erfc(sqrt y) + 2 sqrt(y/pi) e^{-y} for 3/2, e^{-y}(1 + y + y^2/2) for 3.
     """
     y = (x_edge / np.asarray(x_t, dtype=float)) ** 2
-    root = np.sqrt(y)
-    return np.vectorize(math.erfc)(root) + 2.0 * root / math.sqrt(math.pi) * np.exp(-y)
+    return gammaincc(shape, y)
 
 
 def mixture_table(system):
@@ -235,16 +272,7 @@ def mixture_table(system):
     LossfitValueError
         For a pair without a shipped table, or with a_bb != 0 (tables exist for a_bb = 0).
     """
-    _require_a_bb_zero(system)
-    if (system.boson.name, system.other.name) in _SHIPPED:
-        return load_s11_table(table_path(table_name(system)))
-    cached = os.path.join(cache_directory(), table_name(system))
-    if not os.path.exists(cached):
-        pairs = ", ".join(f"{b}-{b}-{x}" for b, x in _SHIPPED)
-        raise LossfitValueError("species", f"no zero-range table for {system.label}; tables ship for {pairs}. "
-                                f"Build one (10-30 min) with: lossfit tables {system.boson.name} "
-                                f"{system.other.name}")
-    return _checked_mass_ratio(load_s11_table(cached), system, cached)
+    return _table_of(system, table_name(system), load_s11_table, "zero-range", "10-30 min", "")
 
 
 def resolve_species(species):
@@ -298,6 +326,30 @@ class _EfimovChannel:
     feature: str
     eta: str
     sign: float
+    fallback: tuple = None
+
+    def parameters(self, efimov):
+        """(feature length, eta) from ``efimov`` (floats or walker arrays); where the feature is
+        not set, from ``fallback`` = (feature name, eta name, ratio): the same kappa* gives
+        feature = ratio x the other feature (a_+ from a*: (kappa* a_+)/(kappa* a*)). (None, None)
+        when neither is set."""
+        feature, eta = getattr(efimov, self.feature), getattr(efimov, self.eta)
+        if (feature is None or eta is None) and self.fallback is not None:
+            name, eta_name, ratio = self.fallback
+            other, other_eta = getattr(efimov, name), getattr(efimov, eta_name)
+            if other is not None and other_eta is not None:
+                feature = ratio * np.asarray(other, dtype=float) if feature is None else feature
+                eta = other_eta if eta is None else eta
+                if np.ndim(feature) == 0:
+                    feature = float(feature)
+        return feature, eta
+
+    def require(self, efimov):
+        """:meth:`parameters`, raising the usual error for missing ones."""
+        feature, eta = self.parameters(efimov)
+        if feature is None or eta is None:
+            efimov.require(self.feature, self.eta)
+        return feature, eta
 
     def two_theta(self, a, feature):
         """2 theta = 2 s0 ln(kappa* |a|) at ``a`` (a0) for the feature's length (a0)."""
@@ -353,6 +405,7 @@ class MixtureZeroRangeModel(EnergyModel):
         self._ad_features = None
         self._ad_channel = None
         self._k3_channel = None
+        self._k3_positive = None
 
     def __getstate__(self):
         return {"system": self.system}
@@ -380,27 +433,59 @@ class MixtureZeroRangeModel(EnergyModel):
         return f"<lossfit model {self.name} for {self.system.label}>"
 
     @property
+    def positive_channel(self):
+        """The a > 0 recombination channel (:func:`mixture_recombination_table`), loaded on
+        first use: phase theta = s0 ln(kappa* a) with kappa* = (kappa* a_+)/a_+, or from a* and
+        eta* (same kappa*, docs/heteronuclear-rates.md) where a_+ and eta_+ are not set."""
+        if self._k3_positive is None:
+            table = mixture_recombination_table(self.system)
+            ratio = table.kappa_star_a_plus / table.kappa_star_a_star
+            self._k3_positive = _EfimovChannel(table, table.kappa_star_a_plus, self.wavenumber_ratio,
+                                               self.k3_prefactor, "a_plus", "eta_plus", 1.0,
+                                               ("a_star", "eta_star", ratio))
+        return self._k3_positive
+
+    def _packed_or_empty(self, which):
+        # a kernel serves both signs of a; a pair built on demand may lack one table (rows of
+        # that sign are refused before the kernel runs)
+        try:
+            return getattr(self, which).table.packed
+        except LossfitValueError:
+            return np.zeros(_U_EMPTY)
+
+    @property
     def three_body_kernel(self):
-        # compiled on first use, with the table baked in (not cached on disk)
+        # compiled on first use, with the tables baked in (not cached on disk)
         if self._kernel is None:
-            packed = self.table.packed
+            packed = self._packed_or_empty("_three_body_channel")
+            packed_pos = self._packed_or_empty("positive_channel")
             pref = self.k3_prefactor
 
             @numba.njit(KERNEL_SIGNATURE)
             def kernel(x, p):
-                # p = [x_s = k_s|a| sqrt(2 mu/m_B), 2 theta, exp(-2 eta), 1 - exp(-4 eta)]
-                t, ph = s11_eval(packed, p[0] * math.sqrt(x))
-                mod = math.sqrt(max(1.0 - t, 0.0)) * p[2]
-                den = 1.0 + 2.0 * mod * math.cos(ph + p[1]) + mod * mod
-                return pref * t * p[3] / (den * x * x)
+                # p = [x_s = k_s|a| sqrt(2 mu/m_B), 2 theta, exp(-2 eta), 1 - exp(-4 eta), sign of a,
+                #      deep weight, shallow weight]
+                if p[4] < 0.0:
+                    t, ph = s11_eval(packed, p[0] * math.sqrt(x))
+                    mod = math.sqrt(max(1.0 - t, 0.0)) * p[2]
+                    den = 1.0 + 2.0 * mod * math.cos(ph + p[1]) + mod * mod
+                    return pref * t * p[3] / (den * x * x)
+                col = np.empty(_POSITIVE_COLUMNS)
+                mixture_recombination_eval(packed_pos, p[0] * math.sqrt(x), col)
+                return pref * p[0] ** 4 * _positive_probability(col, p)
 
-            lo, hi = grid_limits(packed)
+            lo, hi = grid_limits(packed) if packed.size > _U_EMPTY else (1.0, 1.0)
+            lo_pos, hi_pos = (math.exp(packed_pos[1]), packed_pos[3]) if packed_pos.size > _U_EMPTY else (1.0, 1.0)
 
             @numba.njit(FEATURES_SIGNATURE)
             def features(p, out):
                 # the ends of the table grid, where the interpolant meets its limits
-                out[0] = (lo / p[0]) ** 2
-                out[1] = (hi / p[0]) ** 2
+                if p[4] < 0.0:
+                    out[0] = (lo / p[0]) ** 2
+                    out[1] = (hi / p[0]) ** 2
+                else:
+                    out[0] = (lo_pos / p[0]) ** 2
+                    out[1] = (hi_pos / p[0]) ** 2
                 return 2
 
             self._features = features
@@ -413,27 +498,69 @@ class MixtureZeroRangeModel(EnergyModel):
         return self._features
 
     def _check(self, a, channel):
-        if channel not in ("total", "deep", OBSERVED):
+        a = np.asarray(a)
+        if (a < 0).any() and channel not in ("total", "deep", OBSERVED):
             raise LossfitValueError("channel", f"at a < 0 every event forms a deep dimer: use 'total', 'deep' or "
                                     f"'observed' (all the same rate), got {channel!r}")
-        if (np.asarray(a) > 0).any():
-            raise LossfitValueError("a", f"zero-range rates of {self.system.label} are tabulated for a < 0 only; "
-                                    "a > 0 (shallow B-X dimers, atom-dimer loss) is not available yet")
+        if (a > 0).any() and channel not in _POSITIVE_CHANNELS:
+            more = (": lossfit has no dimer kinetics for mixtures; 'total' counts every shallow B-X dimer as "
+                    "lost, 'deep' none of them") if channel == OBSERVED else ""
+            raise LossfitValueError("channel", f"at a > 0 the recombination of {self.system.label} has the channels "
+                                    f"'total', 'deep' and 'shallow' (J = 0), got {channel!r}{more}")
+
+    def _check_positive(self, q, thermal, temperature_ratio=None):
+        """Refuse a > 0 recombination where the table ends: energies beyond it (fixed energy) or
+        temperatures with more than WEIGHT_BEYOND_TABLE_MAX of the three-atom Boltzmann weight
+        there (thermal; Q(3, E_max/k_BT))."""
+        if temperature_ratio is not None:
+            raise LossfitValueError("temperature_x", f"a > 0 recombination of {self.system.label} is averaged at "
+                                    "one temperature only")
+        table = self.positive_channel.table
+        x_e = np.abs(np.ravel(q)) * self.wavenumber_ratio
+        reach = table.x_max ** 2
+        if not thermal:
+            if (x_e > table.x_max).any():
+                raise LossfitValueError("energy", f"a > 0 recombination of {self.system.label} is tabulated up to "
+                                        f"{reach:.3g} hbar^2/(2 mu a^2) (k a = {table.x_max:.6g}); got k a up to "
+                                        f"{x_e.max():.4g}")
+            return
+        weight = weight_above(x_e, table.x_max, 3.0)
+        if (weight > WEIGHT_BEYOND_TABLE_MAX).any():
+            worst = int(np.argmax(weight))
+            raise LossfitValueError("temperature", f"{weight[worst]:.2g} of the three-atom collisions (point "
+                                    f"{worst}: k_BT = {x_e[worst] ** 2:.3g} times the dimer binding energy "
+                                    f"hbar^2/(2 mu a^2)) lie beyond {reach:.3g} times it, where the a > 0 "
+                                    f"recombination table of {self.system.label} ends; lossfit accepts at most "
+                                    f"{WEIGHT_BEYOND_TABLE_MAX:g} (k_BT below {reach / 11.23:.3g} times the binding "
+                                    "energy): lower the temperature or leave such points out")
 
     def two_theta(self, a, a_minus):
         """2 theta = 2 s0 ln(kappa*|a|) at scattering lengths ``a`` (a0) for a_- (a0)."""
         return self._three_body_channel.two_theta(a, a_minus)
 
     def three_body_rows(self, a, efimov, q, channel="total", x_max=U_MAX ** 2):
-        """Parameter rows of :attr:`three_body_kernel` (a < 0 only); as the base class."""
+        """Parameter rows of :attr:`three_body_kernel`; as the base class. At a > 0 ``channel``
+        is 'total', 'deep' or 'shallow' (J = 0) and ``x_max`` = 1 (fixed energy) refuses
+        energies beyond the table, larger values temperatures with too much weight beyond it."""
         self._check(a, channel)
         a = np.asarray(a, dtype=float).ravel()
-        a_minus, eta = efimov.require("a_minus", "eta_minus")
-        rows = np.empty((a.size, 4))
-        rows[:, 0] = np.abs(np.ravel(q)) * self.wavenumber_ratio
-        rows[:, 1] = self.two_theta(a, a_minus)
-        rows[:, 2] = math.exp(-2.0 * eta)
-        rows[:, 3] = -math.expm1(-4.0 * eta)
+        q = np.abs(np.ravel(q))
+        pos = a > 0
+        rows = np.empty((a.size, 7))
+        rows[:, 0] = q * self.wavenumber_ratio
+        rows[:, 4] = np.where(pos, 1.0, -1.0)
+        for side, chan, weights in ((~pos, "_three_body_channel", (1.0, 0.0)),
+                                    (pos, "positive_channel", _POSITIVE_CHANNELS.get(channel))):
+            if not side.any():
+                continue
+            chan = getattr(self, chan)
+            if chan is self.positive_channel:
+                self._check_positive(q[side], thermal=x_max > 1.0)
+            feature, eta = chan.require(efimov)
+            rows[side, 1] = chan.two_theta(a[side], feature)
+            rows[side, 2] = math.exp(-2.0 * eta)
+            rows[side, 3] = -math.expm1(-4.0 * eta)
+            rows[side, 5:7] = weights
         return rows
 
     # -- atom-dimer relaxation at a > 0 -------------------------------------------------
@@ -540,22 +667,52 @@ class MixtureZeroRangeModel(EnergyModel):
 
     def thermal_three_body(self, a, q, efimov, scale, channel="total", temperature_ratio=None):
         # one-off averages: a rule built for the eta at hand
-        eta = efimov.eta_minus
-        eta_min = ETA_MIN if eta is None else min(ETA_MIN, float(np.min(eta)))
+        etas = [v for v in (efimov.eta_minus, efimov.eta_plus, efimov.eta_star) if v is not None]
+        eta_min = min([ETA_MIN] + [float(np.min(v)) for v in etas])
         return self.three_body_plan(a, q, scale, channel=channel, eta_min=eta_min,
                                     temperature_ratio=temperature_ratio).evaluate(efimov)
 
     def three_body_plan(self, a, q, scale, channel="total", eta_min=ETA_MIN, temperature_ratio=None):
         """The fixed rule at fixed points (:class:`MixturePlan`, which explains
-        ``temperature_ratio``)."""
+        ``temperature_ratio``); a < 0 and a > 0 points get a plan each."""
         self._check(a, channel)
-        return MixturePlan(self, np.ravel(a), np.ravel(q), np.ravel(scale), eta_min=eta_min,
-                           temperature_ratio=temperature_ratio)
+        a, q, scale = np.ravel(a), np.ravel(q), np.ravel(scale) * np.ones(np.size(a))
+        ratio = None if temperature_ratio is None else np.broadcast_to(temperature_ratio, a.shape)
+        parts = []
+        for side, weights in ((a < 0, None), (a > 0, _POSITIVE_CHANNELS.get(channel))):
+            index = np.flatnonzero(side)
+            if not index.size:
+                continue
+            if weights is not None:
+                self._check_positive(q[index], thermal=True, temperature_ratio=temperature_ratio)
+            parts.append((index, MixturePlan(self, a[index], q[index], scale[index], eta_min=eta_min,
+                                             temperature_ratio=None if ratio is None else ratio[index],
+                                             positive=weights)))
+        return parts[0][1] if len(parts) == 1 else _SignSplitPlan(parts, a.size)
 
     def atom_dimer_plan(self, a, q, scale, channel="relaxation", eta_min=ETA_MIN):
         """The fixed rule of thermal beta at fixed points (a > 0; :class:`MixturePlan`)."""
         self._check_atom_dimer(a, q, channel, thermal=True)
         return MixturePlan(self, np.ravel(a), np.ravel(q), np.ravel(scale), eta_min=eta_min, process=ATOM_DIMER)
+
+
+class _SignSplitPlan:
+    """The plans of the a < 0 and a > 0 points of one data set, evaluated into one array."""
+
+    def __init__(self, parts, n_points):
+        self.parts = parts
+        self.n_points = n_points
+        self.n_nodes = sum(plan.n_nodes for _, plan in parts)
+
+    def evaluate(self, efimov, out=None):
+        walkers = efimov.n_walkers
+        values = np.empty((walkers, self.n_points) if walkers else self.n_points)
+        for index, plan in self.parts:
+            values[..., index] = plan.evaluate(efimov)
+        if out is None:
+            return values
+        out[...] = values
+        return out
 
 
 class MixturePlan:
@@ -588,9 +745,15 @@ class MixturePlan:
         docs/heteronuclear-rates.md).
     process : int
         :data:`lossfit.thermal.THREE_BODY` (K3, default) or :data:`lossfit.thermal.ATOM_DIMER`.
+    positive : tuple, optional
+        K3 at a > 0: the (deep, shallow) weights of the channel (1, 0 deep; 0, 1 shallow; 1, 1
+        total). The deep part has the form of the other rates with T = T_break; the shallow part
+        the numerator A + 2 Re(B w) + C |w|^2 (docs/heteronuclear-rates.md, "Three-body
+        recombination at a > 0").
     """
 
-    def __init__(self, model, a, q, scale, eta_min=ETA_MIN, temperature_ratio=None, process=THREE_BODY):
+    def __init__(self, model, a, q, scale, eta_min=ETA_MIN, temperature_ratio=None, process=THREE_BODY,
+                 positive=None):
         self.model = model
         self.a = np.asarray(a, dtype=float)
         self.n_points = self.a.size
@@ -599,7 +762,11 @@ class MixturePlan:
             raise LossfitValueError("eta_min", f"must be > 0, got {eta_min!r}")
         if process == ATOM_DIMER and temperature_ratio is not None:
             raise LossfitValueError("temperature_x", "applies to three-body rates only")
-        self.channel = channel = model.atom_dimer_channel if process == ATOM_DIMER else model._three_body_channel
+        if positive is not None:
+            channel = model.positive_channel
+        else:
+            channel = model.atom_dimer_channel if process == ATOM_DIMER else model._three_body_channel
+        self.channel = channel
         x_t = np.abs(np.asarray(q, dtype=float)) * channel.wavenumber_ratio
         ln_x_t = np.log(x_t)
         ratio = None if temperature_ratio is None else np.broadcast_to(np.asarray(temperature_ratio, float), x_t.shape)
@@ -618,7 +785,18 @@ class MixturePlan:
         # (1/2) int e^{-u} u P dt = int e^{-u} u P dy (dt = 2 dy), u = (x/x_T)^2 per point
         # and node: the weights e^{-u} u w_y T per (point, node of its window)
         self._terms = np.ascontiguousarray(np.stack([s.real, s.imag, mod * mod]))
-        self._weights = _point_weights(y, w_y * t, ln_x_t, self._first, self._stop)
+        self._breakup = None
+        bound = t
+        if positive is not None and positive[1] > 0.0:
+            # per node: T_break x deep weight, then A, Re B, Im B, C (the shallow numerator)
+            col = channel.table.columns(np.exp(y)) * np.exp(4.0 * y)[None, :]
+            self._breakup = np.ascontiguousarray(np.r_[positive[0] * t[None, :], col[3:7]])
+            # the largest numerator any eta can give (|w| <= 1), for the trimming below
+            bound = positive[0] * t + col[3] + 2.0 * np.hypot(col[4], col[5]) + col[6]
+            w_y_t = w_y
+        else:
+            w_y_t = w_y * t
+        self._weights = _point_weights(y, w_y_t, ln_x_t, self._first, self._stop)
         if ratio is not None:
             # (1/2) u e^{-u} at one temperature becomes p(u) / u per unit y (dE = 2E dy,
             # K3 ~ 1/E^2), p the density of u = E/k_BT_B at T_X/T_B = ratio
@@ -630,7 +808,9 @@ class MixturePlan:
         # drop the window's ends whose largest possible share (each node's weight over the
         # smallest denominator (1 - |s11| e^{-2 eta_min})^2 it can have) stays below
         # _TRIM of the smallest possible total (denominators <= (1 + |s11|)^2)
-        _trim(self._weights, mod, math.exp(-2.0 * self.eta_min), _TRIM, self._first, self._stop)
+        trim_weights = (self._weights if self._breakup is None
+                        else _point_weights(y, w_y * bound, ln_x_t, self._first, self._stop))
+        _trim(trim_weights, mod, math.exp(-2.0 * self.eta_min), _TRIM, self._first, self._stop)
         theta0 = channel.two_theta(self.a, channel.sign)       # 2 theta at a_- = -1 a0 or a* = 1 a0
         self._theta0 = np.ascontiguousarray(np.stack([np.cos(theta0), np.sin(theta0)]))
         self._scale = np.asarray(scale, dtype=float) * channel.average_prefactor * np.ones(self.n_points)
@@ -640,9 +820,7 @@ class MixturePlan:
         """Thermal K3 or beta at every point in the builder's units, shape (n_points,) or
         (W, n_points) for an Efimov set of W walker arrays."""
         channel = self.channel
-        feature, eta = getattr(efimov, channel.feature), getattr(efimov, channel.eta)
-        if feature is None or eta is None:
-            efimov.require(channel.feature, channel.eta)
+        feature, eta = channel.require(efimov)
         walkers = efimov.n_walkers
         s0 = channel.table.s0
         side = "< 0" if channel.sign < 0 else "> 0"
@@ -659,8 +837,7 @@ class MixturePlan:
             self._one[1, 0] = math.exp(-2.0 * eta)
             self._one[2, 0] = -math.expm1(-4.0 * eta)
             values = np.empty((1, self.n_points))
-            _evaluate(self._terms, self._weights, self._first, self._stop, self._theta0, self._one[0], self._one[1],
-                      self._one[2], self._scale, values)
+            self._sum(self._one[0], self._one[1], self._one[2], values)
         else:
             feature = np.asarray(feature, dtype=float)
             eta = np.asarray(eta, dtype=float)
@@ -672,9 +849,8 @@ class MixturePlan:
                                         "smallest eta this plan resolves; build it with a smaller eta_min")
             rotation = np.broadcast_to(-2.0 * s0 * np.log(np.abs(feature)), (walkers,))
             values = np.empty((walkers, self.n_points))
-            _evaluate(self._terms, self._weights, self._first, self._stop, self._theta0, np.ascontiguousarray(rotation),
-                      np.broadcast_to(np.exp(-2.0 * eta), (walkers,)).copy(),
-                      np.broadcast_to(-np.expm1(-4.0 * eta), (walkers,)).copy(), self._scale, values)
+            self._sum(np.ascontiguousarray(rotation), np.broadcast_to(np.exp(-2.0 * eta), (walkers,)).copy(),
+                      np.broadcast_to(-np.expm1(-4.0 * eta), (walkers,)).copy(), values)
         result = values if walkers else values[0]
         if out is None:
             return result
@@ -682,29 +858,48 @@ class MixturePlan:
         return out
 
 
+    def _sum(self, rotation, e2, g, values):
+        if self._breakup is None:
+            _evaluate(self._terms, self._weights, self._first, self._stop, self._theta0, rotation, e2, g, self._scale,
+                      values)
+        else:
+            _evaluate_breakup(self._terms, self._breakup, self._weights, self._first, self._stop, self._theta0,
+                              rotation, e2, g, self._scale, values)
+
+
 class MixtureThresholdModel(MixtureZeroRangeModel):
-    """The zero-energy law of two identical bosons and a third atom at a < 0 (no thermal
-    average): K3 = 8 pi^2 ((2 m_B + m_X)/m_X)^{3/2} c4 (k|a|)^4/(E/E_s)^2 ... in the limit
-    E -> 0, i.e. hbar a^4/m_B times a function of theta and eta from the table's threshold
-    law (T -> c4 x^4, arg s11 -> delta0). What a fit that ignores the collision energy
-    assumes; compare it with the zero-range model to see the thermal shifts."""
+    """The zero-energy laws of two identical bosons and a third atom (no thermal average),
+    from the tables' threshold limits: at a < 0 K3 = 8 pi^2 ((2 m_B + m_X)/m_X)^{3/2} c4 x_s^4
+    (1 - e^{-4 eta})/|1 + e^{i delta0} w|^2 (T -> c4 x^4, arg s11 -> delta0); at a > 0 the
+    same prefactor times (tau (1 - e^{-4 eta}) [deep] + alpha + 2 Re(b w) + c |w|^2
+    [shallow])/|1 + s_b w|^2 from the zero-energy solves, which is C_deep sinh 2eta/(sinh^2(pi
+    s0 + eta) + cos^2 theta) and, at eta -> 0, C_+ sin^2 theta/(sinh^2 pi s0 + cos^2 theta)
+    (docs/stm-mixture.md section 3). What a fit that ignores the collision energy assumes;
+    compare it with the zero-range model to see the thermal shifts."""
 
     name = "threshold"
     description = "zero-energy law of two identical bosons and a third atom (no thermal average)"
     approximate = True
 
+    def limits(self, positive):
+        """(tau, s, alpha, b, c) of the zero-energy law: a > 0 (``positive``) from the
+        recombination table, a < 0 (c4, e^{i delta0}, 0, 0, 0) from the s11 table."""
+        if positive:
+            lim = self.positive_channel.table.limits
+            return lim["tau"], lim["s_b"], lim["alpha"], lim["b"], lim["c"]
+        return self.table.c4, complex(math.cos(self.table.delta0), math.sin(self.table.delta0)), 0.0, 0j, 0.0
+
     @property
     def three_body_kernel(self):
         if self._kernel is None:
-            pref = self.k3_prefactor * self.table.c4
-            delta0 = self.table.delta0
+            pref = self.k3_prefactor
+            negative = np.array(self._limits_row(False))
+            positive = np.array(self._limits_row(True))
 
             @numba.njit(KERNEL_SIGNATURE)
             def kernel(x, p):
-                # independent of the energy x: pref c4 x_s^4 (1 - e^-4eta)/|1 + e^{i d0} e^{2 i theta - 2 eta}|^2
-                x4 = p[0] * p[0] * p[0] * p[0]
-                den = 1.0 + 2.0 * p[2] * math.cos(delta0 + p[1]) + p[2] * p[2]
-                return pref * x4 * p[3] / den
+                # independent of the energy x: the limits in place of the table columns
+                return pref * p[0] ** 4 * _positive_probability(negative if p[4] < 0.0 else positive, p)
 
             @numba.njit(FEATURES_SIGNATURE)
             def features(p, out):
@@ -714,36 +909,61 @@ class MixtureThresholdModel(MixtureZeroRangeModel):
             self._kernel = kernel
         return self._kernel
 
+    def _limits_row(self, positive):
+        """The limits as the seven table columns (zeros where the table is missing)."""
+        try:
+            tau, s, alpha, b, c = self.limits(positive)
+        except LossfitValueError:
+            return [0.0] * _POSITIVE_COLUMNS
+        return [tau, s.real, s.imag, alpha, b.real, b.imag, c]
+
+    def _check_positive(self, q, thermal, temperature_ratio=None):
+        # the zero-energy law holds (as an approximation) at any energy
+        if temperature_ratio is not None:
+            raise LossfitValueError("temperature_x", "the zero-energy law does not depend on the temperatures")
+        self.positive_channel
+
     def _check_atom_dimer(self, a, q, channel, thermal):
         raise LossfitValueError("model", f"'threshold' gives the zero-energy three-body law of {self.system.label} "
-                                "at a < 0 only; atom-dimer relaxation needs model='zero-range'")
+                                "only; atom-dimer relaxation needs model='zero-range'")
 
     def three_body_plan(self, a, q, scale, channel="total", eta_min=ETA_MIN, temperature_ratio=None):
         # the zero-energy law does not depend on the collision energies
         self._check(a, channel)
-        return _ThresholdPlan(self, np.ravel(a), np.ravel(q), np.ravel(scale))
+        a = np.ravel(a)
+        parts = [(index, _ThresholdPlan(self, a[index], np.ravel(q)[index], (np.ravel(scale) * np.ones(a.size))[index],
+                                        weights))
+                 for index, weights in ((np.flatnonzero(a < 0), None),
+                                        (np.flatnonzero(a > 0), _POSITIVE_CHANNELS.get(channel)))
+                 if index.size]
+        return parts[0][1] if len(parts) == 1 else _SignSplitPlan(parts, a.size)
 
 
 class _ThresholdPlan:
-    """The zero-energy law at fixed points: closed form per walker."""
+    """The zero-energy law at fixed points of one sign of a: closed form per walker."""
 
-    def __init__(self, model, a, q, scale):
+    def __init__(self, model, a, q, scale, positive=None):
         self.model, self.a = model, np.asarray(a, dtype=float)
         self.n_points = self.a.size
+        self.n_nodes = 0
+        self.channel = model.positive_channel if positive is not None else model._three_body_channel
+        self.deep, self.shallow = (1.0, 0.0) if positive is None else positive
+        self.tau, self.s, self.alpha, self.b, self.c = model.limits(positive is not None)
         x4 = (np.abs(np.asarray(q, dtype=float)) * model.wavenumber_ratio) ** 4
-        self._scale = np.asarray(scale, dtype=float) * model.k3_prefactor * model.table.c4 * x4
-        self._theta0 = model.two_theta(self.a, -1.0) + model.table.delta0
+        self._scale = np.asarray(scale, dtype=float) * model.k3_prefactor * x4
+        self._theta0 = self.channel.two_theta(self.a, self.channel.sign)
 
     def evaluate(self, efimov, out=None):
-        a_minus, eta = efimov.require("a_minus", "eta_minus")
-        a_minus = np.asarray(a_minus, dtype=float)[..., None]
+        feature, eta = self.channel.require(efimov)
+        feature = np.asarray(feature, dtype=float)[..., None]
         eta = np.asarray(eta, dtype=float)[..., None]
-        if (a_minus >= 0).any():
-            raise LossfitValueError("a_minus", "must be < 0 a0")
-        e2 = np.exp(-2.0 * eta)
-        angle = self._theta0 - 2.0 * self.model.table.s0 * np.log(-a_minus)
-        # (n_points,) for one walker (scalars broadcast), (W, n_points) for walker arrays
-        values = self._scale * -np.expm1(-4.0 * eta) / (1.0 + 2.0 * e2 * np.cos(angle) + e2 * e2)
+        if (feature * self.channel.sign <= 0).any():
+            raise LossfitValueError(self.channel.feature, f"must be {'<' if self.channel.sign < 0 else '>'} 0 a0")
+        # w = e^{2 i theta - 2 eta}; (n_points,) for one walker (scalars broadcast), (W, n_points) for arrays
+        w = np.exp(1j * (self._theta0 - 2.0 * self.channel.table.s0 * np.log(np.abs(feature))) - 2.0 * eta)
+        numerator = (self.deep * self.tau * -np.expm1(-4.0 * eta)
+                     + self.shallow * (self.alpha + 2.0 * (self.b * w).real + self.c * np.abs(w) ** 2))
+        values = self._scale * numerator / np.abs(1.0 + self.s * w) ** 2
         if out is None:
             return values
         out[...] = values
@@ -800,3 +1020,32 @@ def _evaluate(terms, weights, first, stop, theta0, rotation, e2, g, scale, out):
             for j in range(first[i], stop[i]):
                 total += weights[i, j] / (1.0 + terms[0, j] * ca - terms[1, j] * sa + e_sq * terms[2, j])
             out[w, i] = scale[i] * g[w] * total
+
+
+@numba.njit(cache=True, fastmath=True)
+def _evaluate_breakup(terms, numer, weights, first, stop, theta0, rotation, e2, g, scale, out):
+    # as _evaluate, with the numerator of a > 0 recombination per node j:
+    # g_w numer[0, j] (deep: weight x T_break) + A_j + 2 Re(B_j w) + C_j |w|^2 (shallow)
+    for w in range(rotation.size):
+        cos_r, sin_r = math.cos(rotation[w]), math.sin(rotation[w])
+        for i in range(theta0.shape[1]):
+            c = theta0[0, i] * cos_r - theta0[1, i] * sin_r
+            s = theta0[1, i] * cos_r + theta0[0, i] * sin_r
+            ca, sa, e_sq = 2.0 * e2[w] * c, 2.0 * e2[w] * s, e2[w] * e2[w]
+            total = 0.0
+            for j in range(first[i], stop[i]):
+                num = g[w] * numer[0, j] + numer[1, j] + numer[2, j] * ca - numer[3, j] * sa + e_sq * numer[4, j]
+                total += weights[i, j] * num / (1.0 + terms[0, j] * ca - terms[1, j] * sa + e_sq * terms[2, j])
+            out[w, i] = scale[i] * total
+
+
+@numba.njit(cache=True)
+def _positive_probability(col, p):
+    """(deep + shallow) J = 0 probability over x^4 at a > 0 from the table columns ``col``
+    (T_break, Re s, Im s, A, Re B, Im B, C, all but s over x^4) and a kernel row ``p``
+    (2 theta, e^{-2 eta}, 1 - e^{-4 eta} in p[1:4], deep and shallow weights in p[5:7])."""
+    wr, wi = p[2] * math.cos(p[1]), p[2] * math.sin(p[1])
+    w2 = p[2] * p[2]
+    den = 1.0 + 2.0 * (col[1] * wr - col[2] * wi) + (col[1] * col[1] + col[2] * col[2]) * w2
+    shallow = col[3] + 2.0 * (col[4] * wr - col[5] * wi) + col[6] * w2
+    return (p[5] * p[3] * col[0] + p[6] * shallow) / den

@@ -26,11 +26,16 @@ convention), both with the last difference decaying like 1/x.
 
 The tables ``data/s_ad_mixture_<B>_<X>.npz`` (``scripts/make_mixture_atom_dimer_tables.py``,
 docs/heteronuclear-rates.md) hold s_AD(k a) and T_AD(k a) of a boson B colliding with the
-shallow B-X dimer at a > 0, below and above breakup: :class:`MixtureAtomDimerTable`.
+shallow B-X dimer at a > 0, below and above breakup: :class:`MixtureAtomDimerTable`; the
+tables ``data/k3_positive_mixture_<B>_<X>.npz`` (``scripts/make_mixture_recombination_tables.py``)
+the J = 0 three-body recombination at a > 0 into shallow and deep dimers:
+:class:`MixtureRecombinationTable`.
 """
 
-__all__ = ["S11Table", "AtomDimerTable", "RecombinationTable", "MixtureAtomDimerTable", "load_s11_table",
-           "load_atom_dimer_table", "load_recombination_table", "load_mixture_atom_dimer_table", "table_path",
+__all__ = ["S11Table", "AtomDimerTable", "RecombinationTable", "MixtureAtomDimerTable", "MixtureRecombinationTable",
+           "load_s11_table", "load_atom_dimer_table", "load_recombination_table", "load_mixture_atom_dimer_table",
+           "load_mixture_recombination_table", "mixture_recombination_eval", "mixture_recombination_values",
+           "table_path",
            "cache_directory", "spline_coefficients"]
 
 import cmath
@@ -751,4 +756,121 @@ def load_mixture_atom_dimer_table(path):
     """A mixture's a > 0 atom-dimer table (loaded once per process)."""
     if path not in _CACHE:
         _CACHE[path] = MixtureAtomDimerTable(path)
+    return _CACHE[path]
+
+
+_MRC_HEADER = 11        # n, ln x_0, step, x_last, tau, Re s_b, Im s_b, alpha, Re b, Im b, c
+_MRC_COLUMNS = 7        # T_break/x^4, Re s_AD, Im s_AD, A/x^4, Re B/x^4, Im B/x^4, C/x^4
+
+
+class MixtureRecombinationTable:
+    """Spline coefficients of the a > 0, J = 0 recombination quantities of two bosons and a
+    third atom, packed for numba (``data/k3_positive_mixture_<B>_<X>.npz``, written by
+    :func:`lossfit.universal.solver.mixture_recombination.build_table`).
+
+    Against x = k a (three-atom energy E = hbar^2 k^2/(2 mu) = x^2 E_D): T_break/x^4, s_AD and
+    the breakup coefficients A/x^4, B/x^4, C/x^4 (docs/heteronuclear-rates.md, "Three-body
+    recombination at a > 0"). Not-a-knot cubic splines in ln x on the grid; below it every
+    column runs linearly in x to its threshold limit (tau, s_b, alpha, b, c, from zero-energy
+    solves); beyond it the last node's values are held (the runtime limits the weight there).
+
+    Attributes
+    ----------
+    packed : ndarray
+        1-D float array consumed by :func:`mixture_recombination_eval`.
+    x : ndarray
+        The grid of x = k a.
+    x_max : float
+        The last grid point.
+    s0, mass_ratio : float
+        Efimov exponent and m_B/m_X.
+    kappa_star_a_star, kappa_star_a_plus : float
+        kappa* a* (the phase convention theta = s0 ln(kappa* a) shared with the atom-dimer
+        table) and kappa* a_+ (the zero of the eta -> 0 threshold shallow rate, from the
+        solver), kappa* with E_T = -hbar^2 kappa*^2/(2 mu).
+    limits : dict
+        tau, s_b, alpha, b, c.
+    metadata : dict
+    """
+
+    def __init__(self, path):
+        with _open_table(path) as d:
+            x = np.array(d["x"])
+            cols = np.array(d["columns"])
+            self.limits = {"tau": float(d["threshold_tau"]), "s_b": complex(d["threshold_s"]),
+                           "alpha": float(d["threshold_alpha"]), "b": complex(d["threshold_b"]),
+                           "c": float(d["threshold_c"])}
+            self.kappa_star_a_star = float(d["kappa_star_a_star"])
+            self.kappa_star_a_plus = float(d["kappa_star_a_plus"])
+            self.s0 = float(d["s0"])
+            self.mass_ratio = float(d["mass_ratio"])
+            self.metadata = json.loads(str(d["metadata"]))
+        lnx = np.log(x)
+        if lnx.size < 4 or not np.allclose(np.diff(lnx), lnx[1] - lnx[0], rtol=1e-9, atol=0):
+            raise LossfitError(f"{path!r}: the grid is not uniform in ln x (or has < 4 points)")
+        lim = self.limits
+        header = np.array([x.size, lnx[0], lnx[1] - lnx[0], x[-1], lim["tau"], lim["s_b"].real, lim["s_b"].imag,
+                           lim["alpha"], lim["b"].real, lim["b"].imag, lim["c"]])
+        assert header.size == _MRC_HEADER and cols.shape[1] == _MRC_COLUMNS
+        self.x = x
+        self.x_max = float(x[-1])
+        self.packed = np.concatenate([header] + [spline_coefficients(lnx, c).T.ravel() for c in cols.T])
+
+    def columns(self, x):
+        """The seven columns (T_break/x^4, Re s, Im s, A/x^4, Re B/x^4, Im B/x^4, C/x^4) at x
+        (array), shape (7,) + x.shape, as the runtime kernels evaluate them."""
+        x = np.asarray(x, dtype=float)
+        out = mixture_recombination_values(self.packed, np.ascontiguousarray(x.ravel()))
+        return out.reshape((_MRC_COLUMNS,) + x.shape)
+
+    def amplitudes(self, x):
+        """(T_break, s_AD) at x = k a (arrays): the deep channel's (T, s) for the fixed rule."""
+        c = self.columns(x)
+        return c[0] * np.asarray(x, dtype=float) ** 4, c[1] + 1j * c[2]
+
+    def kinks(self):
+        """(first grid point, last grid point) in x: where the kernels have kinks."""
+        return float(self.x[0]), self.x_max
+
+
+@numba.njit(cache=True)
+def mixture_recombination_eval(packed, x, out):
+    """The seven columns of a packed :class:`MixtureRecombinationTable` at x = k a > 0 into
+    ``out`` (held at the last node beyond the grid; linear in x to the threshold limits
+    below it)."""
+    n, lnx0, h = int(packed[0]), packed[1], packed[2]
+    stride = 4 * (n - 1)
+    if x >= packed[3]:
+        for c in range(_MRC_COLUMNS):
+            out[c] = _spline(packed, _MRC_HEADER + c * stride, n - 2, h)
+        return
+    lnx = math.log(x)
+    if lnx <= lnx0:
+        r = x / math.exp(lnx0)
+        # limits in the order of the columns
+        for c in range(_MRC_COLUMNS):
+            first = _spline(packed, _MRC_HEADER + c * stride, 0, 0.0)
+            out[c] = packed[4 + c] + (first - packed[4 + c]) * r
+        return
+    i = min(int((lnx - lnx0) / h), n - 2)
+    dx = lnx - (lnx0 + i * h)
+    for c in range(_MRC_COLUMNS):
+        out[c] = _spline(packed, _MRC_HEADER + c * stride, i, dx)
+
+
+@numba.njit(cache=True)
+def mixture_recombination_values(packed, x):
+    """:func:`mixture_recombination_eval` at every x of an array: shape (7, x.size)."""
+    out = np.empty((_MRC_COLUMNS, x.size))
+    one = np.empty(_MRC_COLUMNS)
+    for j in range(x.size):
+        mixture_recombination_eval(packed, x[j], one)
+        out[:, j] = one
+    return out
+
+
+def load_mixture_recombination_table(path):
+    """A mixture's a > 0 recombination table (loaded once per process)."""
+    if path not in _CACHE:
+        _CACHE[path] = MixtureRecombinationTable(path)
     return _CACHE[path]
