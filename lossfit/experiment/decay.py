@@ -98,7 +98,8 @@ N + 2 N_D; a dimer population far below N needs no relative accuracy of its own)
 
 __all__ = ["DecaySolution", "TabulatedRate", "TabulatedKinetics", "KINETICS_FIELDS", "kinetics_columns",
            "tabulate_rate",
-           "simulate_decay", "DecayBatch", "BatchResult", "simulate_decay_batch", "DIMER_MODES", "METHODS"]
+           "simulate_decay", "DecayBatch", "BatchResult", "PackedTables", "simulate_decay_batch", "DIMER_MODES",
+           "METHODS"]
 
 import math
 import warnings
@@ -1219,6 +1220,29 @@ class BatchResult(NamedTuple):
     counted: np.ndarray
 
 
+class PackedTables(NamedTuple):
+    """Rate tables of every curve of a :class:`DecayBatch`, already in the integrator's
+    layout: a caller that makes many tables at once (a likelihood, for every walker)
+    passes them without building one :class:`TabulatedRate` per curve.
+
+    Attributes
+    ----------
+    knots : ndarray
+        ln T knots (T in nK) of all curves, concatenated.
+    coefs : ndarray, shape (4, total intervals)
+        Cubic coefficients of ln rate (rate in cm^6/s or cm^3/s) in ln T, per interval, as
+        :class:`TabulatedRate` holds them, concatenated over curves.
+    knot_offsets, coef_offsets : ndarray of int64, shape (n_curves + 1,)
+        Curve j owns knots[knot_offsets[j]:knot_offsets[j+1]] and
+        coefs[:, coef_offsets[j]:coef_offsets[j+1]].
+    """
+
+    knots: np.ndarray
+    coefs: np.ndarray
+    knot_offsets: np.ndarray
+    coef_offsets: np.ndarray
+
+
 _NO_OFFSETS = {}
 
 
@@ -1226,6 +1250,12 @@ def _pack_rates(name, value, m, column, kinetics=None):
     """Per-curve rates -> (knots, coefs, knot offsets, column offsets); constants go into
     ``column``. A list may mix constants and tables; TabulatedKinetics entries are
     accepted when ``kinetics`` (a bool array, set True for them) is given."""
+    if isinstance(value, PackedTables):
+        if value.knot_offsets.shape != (m + 1,) or value.coef_offsets.shape != (m + 1,):
+            raise LossfitValueError(name, f"packed tables for {value.knot_offsets.size - 1} curves, "
+                                    f"the batch has {m}")
+        column[:] = 0.0
+        return value
     if isinstance(value, _SplineTable):
         value = [value] * m
     if isinstance(value, (list, tuple)) and any(isinstance(x, _SplineTable) for x in value):
@@ -1318,6 +1348,24 @@ class DecayBatch:
         self._counts = np.array([_flag("counts_dimers", x) for x in flags])
         self._point_counts = np.repeat(self._counts, [x.size for x in ts])
         self._y0 = np.zeros((m, _DIM))
+
+    def repeated(self, copies):
+        """This batch with its curves repeated ``copies`` times (curve j of copy c is
+        curve c n_curves + j): one compiled call integrates a curve set for many parameter
+        sets, e.g. every walker of an ensemble."""
+        if not (isinstance(copies, (int, np.integer)) and copies >= 1):
+            raise LossfitValueError("copies", f"must be a positive integer, got {copies!r}")
+        out = object.__new__(DecayBatch)
+        out.__dict__.update(self.__dict__)
+        out.n_curves = self.n_curves * copies
+        out.times = self.times * copies
+        out.offsets = np.cumsum([0] + [x.size for x in out.times]).astype(np.int64)
+        out._t_all = np.tile(self._t_all, copies)
+        out._p = np.tile(self._p, (copies, 1))
+        out._counts = np.tile(self._counts, copies)
+        out._point_counts = np.tile(self._point_counts, copies)
+        out._y0 = np.zeros((out.n_curves, _DIM))
+        return out
 
     @property
     def n2_coefficients(self):

@@ -54,19 +54,33 @@ class CampaignSpace(ParameterSpace):
             self._correlated = (idx, np.asarray(mean, dtype=float), np.linalg.inv(cov), sd, const)
 
     def log_prior(self, theta):
+        """log prior of one point (ndim,), or one per row of (W, ndim)."""
         lp = super().log_prior(theta)
-        if self._correlated is None or lp == -math.inf:
+        if self._correlated is None:
             return lp
         idx, mean, inv, sd, const = self._correlated
-        d = self._signs[idx] * np.exp(np.asarray(theta, dtype=float)[idx]) - mean
-        return lp - 0.5 * float(d @ inv @ d) + 0.5 * float(np.sum((d / sd) ** 2)) + const
+        theta = np.asarray(theta, dtype=float)
+        d = self._signs[idx] * np.exp(theta[..., idx]) - mean
+        if theta.ndim == 1:
+            if lp == -math.inf:
+                return lp
+            return lp - 0.5 * float(d @ inv @ d) + 0.5 * float(np.sum((d / sd) ** 2)) + const
+        joint = np.einsum("wi,ij,wj->w", d, inv, d)
+        return np.where(np.isfinite(lp), lp - 0.5 * joint + 0.5 * np.sum((d / sd) ** 2, axis=1) + const, -math.inf)
 
     def physical(self, theta):
         return self._signs * np.exp(np.asarray(theta, dtype=float))
 
     def values(self, theta):
+        """Dict name -> value of every parameter; for theta (W, ndim) the free values are
+        arrays of W walkers."""
         out = dict(self.fixed)
         out.update(self.fixed_systematics)
+        theta = np.asarray(theta, dtype=float)
+        if theta.ndim == 2:
+            for i, (name, sign) in enumerate(zip(self.names, self._signs)):
+                out[name] = sign * np.exp(theta[:, i])
+            return out
         for name, sign, t in zip(self.names, self._signs, theta):
             out[name] = sign * math.exp(t)
         return out

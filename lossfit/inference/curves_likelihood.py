@@ -77,7 +77,14 @@ from ..data.curves import check_curves
 from ..data.spectra import LossSpectrum
 from ..dimer_kinetics import DEFAULT_DEPTH_OVER_T
 from ..errors import LossfitValueError
-from ..experiment.decay import KINETICS_FIELDS, DecayBatch, TabulatedKinetics, TabulatedRate, kinetics_columns
+from ..experiment.decay import (
+    KINETICS_FIELDS,
+    DecayBatch,
+    PackedTables,
+    TabulatedKinetics,
+    TabulatedRate,
+    kinetics_columns,
+)
 from ..experiment.feshbach import resonance_scattering_length
 from ..experiment.trap import as_trap
 from ..rates import natural_unit
@@ -246,6 +253,8 @@ class CurvesLikelihood:
                                 recombination_heating_nK=recombination_heating_nK, rtol=_INTEGRATOR_RTOL,
                                 counts_dimers=[c.counts_dimers for c in self.curves])
         self.offsets = self.batch.offsets
+        self._batches = {1: self.batch}
+        self._packing = {}
         self.recombination_heating = np.broadcast_to(np.asarray(recombination_heating_nK, dtype=float),
                                                      (m,)).copy()
         self.t_max = np.array([c.t[-1] for c in self.curves])
@@ -415,6 +424,31 @@ class CurvesLikelihood:
     def tables(self, efimov, values):
         """Per-curve rate tables (cm^6/s or cm^3/s, on measured numbers; TabulatedKinetics for
         the curves with explicit dimers) or None if invalid."""
+        parts = self._spline_coefficients(efimov, values)
+        if parts is None:
+            return None
+        coefs, kinetics = parts
+        out = [_FastTable(self._knots_all[j], coefs[j], self.grid[j], None) for j in range(self.n_curves)]
+        if kinetics is not None:
+            for i, j in enumerate(self.blocks["kinetics"][0]):
+                out[j] = _FastKinetics(self._knots_all[j], kinetics[i], self.grid[j])
+        return out
+
+    def _packed(self, coefs):
+        """Spline coefficients (c m, 4, n_knots - 1) of c sets of effective rates, packed for
+        the decay batch without one table object per curve."""
+        count = coefs.shape[0]
+        if count not in self._packing:
+            self._packing[count] = (np.tile(self._knots_all.ravel(), count // self.n_curves),
+                                    np.arange(count + 1, dtype=np.int64) * self.n_knots,
+                                    np.arange(count + 1, dtype=np.int64) * (self.n_knots - 1))
+        knots, knot_offsets, coef_offsets = self._packing[count]
+        return PackedTables(knots, np.ascontiguousarray(coefs.transpose(1, 0, 2)).reshape(4, -1), knot_offsets,
+                            coef_offsets)
+
+    def _spline_coefficients(self, efimov, values):
+        """(coefficients (m, 4, n_knots - 1) of ln rate per curve, kinetics coefficients of
+        the explicit-dimer curves or None), or None if invalid."""
         a = self.scattering_lengths(values)
         if np.any(np.sign(a) != self.signs):
             return None            # a resonance shift moved a curve across the pole
@@ -448,12 +482,7 @@ class CurvesLikelihood:
             power = 2.0 if kind == "l3" else 1.0
             logv[idx] = np.log(pred) - power * math.log(s_n)
         # spline coefficients are linear in the tabulated values: one matrix product
-        coefs = (logv @ self._spline_rows).reshape(self.n_curves, 4, -1)     # (m, 4, n_knots - 1)
-        out = [_FastTable(self._knots_all[j], coefs[j], self.grid[j], None) for j in range(self.n_curves)]
-        if kinetics is not None:
-            for i, j in enumerate(self.blocks["kinetics"][0]):
-                out[j] = _FastKinetics(self._knots_all[j], kinetics[i], self.grid[j])
-        return out
+        return (logv @ self._spline_rows).reshape(self.n_curves, 4, -1), kinetics     # (m, 4, n_knots - 1)
 
     def _kinetics_coefficients(self, parts, n, s_n):
         """Spline coefficients (n, 4, 6 (n_knots - 1)) of the kinetics tables of ``n`` curves
@@ -468,43 +497,68 @@ class CurvesLikelihood:
         coefs = (kinetics_columns(avg).reshape(-1, self.n_knots) @ self._spline_rows).reshape(6, n, 4, -1)
         return np.ascontiguousarray(coefs.transpose(1, 2, 0, 3)).reshape(n, 4, -1)
 
+    def _batch_for(self, copies):
+        """The decay batch of ``copies`` repetitions of the campaign (one per walker)."""
+        if copies not in self._batches:
+            self._batches[copies] = self.batch.repeated(copies)
+        return self._batches[copies]
+
     def _solve(self, x, tables, s_t):
+        """Integrate ``c`` copies of every curve: x (c m, 4), tables (c m, or PackedTables),
+        s_t (c,)."""
+        copies = x.shape[0] // self.n_curves
+        per_curve = np.repeat(np.asarray(s_t, dtype=float), self.n_curves)
         n0 = np.exp(x[:, 0])
-        t0_true = np.exp(x[:, 2]) / s_t
-        gamma = np.maximum(x[:, 3], 0.0) / self.t_max
-        d = self.dimers
+        t0_true = np.exp(x[:, 2]) / per_curve
+        gamma = np.maximum(x[:, 3], 0.0) / np.tile(self.t_max, copies)
+        batch = self._batch_for(copies)
+        if not self.dimers.any():
+            return batch(n0, t0_true, tables, gamma)
         # the one-body rate: of the dimers in a mixture, of atoms and trapped dimers alike
         # with the explicit kinetics (the batch's default), of the atoms otherwise
-        if not d.any():
-            return self.batch(n0, t0_true, tables, gamma)
+        d, explicit = np.tile(self.dimers, copies), np.tile(self.explicit, copies)
         atoms0 = np.where(d, np.exp(x[:, 1]), n0)
         l3 = [0.0 if d[j] else tab for j, tab in enumerate(tables)]
         beta = [tab if d[j] else 0.0 for j, tab in enumerate(tables)]
-        return self.batch(atoms0, t0_true, l3, np.where(d, 0.0, gamma), n_dimers0=np.where(d, n0, 0.0),
-                          beta=beta, gamma_dimer=np.where(d | self.explicit, gamma, 0.0))
+        return batch(atoms0, t0_true, l3, np.where(d, 0.0, gamma), n_dimers0=np.where(d, n0, 0.0),
+                     beta=beta, gamma_dimer=np.where(d | explicit, gamma, 0.0))
 
     def residuals(self, x, tables, s_t):
         """Normalised residuals of all curves for nuisance coordinates ``x`` (m, 4)."""
-        res = self._solve(x, tables, s_t)
-        main = np.where(self._point_is_dimer, res.dimers, res.counted) if self.dimers.any() else res.counted
+        r, res = self._residuals_many(x[None], tables, np.array([s_t], dtype=float))
+        return r[0], res
+
+    def _residuals_many(self, x, tables, s_t):
+        """Residuals (c, n_res + 1) of ``c`` parameter sets at once: x (c, m, 4), tables
+        (c m; set after set), s_t (c,); the last column is the zero the padding points at."""
+        copies = x.shape[0]
+        res = self._solve(x.reshape(-1, self.k), tables, s_t)
+        counted = res.counted.reshape(copies, -1)
+        main = (np.where(self._point_is_dimer, res.dimers.reshape(copies, -1), counted)
+                if self.dimers.any() else counted)
         parts = [(main - self.main) / self.main_err,
-                 (s_t * res.temperature[self.t_mask] - self.t_data) / self.t_err,
-                 (res.atoms[self.p_mask] - self.p_data) / self.p_err,
-                 (np.exp(x[self.t0_curves, 2]) - self.t0_data) / self.t0_err,
-                 (np.exp(x[self.na_curves, 1]) - self.na_data) / self.na_err]
-        return np.concatenate(parts + [np.zeros(1)]), res
+                 (s_t[:, None] * res.temperature.reshape(copies, -1)[:, self.t_mask] - self.t_data) / self.t_err,
+                 (res.atoms.reshape(copies, -1)[:, self.p_mask] - self.p_data) / self.p_err,
+                 (np.exp(x[:, self.t0_curves, 2]) - self.t0_data) / self.t0_err,
+                 (np.exp(x[:, self.na_curves, 1]) - self.na_data) / self.na_err]
+        return np.concatenate(parts + [np.zeros((copies, 1))], axis=1), res
 
     def _chord_step(self, x, r):
-        per_curve = r[self.res_index]                              # (m, width)
-        new = x - np.einsum("jkn,jn->jk", self.pinv, per_curve)
-        low = new[:, 3] < 0.0
+        """One chord Gauss-Newton step of every curve: x (m, 4) or (c, m, 4), r (n_res + 1,)
+        or (c, n_res + 1)."""
+        if x.ndim == 2:
+            return self._chord_step(x[None], r[None])[0]
+        per_curve = r[:, self.res_index]                              # (c, m, width)
+        new = x - np.einsum("jkn,cjn->cjk", self.pinv, per_curve)
+        low = new[..., 3] < 0.0
         if low.any():
             # Gamma would turn negative: put it on its bound and re-solve the others
+            j = np.nonzero(low)[1]
             fixed = x[low].copy()
             fixed[:, 3] = 0.0
             # residuals at Gamma = 0, linearised: r + J_gamma (0 - gamma)
-            r_fixed = per_curve[low] - self.jac[low][:, :, 3] * x[low, 3][:, None]
-            fixed -= np.einsum("jkn,jn->jk", self.pinv_fixed_gamma[low], r_fixed)
+            r_fixed = per_curve[low] - self.jac[j][:, :, 3] * x[low][:, 3][:, None]
+            fixed -= np.einsum("jkn,jn->jk", self.pinv_fixed_gamma[j], r_fixed)
             fixed[:, 3] = 0.0
             new[low] = fixed
         return new
@@ -513,26 +567,64 @@ class CurvesLikelihood:
         """log L for the Efimov set and a dict of every parameter value (nuisances)."""
         return self(efimov, values)
 
+    #: Posterior.batch hands whole walker sets (:meth:`__call__`).
+    vectorized = True
+
     def __call__(self, efimov, values):
-        tables = self.tables(efimov, values)
-        if tables is None:
-            return -math.inf
-        s_t = values.get("temperature_scale", 1.0)
+        """log L of one parameter set (floats), or of every walker of a walker-array set
+        (``Efimov.trusted`` with arrays, values of W walkers): an array of W. The curves of
+        all walkers are integrated in one batched call."""
+        if not efimov.n_walkers:
+            return float(self._log_likelihoods([efimov], [values])[0])
+        count = efimov.n_walkers
+        per_walker = [{k: (float(np.asarray(v).reshape(-1)[w]) if np.ndim(v) else v) for k, v in values.items()}
+                      for w in range(count)]
+        return self._log_likelihoods(efimov.walkers(), per_walker)
+
+    def _log_likelihoods(self, efimovs, values):
+        out = np.full(len(efimovs), -math.inf)
+        # atom curves with effective rates only: the tables go packed (no object per curve)
+        packed = not (self.dimers.any() or self.explicit.any())
+        tables, s_t, ok = [], [], []
+        for w, (ef, vals) in enumerate(zip(efimovs, values)):
+            t = self._spline_coefficients(ef, vals) if packed else self.tables(ef, vals)
+            if t is not None:
+                if packed:
+                    tables.append(t[0])
+                else:
+                    tables += t
+                s_t.append(vals.get("temperature_scale", 1.0))
+                ok.append(w)
+        if not ok:
+            return out
+        if packed:
+            tables = self._packed(np.concatenate(tables))
         try:
-            x = self.x_ref
-            r, _ = self.residuals(x, tables, s_t)
-            if self.inner_steps == 0:
-                step = self._chord_step(x, r)
-                lin = r[:-1] + np.einsum("jnk,jk->jn", self.jac, step - x)[self._flat_owner()]
-                chi2 = float(lin @ lin)
-            else:
-                for _ in range(self.inner_steps):
-                    x = self._chord_step(x, r)
-                    r, _ = self.residuals(x, tables, s_t)
-                chi2 = float(r @ r)
+            out[ok] = self._chi2_many(tables, np.array(s_t, dtype=float)) * -0.5
         except LossfitValueError:
-            return -math.inf     # T(t) left the table or the integrator failed: outside support
-        return -0.5 * chi2 if math.isfinite(chi2) else -math.inf
+            if len(ok) == 1:
+                return out     # T(t) left the table or the integrator failed: outside support
+            # one walker's curve failed: the others keep their values (each set alone)
+            for w in ok:
+                out[w] = self._log_likelihoods([efimovs[w]], [values[w]])[0]
+            return out
+        out[~np.isfinite(out)] = -math.inf
+        return out
+
+    def _chi2_many(self, tables, s_t):
+        """chi2 after the chord steps for c parameter sets (tables of c m curves, s_t (c,))."""
+        copies = s_t.size
+        x = np.broadcast_to(self.x_ref, (copies,) + self.x_ref.shape)
+        r, _ = self._residuals_many(x, tables, s_t)
+        if self.inner_steps == 0:
+            step = self._chord_step(x, r)
+            curve, slot = self._flat_owner()
+            lin = r[:, :-1] + np.einsum("jnk,cjk->cjn", self.jac, step - x)[:, curve, slot]
+            return np.einsum("ci,ci->c", lin, lin)
+        for _ in range(self.inner_steps):
+            x = self._chord_step(x, r)
+            r, _ = self._residuals_many(x, tables, s_t)
+        return np.einsum("ci,ci->c", r, r)
 
     def fit_check(self, space, kept_theta, median_values):
         """(checks dict, messages) of a finished fit: chi^2 of the curves (and the initial-value

@@ -25,7 +25,7 @@ from .campaign_space import EXTRA_NAMES, SYSTEMATIC_NAMES, CampaignSpace, system
 from .curve_fits import fit_curve
 from .curves_likelihood import CurvesLikelihood
 from .parameters import default_priors
-from .posterior import Posterior, check_run_settings, coerce_priors, interactive, make_result, walker_ball
+from .posterior import Posterior, WalkerBlocks, check_run_settings, coerce_priors, interactive, make_result, walker_ball
 from .priors import Normal
 from .sampling import open_backend, sample, stop_record
 
@@ -185,9 +185,11 @@ def fit_curves(curves, *, species, free, model=None, priors=None, resonance=None
         likelihood.refresh(space.efimov(vals), vals)
         p0 = np.zeros((walkers, space.ndim))
     show = interactive() if progress is None else bool(progress)
-    run = sample(posterior, p0, steps, backend=store, pool=pool, seed=int(rng.integers(2 ** 31)),
-                 progress=show, log_every=log_every, checkpoint_every=checkpoint_every, names=space.names,
-                 metadata=metadata, max_steps=max_steps)
+    # the whole half-ensemble per call (every walker's curves in one batched integration),
+    # split into one block per worker of the pool
+    run = sample(WalkerBlocks(posterior, pool), p0, steps, backend=store, pool=None, vectorize=True,
+                 seed=int(rng.integers(2 ** 31)), progress=show, log_every=log_every,
+                 checkpoint_every=checkpoint_every, names=space.names, metadata=metadata, max_steps=max_steps)
     settings = {"walkers": walkers, "steps": int(run.chain.shape[0]), "seed": seed, "model": mdl.name,
                 "free": ",".join(space.names), "tie": tie or "", "curves": likelihood.n_curves,
                 "inner_steps": inner_steps, "route": "global fit of decay curves",
