@@ -163,7 +163,7 @@ class ParameterSpace:
 _RESONANCE_SIDE = {"l3": (-1.0, 4), "beta": (1.0, 1)}
 
 
-def first_period_window(spectra, period, kind="l3"):
+def first_period_window(spectra, period, kind="l3", sign=None, minimum=False):
     """|a| range (a0) of one Efimov period around the first loss resonance in the data.
 
     Where features repeat every ``period`` in |a| (two bosons and a third atom), a_- and a*
@@ -172,16 +172,19 @@ def first_period_window(spectra, period, kind="l3"):
     L3 at a < 0 for a_-; "beta": beta at a > 0 for a*) within one period of the smallest
     measured |a|, the one with the largest value/|a|^p (the threshold law's power divided
     out, p = 4 for L3 and 1 for beta, so that the Efimov modulation stands out) locates it;
-    the window is that |a| times period^(-1/2)..period^(1/2).
+    the window is that |a| times period^(-1/2)..period^(1/2). ``sign`` (+1 or -1) overrides
+    the side and ``minimum`` takes the smallest value/|a|^p instead (L3 at a > 0 for a
+    mixture's a_+, the recombination minimum).
     """
-    sign, power = _RESONANCE_SIDE[kind]
+    side_sign, power = _RESONANCE_SIDE[kind]
+    sign = side_sign if sign is None else sign
     a = np.concatenate([s.a for s in spectra if s.kind == kind])
     value = np.concatenate([s.value for s in spectra if s.kind == kind])
     side = a * sign > 0
     a, value = np.abs(a[side]), value[side]
     first = a <= a.min() * period
     scaled = value[first] / a[first] ** power
-    peak = a[first][np.argmax(scaled)]
+    peak = a[first][np.argmin(scaled) if minimum else np.argmax(scaled)]
     return peak / math.sqrt(period), peak * math.sqrt(period)
 
 
@@ -212,6 +215,10 @@ def default_priors(free, spectra, density_sigma=None, period=None):
         elif name == "a_star" and period is not None and any((s.kind == "beta") & (s.a > 0).any()
                                                                for s in spectra):
             out[name] = LogUniform(*first_period_window(spectra, period, kind="beta"))
+        elif name == "a_plus" and period is not None and any((s.kind == "l3") & (s.a > 0).any() for s in spectra):
+            # a_+ is the minimum of a > 0 recombination (the zero of the shallow channel as
+            # eta -> 0, docs/heteronuclear-rates.md): one period around the first minimum of L3/a^4
+            out[name] = LogUniform(*first_period_window(spectra, period, kind="l3", sign=1.0, minimum=True))
         elif name in ("a_star", "a_plus"):
             if pos.size == 0:
                 raise LossfitValueError("free", f"{name} is free but no data point has a > 0")

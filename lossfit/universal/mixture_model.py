@@ -508,6 +508,12 @@ class MixtureZeroRangeModel(EnergyModel):
             raise LossfitValueError("channel", f"at a > 0 the recombination of {self.system.label} has the channels "
                                     f"'total', 'deep' and 'shallow' (J = 0), got {channel!r}{more}")
 
+    def observed_plan(self, a, q, scale, depth_over_t, eta_min=ETA_MIN, rtol=None):
+        """Refused at a > 0 (what a trapped mixture loses needs dimer kinetics lossfit does not
+        have for mixtures; :meth:`_check` names the channels there)."""
+        self._check(a, OBSERVED)
+        return super().observed_plan(a, q, scale, depth_over_t, eta_min=eta_min, rtol=rtol)
+
     def _check_positive(self, q, thermal, temperature_ratio=None):
         """Refuse a > 0 recombination where the table ends: energies beyond it (fixed energy) or
         temperatures with more than WEIGHT_BEYOND_TABLE_MAX of the three-atom Boltzmann weight

@@ -131,7 +131,8 @@ def test_table_against_direct_finite_energy_solves():
 
 def test_refusals_name_the_argument(cs_li):
     efimov = lf.Efimov(a_minus=-320.0, eta_minus=0.1)
-    with pytest.raises(LossfitValueError, match="a:.*a < 0 only"):
+    # a > 0 recombination needs a_+ and eta_+ (or a*, eta*)
+    with pytest.raises(LossfitValueError, match="efimov:.*needs a_plus, eta_plus"):
         lf.l3(500.0, 100.0, species=cs_li, efimov=efimov)
     with pytest.raises(LossfitValueError, match="model:.*'zero-range' and 'threshold'"):
         lf.l3(-500.0, 100.0, species=cs_li, efimov=efimov, model="capped")
