@@ -59,7 +59,7 @@ from lossfit.errors import ConvergenceWarning, ValidityWarning  # noqa: E402
 from lossfit.inference.diagnostics import autocorrelation_times  # noqa: E402
 from lossfit.inference.global_fit import _ball, prepare_curves  # noqa: E402
 from lossfit.inference.pools import find_mpiexec, make_pool  # noqa: E402
-from lossfit.inference.posterior import auto_burn  # noqa: E402
+from lossfit.inference.posterior import WalkerBlocks, auto_burn  # noqa: E402
 from lossfit.inference.sampling import sample  # noqa: E402
 from lossfit.simulate import invented_campaign  # noqa: E402
 
@@ -81,8 +81,11 @@ class TimedPosterior:
         self.spent = 0.0
 
     def __call__(self, theta):
+        return float(self.batch(np.asarray(theta, dtype=float)[None, :])[0])
+
+    def batch(self, thetas):
         t0 = time.perf_counter()
-        value = self.posterior(theta)
+        value = self.posterior.batch(thetas)
         self.spent += time.perf_counter() - t0
         return value
 
@@ -90,11 +93,10 @@ class TimedPosterior:
 class ResidentPosterior:
     """A posterior that every MPI rank builds for itself, pickled as its key alone.
 
-    :class:`lossfit.inference.pools.MPIPool` sends the function to its workers pickled,
-    and they receive it with mpi4py's default 32 KiB buffer (``irecv``): a campaign
-    posterior (0.44 MB at 60 curves) arrives truncated, the worker fails and rank 0 waits
-    forever. Each rank builds the same posterior (everything is seeded), registers it
-    here, and the messages carry the key.
+    :class:`lossfit.inference.pools.MPIPool` sends the function to its workers once,
+    pickled (a campaign posterior is MBs at 300 curves). Each rank builds the same
+    posterior (everything is seeded) and registers it here, so the one message carries the
+    key and the set-up is the same on every rank.
     """
 
     _registry = {}
@@ -106,6 +108,9 @@ class ResidentPosterior:
 
     def __call__(self, theta):
         return self._registry[self.key](theta)
+
+    def batch(self, thetas):
+        return self._registry[self.key].batch(thetas)
 
     def __reduce__(self):
         return (ResidentPosterior, (self.key,))
@@ -150,7 +155,7 @@ def timed_steps(posterior, p0, steps, repeats, pool=None):
     out = []
     for _ in range(repeats):
         t0 = time.perf_counter()
-        sample(posterior, p0, steps, pool=pool, seed=1)
+        sample(WalkerBlocks(posterior, pool), p0, steps, vectorize=True, seed=1)
         out.append((time.perf_counter() - t0) / steps)
     return out
 
@@ -176,7 +181,8 @@ def run_to_ess(posterior, p0, target, max_steps, pool=None):
     wall, ess, tau, done = 0.0, 0.0, float("nan"), 0
     while done < max_steps and ess < target:
         t0 = time.perf_counter()
-        run = sample(posterior, p0, done + ESS_CHECK_EVERY, backend=store, pool=pool, seed=1)
+        run = sample(WalkerBlocks(posterior, pool), p0, done + ESS_CHECK_EVERY, backend=store, vectorize=True,
+                     seed=1)
         wall += time.perf_counter() - t0
         done = int(store.iteration)
         ess, tau = ess_of(run.chain)

@@ -188,13 +188,25 @@ def bench_global():
     ef = lf.Efimov(a_minus=truth["a_minus"], eta_minus=truth["eta_minus"])
     values = {"density_scale": 1.1, "temperature_scale": 1.0}
     out = {}
+    liks = {}
     for name, rtol in (("fast", None), ("reference", 1e-7)):
-        lik = CurvesLikelihood(curves, "133Cs", "zero-range", resonance=res, reference_fits=fits,
+        lik = liks[name] = CurvesLikelihood(curves, "133Cs", "zero-range", resonance=res, reference_fits=fits,
                                temperature_scale_range=(0.8, 1.25), rtol=rtol)
         lik.refresh(ef, values)
         out[name] = _times(lambda: lik(ef, values), 7, 50 if rtol is None else 3)
+    lik_fast = liks["fast"]
     _row(f"global decay-curve likelihood, {len(curves)} curves x {len(curves[0])} points, zero-range",
          out["fast"], out["reference"], "reference path", "<= 1 ms", unit="ms", scale=1e3)
+    # per curve and walker: a half-ensemble of 32 walkers in one call (what the sampler
+    # hands over) against one call per walker; baseline the walker-by-walker calls
+    walkers = 32
+    ef_set = lf.Efimov.trusted(a_minus=np.full(walkers, ef.a_minus), eta_minus=np.full(walkers, ef.eta_minus))
+    values_set = {k: np.full(walkers, v) for k, v in values.items()}
+    per_curve = walkers * len(curves)
+    one_set = tuple(t / per_curve for t in _times(lambda: lik_fast(ef_set, values_set), 7, 3))
+    one_by_one = tuple(t / len(curves) for t in out["fast"])
+    _row(f"global likelihood per curve and walker, {walkers} walkers per call", one_set, one_by_one,
+         "one walker per call", "<= 5 us")
 
 
 def _command(args, repeat=3, env=None):
