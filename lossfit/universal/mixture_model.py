@@ -39,6 +39,13 @@ unit ln x is common to both rates, only the constant differs). The tables reach 
 the dimer binding energy hbar^2/(2 mu a^2) (k a = 4 x_b, x_b the breakup threshold);
 temperatures that put more than :data:`WEIGHT_BEYOND_TABLE_MAX` of the Boltzmann weight beyond
 are refused (docs/heteronuclear-rates.md).
+
+Three-body recombination at a > 0 (J = 0, :class:`lossfit.universal.tables.MixtureRecombinationTable`,
+x = k a, E = hbar^2 k^2/(2 mu)) has the same prefactor as at a < 0 and the probability
+(T_break (1 - e^{-4 eta}) [deep] + A + 2 Re(B w) + C |w|^2 [shallow])/|1 + s_AD w|^2,
+w = exp(2 i theta - 2 eta), theta = s0 ln(kappa* a), kappa* = (kappa* a_+)/a_+ (or from a*);
+channels "deep", "shallow" and "total" (the default), the table reaching 15 times the dimer
+binding energy (docs/heteronuclear-rates.md, "Three-body recombination at a > 0").
 """
 
 __all__ = ["MixtureZeroRangeModel", "MixtureThresholdModel", "MixturePlan", "mixture_table", "table_name",
@@ -380,8 +387,8 @@ class MixtureZeroRangeModel(EnergyModel):
     """
 
     name = "zero-range"
-    description = ("exact zero-range rates of two identical bosons and a third atom (K3 at a < 0, atom-dimer "
-                   "relaxation at a > 0, a_bb = 0)")
+    description = ("exact zero-range rates of two identical bosons and a third atom (K3 at a < 0, J = 0 K3 into "
+                   "shallow and deep dimers and atom-dimer relaxation at a > 0, a_bb = 0)")
     approximate = False
     resolves_channels = False
 
