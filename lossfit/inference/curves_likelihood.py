@@ -579,22 +579,45 @@ class CurvesLikelihood:
         count = efimov.n_walkers
         per_walker = [{k: (float(np.asarray(v).reshape(-1)[w]) if np.ndim(v) else v) for k, v in values.items()}
                       for w in range(count)]
-        return self._log_likelihoods(efimov.walkers(), per_walker)
+        return self._log_likelihoods(efimov.walkers(), per_walker, walker_set=(efimov, values))
 
-    def _log_likelihoods(self, efimovs, values):
+    def _spline_coefficients_of_set(self, efimov, values):
+        """Coefficients (c m, 4, n_knots - 1) of the c valid walkers of a walker-array set
+        and their indices, for effective-rate curves at their nominal scattering lengths."""
+        count = efimov.n_walkers
+        ln_scale = np.log(np.broadcast_to(np.asarray(values.get("density_scale", 1.0), dtype=float), (count,)))
+        logv = np.empty((count, self.n_curves, self.n_knots))
+        valid = np.ones(count, dtype=bool)
+        for kind, (idx, block) in self.blocks.items():
+            pred = block.predict(efimov).reshape(count, idx.size, self.n_knots)
+            valid &= np.all(np.isfinite(pred) & (pred > 0), axis=(1, 2))
+            with np.errstate(divide="ignore", invalid="ignore"):
+                logv[:, idx] = np.log(pred) - (2.0 if kind == "l3" else 1.0) * ln_scale[:, None, None]
+        ok = np.flatnonzero(valid)
+        coefs = (logv[ok].reshape(-1, self.n_knots) @ self._spline_rows).reshape(ok.size * self.n_curves, 4, -1)
+        return coefs, list(ok)
+
+    def _log_likelihoods(self, efimovs, values, walker_set=None):
         out = np.full(len(efimovs), -math.inf)
         # atom curves with effective rates only: the tables go packed (no object per curve)
         packed = not (self.dimers.any() or self.explicit.any())
         tables, s_t, ok = [], [], []
-        for w, (ef, vals) in enumerate(zip(efimovs, values)):
-            t = self._spline_coefficients(ef, vals) if packed else self.tables(ef, vals)
-            if t is not None:
-                if packed:
-                    tables.append(t[0])
-                else:
-                    tables += t
-                s_t.append(vals.get("temperature_scale", 1.0))
-                ok.append(w)
+        if packed and walker_set is not None and self.gh_x.size == 1 and \
+                not any(n in values[0] for n in RESONANCE_NAMES):
+            # nothing moves the scattering lengths: every walker's tables in one plan call
+            coefs, ok = self._spline_coefficients_of_set(*walker_set)
+            tables = [coefs]
+            s_t = [values[w].get("temperature_scale", 1.0) for w in ok]
+        else:
+            for w, (ef, vals) in enumerate(zip(efimovs, values)):
+                t = self._spline_coefficients(ef, vals) if packed else self.tables(ef, vals)
+                if t is not None:
+                    if packed:
+                        tables.append(t[0])
+                    else:
+                        tables += t
+                    s_t.append(vals.get("temperature_scale", 1.0))
+                    ok.append(w)
         if not ok:
             return out
         if packed:
