@@ -121,8 +121,13 @@ def curves_plot(curves=None, *, fits=None, result=None, species=None, ncols=5, m
     ncols = max(1, min(int(ncols), n))
     nrows = math.ceil(n / ncols)
     if fig is None:
-        fig = plt.figure(figsize=(2.9 * ncols, 3.2 * nrows), layout="constrained")
-    outer = fig.add_gridspec(nrows, ncols)
+        fig = plt.figure(figsize=(2.9 * ncols, 3.2 * nrows))
+    # fixed margins in inches (a constrained layout of 2 n axes cost seconds at 40 curves):
+    # the two-line titles above, y labels left, the tick and axis labels below each panel
+    width, height = fig.get_size_inches()
+    outer = fig.add_gridspec(nrows, ncols, left=0.85 / width, right=1.0 - 0.12 / width,
+                             bottom=0.5 / height, top=1.0 - 0.45 / height,
+                             wspace=0.7 / (width / ncols - 0.8), hspace=0.75 / (height / nrows - 0.75))
     for j in range(n):
         c = curves[j]
         inner = outer[j // ncols, j % ncols].subgridspec(2, 1, height_ratios=(3, 1), hspace=0.05)
