@@ -1018,6 +1018,14 @@ def _trim(weights, mod, e2_min, tol, first, stop):
             stop[i] -= 1
 
 
+@numba.njit(cache=True, inline="always")
+def _rotated_phase(theta0, i, cos_r, sin_r, e):
+    # 2 e cos and 2 e sin of point i's angle 2 theta0_i turned by a walker's rotation, and e^2
+    c = theta0[0, i] * cos_r - theta0[1, i] * sin_r
+    s = theta0[1, i] * cos_r + theta0[0, i] * sin_r
+    return 2.0 * e * c, 2.0 * e * s, e * e
+
+
 @numba.njit(cache=True, fastmath=True)
 def _evaluate(terms, weights, first, stop, theta0, rotation, e2, g, scale, out):
     # out[w, i] = scale_i g_w sum_j weight_ij / |1 + s_j e^{i(2 theta0_i + r_w)} e2_w|^2
@@ -1025,10 +1033,8 @@ def _evaluate(terms, weights, first, stop, theta0, rotation, e2, g, scale, out):
     for w in range(rotation.size):
         cos_r, sin_r = math.cos(rotation[w]), math.sin(rotation[w])
         for i in range(theta0.shape[1]):
-            c = theta0[0, i] * cos_r - theta0[1, i] * sin_r
-            s = theta0[1, i] * cos_r + theta0[0, i] * sin_r
             # 1 + 2 e Re(s_j e^{i angle}) + e^2 |s_j|^2 = 1 + a_j ca - b_j sa + e^2 |s_j|^2
-            ca, sa, e_sq = 2.0 * e2[w] * c, 2.0 * e2[w] * s, e2[w] * e2[w]
+            ca, sa, e_sq = _rotated_phase(theta0, i, cos_r, sin_r, e2[w])
             total = 0.0
             for j in range(first[i], stop[i]):
                 total += weights[i, j] / (1.0 + terms[0, j] * ca - terms[1, j] * sa + e_sq * terms[2, j])
@@ -1042,9 +1048,7 @@ def _evaluate_breakup(terms, numer, weights, first, stop, theta0, rotation, e2, 
     for w in range(rotation.size):
         cos_r, sin_r = math.cos(rotation[w]), math.sin(rotation[w])
         for i in range(theta0.shape[1]):
-            c = theta0[0, i] * cos_r - theta0[1, i] * sin_r
-            s = theta0[1, i] * cos_r + theta0[0, i] * sin_r
-            ca, sa, e_sq = 2.0 * e2[w] * c, 2.0 * e2[w] * s, e2[w] * e2[w]
+            ca, sa, e_sq = _rotated_phase(theta0, i, cos_r, sin_r, e2[w])
             total = 0.0
             for j in range(first[i], stop[i]):
                 num = g[w] * numer[0, j] + numer[1, j] + numer[2, j] * ca - numer[3, j] * sa + e_sq * numer[4, j]
