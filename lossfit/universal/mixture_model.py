@@ -51,7 +51,8 @@ binding energy (docs/heteronuclear-rates.md, "Three-body recombination at a > 0"
 __all__ = ["MixtureZeroRangeModel", "MixtureThresholdModel", "MixturePlan", "mixture_table", "table_name",
            "atom_dimer_table_name", "recombination_table_name", "mixture_atom_dimer_table",
            "mixture_recombination_table", "shipped_systems", "resolve_model",
-           "resolve_species", "rule_nodes", "weight_above", "beta_unitarity_prefactor", "WEIGHT_BEYOND_TABLE_MAX"]
+           "resolve_species", "rule_nodes", "weight_above", "beta_unitarity_prefactor", "WEIGHT_BEYOND_TABLE_MAX",
+           "ratio_table_name", "mixture_ratio_table"]
 
 import functools
 import math
@@ -74,6 +75,7 @@ from .tables import (
     grid_limits,
     load_mixture_atom_dimer_table,
     load_mixture_recombination_table,
+    load_s11_ratio_table,
     load_s11_table,
     mixture_recombination_eval,
     mixture_s_ad_eval,
@@ -83,6 +85,8 @@ from .tables import (
 
 # B-X pairs whose a < 0 table ships with the package (scripts/make_mixture_tables.py)
 _SHIPPED = (("133Cs", "6Li"), ("133Cs", "7Li"), ("87Rb", "40K"), ("87Rb", "41K"))
+# pairs whose a < 0 table on a grid of a_bb/a ships (scripts/make_mixture_abb_table.py)
+_RATIO_SHIPPED = (("133Cs", "6Li"),)
 
 # Fixed rule in y = ln x (x = k|a|), shared by all points of a plan: Gauss-Legendre panels
 # no wider than _PANEL_MAX, and narrower where the Efimov resonance in x is sharp: its width
@@ -103,6 +107,8 @@ WEIGHT_BEYOND_TABLE_MAX = 1e-3
 # length of the stand-in for a missing table in the compiled kernels
 _U_EMPTY = 16
 _POSITIVE_COLUMNS = 7
+# columns of a kernel row before the weights of the slices of r = a_bb/a
+_ROW = 7
 # (deep, shallow) weights of the a > 0 recombination channels
 _POSITIVE_CHANNELS = {"deep": (1.0, 0.0), "shallow": (0.0, 1.0), "total": (1.0, 1.0)}
 
@@ -112,19 +118,21 @@ def rule_nodes(table, y_lo, y_hi, eta_min):
 
     Parameters
     ----------
-    table : S11Table or MixtureAtomDimerTable
-        Anything with ``amplitudes(x) -> (T, s)`` and ``kinks()``.
+    table : S11Table, S11RatioTable or MixtureAtomDimerTable
+        Anything with ``amplitudes(x) -> (T, s)`` and ``kinks()`` (an S11RatioTable gives one
+        row per slice of r; the rule resolves the sharpest of them).
     y_lo, y_hi : float
         The range of ln x to cover.
     eta_min : float
         The smallest eta the rule must resolve (> 0).
     """
     fine = np.arange(y_lo, y_hi + 2.0 * _FINE_STEP + _PANEL_MAX, _FINE_STEP)
-    _, s = table.amplitudes(np.exp(fine))
+    s = table.amplitudes(np.exp(fine))[1]
     mod = np.abs(s)
-    turn = mod * np.abs(np.gradient(np.unwrap(np.angle(s)), fine))
+    turn = mod * np.abs(np.gradient(np.unwrap(np.angle(s), axis=-1), fine, axis=-1))
     width = np.minimum(_PANEL_MAX, _PANEL_PER_WIDTH * (1.0 - mod * math.exp(-2.0 * eta_min))
                        / np.maximum(turn, 1e-300))
+    width = width.min(axis=0) if width.ndim > 1 else width
     # panel edges also at the ends of the table grid, where the interpolant meets its limits
     # with a jump in slope
     kinks = [math.log(v) for v in table.kinks() if y_lo < math.log(v) < y_hi]
@@ -162,6 +170,29 @@ def atom_dimer_table_name(system):
 def recombination_table_name(system):
     """File name of the a > 0 recombination table of ``system`` (a :class:`HeteronuclearSystem`)."""
     return f"k3_positive_mixture_{system.boson.name}_{system.other.name}.npz"
+
+
+def ratio_table_name(system):
+    """File name of the a < 0 table of ``system`` on a grid of a_bb/a."""
+    return f"s11_mixture_abb_{system.boson.name}_{system.other.name}.npz"
+
+
+def mixture_ratio_table(system):
+    """The a < 0 table of ``system`` on a grid of r = a_bb/a
+    (:class:`lossfit.universal.tables.S11RatioTable`; docs/heteronuclear-rates.md, "The B-B
+    interaction at a < 0").
+
+    Raises
+    ------
+    LossfitValueError
+        For a pair without such a table (naming a_bb).
+    """
+    if (system.boson.name, system.other.name) not in _RATIO_SHIPPED:
+        pairs = ", ".join(f"{b}-{b}-{x}" for b, x in _RATIO_SHIPPED)
+        raise LossfitValueError("a_bb", f"finite-energy rates with a_bb != 0 are tabulated for {pairs} only; "
+                                f"{system.label} has them for a_bb = 0 (the finite-a_bb solver gives threshold "
+                                "laws, docs/stm-mixture.md section 6)")
+    return load_s11_ratio_table(table_path(ratio_table_name(system)))
 
 
 def _require_a_bb_zero(system):
@@ -334,6 +365,7 @@ class _EfimovChannel:
     eta: str
     sign: float
     fallback: tuple = None
+    a_bb: float = 0.0
 
     def parameters(self, efimov):
         """(feature length, eta) from ``efimov`` (floats or walker arrays); where the feature is
@@ -358,10 +390,36 @@ class _EfimovChannel:
             efimov.require(self.feature, self.eta)
         return feature, eta
 
+    def ratios(self, a):
+        """r = a_bb/a at the points ``a`` (a0), refused (naming a_bb) outside the table's range."""
+        r = self.a_bb / np.asarray(a, dtype=float)
+        lo, hi = self.table.r_range
+        bad = (r < lo) | (r > hi)
+        if bad.any():
+            worst = np.asarray(a, dtype=float)[bad].ravel()
+            raise LossfitValueError("a_bb", f"a_bb = {self.a_bb:g} a0 gives a_bb/a outside the tabulated "
+                                    f"[{lo:g}, {hi:g}] at a = {worst[0]:g} a0 ({worst.size} point(s)): the "
+                                    f"table covers |a| from {abs(self.a_bb) / hi:.4g} to {abs(self.a_bb) / lo:.4g} a0 "
+                                    f"(a_bb of the sign of a) for this a_bb")
+        return r
+
+    def log_kappa(self, feature):
+        """ln kappa* (kappa* in 1/a0) for the feature's length (a0, float or walker array):
+        ln|kappa* a_f| - ln|a_f|, with kappa* a_- taken at r = a_bb/a_- where a_bb != 0."""
+        feature = np.asarray(feature, dtype=float)
+        if not self.a_bb:
+            return math.log(abs(self.kappa_feature)) - np.log(np.abs(feature))
+        r = self.a_bb / feature
+        lo, hi = self.table.r_range
+        if ((r < lo) | (r > hi)).any():
+            raise LossfitValueError(self.feature, f"a_bb/{self.feature} must lie in the tabulated [{lo:g}, {hi:g}] "
+                                    f"(a_bb = {self.a_bb:g} a0): {self.feature} between "
+                                    f"{-abs(self.a_bb) / lo:.4g} and {-abs(self.a_bb) / hi:.4g} a0")
+        return np.log(np.abs(self.table.kappa_a_minus(r))) - np.log(np.abs(feature))
+
     def two_theta(self, a, feature):
         """2 theta = 2 s0 ln(kappa* |a|) at ``a`` (a0) for the feature's length (a0)."""
-        kappa = self.kappa_feature / np.asarray(feature, dtype=float)
-        return 2.0 * self.table.s0 * np.log(np.abs(kappa * np.asarray(a, dtype=float)))
+        return 2.0 * self.table.s0 * (self.log_kappa(feature) + np.log(np.abs(np.asarray(a, dtype=float))))
 
 
 @functools.lru_cache(maxsize=None)
@@ -427,10 +485,19 @@ class MixtureZeroRangeModel(EnergyModel):
     @property
     def _three_body_channel(self):
         if self._k3_channel is None:
-            table = mixture_table(self.system)
+            if self.system.a_bb:
+                if self.system.a_bb > 0:
+                    raise LossfitValueError("a_bb", f"a_bb = {self.system.a_bb:g} a0 > 0 at a < 0 (a shallow B-B "
+                                            "dimer, whose channel the finite-energy solver does not compute): "
+                                            "lossfit tabulates a_bb <= 0 at a < 0")
+                table = mixture_ratio_table(self.system)
+                kappa = float("nan")                  # per a_- from the table (log_kappa)
+            else:
+                table = mixture_table(self.system)
+                kappa = table.kappa_star_a_minus
             # (1/2) int u^2 e^-u (pref P/u^2) du = pref int u e^-u P dy
-            self._k3_channel = _EfimovChannel(table, table.kappa_star_a_minus, self.wavenumber_ratio,
-                                              self.k3_prefactor, "a_minus", "eta_minus", -1.0)
+            self._k3_channel = _EfimovChannel(table, kappa, self.wavenumber_ratio, self.k3_prefactor, "a_minus",
+                                              "eta_minus", -1.0, a_bb=self.system.a_bb)
         return self._k3_channel
 
     def __setstate__(self, state):
@@ -466,14 +533,26 @@ class MixtureZeroRangeModel(EnergyModel):
         if self._kernel is None:
             packed = self._packed_or_empty("_three_body_channel")
             packed_pos = self._packed_or_empty("positive_channel")
+            slices = packed if packed.ndim == 2 else np.zeros((1, packed.size))
+            packed = packed if packed.ndim == 1 else packed[0]
             pref = self.k3_prefactor
 
             @numba.njit(KERNEL_SIGNATURE)
             def kernel(x, p):
                 # p = [x_s = k_s|a| sqrt(2 mu/m_B), 2 theta, exp(-2 eta), 1 - exp(-4 eta), sign of a,
-                #      deep weight, shallow weight]
+                #      deep weight, shallow weight] + the weights of the slices of r = a_bb/a
+                #      (a_bb != 0: ln T and the relative phase interpolated in ln r,
+                #      the phase's offset -2 s0 ln|kappa* a_-(r)| inside 2 theta)
                 if p[4] < 0.0:
-                    t, ph = s11_eval(packed, p[0] * math.sqrt(x))
+                    if p.size > _ROW:
+                        logt, ph = 0.0, 0.0
+                        for k in range(p.size - _ROW):
+                            tk, phk = s11_eval(slices[k], p[0] * math.sqrt(x))
+                            logt += p[_ROW + k] * math.log(tk)
+                            ph += p[_ROW + k] * phk
+                        t = math.exp(logt)
+                    else:
+                        t, ph = s11_eval(packed, p[0] * math.sqrt(x))
                     mod = math.sqrt(max(1.0 - t, 0.0)) * p[2]
                     den = 1.0 + 2.0 * mod * math.cos(ph + p[1]) + mod * mod
                     return pref * t * p[3] / (den * x * x)
@@ -481,7 +560,7 @@ class MixtureZeroRangeModel(EnergyModel):
                 mixture_recombination_eval(packed_pos, p[0] * math.sqrt(x), col)
                 return pref * p[0] ** 4 * _positive_probability(col, p)
 
-            lo, hi = grid_limits(packed) if packed.size > _U_EMPTY else (1.0, 1.0)
+            lo, hi = grid_limits(packed) if packed.size > _U_EMPTY else (1.0, 1.0)   # one x grid for all r
             lo_pos, hi_pos = (math.exp(packed_pos[1]), packed_pos[3]) if packed_pos.size > _U_EMPTY else (1.0, 1.0)
 
             @numba.njit(FEATURES_SIGNATURE)
@@ -559,18 +638,23 @@ class MixtureZeroRangeModel(EnergyModel):
         a = np.asarray(a, dtype=float).ravel()
         q = np.abs(np.ravel(q))
         pos = a > 0
-        rows = np.empty((a.size, 7))
+        slices = self._three_body_channel.table.ratios.size if self.system.a_bb and (~pos).any() else 0
+        rows = np.zeros((a.size, _ROW + slices))
         rows[:, 0] = q * self.wavenumber_ratio
         rows[:, 4] = np.where(pos, 1.0, -1.0)
-        for side, chan, weights in ((~pos, "_three_body_channel", (1.0, 0.0)),
+        for side, name, weights in ((~pos, "_three_body_channel", (1.0, 0.0)),
                                     (pos, "positive_channel", _POSITIVE_CHANNELS.get(channel))):
             if not side.any():
                 continue
-            chan = getattr(self, chan)
-            if chan is self.positive_channel:
+            chan = getattr(self, name)
+            if name == "positive_channel":
                 self._check_positive(q[side], thermal=x_max > 1.0)
             feature, eta = chan.require(efimov)
             rows[side, 1] = chan.two_theta(a[side], feature)
+            if chan.a_bb and chan.sign < 0:
+                r = chan.ratios(a[side])
+                rows[side, _ROW:] = chan.table.weights(r)
+                rows[side, 1] -= 2.0 * chan.table.s0 * np.log(np.abs(chan.table.kappa_a_minus(r)))
             rows[side, 2] = math.exp(-2.0 * eta)
             rows[side, 3] = -math.expm1(-4.0 * eta)
             rows[side, 5:7] = weights
@@ -790,7 +874,12 @@ class MixturePlan:
         y_hi = float(np.max(ln_x_t + 0.5 * np.log(u_hi)))
         y, w_y = rule_nodes(channel.table, y_lo, y_hi, self.eta_min)
         self.n_nodes = y.size
-        t, s = channel.table.amplitudes(np.exp(y))
+        if channel.a_bb:
+            # a_bb != 0: the table at each point's own r = a_bb/a (fixed for the plan, a_bb
+            # being a property of the system), so T and s11 per (point, node)
+            t, s, _ = channel.table.amplitudes(np.exp(y)[None, :], channel.ratios(self.a))
+        else:
+            t, s = (v[None, :] for v in channel.table.amplitudes(np.exp(y)))
         mod = np.abs(s)
         # per point only the nodes inside its window [x_T sqrt(u_lo), x_T sqrt(u_hi)]
         self._first = np.searchsorted(y, ln_x_t + 0.5 * math.log(_U_LO))
@@ -799,17 +888,17 @@ class MixturePlan:
         # and node: the weights e^{-u} u w_y T per (point, node of its window)
         self._terms = np.ascontiguousarray(np.stack([s.real, s.imag, mod * mod]))
         self._breakup = None
-        bound = t
+        bound = t[0]
         if positive is not None and positive[1] > 0.0:
             # per node: T_break x deep weight, then A, Re B, Im B, C (the shallow numerator)
             col = channel.table.columns(np.exp(y)) * np.exp(4.0 * y)[None, :]
-            self._breakup = np.ascontiguousarray(np.r_[positive[0] * t[None, :], col[3:7]])
+            self._breakup = np.ascontiguousarray(np.r_[positive[0] * t, col[3:7]])
             # the largest numerator any eta can give (|w| <= 1), for the trimming below
-            bound = positive[0] * t + col[3] + 2.0 * np.hypot(col[4], col[5]) + col[6]
-            w_y_t = w_y
+            bound = positive[0] * t[0] + col[3] + 2.0 * np.hypot(col[4], col[5]) + col[6]
+            self._weights = _point_weights(y, w_y, ln_x_t, self._first, self._stop)
         else:
-            w_y_t = w_y * t
-        self._weights = _point_weights(y, w_y_t, ln_x_t, self._first, self._stop)
+            self._weights = _point_weights(y, w_y, ln_x_t, self._first, self._stop) * t
+        t_rows = np.broadcast_to(t, (self.n_points, y.size))
         if ratio is not None:
             # (1/2) u e^{-u} at one temperature becomes p(u) / u per unit y (dE = 2E dy,
             # K3 ~ 1/E^2), p the density of u = E/k_BT_B at T_X/T_B = ratio
@@ -817,14 +906,15 @@ class MixturePlan:
                 j = slice(self._first[i], self._stop[i])
                 u = np.exp(2.0 * (y[j] - ln_x_t[i]))
                 self._weights[i, j] = (2.0 * model.system.collision_energy_density(u, 1.0, ratio[i]) / u
-                                       * w_y[j] * t[j])
+                                       * w_y[j] * t_rows[i, j])
         # drop the window's ends whose largest possible share (each node's weight over the
         # smallest denominator (1 - |s11| e^{-2 eta_min})^2 it can have) stays below
         # _TRIM of the smallest possible total (denominators <= (1 + |s11|)^2)
         trim_weights = (self._weights if self._breakup is None
                         else _point_weights(y, w_y * bound, ln_x_t, self._first, self._stop))
         _trim(trim_weights, mod, math.exp(-2.0 * self.eta_min), _TRIM, self._first, self._stop)
-        theta0 = channel.two_theta(self.a, channel.sign)       # 2 theta at a_- = -1 a0 or a* = 1 a0
+        # 2 theta = 2 s0 ln|a| + 2 s0 ln kappa*: the second part is the rotation of evaluate()
+        theta0 = 2.0 * channel.table.s0 * np.log(np.abs(self.a))
         self._theta0 = np.ascontiguousarray(np.stack([np.cos(theta0), np.sin(theta0)]))
         self._scale = np.asarray(scale, dtype=float) * channel.average_prefactor * np.ones(self.n_points)
         self._one = np.empty((3, 1))          # rotation, e^{-2 eta}, 1 - e^{-4 eta} of one walker
@@ -844,9 +934,9 @@ class MixturePlan:
             if eta < self.eta_min:
                 raise LossfitValueError(channel.eta, f"{eta:g} is below eta_min={self.eta_min:g}, the smallest eta "
                                         "this plan resolves; build it with a smaller eta_min")
-            # theta(a_-) = theta(a_- = -1 a0) - s0 ln|a_-| (likewise a*): a rotation of the
-            # prepared phases
-            self._one[0, 0] = -2.0 * s0 * math.log(abs(feature))
+            # theta = s0 ln|a| + s0 ln kappa*(a_-) (likewise a*): a rotation of the prepared
+            # phases, kappa* = (kappa* a_-)/a_- (at r = a_bb/a_- where a_bb != 0)
+            self._one[0, 0] = 2.0 * s0 * float(channel.log_kappa(feature))
             self._one[1, 0] = math.exp(-2.0 * eta)
             self._one[2, 0] = -math.expm1(-4.0 * eta)
             values = np.empty((1, self.n_points))
@@ -860,7 +950,7 @@ class MixturePlan:
             if (eta < self.eta_min).any():
                 raise LossfitValueError(channel.eta, f"{eta.min():g} is below eta_min={self.eta_min:g}, the "
                                         "smallest eta this plan resolves; build it with a smaller eta_min")
-            rotation = np.broadcast_to(-2.0 * s0 * np.log(np.abs(feature)), (walkers,))
+            rotation = np.broadcast_to(2.0 * s0 * channel.log_kappa(feature), (walkers,))
             values = np.empty((walkers, self.n_points))
             self._sum(np.ascontiguousarray(rotation), np.broadcast_to(np.exp(-2.0 * eta), (walkers,)).copy(),
                       np.broadcast_to(-np.expm1(-4.0 * eta), (walkers,)).copy(), values)
@@ -893,6 +983,12 @@ class MixtureThresholdModel(MixtureZeroRangeModel):
     name = "threshold"
     description = "zero-energy law of two identical bosons and a third atom (no thermal average)"
     approximate = True
+
+    def __init__(self, system):
+        if isinstance(system, HeteronuclearSystem) and system.a_bb:
+            raise LossfitValueError("model", f"'threshold' is built from the a_bb = 0 tables; {system.label} has "
+                                    "a_bb != 0: use model='zero-range'")
+        super().__init__(system)
 
     def limits(self, positive):
         """(tau, s, alpha, b, c) of the zero-energy law: a > 0 (``positive``) from the
@@ -994,8 +1090,10 @@ def _point_weights(y, weight_t, ln_x_t, first, stop):
 
 
 @numba.njit(cache=True)
-def _trim(weights, mod, e2_min, tol, first, stop):
+def _trim(weights, mod_rows, e2_min, tol, first, stop):
+    # mod_rows: |s11| per node, one row shared by all points or one row per point (a_bb != 0)
     for i in range(first.size):
+        mod = mod_rows[i if mod_rows.shape[0] > 1 else 0]
         lower = 0.0
         for j in range(first[i], stop[i]):
             lower += weights[i, j] / (1.0 + mod[j]) ** 2
@@ -1029,21 +1127,24 @@ def _rotated_phase(theta0, i, cos_r, sin_r, e):
 @numba.njit(cache=True, fastmath=True)
 def _evaluate(terms, weights, first, stop, theta0, rotation, e2, g, scale, out):
     # out[w, i] = scale_i g_w sum_j weight_ij / |1 + s_j e^{i(2 theta0_i + r_w)} e2_w|^2
-    # over the nodes of point i's window; theta0 holds cos and sin of 2 theta0_i
+    # over the nodes of point i's window; theta0 holds cos and sin of 2 theta0_i; terms
+    # (Re s, Im s, |s|^2) per node in one row for all points, or one row per point (a_bb != 0)
+    shared = terms.shape[1] == 1
     for w in range(rotation.size):
         cos_r, sin_r = math.cos(rotation[w]), math.sin(rotation[w])
         for i in range(theta0.shape[1]):
             # 1 + 2 e Re(s_j e^{i angle}) + e^2 |s_j|^2 = 1 + a_j ca - b_j sa + e^2 |s_j|^2
             ca, sa, e_sq = _rotated_phase(theta0, i, cos_r, sin_r, e2[w])
+            k = 0 if shared else i
             total = 0.0
             for j in range(first[i], stop[i]):
-                total += weights[i, j] / (1.0 + terms[0, j] * ca - terms[1, j] * sa + e_sq * terms[2, j])
+                total += weights[i, j] / (1.0 + terms[0, k, j] * ca - terms[1, k, j] * sa + e_sq * terms[2, k, j])
             out[w, i] = scale[i] * g[w] * total
 
 
 @numba.njit(cache=True, fastmath=True)
 def _evaluate_breakup(terms, numer, weights, first, stop, theta0, rotation, e2, g, scale, out):
-    # as _evaluate, with the numerator of a > 0 recombination per node j:
+    # as _evaluate (terms shared by all points), with the numerator of a > 0 recombination per node j:
     # g_w numer[0, j] (deep: weight x T_break) + A_j + 2 Re(B_j w) + C_j |w|^2 (shallow)
     for w in range(rotation.size):
         cos_r, sin_r = math.cos(rotation[w]), math.sin(rotation[w])
@@ -1052,7 +1153,7 @@ def _evaluate_breakup(terms, numer, weights, first, stop, theta0, rotation, e2, 
             total = 0.0
             for j in range(first[i], stop[i]):
                 num = g[w] * numer[0, j] + numer[1, j] + numer[2, j] * ca - numer[3, j] * sa + e_sq * numer[4, j]
-                total += weights[i, j] * num / (1.0 + terms[0, j] * ca - terms[1, j] * sa + e_sq * terms[2, j])
+                total += weights[i, j] * num / (1.0 + terms[0, 0, j] * ca - terms[1, 0, j] * sa + e_sq * terms[2, 0, j])
             out[w, i] = scale[i] * total
 
 

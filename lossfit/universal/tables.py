@@ -32,7 +32,8 @@ the J = 0 three-body recombination at a > 0 into shallow and deep dimers:
 :class:`MixtureRecombinationTable`.
 """
 
-__all__ = ["S11Table", "AtomDimerTable", "RecombinationTable", "MixtureAtomDimerTable", "MixtureRecombinationTable",
+__all__ = ["S11Table", "S11RatioTable", "load_s11_ratio_table",
+           "AtomDimerTable", "RecombinationTable", "MixtureAtomDimerTable", "MixtureRecombinationTable",
            "load_s11_table", "load_atom_dimer_table", "load_recombination_table", "load_mixture_atom_dimer_table",
            "load_mixture_recombination_table", "mixture_recombination_eval", "mixture_recombination_values",
            "table_path",
@@ -116,24 +117,39 @@ class S11Table:
         with _open_table(path) as d:
             # tables of two identical bosons and a third atom carry their own s0 and no
             # exact unitarity phase (docs/heteronuclear-rates.md)
-            self.s0 = float(d["s0"]) if "s0" in d.files else S0
-            self.mass_ratio = float(d["mass_ratio"]) if "mass_ratio" in d.files else 1.0
             identical = "k3_prefactor" in d.files
-            self.kappa_star_a_minus = float(d["kappa_star_a_minus"])
-            x = np.array(d["x"])
-            logt = np.array(d["log_transmission"])
-            phase = np.array(d["phase"])
-            self.c4 = float(d["threshold_c4"])
-            self.delta0 = float(d["threshold_phase"])
-            self.k3_prefactor = float(d["k3_prefactor"]) if identical else None
-            self.metadata = json.loads(str(d["metadata"]))
+            self._setup(np.array(d["x"]), np.array(d["log_transmission"]), np.array(d["phase"]),
+                        float(d["threshold_c4"]), float(d["threshold_phase"]),
+                        float(d["s0"]) if "s0" in d.files else S0,
+                        float(d["mass_ratio"]) if "mass_ratio" in d.files else 1.0,
+                        float(d["kappa_star_a_minus"]), json.loads(str(d["metadata"])),
+                        float(d["k3_prefactor"]) if identical else None, path)
+
+    @classmethod
+    def from_arrays(cls, x, log_transmission, phase, c4, delta0, s0, mass_ratio, kappa_star_a_minus, metadata):
+        """A table of two identical bosons and a third atom from its columns (one slice of
+        :class:`S11RatioTable`); arguments as the file's keys of the same names."""
+        table = cls.__new__(cls)
+        table._setup(np.asarray(x, dtype=float), np.asarray(log_transmission, dtype=float),
+                     np.asarray(phase, dtype=float), float(c4), float(delta0), float(s0), float(mass_ratio),
+                     float(kappa_star_a_minus), metadata, None, "<arrays>")
+        return table
+
+    def _setup(self, x, logt, phase, c4, delta0, s0, mass_ratio, kappa_star_a_minus, metadata, k3_prefactor, path):
+        self.s0 = s0
+        self.mass_ratio = mass_ratio
+        self.kappa_star_a_minus = kappa_star_a_minus
+        self.c4 = c4
+        self.delta0 = delta0
+        self.k3_prefactor = k3_prefactor
+        self.metadata = metadata
         lnx = np.log(x)
         step = np.diff(lnx)
         if not np.allclose(step, step[0], rtol=1e-9, atol=0):
             raise LossfitError(f"{path!r}: the x grid is not uniform in ln x")
         self.x = x
         self.packed = _pack(lnx, logt, phase, self.c4, self.delta0, self.s0,
-                            _unitarity_phase(x[-1]) if identical else None)
+                            _unitarity_phase(x[-1]) if k3_prefactor is not None else None)
 
     def s11(self, x):
         """s11 at x = k|a| (array), evaluated as the runtime kernels do."""
@@ -250,6 +266,99 @@ def load_s11_table(path=None):
     path = path or table_path()
     if path not in _CACHE:
         _CACHE[path] = S11Table(path)
+    return _CACHE[path]
+
+
+class S11RatioTable:
+    """s11(x; r) of two identical bosons and a third atom at a < 0 on a grid of r = a_bb/a
+    (written by :func:`lossfit.universal.solver.mixture_tables.build_ratio_table`).
+
+    Each r is a slice in the layout of :class:`S11Table` (splines in ln x and their limits),
+    with its phase measured from its own a_-: arg s11(x; r) = phase_rel(x; r) -
+    2 s0 ln|kappa* a_-(r)|, kappa* defined at 1/a = 1/a_bb = 0 and s0 that of three
+    resonant pairs. Between slices ln T, phase_rel and ln|kappa* a_-| are not-a-knot cubic
+    splines in ln r (written as weights of the slices, :meth:`weights`); outside
+    [r_min, r_max] nothing is defined (docs/heteronuclear-rates.md, "The B-B interaction at
+    a < 0").
+
+    Attributes
+    ----------
+    ratios : ndarray
+        The r grid.
+    slices : list of S11Table
+        One per r, phases relative (phase_rel).
+    packed : ndarray
+        (n_r, length) the slices' packed arrays, for :func:`s11_eval` row by row.
+    s0, mass_ratio : float
+    kappa_star_a_minus : ndarray
+        kappa* a_- per slice.
+    metadata : dict
+    """
+
+    def __init__(self, path):
+        with _open_table(path) as d:
+            self.ratios = np.array(d["a_bb_ratio"])
+            self.s0 = float(d["s0"])
+            self.mass_ratio = float(d["mass_ratio"])
+            self.kappa_star_a_minus = np.array(d["kappa_star_a_minus"])
+            self.metadata = json.loads(str(d["metadata"]))
+            self.slices = [S11Table.from_arrays(d["x"], d["log_transmission"][k], d["phase_rel"][k],
+                                                d["threshold_c4"][k], d["threshold_phase_rel"][k], self.s0,
+                                                self.mass_ratio, self.kappa_star_a_minus[k], self.metadata)
+                           for k in range(self.ratios.size)]
+        self.packed = np.ascontiguousarray(np.stack([t.packed for t in self.slices]))
+        self._ln_r = np.log(self.ratios)
+        # the spline through (ln r_k, e_j) for each unit vector e_j: f(r) = sum_j w_j(r) f_j
+        self._basis = np.stack([spline_coefficients(self._ln_r, np.eye(self.ratios.size)[j])
+                                for j in range(self.ratios.size)])
+        self._ln_kappa = np.log(np.abs(self.kappa_star_a_minus))
+
+    @property
+    def r_range(self):
+        """(r_min, r_max) of the grid."""
+        return float(self.ratios[0]), float(self.ratios[-1])
+
+    def weights(self, r):
+        """Interpolation weights of the slices at each r (array, inside the grid): shape
+        r.shape + (n_r,)."""
+        r = np.asarray(r, dtype=float)
+        lo, hi = self.r_range
+        if not ((r >= lo * (1 - 1e-12)) & (r <= hi * (1 + 1e-12))).all():
+            raise ValueError(f"a_bb/a outside the table's range [{lo:g}, {hi:g}]")
+        ln_r = np.clip(np.log(r), self._ln_r[0], self._ln_r[-1])
+        i = np.clip(np.searchsorted(self._ln_r, ln_r) - 1, 0, self.ratios.size - 2)
+        dx = ln_r - self._ln_r[i]
+        c = self._basis[:, :, i]                                # (n_r, 4, ...)
+        return np.moveaxis(((c[:, 0] * dx + c[:, 1]) * dx + c[:, 2]) * dx + c[:, 3], 0, -1)
+
+    def kappa_a_minus(self, r):
+        """kappa* a_-(r) (negative) interpolated in ln r."""
+        return -np.exp(self.weights(r) @ self._ln_kappa)
+
+    def amplitudes(self, x, r):
+        """(1 - |s11|^2, s11, kappa* a_-) at x = k|a| and r = a_bb/a (arrays of one shape,
+        or r of the leading shape of x), s11 in the phase convention theta = s0 ln(kappa*|a|)."""
+        x = np.asarray(x, dtype=float)
+        w = self.weights(r)
+        w = w.reshape(w.shape[:-1] + (1,) * (x.ndim - w.ndim + 1) + w.shape[-1:])
+        logt = np.empty(x.shape + (self.ratios.size,))
+        phase = np.empty_like(logt)
+        flat = np.ascontiguousarray(x.ravel())
+        for k in range(self.ratios.size):
+            t, ph = s11_values(self.packed[k], flat)
+            logt[..., k] = np.log(t).reshape(x.shape)
+            phase[..., k] = ph.reshape(x.shape)
+        ln_kappa = np.sum(w * self._ln_kappa, axis=-1)
+        t = np.exp(np.sum(w * logt, axis=-1))
+        ph = np.sum(w * phase, axis=-1) - 2.0 * self.s0 * ln_kappa
+        mod = np.sqrt(np.maximum(1.0 - t, 0.0))
+        return t, mod * np.exp(1j * ph), -np.exp(ln_kappa)
+
+
+def load_s11_ratio_table(path):
+    """An :class:`S11RatioTable` (loaded once per process)."""
+    if path not in _CACHE:
+        _CACHE[path] = S11RatioTable(path)
     return _CACHE[path]
 
 

@@ -136,8 +136,12 @@ def test_refusals_name_the_argument(cs_li):
         lf.l3(500.0, 100.0, species=cs_li, efimov=efimov)
     with pytest.raises(LossfitValueError, match="model:.*'zero-range' and 'threshold'"):
         lf.l3(-500.0, 100.0, species=cs_li, efimov=efimov, model="capped")
+    # finite a_bb at finite energy is tabulated for Cs-Cs-6Li only (tests/heteronuclear/test_mixture_abb.py)
+    with pytest.raises(LossfitValueError, match="a_bb:.*tabulated for 133Cs-133Cs-6Li only"):
+        lf.l3(-500.0, 100.0, species=heteronuclear("87Rb", "41K", a_bb=-100.0), efimov=efimov)
     with pytest.raises(LossfitValueError, match="species:.*a_bb = 0 only"):
-        lf.l3(-500.0, 100.0, species=heteronuclear("133Cs", "6Li", a_bb=-100.0), efimov=efimov)
+        lf.l3(500.0, 100.0, species=heteronuclear("133Cs", "6Li", a_bb=-100.0),
+              efimov=lf.Efimov(a_plus=900.0, eta_plus=0.1))
     with pytest.raises(LossfitValueError, match="species:.*no zero-range table"):
         lf.l3(-500.0, 100.0, species=heteronuclear("87Rb", "7Li", c6_bx=2500.0), efimov=efimov)
     with pytest.raises(LossfitValueError, match="species"):

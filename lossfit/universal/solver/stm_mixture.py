@@ -947,52 +947,77 @@ class MixtureSTM:
         k4 = (2.0 * m_b * energy) ** 2
         return (big_m / m_x) ** 1.5 * 32.0 * math.pi ** 2 / (m_b * k4) * self.to_mb
 
-    def _omega_spectator(self, h, inv_a, energy, delta, spacing, npts_p):
-        """Omega_Z of a unit s-wave drive at spectator momentum P in [0, P_max], at the
-        complex energy eps + i delta (B-X channel only)."""
-        g = self.gamma
-        alpha = 1.0 - g * g
-        ec = energy + 1j * delta
-        pmax = math.sqrt(energy / alpha)
-        top = 4.0 * pmax                 # the singular region; geometric panels beyond
-        npan = int(math.ceil(top / spacing / self.grid["order"]))
+    def _omega_spectator(self, inv_a, energy, delta, spacing, npts_p):
+        """Omega_Z of unit s-wave drives at the spectator momenta P in [0, P_max,c] of every
+        channel c, at the complex energy eps + i delta, for the force h = 0, and the number s
+        that gives every h (docs/stm-mixture.md section 8).
+
+        The force is rank one, V = K + h rho rho^T, so (Sherman-Morrison) the Omega of any h
+        is Omega(h) = Omega(0)/(1 - h s) with s = (rho g)^T (1 - K G)^-1 rho: one LU per
+        energy serves every kappa* and eta.  Each channel has its own dense grid up to four
+        times its P_max (the region of its singular kernel and propagator), geometric panels
+        beyond.
+
+        Returns
+        -------
+        tuple
+            (P per channel, Omega(0) per channel (arrays over P), s, number of nodes).
+        """
         xg, wg = np.polynomial.legendre.leggauss(self.grid["order"])
-        edges = np.linspace(0.0, top, npan + 1)
-        lo, hi = edges[:-1, None], edges[1:, None]
-        q = np.concatenate([(0.5 * (hi - lo) * xg + 0.5 * (hi + lo)).ravel()])
-        w = (0.5 * (hi - lo) * wg).ravel()
-        qt, wt = momentum_grid(self.cutoff, qmin=top, per_decade=self.grid["per_decade"],
-                               order=self.grid["order"])
-        keep = qt > top
-        q, w = np.concatenate([q, qt[keep]]), np.concatenate([w, wt[keep]])
-        cw = (1.0 / math.pi) * w * q * q / (-inv_a + np.sqrt(alpha * q * q - ec))
-        blocks = _BLOCKS[(0, 0)](g)
-        ps = np.linspace(0.0, pmax, npts_p)
-        mat = np.eye(len(q)) - (exchange_kernel(q, q, ec, *blocks) + h) * cw[None, :]
-        rhs = -2.0 * math.pi ** 2 * (exchange_kernel(q, ps, ec, *blocks) + h)
-        z = np.linalg.solve(mat, rhs)
-        return ps, -2.0 * math.pi ** 2 + cw @ z, len(q)
+        ec = energy + 1j * delta
+        nodes, cws, rhos, ps = [], [], [], []
+        for ch in self.channels:
+            pmax = math.sqrt(ch["escale"] * energy / ch["alpha"])
+            top = 4.0 * pmax                 # the singular region; geometric panels beyond
+            npan = int(math.ceil(top / spacing / self.grid["order"]))
+            edges = np.linspace(0.0, top, npan + 1)
+            lo, hi = edges[:-1, None], edges[1:, None]
+            q = (0.5 * (hi - lo) * xg + 0.5 * (hi + lo)).ravel()
+            w = (0.5 * (hi - lo) * wg).ravel()
+            qt, wt = momentum_grid(self.cutoff, qmin=top, per_decade=self.grid["per_decade"],
+                                   order=self.grid["order"])
+            keep = qt > top
+            q, w = np.concatenate([q, qt[keep]]), np.concatenate([w, wt[keep]])
+            nodes.append(q)
+            cws.append(ch["g"] * w * q * q / (-inv_a / ch["ratio"] + np.sqrt(ch["alpha"] * q * q - ch["escale"] * ec)))
+            rhos.append(np.full(q.size, ch["rho"]))
+            ps.append(np.linspace(0.0, pmax, npts_p))
+        cw, rho = np.concatenate(cws), np.concatenate(rhos)
+        mat = np.eye(cw.size) - self._kernel(ec, 0.0, nodes) * cw[None, :]
+        empty = np.zeros(0)
+        rhs = [-2.0 * math.pi ** 2 * self._kernel(ec, 0.0, nodes, [pc if i == c else empty
+                                                                    for i in range(len(ps))])
+               for c, pc in enumerate(ps)]
+        z = np.linalg.solve(mat, np.concatenate(rhs + [rho[:, None].astype(complex)], axis=1))
+        v = rho * cw
+        t0 = v @ z[:, :-1]
+        omegas = np.split(t0, np.cumsum([pc.size for pc in ps])[:-1])
+        omegas = [-2.0 * math.pi ** 2 * ch["rho"] + om for ch, om in zip(self.channels, omegas)]
+        return ps, omegas, complex(v @ z[:, -1]), cw.size
 
-    def _configuration_average(self, h, inv_a, energy, ps, omega, nalpha, ncos):
-        """<Im h |Omega|^2>/(2 pi^4) over the J = 0 hypersphere of three-atom plane waves.
+    def _configuration_average(self, inv_a, energy, ps, omegas, nalpha, ncos):
+        """<|Omega(0)|^2>/(2 pi^4) over the J = 0 hypersphere of three-atom plane waves.
 
-        Omega = A_1 + A_2, A_i = (N_i/2) Omega_unit(P_i) for the two B spectators.  The
-        measure is the same in every mass-scaled Jacobi set, so <|A_i|^2> is a 1-D integral
-        over the hyperangle of set i (where |N_i|^2 ~ 1/q_i^2 meets the measure's q_i^2), and
-        only the cross term 2 Re <A_1 A_2*> (singular like 1/q) is averaged in 2-D (set 3).
+        Omega = A_1 + A_2 (+ A_3), A_i = (N_i/2) Omega_BX(P_i) for the two B spectators and
+        A_3 = N_3 Omega_BB(P_3) for the X spectator where a_bb != 0 (N the Bethe-Peierls
+        amplitudes (2 pi/mu_c)/(1/a_c + i q_c), docs/stm-mixture.md section 8).  The measure is
+        the same in every mass-scaled Jacobi set, so <|A_i|^2> is a 1-D integral over the
+        hyperangle of set i (where |N_i|^2 ~ 1/q_i^2 meets the measure's q_i^2), and the
+        cross terms (singular like 1/q) and |A_3|^2 are averaged in 2-D (set 3).  The rate at
+        force h is Im h/|1 - h s|^2 times this (:meth:`_omega_spectator`).
         """
         g = self.gamma
         nu_x, mu_bb, nu_b = 1.0 / (1.0 + g), 1.0 / (4.0 * (1.0 - g)), 1.0 / (2.0 * (1.0 - g * g))
 
-        def unit(pb):
-            return np.interp(pb, ps, omega.real) + 1j * np.interp(pb, ps, omega.imag)
+        def unit(c, pb):
+            return np.interp(pb, ps[c], omegas[c].real) + 1j * np.interp(pb, ps[c], omegas[c].imag)
 
         xa, wa = np.polynomial.legendre.leggauss(nalpha)
         beta = (xa + 1.0) * math.pi / 4.0
         wb = wa * math.pi / 4.0 * np.sin(beta) ** 2 * np.cos(beta) ** 2
         pb = math.sqrt(2.0 * nu_b * energy) * np.cos(beta)        # set 1: B spectator
         qb = math.sqrt(energy) * np.sin(beta)                       # its B-X pair (2 mu = 1)
-        diag = np.sum(wb * np.abs(0.5 * 4.0 * math.pi * unit(pb)) ** 2 / (inv_a ** 2 + qb ** 2))
+        diag = np.sum(wb * np.abs(0.5 * 4.0 * math.pi * unit(0, pb)) ** 2 / (inv_a ** 2 + qb ** 2))
         diag = 2.0 * diag / (math.pi / 16.0)
         xc, wc = np.polynomial.legendre.leggauss(ncos)
         aa, cc = np.meshgrid(beta, xc, indexing="ij")
@@ -1003,26 +1028,33 @@ class MixtureSTM:
         for sgn in (-1.0, 1.0):                                   # the two B spectators
             pk = np.sqrt(np.maximum(p3 * p3 / 4.0 + q3 * q3 + sgn * p3 * q3 * cc, 0.0))
             qpair = np.sqrt(np.maximum(energy - pk * pk / (2.0 * nu_b), 0.0))
-            amps.append(0.5 * 4.0 * math.pi / (inv_a + 1j * qpair) * unit(pk))  # (2 pi/mu)/(1/a + i q)
-        cross = 2.0 * np.sum(weight * np.real(amps[0] * np.conj(amps[1]))) / np.sum(weight)
-        return float(np.imag(h)) * (diag + cross) / (2.0 * math.pi ** 4) * self.to_mb
+            amps.append(0.5 * 4.0 * math.pi / (inv_a + 1j * qpair) * unit(0, pk))  # (2 pi/mu)/(1/a + i q)
+        rest = 2.0 * np.real(amps[0] * np.conj(amps[1]))
+        if len(self.channels) > 1:
+            ch = self.channels[1]
+            a3 = (2.0 * math.pi / ch["mu"]) / (inv_a / ch["ratio"] + 1j * q3) * unit(1, p3)
+            rest = rest + np.abs(a3) ** 2 + 2.0 * np.real(a3 * np.conj(amps[0] + amps[1]))
+        cross = np.sum(weight * rest) / np.sum(weight)
+        return (diag + cross) / (2.0 * math.pi ** 4) * self.to_mb
 
     def recombination_energy(self, kappa_a, eta, energy, inv_a=-1.0,
                              deltas=(0.16, 0.08, 0.04, 0.02), spacing=0.4, npts_p=161,
                              nalpha=48, ncos=32):
-        """Deep-dimer recombination of three atoms at energy E > 0 (J = 0, a_bb = 0).
+        """Deep-dimer recombination of three atoms at energy E > 0 (J = 0).
 
         Three-atom plane waves drive the B-X channel with (2 pi/mu)/(1/a + i q_i) at each B
-        spectator momentum P_i; the absorbed flux Im h |Omega|^2/(2 pi^4) is averaged over
-        the hypersphere.  The equation is solved at eps + i delta eps for each of ``deltas``
-        on a grid of spacing ``spacing`` delta sqrt(eps) (the logarithmic singularities of
-        the kernel at real energy are smoothed over delta), and the rates are extrapolated
-        to delta = 0 by a polynomial in sqrt(delta) (the measured approach, docs/stm-mixture.md
-        section 8).
+        spectator momentum P_i (and, for a_bb != 0, the B-B channel with
+        (2 pi/mu_BB)/(1/a_bb + i q_3) at the X momentum P_3); the absorbed flux
+        Im h |Omega|^2/(2 pi^4) is averaged over the hypersphere.  The equation is solved at
+        eps + i delta eps for each of ``deltas`` on a grid of spacing ``spacing`` delta
+        sqrt(eps) (the logarithmic singularities of the kernel at real energy are smoothed
+        over delta), and the rates are extrapolated to delta = 0 by a polynomial in
+        sqrt(delta) (the measured approach, docs/stm-mixture.md section 8).  One LU per delta
+        serves all ``kappa_a`` (the force is rank one, :meth:`_omega_spectator`).
 
         Parameters
         ----------
-        kappa_a : float
+        kappa_a : float or array_like
             kappa* |a| (inv_a = -1) or kappa* in the momentum units of ``energy`` (inv_a = 0).
         eta : float
             Deep-dimer parameter (> 0).
@@ -1035,23 +1067,30 @@ class MixtureSTM:
         -------
         dict
             k3 (extrapolated, hbar a^4/m_B for inv_a = -1, hbar/m_B in the momentum units
-            otherwise), k3_delta (the rates at each delta), error (difference of the
-            extrapolations through all and through the last three deltas), bound
-            (:meth:`unitarity_bound`), nodes.
+            otherwise), k3_delta (the rates at each delta, last axis), error (difference of
+            the extrapolations through all and through the last three deltas), bound
+            (:meth:`unitarity_bound`), nodes; k3 and error have the shape of ``kappa_a``.
         """
-        if len(self.channels) != 1 or self.statistics != "boson":
-            raise NotImplementedError("finite energy is implemented for a_bb = 0 bosons only")
+        if self.statistics != "boson":
+            raise NotImplementedError("finite energy is implemented for bosons only")
+        if self.a_bb_ratio < 0.0:
+            raise NotImplementedError("finite energy needs a_bb/a >= 0: for a_bb/a < 0 a shallow B-B dimer "
+                                      "opens a channel whose outgoing flux is not computed")
         if not energy > 0 or inv_a > 0:
             raise ValueError("need E > 0 and a < 0 or 1/a = 0")
-        h = self.three_body_force(self._kappa(kappa_a, eta))
+        kappas = np.atleast_1d(np.asarray(kappa_a, dtype=float))
+        hs = np.array([self.three_body_force(self._kappa(k, eta)) for k in kappas], dtype=complex)
         vals, nodes = [], 0
         for d in deltas:
-            ps, om, nodes = self._omega_spectator(h, inv_a, energy, d * energy,
-                                                  spacing * d * math.sqrt(energy), npts_p)
-            vals.append(self._configuration_average(h, inv_a, energy, ps, om, nalpha, ncos))
+            ps, om, s, nodes = self._omega_spectator(inv_a, energy, d * energy,
+                                                     spacing * d * math.sqrt(energy), npts_p)
+            average = self._configuration_average(inv_a, energy, ps, om, nalpha, ncos)
+            vals.append(hs.imag / np.abs(1.0 - hs * s) ** 2 * average)
         x = np.sqrt(np.asarray(deltas))
         vals = np.asarray(vals)
-        full = float(np.polyval(np.polyfit(x, vals, len(x) - 1), 0.0))
-        part = float(np.polyval(np.polyfit(x[1:], vals[1:], len(x) - 2), 0.0))
-        return {"k3": full, "k3_delta": vals, "error": abs(full - part),
+        full = np.polyval(np.polyfit(x, vals, len(x) - 1), 0.0)
+        part = np.polyval(np.polyfit(x[1:], vals[1:], len(x) - 2), 0.0)
+        shape = np.shape(kappa_a)
+        return {"k3": full.reshape(shape) if shape else float(full[0]), "k3_delta": vals.T.reshape(shape + (len(x),)),
+                "error": np.abs(full - part).reshape(shape) if shape else float(abs(full[0] - part[0])),
                 "bound": self.unitarity_bound(energy), "nodes": nodes}
