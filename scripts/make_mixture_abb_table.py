@@ -4,7 +4,8 @@ Run:  OMP_NUM_THREADS=1 nice -n 19 python scripts/make_mixture_abb_table.py coar
       (3 values of r, 7 values of x: the Efimov-channel residual and the threshold limit
       per r, about 2 min on one core)
       OMP_NUM_THREADS=1 nice -n 19 python scripts/make_mixture_abb_table.py build
-      (the shipped grid RATIOS x X_GRID into lossfit/universal/data/, about 10 min on one core)
+      (the shipped grid RATIOS x X_GRID into lossfit/universal/data/, or into PATH given after
+      "build"; about 8 min on one core)
       OMP_NUM_THREADS=1 nice -n 19 python scripts/make_mixture_abb_table.py midpoints
       (slices at r between the grid's nodes against the shipped table's interpolation in ln r)
 
@@ -29,8 +30,8 @@ from lossfit.universal.tables import load_s11_ratio_table  # noqa: E402
 
 OUT = Path(__file__).resolve().parents[1] / "lossfit" / "universal" / "data"
 SYSTEM = heteronuclear("133Cs", "6Li")
-#: r = a_bb/a of the shipped table: 0.05..5, 2 per decade (docs/heteronuclear-rates.md says why)
-RATIOS = np.geomspace(0.05, 5.0, 5)
+#: r = a_bb/a of the shipped table: 0.05..15.8, 2 per decade (docs/heteronuclear-rates.md says why)
+RATIOS = 0.05 * 10.0 ** (0.5 * np.arange(6))
 
 
 def report(r, row):
@@ -53,7 +54,8 @@ def main(argv):
             report(r, row)
             print(f"  {time.time() - start:.0f} s", flush=True)
     elif mode == "build":
-        meta = build_ratio_table(SYSTEM, str(OUT / ratio_table_name(SYSTEM)), RATIOS, processes=1, progress=False)
+        path = argv[1] if len(argv) > 1 else str(OUT / ratio_table_name(SYSTEM))
+        meta = build_ratio_table(SYSTEM, path, RATIOS, processes=1, progress=False)
         print(meta, f"{time.time() - start:.0f} s", flush=True)
     elif mode == "midpoints":
         table = load_s11_ratio_table(str(OUT / ratio_table_name(SYSTEM)))

@@ -16,6 +16,7 @@ from .global_fit import fit_curves
 from .likelihood import SpectrumLikelihood
 from .parameters import ParameterSpace, default_priors
 from .posterior import Posterior, WalkerBlocks, check_run_settings, coerce_priors, interactive, make_result, walker_ball
+from .priors import LogUniform
 from .result import RANGE_REASONS, validity_findings
 from .sampling import open_backend, sample, stop_record
 
@@ -125,6 +126,7 @@ def prepare(data, *, species, free, model=None, priors=None, fixed=None, tie=Non
     try:
         all_priors = default_priors([n for n in free if n not in user_priors], spectra, density_sigma,
                                     period=period)
+        _clip_to_model(all_priors, mdl)
         all_priors.update(user_priors)
         space = ParameterSpace(free, all_priors, fixed=fixed, tie=tie)
         _check_constrained(space, spectra)
@@ -137,6 +139,20 @@ def prepare(data, *, species, free, model=None, priors=None, fixed=None, tie=Non
     likelihood = SpectrumLikelihood(spectra, sp, mdl, rtol=rtol, eta_min=space.eta_floor())
     likelihood.excluded = excluded
     return space, likelihood, Posterior(space, likelihood)
+
+
+def _clip_to_model(priors, model):
+    """A default a_- prior cut to the a_- the model accepts (a mixture with a_bb != 0 has its
+    kappa* a_- tabulated for a range of a_bb/a_-, docs/heteronuclear-rates.md)."""
+    limits = model.a_minus_range() if hasattr(model, "a_minus_range") else None
+    prior = priors.get("a_minus")
+    if limits is None or not isinstance(prior, LogUniform):
+        return
+    lo, hi = max(prior.lo, abs(limits[0])), min(prior.hi, abs(limits[1]))
+    if not lo < hi:
+        raise LossfitValueError("priors", f"the default a_minus window ({-prior.lo:g}, {-prior.hi:g}) a0 lies "
+                                f"outside the a_- the table covers for this a_bb ({limits[0]:g}, {limits[1]:g}) a0")
+    priors["a_minus"] = LogUniform(-lo, -hi)
 
 
 def fit(data, *, species, free, model=None, priors=None, walkers=32, steps=3000, burn=None, thin=1,

@@ -16,6 +16,7 @@ from ..efimov import Efimov
 from ..errors import ConvergenceWarning, FitCheckWarning, LossfitValueError, ValidityWarning, user_stacklevel
 from ..mixture import HeteronuclearSystem
 from ..rates import validity_flags
+from ..universal.mixture_model import resolve_model
 from .diagnostics import MIN_STEPS_PER_TAU, autocorrelation_times, split_rhat
 from .fit_checks import prior_bound_pileup
 from .likelihood import SpectrumLikelihood
@@ -213,8 +214,14 @@ class FitResult:
             out["a_minus/r_vdw"] = a_minus / self.species.r_vdw
             if isinstance(self.species, HeteronuclearSystem):
                 # the resonances the same a_- and eta give within a few periods
-                out["a_minus(1)"] = a_minus * self.species.scaling
-                out["a_minus(2)"] = a_minus * self.species.scaling ** 2
+                if self.species.a_bb:
+                    # with a_bb the next resonances follow kappa* a_-(a_bb/a) (docs/heteronuclear-rates.md)
+                    model = resolve_model(None, self.species)
+                    out["a_minus(1)"] = model.a_minus_image(a_minus, 1)
+                    out["a_minus(2)"] = model.a_minus_image(a_minus, 2)
+                else:
+                    out["a_minus(1)"] = a_minus * self.species.scaling
+                    out["a_minus(2)"] = a_minus * self.species.scaling ** 2
         if "a_star" in self.names and isinstance(self.species, HeteronuclearSystem):
             # the next atom-dimer resonance the same a* and eta* give
             out["a_star(1)"] = vals["a_star"] * self.species.scaling

@@ -421,6 +421,24 @@ class _EfimovChannel:
         """2 theta = 2 s0 ln(kappa* |a|) at ``a`` (a0) for the feature's length (a0)."""
         return 2.0 * self.table.s0 * (self.log_kappa(feature) + np.log(np.abs(np.asarray(a, dtype=float))))
 
+    def image(self, feature, n):
+        """The n-th next feature (a0) that the same kappa* and eta give: lambda^n times the
+        feature where a_bb = 0 (lambda = e^{pi/s0}); with a_bb the |a| that solves
+        kappa* |a| = lambda^n |kappa* a_-(a_bb/a)| (s0 of three resonant pairs at fixed r,
+        iterated; NaN where a_bb/a leaves the table)."""
+        feature = np.asarray(feature, dtype=float)
+        step = n * math.pi / self.table.s0
+        if not self.a_bb:
+            return feature * math.exp(step)
+        ln_kappa = self.log_kappa(feature)
+        lo, hi = self.table.r_range
+        ln_a = np.log(np.abs(feature)) + step
+        for _ in range(40):       # ln|kappa* a_-| changes by < 0.1 per unit of ln r: a contraction
+            r = np.clip(abs(self.a_bb) * np.exp(-ln_a), lo, hi)
+            ln_a = step + np.log(np.abs(self.table.kappa_a_minus(r))) - ln_kappa
+        r = abs(self.a_bb) * np.exp(-ln_a)
+        return np.where((r < lo) | (r > hi), np.nan, np.sign(feature) * np.exp(ln_a))
+
 
 @functools.lru_cache(maxsize=None)
 def _mixture_model(system, name):
@@ -629,6 +647,19 @@ class MixtureZeroRangeModel(EnergyModel):
     def two_theta(self, a, a_minus):
         """2 theta = 2 s0 ln(kappa*|a|) at scattering lengths ``a`` (a0) for a_- (a0)."""
         return self._three_body_channel.two_theta(a, a_minus)
+
+    def a_minus_range(self):
+        """(largest, smallest) a_- in a0 the model accepts: None for a_bb = 0; with a_bb those
+        that keep a_bb/a_- inside the table (its kappa* a_- is tabulated per r)."""
+        if not self.system.a_bb:
+            return None
+        lo, hi = self._three_body_channel.table.r_range
+        return -abs(self.system.a_bb) / hi, -abs(self.system.a_bb) / lo
+
+    def a_minus_image(self, a_minus, n):
+        """a_-^(n) (a0): the n-th next a < 0 resonance of the same kappa* and eta (lambda^n a_-
+        for a_bb = 0; with a_bb the per-r kappa* a_- of the table, :class:`_EfimovChannel`)."""
+        return self._three_body_channel.image(a_minus, n)
 
     def three_body_rows(self, a, efimov, q, channel="total", x_max=U_MAX ** 2):
         """Parameter rows of :attr:`three_body_kernel`; as the base class. At a > 0 ``channel``

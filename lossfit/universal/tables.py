@@ -313,6 +313,10 @@ class S11RatioTable:
                                 for j in range(self.ratios.size)])
         self._ln_kappa = np.log(np.abs(self.kappa_star_a_minus))
 
+    def kinks(self):
+        """(first, last) grid point in x (one x grid for all slices)."""
+        return self.slices[0].kinks()
+
     @property
     def r_range(self):
         """(r_min, r_max) of the grid."""
@@ -335,10 +339,15 @@ class S11RatioTable:
         """kappa* a_-(r) (negative) interpolated in ln r."""
         return -np.exp(self.weights(r) @ self._ln_kappa)
 
-    def amplitudes(self, x, r):
+    def amplitudes(self, x, r=None):
         """(1 - |s11|^2, s11, kappa* a_-) at x = k|a| and r = a_bb/a (arrays of one shape,
-        or r of the leading shape of x), s11 in the phase convention theta = s0 ln(kappa*|a|)."""
+        or r of the leading shape of x), s11 in the phase convention theta = s0 ln(kappa*|a|);
+        r = None gives every slice (a leading axis of length n_r)."""
         x = np.asarray(x, dtype=float)
+        if r is None:
+            out = [t.amplitudes(x) for t in self.slices]
+            turn = np.exp(-2j * self.s0 * self._ln_kappa).reshape((-1,) + (1,) * x.ndim)
+            return np.stack([o[0] for o in out]), np.stack([o[1] for o in out]) * turn, self.kappa_star_a_minus
         w = self.weights(r)
         w = w.reshape(w.shape[:-1] + (1,) * (x.ndim - w.ndim + 1) + w.shape[-1:])
         logt = np.empty(x.shape + (self.ratios.size,))

@@ -1,4 +1,5 @@
-"""Build the a < 0 table s11(x) of two identical bosons and a third atom (a_bb = 0, J = 0).
+"""Build the a < 0 table s11(x) of two identical bosons and a third atom (J = 0), for a_bb = 0
+or at fixed ratios r = a_bb/a >= 0 (:func:`build_ratio_table`).
 
 For each x = k|a| (E = hbar^2 k^2/(2 mu)) of a grid uniform in ln x, the B-B-X
 momentum-space solver (:mod:`.stm_mixture`, docs/stm-mixture.md section 8) gives the
@@ -16,8 +17,8 @@ The shipped tables are written by ``scripts/make_mixture_tables.py``; tables of 
 pairs by ``lossfit tables BOSON OTHER`` into :func:`lossfit.universal.tables.cache_directory`.
 """
 
-__all__ = ["build_table", "build_ratio_table", "solve_slice", "channel_fit", "blended_transmission", "period_kappas",
-           "git_hash", "X_GRID", "N_THETA"]
+__all__ = ["build_table", "build_ratio_table", "solve_slice", "solve_x", "channel_fit", "blended_transmission",
+           "period_kappas", "git_hash", "X_GRID", "N_THETA"]
 
 import json
 import math
@@ -96,8 +97,27 @@ def period_kappas(s0, kappa_a, n_theta):
     return abs(kappa_a) * np.exp(np.arange(n_theta) * math.pi / (n_theta * s0))
 
 
-def _one_x(args):
-    ratio, a_bb_ratio, kappa_a_minus, x, n_theta, cutoff = args
+def solve_x(ratio, a_bb_ratio, kappa_a_minus, x, n_theta=N_THETA, cutoff=CUTOFF):
+    """One row of a table: the Efimov-channel fit at x = k|a| (:func:`channel_fit`).
+
+    Parameters
+    ----------
+    ratio, a_bb_ratio : float
+        m_B/m_X and r = a_bb/a (>= 0).
+    kappa_a_minus : float
+        kappa* a_- at this r (the kappa* of the solves start there and span one period).
+    x : float
+        k|a|, E = hbar^2 k^2/(2 mu).
+    n_theta : int
+        kappa* values over the period.
+    cutoff : float
+        Lambda |a|.
+
+    Returns
+    -------
+    tuple
+        (x, the fit's dict: T, s11, residual; the largest relative extrapolation error).
+    """
     solver = stm_mixture.MixtureSTM(ratio, a_bb_ratio=a_bb_ratio, cutoff=cutoff, qmin=QMIN)
     kappas = period_kappas(solver.s0, kappa_a_minus, n_theta)
     out = solver.recombination_energy(kappas, ETA, x * x)       # one LU per offset for all kappa*
@@ -152,9 +172,9 @@ def solve_slice(ratio, a_bb_ratio=0.0, *, x_grid=X_GRID, n_theta=N_THETA, cutoff
     bar = dict(total=len(tasks), disable=not progress, desc=f"{label} table", unit="x")
     if processes > 1:
         with ProcessPoolExecutor(max_workers=processes) as pool:
-            rows = list(tqdm(pool.map(_one_x, tasks), **bar))
+            rows = list(tqdm(pool.map(solve_x, *zip(*tasks)), **bar))
     else:
-        rows = [_one_x(t) for t in tqdm(tasks, **bar)]
+        rows = [solve_x(*t) for t in tqdm(tasks, **bar)]
     t_fit = np.array([r[1]["T"] for r in rows])
     s11 = np.array([r[1]["s11"] for r in rows])
     phase = np.unwrap(np.angle(s11))
