@@ -406,16 +406,22 @@ class _EfimovChannel:
     def log_kappa(self, feature):
         """ln kappa* (kappa* in 1/a0) for the feature's length (a0, float or walker array):
         ln|kappa* a_f| - ln|a_f|, with kappa* a_- taken at r = a_bb/a_- where a_bb != 0."""
-        feature = np.asarray(feature, dtype=float)
         if not self.a_bb:
-            return math.log(abs(self.kappa_feature)) - np.log(np.abs(feature))
+            return math.log(abs(self.kappa_feature)) - np.log(np.abs(np.asarray(feature, dtype=float)))
+        if np.ndim(feature) == 0:
+            feature = float(feature)
+            r = self.a_bb / feature
+            bad = not self.table.r_range[0] <= r <= self.table.r_range[1]
+            if not bad:
+                return self.table.ln_abs_kappa_a_minus(r) - math.log(abs(feature))
+        feature = np.asarray(feature, dtype=float)
         r = self.a_bb / feature
         lo, hi = self.table.r_range
-        if ((r < lo) | (r > hi)).any():
+        if np.min(r) < lo or np.max(r) > hi:
             raise LossfitValueError(self.feature, f"a_bb/{self.feature} must lie in the tabulated [{lo:g}, {hi:g}] "
                                     f"(a_bb = {self.a_bb:g} a0): {self.feature} between "
                                     f"{-abs(self.a_bb) / lo:.4g} and {-abs(self.a_bb) / hi:.4g} a0")
-        return np.log(np.abs(self.table.kappa_a_minus(r))) - np.log(np.abs(feature))
+        return self.table.ln_abs_kappa_a_minus(r) - np.log(np.abs(feature))
 
     def two_theta(self, a, feature):
         """2 theta = 2 s0 ln(kappa* |a|) at ``a`` (a0) for the feature's length (a0)."""

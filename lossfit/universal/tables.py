@@ -39,6 +39,7 @@ __all__ = ["S11Table", "S11RatioTable", "load_s11_ratio_table",
            "table_path",
            "cache_directory", "spline_coefficients"]
 
+import bisect
 import cmath
 import json
 import math
@@ -312,6 +313,10 @@ class S11RatioTable:
         self._basis = np.stack([spline_coefficients(self._ln_r, np.eye(self.ratios.size)[j])
                                 for j in range(self.ratios.size)])
         self._ln_kappa = np.log(np.abs(self.kappa_star_a_minus))
+        # the same spline of ln|kappa* a_-| written out, for the per-walker rotation
+        self._kappa_c = spline_coefficients(self._ln_r, self._ln_kappa)
+        self._ln_r_list = self._ln_r.tolist()
+        self._kappa_list = self._kappa_c.T.tolist()
 
     def kinks(self):
         """(first, last) grid point in x (one x grid for all slices)."""
@@ -338,6 +343,22 @@ class S11RatioTable:
     def kappa_a_minus(self, r):
         """kappa* a_-(r) (negative) interpolated in ln r."""
         return -np.exp(self.weights(r) @ self._ln_kappa)
+
+    def ln_abs_kappa_a_minus(self, r):
+        """ln|kappa* a_-(r)| (float or array, r inside the grid): the spline of
+        :meth:`kappa_a_minus`, evaluated without the weights (a walker's rotation)."""
+        if np.ndim(r) == 0:
+            # one walker: plain floats (numpy's per-call overhead would dominate a plan's evaluation)
+            ln_r = math.log(float(r))
+            i = min(max(bisect.bisect_left(self._ln_r_list, ln_r) - 1, 0), self.ratios.size - 2)
+            dx = ln_r - self._ln_r_list[i]
+            c = self._kappa_list[i]
+        else:
+            ln_r = np.log(r)
+            i = np.clip(np.searchsorted(self._ln_r, ln_r) - 1, 0, self.ratios.size - 2)
+            dx = ln_r - self._ln_r[i]
+            c = self._kappa_c[:, i]
+        return ((c[0] * dx + c[1]) * dx + c[2]) * dx + c[3]
 
     def amplitudes(self, x, r=None):
         """(1 - |s11|^2, s11, kappa* a_-) at x = k|a| and r = a_bb/a (arrays of one shape,
