@@ -415,7 +415,9 @@ def heteronuclear(boson, other, a_bb=0.0, *, c6_bx=None):
     other : str or Species
         Species X of the third atom (``"6Li"``, ``"40K"``, …).
     a_bb : float, optional
-        B-B scattering length in a0 (default 0).
+        B-B scattering length in a0 (default 0). Rates with a_bb != 0 exist for
+        133Cs-133Cs-6Li at a < 0 with a_bb <= 0 and 0.05 <= a_bb/a <= 15.8
+        (docs/heteronuclear-rates.md, "The B-B interaction at a < 0"); elsewhere they are refused.
     c6_bx : float, optional
         Interspecies C6 in atomic units; required for pairs outside :func:`known_pairs`,
         and overrides the table otherwise.

@@ -1,7 +1,8 @@
 """Zero-range recombination of two identical bosons and a third atom, a < 0, thermally averaged.
 
 The B-B-X counterpart of :class:`lossfit.universal.models.ZeroRangeModel` for a < 0 (two
-resonant B-X pairs, a_bb = 0, J = 0). A table of the Efimov-channel reflection amplitude
+resonant B-X pairs, a_bb = 0, J = 0; for 133Cs-133Cs-6Li also a B-B length a_bb <= 0, below).
+A table of the Efimov-channel reflection amplitude
 s11(x), x = k|a| with E = hbar^2 k^2/(2 mu) (mu the B-X reduced mass), built by
 ``scripts/make_mixture_tables.py`` from the B-B-X momentum-space solver, gives the event
 rate (K3 n_B^2 n_X events per volume and time)
@@ -25,6 +26,13 @@ P the absorption probability above and x_T = k_T |a|, k_T = sqrt(2 mu k_BT)/hbar
 path is a fixed composite Gauss-Legendre rule in ln u whose table values are prepared once
 per point (:class:`MixturePlan`); the reference path is the adaptive engine of
 :mod:`lossfit.thermal` on :attr:`MixtureZeroRangeModel.three_body_kernel`.
+
+With a B-B scattering length a_bb (a property of the system, in a0) the rate depends also
+on r = a_bb/a: :class:`lossfit.universal.tables.S11RatioTable` holds s11(x; r) and kappa* a_-(r)
+on a grid of r, interpolated in ln r at each point's own r (fixed for a data set, so the fixed
+rule's table values are prepared per point and node); s0 is then that of three resonant
+pairs and kappa* = |kappa* a_-(a_bb/a_-)|/|a_-| (docs/heteronuclear-rates.md, "The B-B
+interaction at a < 0").
 
 Atom-dimer relaxation at a > 0, B + (BX) -> deep dimers (dimers lost, dn_D/dt = -beta n_B n_D),
 has the same Efimov-channel form with the table s_AD(x) of
@@ -458,8 +466,9 @@ class MixtureZeroRangeModel(EnergyModel):
     Parameters
     ----------
     system : HeteronuclearSystem
-        A system with shipped or cached tables (:func:`shipped_systems`), a_bb = 0; each table
-        is loaded when its rate is first used.
+        A system with shipped or cached tables (:func:`shipped_systems`), a_bb = 0, or
+        133Cs-133Cs-6Li with a_bb <= 0 (a < 0 only, :func:`mixture_ratio_table`); each table is
+        loaded when its rate is first used.
 
     Notes
     -----

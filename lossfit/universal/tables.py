@@ -24,6 +24,9 @@ carry their own ``s0``; above their grid 1 - |s11|^2 tends to 1 - exp(-2 pi s0) 
 turns as -2 s0 ln x from the last node (no exact unitarity phase is known in their phase
 convention), both with the last difference decaying like 1/x.
 
+``data/s11_mixture_abb_133Cs_6Li.npz`` (``scripts/make_mixture_abb_table.py``) stacks such
+tables on a grid of r = a_bb/a (a B-B interaction): :class:`S11RatioTable`, interpolated in ln r.
+
 The tables ``data/s_ad_mixture_<B>_<X>.npz`` (``scripts/make_mixture_atom_dimer_tables.py``,
 docs/heteronuclear-rates.md) hold s_AD(k a) and T_AD(k a) of a boson B colliding with the
 shallow B-X dimer at a > 0, below and above breakup: :class:`MixtureAtomDimerTable`; the
