@@ -6,7 +6,10 @@ error that names the key)::
     [data]
     species = "133Cs"                      # name known to lossfit.species; data files recorded
                                            # for another species are refused unless
-                                           # allow_species_mismatch = true
+                                           # allow_species_mismatch = true; a mixture is
+                                           # "B-B-X", e.g. "133Cs-133Cs-6Li"
+    a_bb = -1500.0                         # optional, mixtures only: the B-B scattering length
+                                           # (a0; default 0), lossfit.heteronuclear's a_bb
     spectra = ["data.h5"]                  # lossfit.spectra HDF5 files (paths relative
                                            # to the job file)
     csv = [{ path = "run1.csv", kind = "l3", label = "run 1" }]   # optional CSV tables; each may
@@ -77,6 +80,7 @@ from ..inference.fit_checks import same_species
 from ..inference.fitting import EXCLUDE_CHOICES
 from ..inference.parameters import EFIMOV_NAMES, NUISANCE_NAMES
 from ..inference.priors import LogNormal, LogUniform, Normal, Uniform
+from ..mixture import HeteronuclearSystem
 from ..universal.mixture_model import resolve_species
 from ..universal.models import DEFAULT_MODEL, available_models
 
@@ -90,8 +94,8 @@ class JobError(LossfitValueError):
     """A job file is malformed; ``argument`` is the offending key."""
 
 
-_SECTIONS = {"data": {"species", "spectra", "csv", "campaign", "binding_energies", "allow_species_mismatch",
-                      "exclude"},
+_SECTIONS = {"data": {"species", "a_bb", "spectra", "csv", "campaign", "binding_energies",
+                      "allow_species_mismatch", "exclude"},
              "model": {"name", "tie"},
              "free": None,
              "fixed": None, "sampler": {"walkers", "steps", "max_steps", "seed", "burn", "thin",
@@ -141,6 +145,15 @@ class Job:
     binding_energies: object = None
     allow_species_mismatch: bool = False
     exclude: object = None
+    a_bb: float = 0.0
+
+    @property
+    def fitted_species(self):
+        """What the fit runs with: the species name, or for a mixture with ``a_bb`` its
+        HeteronuclearSystem (the B-B scattering length in a0)."""
+        if self.a_bb == 0.0:
+            return self.species
+        return dataclasses.replace(resolve_species(self.species), a_bb=self.a_bb)
 
     @property
     def base_dir(self):
@@ -202,7 +215,7 @@ class Job:
     def fit_kwargs(self, steps=None):
         """Keyword arguments of :func:`lossfit.fit` for this job."""
         s = self.sampler
-        kw = dict(species=self.species, free=self.free, model=self.model, priors=self.priors,
+        kw = dict(species=self.fitted_species, free=self.free, model=self.model, priors=self.priors,
                   walkers=s["walkers"], steps=steps or s["steps"], max_steps=s["max_steps"],
                   burn=None if s["burn"] == "auto" else s["burn"], thin=s["thin"], seed=s["seed"],
                   fixed=self.fixed, tie=self.tie, exclude=self.exclude)
@@ -277,9 +290,11 @@ def parse_job(text, path):
     if "species" not in data:
         raise JobError("data.species", "missing")
     try:
-        sp = resolve_species(data["species"]).name
+        system = resolve_species(data["species"])
     except LossfitValueError as err:
         raise JobError("data.species", str(err)) from None
+    sp = system.name
+    a_bb = _a_bb(data, system)
     spectra = data.get("spectra", [])
     if not isinstance(spectra, list) or not all(isinstance(p, str) for p in spectra):
         raise JobError("data.spectra", f"must be a list of file names, got {spectra!r}")
@@ -371,7 +386,20 @@ def parse_job(text, path):
                tie=None if tie == "none" else tie, free=free, priors=priors, fixed=fixed, sampler=sampler,
                study=study, binding_energies=binding,
                allow_species_mismatch=_flag("data.allow_species_mismatch", data.get("allow_species_mismatch", False)),
-               exclude=exclude)
+               exclude=exclude, a_bb=a_bb)
+
+
+def _a_bb(data, system):
+    """The validated ``[data] a_bb`` (B-B scattering length of a mixture, a0), 0 if absent."""
+    if "a_bb" not in data:
+        return 0.0
+    value = data["a_bb"]
+    if not isinstance(system, HeteronuclearSystem):
+        raise JobError("data.a_bb", f"is the B-B scattering length of a mixture species 'B-B-X'; "
+                       f"{system.name} is one species")
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
+        raise JobError("data.a_bb", f"must be a number (a0), got {value!r}")
+    return float(value)
 
 
 def _exclude(data, campaign, study):

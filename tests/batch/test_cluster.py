@@ -195,6 +195,9 @@ steps = 100
      "free.density_scale"),
     (lambda t: t.replace("[data]", "[data\n"), "job"),
     (lambda t: t.replace('spectra = ["data.h5"]', 'spectra = "data.h5"'), "data.spectra"),
+    (lambda t: t.replace('species = "133Cs"', 'species = "133Cs"\na_bb = -1500.0'), "data.a_bb"),
+    (lambda t: t.replace('species = "133Cs"', 'species = "133Cs-133Cs-6Li"\nallow_species_mismatch = true\n'
+                                                'a_bb = "large"'), "data.a_bb"),
 ])
 def test_malformed_job_files_name_the_key(campaign, tmp_path, edit, key):
     shutil.copy(campaign / "data.h5", tmp_path / "data.h5")
@@ -205,6 +208,18 @@ def test_malformed_job_files_name_the_key(campaign, tmp_path, edit, key):
     with pytest.raises(JobError) as info:
         load_job(path)
     assert info.value.argument == key
+
+
+def test_a_job_gives_a_mixture_its_boson_boson_length(campaign, tmp_path):
+    # [data] a_bb reaches lf.fit as the system's B-B scattering length (a0)
+    shutil.copy(campaign / "data.h5", tmp_path / "data.h5")
+    path = tmp_path / "job.toml"
+    path.write_text(GOOD.replace('species = "133Cs"', 'species = "133Cs-133Cs-6Li"\nallow_species_mismatch = true\n'
+                                                      'a_bb = -1500.0'))
+    species = load_job(path).fit_kwargs()["species"]
+    assert (species.name, species.a_bb) == ("133Cs-133Cs-6Li", -1500.0)
+    path.write_text(GOOD.replace('species = "133Cs"', 'species = "133Cs-133Cs-6Li"\nallow_species_mismatch = true'))
+    assert load_job(path).fit_kwargs()["species"] == "133Cs-133Cs-6Li"      # a_bb = 0: the name
 
 
 def test_bad_job_on_the_command_line_exits_2(tmp_path):
