@@ -36,7 +36,8 @@ honest error bar for a curve whose loss is barely detected (the posterior piles 
 against L3 = 0, where the linearised covariance is meaningless).
 """
 
-__all__ = ["CurveFit", "fit_curve", "fit_curves_individually", "spectrum_from_curves"]
+__all__ = ["CurveFit", "fit_curve", "fit_curves_individually", "spectrum_from_curves", "mcmc_settings",
+           "sample_residual_posterior", "half_width_68"]
 
 import math
 import warnings
@@ -48,7 +49,7 @@ from scipy.optimize import least_squares
 from ..data.curves import DecayCurve, check_curves
 from ..data.spectra import LossSpectrum
 from ..dimer_kinetics import DEFAULT_DEPTH_OVER_T
-from ..errors import ConvergenceWarning, LossfitValueError, check_positive
+from ..errors import ConvergenceWarning, LossfitValueError, check_positive, user_stacklevel
 from ..experiment.decay import DecayBatch
 from ..experiment.trap import as_trap
 from ..species import species as _lookup_species
@@ -221,7 +222,20 @@ def _initial_guess(curve, model, trap, sp):
 _MCMC_DEFAULTS = {"walkers": 16, "steps": 1500, "seed": None}
 
 
-def _mcmc_settings(mcmc):
+def mcmc_settings(mcmc):
+    """The sampler settings of a per-curve fit's ``mcmc=`` argument.
+
+    Parameters
+    ----------
+    mcmc : None, bool or dict
+        None or False: no sampling; True: the defaults (16 walkers, 1500 steps, no seed);
+        a dict may override ``walkers`` (>= 4), ``steps`` (>= 50) and ``seed``.
+
+    Returns
+    -------
+    dict or None
+        ``walkers``, ``steps`` and ``seed``, or None without sampling.
+    """
     if mcmc is None or mcmc is False:
         return None
     if mcmc is True:
@@ -251,6 +265,52 @@ class _CurveLogProb:
             return -math.inf
         r = self.model(x)
         return -0.5 * float(r @ r)
+
+
+def sample_residual_posterior(residuals, x_best, cov, lower, settings, *, label="curve"):
+    """Sample the Gaussian likelihood of normalised residuals around a least-squares optimum.
+
+    The log-likelihood is -r(x).r(x)/2 with flat priors in the fit coordinates x (bounded
+    below by ``lower``); emcee's ensemble (Foreman-Mackey et al., PASP 125, 306 (2013))
+    starts in a ball of 1e-2 of the linearised widths around ``x_best``. The first part of
+    the chain is dropped as burn-in (:func:`lossfit.inference.posterior.auto_burn`); a
+    :class:`~lossfit.errors.ConvergenceWarning` names ``label`` when the kept steps are
+    fewer than 50 autocorrelation times.
+
+    Parameters
+    ----------
+    residuals : callable
+        x (1-D array) -> normalised residuals (model - data)/error (1-D array).
+    x_best : ndarray, shape (ndim,)
+        The least-squares optimum.
+    cov : ndarray, shape (ndim, ndim)
+        Its linearised covariance (sets the size of the starting ball).
+    lower : ndarray, shape (ndim,)
+        Lower bounds of the coordinates (-inf where unbounded).
+    settings : dict
+        From :func:`mcmc_settings`.
+    label : str
+        Name of the curve in warnings.
+
+    Returns
+    -------
+    (ndarray, ndarray)
+        The kept samples, shape (draws, ndim), and the autocorrelation time of each
+        coordinate in steps.
+    """
+    flat, tau, kept = _sample_curve(residuals, x_best, cov, lower, settings)
+    if kept < 50 * float(np.max(tau)):
+        warnings.warn(f"{label}: {kept} kept steps are fewer than 50 autocorrelation "
+                      f"times (tau = {np.max(tau):.0f}); increase mcmc steps", ConvergenceWarning,
+                      stacklevel=user_stacklevel())
+    return flat, tau
+
+
+def half_width_68(samples):
+    """Half the central 68 % interval (15.865th to 84.135th percentile) of ``samples``: the
+    one-sigma error a sampled per-curve fit reports, in the samples' units."""
+    lo, hi = np.percentile(samples, [15.865, 84.135])
+    return float(0.5 * (hi - lo))
 
 
 def _sample_curve(model, x_best, cov, lower, settings):
@@ -298,7 +358,7 @@ def fit_curve(curve, *, species, resonance=None, heating=True, recombination_hea
     -------
     CurveFit
     """
-    settings = _mcmc_settings(mcmc)
+    settings = mcmc_settings(mcmc)
     if not isinstance(curve, DecayCurve):
         raise LossfitValueError("curve", f"must be a DecayCurve, got {type(curve).__name__}")
     sp = _lookup_species(species)
@@ -343,18 +403,11 @@ def fit_curve(curve, *, species, resonance=None, heating=True, recombination_hea
     extra = {}
     value, error = p["value"], errors["value"]
     if settings is not None:
-        flat, tau, kept = _sample_curve(model, fit.x, cov, lb, settings)
+        flat, tau = sample_residual_posterior(model, fit.x, cov, lb, settings, label=f"curve {curve.label!r}")
         draws = [model.unpack(x) for x in flat]
         samples = {k: np.array([d[k] for d in draws]) for k in p}
-        errors = {}
-        for k, v in samples.items():
-            lo, hi = np.percentile(v, [15.865, 84.135])
-            errors[k] = 0.5 * (hi - lo)
+        errors = {k: half_width_68(v) for k, v in samples.items()}
         value, error = float(np.median(samples["value"])), errors["value"]
-        if kept < 50 * float(np.max(tau)):
-            warnings.warn(f"curve {curve.label!r}: {kept} kept steps are fewer than 50 autocorrelation "
-                          f"times (tau = {np.max(tau):.0f}); increase mcmc steps", ConvergenceWarning,
-                          stacklevel=2)
         extra = {"method": "mcmc", "samples": samples, "tau": tau}
         cov = np.cov(flat.T)
     return CurveFit(curve=curve, a=a, kind="beta" if model.dimers else "l3", value=value,
