@@ -80,7 +80,8 @@ GROUPS = {
         ("Fits and results", ["fit", "FitResult", "LogUniform", "Uniform", "LogNormal", "Normal", "fit_curve",
                               "spectrum_from_curves", "load_result"]),
         ("Analyses", ["temperature_study", "compare_models", "published_results"]),
-        ("Two identical bosons and a third atom", ["heteronuclear", "HeteronuclearSystem", "scaling_test"]),
+        ("Two identical bosons and a third atom", ["heteronuclear", "HeteronuclearSystem", "scaling_test",
+                                                   "simulate_mixture_decay", "fit_mixture_curve"]),
         ("The experiment: traps, decay, resonances",
          ["HarmonicTrap", "simulate_decay", "TabulatedRate", "FeshbachResonance", "OverlappingResonances",
           "ScatteringLengthTable", "average_over_field_noise", "calibrate_from_binding_energies"]),
@@ -114,7 +115,8 @@ def _attribute_doc(module, name):
 #: Modules with a reference page (docs/api/<module>.rst), in the order of the reference.
 API_MODULES = ["lossfit", "lossfit.plotting", "lossfit.inference", "lossfit.inference.curve_fits",
                "lossfit.inference.temperature_study", "lossfit.inference.model_comparison", "lossfit.rates",
-               "lossfit.mixture", "lossfit.batch.jobs", "lossfit.constants", "lossfit.units", "lossfit.errors"]
+               "lossfit.mixture", "lossfit.experiment.mixture_decay", "lossfit.inference.mixture_curve_fits",
+               "lossfit.batch.jobs", "lossfit.constants", "lossfit.units", "lossfit.errors"]
 
 
 def _homes():

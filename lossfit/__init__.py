@@ -25,7 +25,8 @@ __all__ = ["__version__", "errors", "S0", "SCALING_FACTOR", "LossfitError", "Los
            "OverlappingResonances", "ScatteringLengthTable", "average_over_field_noise",
            "calibrate_from_binding_energies", "DecayCurve", "write_campaign", "read_campaign",
            "read_curves_csv", "fit_curve", "spectrum_from_curves", "load_result", "trimer_energies", "compare_models",
-           "temperature_study", "published_results", "heteronuclear", "HeteronuclearSystem", "scaling_test"]
+           "temperature_study", "published_results", "heteronuclear", "HeteronuclearSystem", "scaling_test",
+           "simulate_mixture_decay", "fit_mixture_curve"]
 
 # Everything beyond the foundations loads on first use: the rates (numba, ~0.4 s), data
 # files and h5py, decay curves and scipy.optimize, the inference layer with emcee
@@ -46,6 +47,8 @@ _LAZY.update({name: "lossfit.experiment.feshbach" for name in ("FeshbachResonanc
                                                     "calibrate_from_binding_energies")})
 _LAZY["HarmonicTrap"] = "lossfit.experiment.trap"
 _LAZY.update({name: "lossfit.mixture" for name in ("heteronuclear", "HeteronuclearSystem")})
+_LAZY["simulate_mixture_decay"] = "lossfit.experiment.mixture_decay"
+_LAZY["fit_mixture_curve"] = "lossfit.inference.mixture_curve_fits"
 _LAZY["load_result"] = "lossfit.batch.runner"
 _LAZY["trimer_energies"] = "lossfit.universal.spectrum"
 _LAZY["compare_models"] = "lossfit.inference.model_comparison"
