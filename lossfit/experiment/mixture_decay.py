@@ -33,8 +33,8 @@ z). For one species in one trap u = 1/2, the identical-boson value of
 
 One-body loss removes average atoms and leaves T unchanged; no recombination heating is
 modelled. ``heating=False`` holds the temperatures at their initial values. The equations
-are integrated with scipy's ``solve_ivp`` (DOP853, Hairer, Norsett & Wanner, Solving
-Ordinary Differential Equations I, sec. II.10) in the scaled variables N_s/N_s(0) and
+are integrated with scipy's ``solve_ivp`` (DOP853, the 8(5,3) pair of Hairer, Norsett & Wanner, Solving
+Ordinary Differential Equations I, 2nd ed. (1993)) in the scaled variables N_s/N_s(0) and
 T_s/T_s(0).
 """
 
