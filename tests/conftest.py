@@ -14,6 +14,7 @@ matplotlib.use("Agg")
 
 import pytest  # noqa: E402
 
+import lossfit  # noqa: E402
 from lossfit.errors import ValidityWarning  # noqa: E402
 
 _WARM = os.path.join(os.path.dirname(os.path.abspath(__file__)), "_warm_kernels.py")
@@ -29,7 +30,11 @@ def pytest_sessionstart(session):
     config = session.config
     if hasattr(config, "workerinput") or not getattr(config.option, "numprocesses", None):
         return
-    env = dict(os.environ, MPLBACKEND="Agg")
+    # the warm-up must compile the lossfit the tests import (the checkout, not a copy
+    # installed in site-packages: numba's cache belongs to one source file)
+    package_root = os.path.dirname(os.path.dirname(os.path.abspath(lossfit.__file__)))
+    env = dict(os.environ, MPLBACKEND="Agg",
+               PYTHONPATH=os.pathsep.join(filter(None, [package_root, os.environ.get("PYTHONPATH")])))
     parts = [subprocess.Popen([sys.executable, _WARM, part], env=env, stdout=subprocess.DEVNULL,
                               stderr=subprocess.PIPE, text=True) for part in ("rates", "curves")]
     for proc in parts:
