@@ -31,6 +31,7 @@ except ImportError:
 from ..errors import Interrupted, LossfitValueError
 from .backends import CheckpointBackend
 from .diagnostics import MIN_STEPS_PER_TAU, autocorrelation_times
+from .moves import WalkerSetStretchMove
 
 #: ``steps="auto"``: sample until converged (:func:`convergence_state`), at most ``max_steps``.
 AUTO_STEPS = "auto"
@@ -209,7 +210,10 @@ def sample(log_prob, p0, steps, *, backend=None, pool=None, seed=None, progress=
         store.metadata.update(metadata)
     if vectorize and pool is not None:
         raise LossfitValueError("pool", "a vectorised log_prob splits the walkers itself; pass pool=None")
-    sampler = emcee.EnsembleSampler(walkers, ndim, log_prob, pool=pool, backend=store, vectorize=vectorize)
+    # emcee's stretch move with the acceptance of a half-ensemble in one array operation
+    # (the same chain, bit for bit: lossfit.inference.moves)
+    sampler = emcee.EnsembleSampler(walkers, ndim, log_prob, pool=pool, backend=store, vectorize=vectorize,
+                                    moves=WalkerSetStretchMove(vectorized=vectorize))
     if done == 0:
         store.reset(walkers, ndim)
         sampler.random_state = np.random.RandomState(seed).get_state()
