@@ -1142,10 +1142,8 @@ def simulate_decay(t, *, species, trap_hz, n0, t0_nK, l3=None, efimov=None, a=No
     p[_HEAT] = 1.0 if heating else 0.0
     p[_KIN] = 1.0 if explicit else 0.0
     p[_METHOD] = _method_code(method)
-    y0 = np.array([n_a, n_d, temp0, 0.0][:_DIM if explicit else _DIM - 1])
-    scale = max(n_a, n_d, 1.0)
-    atol = np.array([tol * 1e-6 * scale, tol * 1e-6 * scale, tol * 1e-6 * temp0, tol * 1e-6 * scale])
-    out = np.empty((times.size, y0.size))
+    y0 = np.array([n_a, n_d, temp0, 0.0])
+    dim = _DIM if explicit else _DIM - 1
 
     # Heating never cools (T_h >= 0), so T(t) lies in [t0, T_max]; tables of callables
     # start narrow and grow until the temperature stays inside. The lower margin covers
@@ -1155,8 +1153,7 @@ def simulate_decay(t, *, species, trap_hz, n0, t0_nK, l3=None, efimov=None, a=No
     for _ in range(_MAX_TABLE_EXTENSIONS):
         p[_L3], l3_knots, l3_coefs = l3_spec.kernel_args(t_lo, t_hi)
         p[_BETA], b_knots, b_coefs = beta_spec.kernel_args(t_lo, t_hi)
-        status = _integrate(times, y0, p, l3_knots, l3_coefs, b_knots, b_coefs, tol, atol,
-                            1_000_000, out)
+        status, out = _integrate_one(times, y0, p, l3_knots, l3_coefs, b_knots, b_coefs, tol)
         which = {_OUT_OF_TABLE: l3_spec, _OUT_OF_BETA_TABLE: beta_spec}.get(status)
         if which is None or which.func is None:
             break
@@ -1172,8 +1169,23 @@ def simulate_decay(t, *, species, trap_hz, n0, t0_nK, l3=None, efimov=None, a=No
                                 "extend the table")
     if status != _OK:
         raise LossfitValueError("t", _STATUS_TEXT[status])
+    out = out[:, :dim]
     lost = out[:, 3] if explicit else _lost_by_conservation(out[:, 0], out[:, 1], n_a, n_d)
     return _solution(times, out[:, 0], out[:, 1], out[:, 2], lost, p[_C3], mixture or explicit, explicit and counts)
+
+
+def _integrate_one(times, y0, p, l3_knots, l3_coefs, b_knots, b_coefs, rtol):
+    """One curve through the batch kernel, a batch of one: (status, states (times, 4)).
+    One compiled integrator serves single curves and batches (each array layout would
+    compile the whole integrator again, tens of seconds on a fresh cache)."""
+    out = np.empty((times.size, _DIM))
+    status = np.zeros(1, dtype=np.int64)
+    ends = np.array([0, times.size], dtype=np.int64)
+    _integrate_batch(times, ends, y0[None, :], p[None, :], l3_knots, np.ascontiguousarray(l3_coefs),
+                     np.array([0, l3_knots.size], dtype=np.int64), np.array([0, l3_coefs.shape[1]], dtype=np.int64),
+                     b_knots, np.ascontiguousarray(b_coefs), np.array([0, b_knots.size], dtype=np.int64),
+                     np.array([0, b_coefs.shape[1]], dtype=np.int64), rtol, rtol * 1e-6, 1_000_000, out, status)
+    return int(status[0]), out
 
 
 def _lost_by_conservation(atoms, dimers, n0, n_dimers0):
