@@ -76,6 +76,7 @@ from scipy.sparse import csr_matrix
 from ..data.curves import check_curves
 from ..data.spectra import LossSpectrum
 from ..dimer_kinetics import DEFAULT_DEPTH_OVER_T
+from ..efimov import Efimov
 from ..errors import LossfitValueError
 from ..experiment.decay import (
     KINETICS_FIELDS,
@@ -223,6 +224,12 @@ class CurvesLikelihood:
     rtol : float, optional
         None: the model's fast thermal averages; a number: the adaptive reference
         quadrature at this tolerance (slow; for checks).
+    shift_margin : float
+        Extra reach of the T tables on both sides, in ln T (default 0). With free
+        resonance parameters a walker whose a move by factors rho with
+        2 |ln rho| <= ``shift_margin`` reuses the prepared thermal averages on knots
+        shifted by -2 ln rho (:meth:`lossfit.universal.averages.ThermalPlan.evaluate_scaled`);
+        other walkers rebuild them at their a.
 
     Attributes
     ----------
@@ -235,12 +242,15 @@ class CurvesLikelihood:
 
     def __init__(self, curves, species, model, *, resonance=None, reference_fits, heating=True,
                  recombination_heating_nK=0.0, temperature_scale_range=(1.0, 1.0), field_noise=False,
-                 field_noise_nodes=7, inner_steps=1, table_step=0.16, rtol=None):
+                 field_noise_nodes=7, inner_steps=1, table_step=0.16, rtol=None, shift_margin=0.0):
         self.curves = check_curves(curves)
         self.species = _lookup_species(species)
         self.model = get_model(model)
         self.resonance = resonance
         self.rtol = rtol
+        if not (isinstance(shift_margin, (int, float)) and 0.0 <= shift_margin <= 2.0):
+            raise LossfitValueError("shift_margin", f"must be a number in 0..2 (ln T), got {shift_margin!r}")
+        self.shift_margin = float(shift_margin)
         if not (isinstance(inner_steps, (int, np.integer)) and 0 <= inner_steps <= 10):
             raise LossfitValueError("inner_steps", f"must be an integer in 0..10, got {inner_steps!r}")
         self.inner_steps = int(inner_steps)
@@ -331,8 +341,8 @@ class CurvesLikelihood:
             t_meas = np.concatenate([np.atleast_1d(c.temperature + 4 * c.temperature_err), f.model_temperature])
             low = np.atleast_1d(c.temperature - 4 * c.temperature_err).clip(min=0.5 * c.initial_temperature)
             t_min = min(np.min(low), np.min(f.model_temperature))
-            lo[j] = 0.9 * t_min / hi_s
-            hi[j] = 1.3 * np.max(t_meas) / lo_s
+            lo[j] = 0.9 * t_min / hi_s * math.exp(-self.shift_margin)
+            hi[j] = 1.3 * np.max(t_meas) / lo_s * math.exp(self.shift_margin)
         span = float(np.max(np.log(hi / lo)))
         n_knots = max(5, int(math.ceil(span / step)) + 1)
         self.rel_knots = np.linspace(0.0, span, n_knots)           # ln(T / T_lo,j)
@@ -434,15 +444,17 @@ class CurvesLikelihood:
                 out[j] = _FastKinetics(self._knots_all[j], kinetics[i], self.grid[j])
         return out
 
-    def _packed(self, coefs):
+    def _packed(self, coefs, knots=None):
         """Spline coefficients (c m, 4, n_knots - 1) of c sets of effective rates, packed for
-        the decay batch without one table object per curve."""
+        the decay batch without one table object per curve; ``knots`` (c m, n_knots) in
+        ln T, default every curve's own."""
         count = coefs.shape[0]
         if count not in self._packing:
             self._packing[count] = (np.tile(self._knots_all.ravel(), count // self.n_curves),
                                     np.arange(count + 1, dtype=np.int64) * self.n_knots,
                                     np.arange(count + 1, dtype=np.int64) * (self.n_knots - 1))
-        knots, knot_offsets, coef_offsets = self._packing[count]
+        tiled, knot_offsets, coef_offsets = self._packing[count]
+        knots = tiled if knots is None else np.ascontiguousarray(knots).ravel()
         return PackedTables(knots, np.ascontiguousarray(coefs.transpose(1, 0, 2)).reshape(4, -1), knot_offsets,
                             coef_offsets)
 
@@ -575,6 +587,10 @@ class CurvesLikelihood:
         (``Efimov.trusted`` with arrays, values of W walkers): an array of W. The curves of
         all walkers are integrated in one batched call."""
         if not efimov.n_walkers:
+            if self._packed_path:
+                # a set of one: the same tables, knots and bits as inside a walker set
+                one = Efimov.trusted(**{k: np.array([v]) for k, v in vars(efimov).items() if v is not None})
+                return float(self(one, values)[0])
             return float(self._log_likelihoods([efimov], [values])[0])
         count = efimov.n_walkers
         per_walker = [{k: (float(np.asarray(v).reshape(-1)[w]) if np.ndim(v) else v) for k, v in values.items()}
@@ -597,31 +613,80 @@ class CurvesLikelihood:
         coefs = (logv[ok].reshape(-1, self.n_knots) @ self._spline_rows).reshape(ok.size * self.n_curves, 4, -1)
         return coefs, list(ok)
 
+    @property
+    def _packed_path(self):
+        # atom curves with effective rates only: the tables go packed (no object per curve)
+        return not (self.dimers.any() or self.explicit.any())
+
+    def _rescaled_coefficients_of_set(self, efimov, values):
+        """Tables of a walker-array set whose resonance parameters move the scattering
+        lengths, from the plans prepared at the nominal ones: (coefficients (c m, 4,
+        n_knots - 1), knots (c m, n_knots), the c walkers served, the walkers left to
+        rebuild their plans).
+
+        A curve whose a moves to rho a keeps its prepared averages, which hold at
+        (rho a, T / rho^2) (:meth:`lossfit.universal.averages.ThermalPlan.evaluate_scaled`):
+        the same values on knots shifted by -2 ln rho in ln T, so that the spline
+        coefficients (uniform spacing) are unchanged. Walkers with 2 |ln rho| beyond
+        ``shift_margin`` for some curve, or with plans that cannot scale, are left to the
+        rebuilding path; walkers with a curve across the pole are invalid (as there)."""
+        count = efimov.n_walkers
+        r = self.resonance
+        b0, width, a_bg = (np.broadcast_to(np.asarray(values.get(n, getattr(r, n)), dtype=float), (count,))[:, None]
+                           for n in RESONANCE_NAMES)
+        a = np.broadcast_to(self.a_nominal, (count, self.n_curves)).copy()
+        a[:, self.by_field] = resonance_scattering_length(self.fields[self.by_field], b0, width, a_bg)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            ln_rho = np.log(a / self.a_nominal)
+        valid = np.all(np.sign(a) == self.signs, axis=1)
+        near = valid & np.all(2.0 * np.abs(ln_rho) <= self.shift_margin, axis=1)
+        ln_scale = np.log(np.broadcast_to(np.asarray(values.get("density_scale", 1.0), dtype=float), (count,)))
+        logv = np.empty((count, self.n_curves, self.n_knots))
+        for kind, (idx, block) in self.blocks.items():
+            scaled = getattr(block.plan, "evaluate_scaled", None) if block.rtol is None else None
+            if scaled is None:
+                near[:] = False
+                break
+            rows = np.repeat(ln_rho[:, idx], self.n_knots, axis=1)
+            pred = scaled(efimov, np.where(near[:, None], rows, 0.0)).reshape(count, idx.size, self.n_knots)
+            near &= np.all(np.isfinite(pred) & (pred > 0), axis=(1, 2))
+            with np.errstate(divide="ignore", invalid="ignore"):
+                logv[:, idx] = np.log(pred) - (2.0 if kind == "l3" else 1.0) * ln_scale[:, None, None]
+        served = np.flatnonzero(near)
+        coefs = (logv[served].reshape(-1, self.n_knots) @ self._spline_rows).reshape(served.size * self.n_curves, 4,
+                                                                                     self.n_knots - 1)
+        knots = self._knots_all[None] - 2.0 * ln_rho[served][:, :, None]
+        return coefs, knots.reshape(-1, self.n_knots), list(served), list(np.flatnonzero(valid & ~near))
+
     def _log_likelihoods(self, efimovs, values, walker_set=None):
         out = np.full(len(efimovs), -math.inf)
-        # atom curves with effective rates only: the tables go packed (no object per curve)
-        packed = not (self.dimers.any() or self.explicit.any())
-        tables, s_t, ok = [], [], []
-        if packed and walker_set is not None and self.gh_x.size == 1 and \
-                not any(n in values[0] for n in RESONANCE_NAMES):
-            # nothing moves the scattering lengths: every walker's tables in one plan call
-            coefs, ok = self._spline_coefficients_of_set(*walker_set)
-            tables = [coefs]
-            s_t = [values[w].get("temperature_scale", 1.0) for w in ok]
-        else:
-            for w, (ef, vals) in enumerate(zip(efimovs, values)):
-                t = self._spline_coefficients(ef, vals) if packed else self.tables(ef, vals)
-                if t is not None:
-                    if packed:
-                        tables.append(t[0])
-                    else:
-                        tables += t
-                    s_t.append(vals.get("temperature_scale", 1.0))
-                    ok.append(w)
+        packed = self._packed_path
+        tables, knots, s_t, ok = [], [], [], []
+        slow = range(len(efimovs))
+        if packed and walker_set is not None and self.gh_x.size == 1:
+            if not any(n in values[0] for n in RESONANCE_NAMES):
+                # nothing moves the scattering lengths: every walker's tables in one plan call
+                coefs, ok = self._spline_coefficients_of_set(*walker_set)
+                slow = []
+            else:
+                coefs, shifted, ok, slow = self._rescaled_coefficients_of_set(*walker_set)
+                knots.append(shifted)
+            tables.append(coefs)
+        for w in slow:
+            t = self._spline_coefficients(efimovs[w], values[w]) if packed else self.tables(efimovs[w], values[w])
+            if t is not None:
+                if packed:
+                    tables.append(t[0])
+                    knots.append(self._knots_all)
+                else:
+                    tables += t
+                ok.append(w)
         if not ok:
             return out
+        s_t = [values[w].get("temperature_scale", 1.0) for w in ok]
         if packed:
-            tables = self._packed(np.concatenate(tables))
+            tables = self._packed(np.concatenate(tables),
+                                  np.concatenate([k.reshape(-1, self.n_knots) for k in knots]) if knots else None)
         try:
             out[ok] = self._chi2_many(tables, np.array(s_t, dtype=float)) * -0.5
         except LossfitValueError:
@@ -629,7 +694,7 @@ class CurvesLikelihood:
                 return out     # T(t) left the table or the integrator failed: outside support
             # one walker's curve failed: the others keep their values (each set alone)
             for w in ok:
-                out[w] = self._log_likelihoods([efimovs[w]], [values[w]])[0]
+                out[w] = self(efimovs[w], values[w])
             return out
         out[~np.isfinite(out)] = -math.inf
         return out

@@ -18,10 +18,10 @@ from scipy.optimize import minimize
 from ..data.curves import check_curves
 from ..dimer_kinetics import DEFAULT_DEPTH_OVER_T
 from ..errors import LossfitValueError, ValidityWarning
-from ..experiment.feshbach import FeshbachResonance
+from ..experiment.feshbach import FeshbachResonance, resonance_scattering_length
 from ..species import species as _lookup_species
 from ..universal.models import DEFAULT_MODEL, get_model
-from .campaign_space import EXTRA_NAMES, SYSTEMATIC_NAMES, CampaignSpace, systematic_priors
+from .campaign_space import EXTRA_NAMES, RESONANCE_NAMES, SYSTEMATIC_NAMES, CampaignSpace, systematic_priors
 from .curve_fits import fit_curve
 from .curves_likelihood import CurvesLikelihood
 from .parameters import default_priors
@@ -32,6 +32,28 @@ from .sampling import open_backend, sample, stop_record
 #: The global fit's posterior is the library's: its likelihood reads every nuisance
 #: from the values dict (:meth:`CurvesLikelihood.given_values`).
 CampaignPosterior = Posterior
+
+
+#: Largest extra reach of the T tables for resonance shifts (ln T on each side).
+MAX_SHIFT_MARGIN = 0.8
+
+
+def _knot_shift_margin(curves, resonance, sys_priors):
+    """Extra reach of the curves' T tables (ln T) that lets 99 % of the resonance priors'
+    draws reuse the prepared thermal averages (2 |ln rho| of the most moved curve), at
+    most :data:`MAX_SHIFT_MARGIN`; 0 without free resonance parameters."""
+    names = [n for n in RESONANCE_NAMES if n in sys_priors]
+    fields = np.array([c.field for c in curves if c.field is not None], dtype=float)
+    if not names or fields.size == 0:
+        return 0.0
+    rng = np.random.default_rng(0)
+    draws = [sys_priors[n].sample(rng, 4000)[:, None] if n in names else getattr(resonance, n)
+             for n in RESONANCE_NAMES]
+    nominal = resonance_scattering_length(fields, resonance.b0, resonance.width, resonance.a_bg)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        spread = 2.0 * np.abs(np.log(resonance_scattering_length(fields[None], *draws) / nominal)).max(axis=1)
+    spread = spread[np.isfinite(spread)]
+    return min(float(np.quantile(spread, 0.99)), MAX_SHIFT_MARGIN) if spread.size else 0.0
 
 
 def prepare_curves(curves, *, species, free, model=None, priors=None, resonance=None, systematics=None,
@@ -90,10 +112,12 @@ def prepare_curves(curves, *, species, free, model=None, priors=None, resonance=
         s_range = (float(draws.min()), float(draws.max()))
     elif "temperature_scale" in fixed:
         s_range = (float(fixed["temperature_scale"]),) * 2
+    shift = 0.0 if field_noise else _knot_shift_margin(curves, resonance, sys_priors)
     likelihood = CurvesLikelihood(curves, sp, mdl, resonance=resonance, reference_fits=fits, heating=heating,
                                   recombination_heating_nK=recombination_heating_nK,
                                   temperature_scale_range=s_range, field_noise=field_noise,
-                                  field_noise_nodes=field_noise_nodes, inner_steps=inner_steps, rtol=rtol)
+                                  field_noise_nodes=field_noise_nodes, inner_steps=inner_steps, rtol=rtol,
+                                  shift_margin=shift)
     user_priors = coerce_priors(priors)
     all_priors = default_priors([n for n in free if n not in user_priors], likelihood.two_stage_spectra)
     all_priors.update(user_priors)

@@ -486,6 +486,21 @@ def _plan_evaluate_many(family, part, terms, wt, first, stop, offset, h_sum, cos
 
 
 @numba.njit(cache=True)
+def _plan_evaluate_scaled(family, part, terms, wt, first, stop, offset, h_sum, cos_t, sin_t, cos_off, sin_off, e2,
+                          g, w_a, w_b, turn_cos, turn_sin, factor, out):
+    # as _plan_evaluate_many, with every point's phase turned further by (turn_cos,
+    # turn_sin)[w, p] and its value multiplied by factor[w, p] (ThermalPlan.evaluate_scaled)
+    for w in range(cos_off.size):
+        for p in range(first.size):
+            c0 = cos_t[p] * cos_off[w] - sin_t[p] * sin_off[w]
+            s0 = sin_t[p] * cos_off[w] + cos_t[p] * sin_off[w]
+            c = c0 * turn_cos[w, p] - s0 * turn_sin[w, p]
+            s = s0 * turn_cos[w, p] + c0 * turn_sin[w, p]
+            out[w, p] += factor[w, p] * _point_value(family, part, terms, wt[offset[p]:offset[p + 1]], first[p],
+                                                     stop[p], c, s, e2[w], g[w], w_a, w_b, h_sum[p])
+
+
+@numba.njit(cache=True)
 def _plan_h_sums(family, part, terms, wt, first, stop, offset):
     out = np.empty(first.size)
     for p in range(first.size):
@@ -788,6 +803,44 @@ class ThermalPlan:
             return values
         out[...] = values
         return out
+
+    def evaluate_scaled(self, efimov, log_rho):
+        """Averages at the scattering lengths rho a and temperatures T / rho^2 of every
+        point (a, T) of the plan, for a factor rho per walker and point, without a new plan.
+
+        Zero-range theory has no length but a and the Efimov feature: scaling both by rho
+        leaves k_T|a| unchanged at T / rho^2, turns 2 s0 ln|a| by 2 s0 ln rho and
+        multiplies the natural unit by rho^4 (K3, hbar^5/(m^3 (k_BT)^2)) or rho (beta,
+        hbar/(m k_T)). The prepared weights at (a, T) therefore give the averages at
+        (rho a, T / rho^2) exactly (docs/global-fit.md, "Resonance shifts").
+
+        Parameters
+        ----------
+        efimov : Efimov
+            As for :meth:`evaluate` (floats or arrays of W walkers).
+        log_rho : ndarray, shape (W, n_points) or (n_points,)
+            ln rho per walker and point.
+
+        Returns
+        -------
+        ndarray, shape (W, n_points), or (n_points,) for an Efimov set of floats
+        """
+        walkers = efimov.n_walkers
+        log_rho = np.broadcast_to(np.asarray(log_rho, dtype=float), (max(walkers, 1), self.n_points))
+        values = np.zeros(log_rho.shape)
+        for grp in self.groups:
+            cos_off, sin_off, e2, g = _efimov_arrays(grp.family, efimov, self.eta_min, walkers)
+            ln_rho = log_rho if grp.index is None else log_rho[:, grp.index]
+            turn = 2.0 * S0 * ln_rho
+            power = 1.0 if grp.family == ATOM_DIMER_A else 4.0
+            target = np.zeros(ln_rho.shape)
+            _plan_evaluate_scaled(*grp.head, cos_off, sin_off, e2, g, grp.w_a, grp.w_b, np.cos(turn), np.sin(turn),
+                                  np.exp(power * ln_rho), target)
+            if grp.index is None:
+                values += target
+            else:
+                values[:, grp.index] += target
+        return values if walkers else values[0]
 
     def _evaluate_one(self, efimov, out):
         # one Efimov set of floats: scalars by math, no temporary arrays
