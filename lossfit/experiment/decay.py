@@ -186,7 +186,10 @@ _FD_STEP = 1.5e-8
 
 # --- kernels ------------------------------------------------------------------------
 
-@numba.njit(cache=True)
+# The small kernels the right-hand sides call are inlined: a compiled call passing arrays
+# pays their reference counting, which was half of a right-hand side (integration of a
+# 15-point curve 14 -> 10 us, docs/global-fit.md; compiling takes no longer).
+@numba.njit(cache=True, inline="always")
 def _rate(temperature, const, knots, coefs):
     """Rate at ``temperature``: ``const`` if ``knots`` is empty, else exp(spline(ln T)).
 
@@ -204,12 +207,12 @@ def _rate(temperature, const, knots, coefs):
     return math.exp(v)
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, inline="always")
 def _column(coefs, col, dx):
     return ((coefs[0, col] * dx + coefs[1, col]) * dx + coefs[2, col]) * dx + coefs[3, col]
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, inline="always")
 def _kinetics_at(temperature, knots, coefs):
     """The six kinetics coefficients at ``temperature`` from a TabulatedKinetics layout
     (column block r of ``coefs`` is coefficient r); ok False outside the table."""
@@ -229,7 +232,7 @@ def _kinetics_at(temperature, knots, coefs):
     return True, deep, shallow, atom_out * shallow, dimer_out * shallow, relaxation, breakup
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, inline="always")
 def _rhs_atoms(y, p, l3k, l3c, bk, bc, out):
     """Atoms (and an atom-dimer mixture) with an effective L3 and beta."""
     n_a, n_d, temp = y[0], y[1], y[2]
