@@ -619,52 +619,83 @@ class CurvesLikelihood:
         return not (self.dimers.any() or self.explicit.any())
 
     def _rescaled_coefficients_of_set(self, efimov, values):
-        """Tables of a walker-array set whose resonance parameters move the scattering
-        lengths, from the plans prepared at the nominal ones: (coefficients (c m, 4,
-        n_knots - 1), knots (c m, n_knots), the c walkers served, the walkers left to
-        rebuild their plans).
+        """Tables of a walker-array set whose resonance parameters (or field noise) move the
+        scattering lengths, from the plans prepared at the nominal ones: (coefficients
+        (c m, 4, n_knots - 1), knots (c m, n_knots), the c walkers served, the walkers left
+        to rebuild their plans).
 
         A curve whose a moves to rho a keeps its prepared averages, which hold at
         (rho a, T / rho^2) (:meth:`lossfit.universal.averages.ThermalPlan.evaluate_scaled`):
         the same values on knots shifted by -2 ln rho in ln T, so that the spline
-        coefficients (uniform spacing) are unchanged. Walkers with 2 |ln rho| beyond
-        ``shift_margin`` for some curve, or with plans that cannot scale, are left to the
-        rebuilding path; walkers with a curve across the pole are invalid (as there)."""
-        count = efimov.n_walkers
+        coefficients (uniform spacing) are unchanged. With field noise every node has its
+        own rho: the table's knots move by the nodes' mean shift and each node's values
+        are read off its own spline at the offset of its shift from that mean, then
+        averaged over the nodes (docs/global-fit.md, "Resonance shifts"). Walkers with
+        2 |ln rho| beyond ``shift_margin`` for some curve or node (whose own table would
+        no longer cover the curve's range), or with plans that cannot scale, are left to
+        the rebuilding path; walkers with a curve across the pole are invalid (as there)."""
+        count, m, n, nodes = efimov.n_walkers, self.n_curves, self.n_knots, self.gh_x.size
         r = self.resonance
-        b0, width, a_bg = (np.broadcast_to(np.asarray(values.get(n, getattr(r, n)), dtype=float), (count,))[:, None]
-                           for n in RESONANCE_NAMES)
-        a = np.broadcast_to(self.a_nominal, (count, self.n_curves)).copy()
-        a[:, self.by_field] = resonance_scattering_length(self.fields[self.by_field], b0, width, a_bg)
+        b0, width, a_bg = (np.broadcast_to(np.asarray(values.get(k, getattr(r, k)), dtype=float),
+                                           (count,))[:, None, None] for k in RESONANCE_NAMES)
+        sigma_b = np.broadcast_to(np.asarray(values.get("sigma_B", 0.0), dtype=float), (count,))[:, None, None]
+        a = np.broadcast_to(self.a_nominal[None, :, None], (count, m, nodes)).copy()
+        fields = self.fields[self.by_field][None, :, None] + sigma_b * self.gh_x
+        a[:, self.by_field] = resonance_scattering_length(fields, b0, width, a_bg)
         with np.errstate(invalid="ignore", divide="ignore"):
-            ln_rho = np.log(a / self.a_nominal)
-        valid = np.all(np.sign(a) == self.signs, axis=1)
-        near = valid & np.all(2.0 * np.abs(ln_rho) <= self.shift_margin, axis=1)
-        ln_scale = np.log(np.broadcast_to(np.asarray(values.get("density_scale", 1.0), dtype=float), (count,)))
-        logv = np.empty((count, self.n_curves, self.n_knots))
-        for kind, (idx, block) in self.blocks.items():
-            scaled = getattr(block.plan, "evaluate_scaled", None) if block.rtol is None else None
-            if scaled is None:
-                near[:] = False
-                break
-            rows = np.repeat(ln_rho[:, idx], self.n_knots, axis=1)
-            pred = scaled(efimov, np.where(near[:, None], rows, 0.0)).reshape(count, idx.size, self.n_knots)
-            near &= np.all(np.isfinite(pred) & (pred > 0), axis=(1, 2))
-            with np.errstate(divide="ignore", invalid="ignore"):
-                logv[:, idx] = np.log(pred) - (2.0 if kind == "l3" else 1.0) * ln_scale[:, None, None]
+            ln_rho = np.log(a / self.a_nominal[None, :, None])                          # (c, m, nodes)
+        valid = np.all(np.sign(a) == self.signs[None, :, None], axis=(1, 2))
+        # every node's own table still covers the curve's range (the margin is padding)
+        near = valid & np.all(2.0 * np.abs(ln_rho) <= self.shift_margin, axis=(1, 2))
+        if not all(block.rtol is None and hasattr(block.plan, "evaluate_scaled") for _, block in self.blocks.values()):
+            near[:] = False
+        # only the walkers served evaluate the prepared plans
         served = np.flatnonzero(near)
-        coefs = (logv[served].reshape(-1, self.n_knots) @ self._spline_rows).reshape(served.size * self.n_curves, 4,
-                                                                                     self.n_knots - 1)
-        knots = self._knots_all[None] - 2.0 * ln_rho[served][:, :, None]
-        return coefs, knots.reshape(-1, self.n_knots), list(served), list(np.flatnonzero(valid & ~near))
+        if served.size == 0:
+            return np.empty((0, 4, n - 1)), np.empty((0, n)), [], list(np.flatnonzero(valid))
+        ln_rho = ln_rho[served]
+        shift = 2.0 * ln_rho @ self.gh_w                                                  # (s, m)
+        offset = 2.0 * ln_rho - shift[..., None]
+        subset = Efimov.trusted(**{k: (v[served] if isinstance(v, np.ndarray) and v.ndim else v)
+                                   for k, v in vars(efimov).items()})
+        ln_scale = np.log(np.broadcast_to(np.asarray(values.get("density_scale", 1.0), dtype=float), (count,)))
+        logv = np.empty((served.size, m, n))
+        finite = np.ones(served.size, dtype=bool)
+        for kind, (idx, block) in self.blocks.items():
+            rows = np.broadcast_to(ln_rho[:, idx, None, :], (served.size, idx.size, n, nodes))  # (curve, knot, node)
+            pred = block.plan.evaluate_scaled(subset, rows.reshape(served.size, -1)).reshape(rows.shape)
+            finite &= np.all(np.isfinite(pred) & (pred > 0), axis=(1, 2, 3))
+            with np.errstate(divide="ignore", invalid="ignore"):
+                if nodes > 1:
+                    moved = self._at_offset(np.log(pred).transpose(0, 1, 3, 2), offset[:, idx])
+                    pred = np.exp(moved).transpose(0, 1, 3, 2)
+                power = 2.0 if kind == "l3" else 1.0
+                logv[:, idx] = np.log(pred @ self.gh_w) - power * ln_scale[served][:, None, None]
+        # a served walker with an invalid rate goes the rebuilding way too (which refuses it)
+        near[served[~finite]] = False
+        coefs = (logv[finite].reshape(-1, n) @ self._spline_rows).reshape(int(finite.sum()) * m, 4, n - 1)
+        knots = self._knots_all[None] - shift[finite][:, :, None]
+        return coefs, knots.reshape(-1, n), list(served[finite]), list(np.flatnonzero(valid & ~near))
+
+    def _at_offset(self, logv, offset):
+        """Each row's not-a-knot cubic spline on the T-table knots (..., n_knots), read at
+        every knot moved by ``offset`` (...,) in ln T (the end intervals' cubics beyond
+        the ends)."""
+        n, h = self.n_knots, self.rel_knots[1]
+        coefs = (logv.reshape(-1, n) @ self._spline_rows).reshape(logv.shape[:-1] + (4, n - 1))
+        where = self.rel_knots + offset[..., None]
+        interval = np.clip(np.floor(where / h).astype(np.int64), 0, n - 2)
+        dx = where - self.rel_knots[interval]
+        c = np.take_along_axis(coefs, interval[..., None, :], axis=-1)
+        return ((c[..., 0, :] * dx + c[..., 1, :]) * dx + c[..., 2, :]) * dx + c[..., 3, :]
 
     def _log_likelihoods(self, efimovs, values, walker_set=None):
         out = np.full(len(efimovs), -math.inf)
         packed = self._packed_path
         tables, knots, s_t, ok = [], [], [], []
         slow = range(len(efimovs))
-        if packed and walker_set is not None and self.gh_x.size == 1:
-            if not any(n in values[0] for n in RESONANCE_NAMES):
+        if packed and walker_set is not None:
+            if self.gh_x.size == 1 and not any(n in values[0] for n in RESONANCE_NAMES):
                 # nothing moves the scattering lengths: every walker's tables in one plan call
                 coefs, ok = self._spline_coefficients_of_set(*walker_set)
                 slow = []

@@ -10,6 +10,7 @@ __all__ = ["CurvesLikelihood", "CampaignSpace", "CampaignPosterior", "fit_curves
            "SYSTEMATIC_NAMES"]
 
 
+import math
 import warnings
 
 import numpy as np
@@ -34,24 +35,29 @@ from .sampling import open_backend, sample, stop_record
 CampaignPosterior = Posterior
 
 
-#: Largest extra reach of the T tables for resonance shifts (ln T on each side).
-MAX_SHIFT_MARGIN = 0.8
+#: Largest extra reach of the T tables for resonance shifts and field noise (ln T on
+#: each side; each 0.16 adds a knot per side, and the thermal averages' cost grows with
+#: the knots).
+MAX_SHIFT_MARGIN = 0.5
 
 
-def _knot_shift_margin(curves, resonance, sys_priors):
-    """Extra reach of the curves' T tables (ln T) that lets 99 % of the resonance priors'
-    draws reuse the prepared thermal averages (2 |ln rho| of the most moved curve), at
-    most :data:`MAX_SHIFT_MARGIN`; 0 without free resonance parameters."""
-    names = [n for n in RESONANCE_NAMES if n in sys_priors]
+def _knot_shift_margin(curves, resonance, sys_priors, nodes):
+    """Extra reach of the curves' T tables (ln T) that lets 99 % of the priors' draws of
+    the resonance parameters and the field noise reuse the prepared thermal averages
+    (2 |ln rho| of the most moved curve, at the outermost of ``nodes`` Gauss-Hermite nodes
+    of the field noise), at most :data:`MAX_SHIFT_MARGIN`; 0 when nothing moves a."""
+    names = [n for n in RESONANCE_NAMES + ("sigma_B",) if n in sys_priors]
     fields = np.array([c.field for c in curves if c.field is not None], dtype=float)
     if not names or fields.size == 0:
         return 0.0
     rng = np.random.default_rng(0)
-    draws = [sys_priors[n].sample(rng, 4000)[:, None] if n in names else getattr(resonance, n)
-             for n in RESONANCE_NAMES]
-    nominal = resonance_scattering_length(fields, resonance.b0, resonance.width, resonance.a_bg)
+    draws = {n: sys_priors[n].sample(rng, 4000)[:, None, None] for n in names}
+    b0, width, a_bg = (draws.get(n, getattr(resonance, n)) for n in RESONANCE_NAMES)
+    outermost = math.sqrt(2.0) * np.max(np.polynomial.hermite.hermgauss(int(nodes))[0]) if "sigma_B" in draws else 0.0
+    moved = fields[None, :, None] + draws.get("sigma_B", 0.0) * np.array([-outermost, 0.0, outermost])
+    nominal = resonance_scattering_length(fields, resonance.b0, resonance.width, resonance.a_bg)[None, :, None]
     with np.errstate(invalid="ignore", divide="ignore"):
-        spread = 2.0 * np.abs(np.log(resonance_scattering_length(fields[None], *draws) / nominal)).max(axis=1)
+        spread = 2.0 * np.abs(np.log(resonance_scattering_length(moved, b0, width, a_bg) / nominal)).max(axis=(1, 2))
     spread = spread[np.isfinite(spread)]
     return min(float(np.quantile(spread, 0.99)), MAX_SHIFT_MARGIN) if spread.size else 0.0
 
@@ -112,7 +118,7 @@ def prepare_curves(curves, *, species, free, model=None, priors=None, resonance=
         s_range = (float(draws.min()), float(draws.max()))
     elif "temperature_scale" in fixed:
         s_range = (float(fixed["temperature_scale"]),) * 2
-    shift = 0.0 if field_noise else _knot_shift_margin(curves, resonance, sys_priors)
+    shift = _knot_shift_margin(curves, resonance, sys_priors, field_noise_nodes)
     likelihood = CurvesLikelihood(curves, sp, mdl, resonance=resonance, reference_fits=fits, heating=heating,
                                   recombination_heating_nK=recombination_heating_nK,
                                   temperature_scale_range=s_range, field_noise=field_noise,
