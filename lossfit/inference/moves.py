@@ -4,8 +4,8 @@ the acceptance of a half-ensemble taken in one array operation.
 
 emcee's own move loops over the walkers of each half in Python to accept or reject them
 (one uniform draw, one logarithm and one comparison per walker), and converts a
-vectorised log probability walker by walker. At 32 walkers that is about a quarter of a
-sampler step's bookkeeping (docs/global-fit.md, "Walker sets per call"). The proposals,
+vectorised log probability walker by walker: a third of emcee's bookkeeping of a step at
+32 walkers (docs/architecture.md, "The sampler step of a spectrum fit"). The proposals,
 the random numbers and the decisions are emcee's: the chain is the same bit for bit
 (tests/inference/test_moves.py).
 """
