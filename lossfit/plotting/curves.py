@@ -12,7 +12,7 @@ from ..data.curves import check_curves
 from ..errors import LossfitValueError
 from ..experiment.decay import simulate_decay
 from ..experiment.trap import as_trap
-from ._axes import temperature_label, tidy_log_axis
+from ._axes import grid_in_inches, temperature_label, tidy_log_axis
 from .spectra import spectrum_plot
 
 
@@ -122,12 +122,8 @@ def curves_plot(curves=None, *, fits=None, result=None, species=None, ncols=5, m
     nrows = math.ceil(n / ncols)
     if fig is None:
         fig = plt.figure(figsize=(2.9 * ncols, 3.2 * nrows))
-    # fixed margins in inches (a constrained layout of 2 n axes cost seconds at 40 curves):
     # the two-line titles above, y labels left, the tick and axis labels below each panel
-    width, height = fig.get_size_inches()
-    outer = fig.add_gridspec(nrows, ncols, left=0.85 / width, right=1.0 - 0.12 / width,
-                             bottom=0.5 / height, top=1.0 - 0.45 / height,
-                             wspace=0.7 / (width / ncols - 0.8), hspace=0.75 / (height / nrows - 0.75))
+    outer = grid_in_inches(fig, nrows, ncols, left=0.85, right=0.12, bottom=0.5, top=0.45, wspace=0.7, hspace=0.75)
     for j in range(n):
         c = curves[j]
         inner = outer[j // ncols, j % ncols].subgridspec(2, 1, height_ratios=(3, 1), hspace=0.05)
@@ -184,8 +180,9 @@ def derived_spectrum_plot(spectra=None, *, result=None, fig=None, **kwargs):
     if not spectra:
         raise LossfitValueError("spectra", "give the derived spectra or a global result")
     if fig is None:
-        fig = plt.figure(figsize=(5.2 * len(spectra), 4.2), layout="constrained")
-    axes = fig.subplots(1, len(spectra), squeeze=False)[0]
+        fig = plt.figure(figsize=(5.2 * len(spectra), 4.2))
+    grid = grid_in_inches(fig, 1, len(spectra), left=0.95, right=0.15, bottom=0.6, top=0.45, wspace=0.95)
+    axes = [fig.add_subplot(grid[0, j]) for j in range(len(spectra))]
     for ax, s in zip(axes, spectra):
         sc = ax.scatter(np.abs(s.a), s.value, c=s.temperature, s=14, cmap="viridis", zorder=3)
         ax.errorbar(np.abs(s.a), s.value, yerr=s.error, fmt="none", ecolor="0.4", elinewidth=0.7, zorder=2)

@@ -12,7 +12,7 @@ from matplotlib.patches import Patch
 from ..errors import LossfitValueError
 from ..inference.likelihood import RateBlock
 from ..inference.parameters import UNITS
-from ._axes import FEATURE_COLOURS, SYMBOLS, feature_intervals, temperature_label, tidy_log_axis
+from ._axes import FEATURE_COLOURS, SYMBOLS, feature_intervals, grid_in_inches, temperature_label, tidy_log_axis
 
 _UNIT_LABELS = {"a0": r"$a_0$", "G": "G"}
 
@@ -217,8 +217,10 @@ def spectrum_plot(result, *, draws=200, points=160, seed=0, fig=None):
     outside = _outside_masks(result, spectra)
     excluded = getattr(result, "excluded", [])
     if fig is None:
-        fig = plt.figure(figsize=(5.2 * len(panels), 4.2), layout="constrained")
-    axes = fig.subplots(1, len(panels), squeeze=False)[0]
+        fig = plt.figure(figsize=(5.2 * len(panels), 4.2))
+    # titles with the feature marks above, y labels left (fixed margins: grid_in_inches)
+    grid = grid_in_inches(fig, 1, len(panels), left=0.95, right=0.15, bottom=0.6, top=0.55, wspace=0.95)
+    axes = [fig.add_subplot(grid[0, j]) for j in range(len(panels))]
     colours = plt.rcParams["axes.prop_cycle"].by_key()["color"]
     for ax, (kind, sign, title, members) in zip(axes, panels):
         temps = sorted({float(t) for _, s, m in members for t in s.temperature[m]})
