@@ -1,4 +1,5 @@
 import os
+import subprocess
 import warnings
 
 # pytest -n 2 runs two workers on two cores: one BLAS/OpenMP thread each, set before
@@ -12,6 +13,7 @@ matplotlib.use("Agg")
 
 import pytest  # noqa: E402
 
+from lossfit.cli import main as cli_main  # noqa: E402
 from lossfit.errors import ValidityWarning  # noqa: E402
 
 
@@ -22,3 +24,21 @@ def _quiet_validity():
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ValidityWarning)
         yield
+
+
+@pytest.fixture
+def run_cli(capsys):
+    """``lossfit ARGS`` inside the test process, as a CompletedProcess (exit code, stdout,
+    stderr). For refusals and re-reads of finished folders: a new interpreter would spend
+    ~3 s importing the library for a few milliseconds of work. Runs that sample, signals,
+    locks of other processes and the exit status seen by a shell keep real processes."""
+    def run(*args):
+        capsys.readouterr()
+        argv = [str(a) for a in args]
+        try:
+            code = cli_main(argv)
+        except SystemExit as stop:          # argparse's own refusals
+            code = stop.code
+        out = capsys.readouterr()
+        return subprocess.CompletedProcess(["lossfit", *argv], code, out.out, out.err)
+    return run

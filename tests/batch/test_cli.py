@@ -49,25 +49,25 @@ def test_help_lists_the_exit_codes():
         assert f"\n  {code} " in proc.stdout
 
 
-def test_output_path_that_is_a_file_is_refused_before_anything(job, tmp_path):
+def test_output_path_that_is_a_file_is_refused_before_anything(job, tmp_path, run_cli):
     target = tmp_path / "results"
     target.write_text("not a folder")
-    _refused(_run("run", job / "job.toml", "--out", target), "out")
-    _refused(_run("run", job / "job.toml", "--out", target / "below"), "out")
+    _refused(run_cli("run", job / "job.toml", "--out", target), "out")
+    _refused(run_cli("run", job / "job.toml", "--out", target / "below"), "out")
     assert target.read_text() == "not a folder"
 
 
-def test_burn_longer_than_the_chain_is_refused_before_sampling(job, tmp_path):
+def test_burn_longer_than_the_chain_is_refused_before_sampling(job, tmp_path, run_cli):
     path = _job_with(job, tmp_path, 'burn = "auto"', "burn = 60")
     out = tmp_path / "out"
-    _refused(_run("run", path, "--out", out), "sampler.burn")
+    _refused(run_cli("run", path, "--out", out), "sampler.burn")
     assert not out.exists()                      # no empty folder from a rejected job
 
 
-def test_rejected_job_leaves_no_folder(job, tmp_path):
+def test_rejected_job_leaves_no_folder(job, tmp_path, run_cli):
     path = _job_with(job, tmp_path, 'spectra = ["data.h5"]', 'spectra = ["missing.h5"]')
     out = tmp_path / "out"
-    proc = _run("run", path, "--out", out)
+    proc = run_cli("run", path, "--out", out)
     assert proc.returncode == 2 and "Traceback" not in proc.stderr
     assert not out.exists()
 
@@ -191,7 +191,7 @@ def test_job_files_run_the_calibration_and_the_spectrum(job, tmp_path):
     assert (tmp_path / "spec" / "study.png").stat().st_size > 0
 
 
-def test_job_with_automatic_steps_runs_to_a_recorded_stop(job, tmp_path):
+def test_job_with_automatic_steps_runs_to_a_recorded_stop(job, tmp_path, run_cli):
     # steps = "auto" with a small cap: the run stops at the cap and summary.json says why;
     # a bad cap is refused naming its key, and --steps takes "auto" too
     path = _job_with(job, tmp_path, "steps = 40", 'steps = "auto"\nmax_steps = 200')
@@ -204,8 +204,8 @@ def test_job_with_automatic_steps_runs_to_a_recorded_stop(job, tmp_path):
     again = _run("run", path, "--out", out)
     assert again.returncode == 0 and "already holds the finished run" in again.stdout
     bad = _job_with(job, tmp_path, "steps = 40", 'steps = "auto"\nmax_steps = 5')
-    _refused(_run("run", bad, "--out", tmp_path / "bad"), "sampler.max_steps")
-    _refused(_run("run", job / "job.toml", "--out", tmp_path / "x", "--steps", "often"), "")
+    _refused(run_cli("run", bad, "--out", tmp_path / "bad"), "sampler.max_steps")
+    _refused(run_cli("run", job / "job.toml", "--out", tmp_path / "x", "--steps", "often"), "")
 
 
 def test_help_answers_without_loading_the_library():

@@ -126,16 +126,16 @@ def test_mpiexec_two_ranks_end_to_end(campaign, uninterrupted):
 
 
 @pytest.mark.slow
-def test_finished_results_are_never_overwritten(campaign, uninterrupted):
+def test_finished_results_are_never_overwritten(campaign, uninterrupted, run_cli):
     out = campaign / "whole"
     before = {n: (out / n).read_bytes() for n in ("chains.h5", "summary.json")}
-    same = _run("run", campaign / "job.toml", "--out", out)
+    same = run_cli("run", campaign / "job.toml", "--out", out)
     assert same.returncode == 0 and "nothing to do" in same.stdout
     other = campaign / "other.toml"
     other.write_text((campaign / "job.toml").read_text().replace("seed = 5", "seed = 6"))
-    diff = _run("run", other, "--out", out, "--quiet")
+    diff = run_cli("run", other, "--out", out, "--quiet")
     assert diff.returncode == EXIT_CONFLICT and "different job" in diff.stderr
-    rep = _run("report", out)
+    rep = run_cli("report", out)
     assert rep.returncode == EXIT_CONFLICT and "--overwrite" in rep.stderr
     assert {n: (out / n).read_bytes() for n in before} == before
     rep = _run("report", out, "--overwrite")
@@ -143,23 +143,23 @@ def test_finished_results_are_never_overwritten(campaign, uninterrupted):
     assert (out / "chains.h5").read_bytes() == before["chains.h5"]
 
 
-def test_a_second_process_on_the_same_folder_refuses(campaign):
+def test_a_second_process_on_the_same_folder_refuses(campaign, run_cli):
     out = campaign / "locked"
     out.mkdir()
     lock = out / ".lossfit.lock"
     lock.write_text(json.dumps({"pid": os.getpid(), "host": socket.gethostname()}))   # alive
-    proc = _run("run", campaign / "job.toml", "--out", out, "--quiet")
+    proc = run_cli("run", campaign / "job.toml", "--out", out, "--quiet")
     assert proc.returncode == EXIT_CONFLICT and "in use by process" in proc.stderr
     assert lock.exists() and not (out / "chains.h5").exists()
 
 
 @pytest.mark.slow
-def test_truncated_chain_file_is_detected(campaign, uninterrupted, tmp_path):
+def test_truncated_chain_file_is_detected(campaign, uninterrupted, tmp_path, run_cli):
     out = tmp_path / "trunc"
     out.mkdir()
     data = (campaign / "whole" / "chains.h5").read_bytes()
     (out / "chains.h5").write_bytes(data[: len(data) // 3])
-    proc = _run("run", campaign / "job.toml", "--out", out, "--quiet")
+    proc = run_cli("run", campaign / "job.toml", "--out", out, "--quiet")
     assert proc.returncode == 2 and "truncated" in proc.stderr
     assert (out / "chains.h5").stat().st_size == len(data) // 3       # left as it was
 
@@ -232,7 +232,7 @@ def test_bad_job_on_the_command_line_exits_2(tmp_path):
 
 
 @pytest.mark.slow
-def test_campaign_job_runs_the_global_fit(tmp_path):
+def test_campaign_job_runs_the_global_fit(tmp_path, run_cli):
     from lossfit.data.curves import write_campaign
     from lossfit.simulate import invented_campaign
     curves, resonance, truth = invented_campaign(seed=3, n_fields=4)
@@ -259,7 +259,7 @@ checkpoint_every = 20
     assert read_chain_file(tmp_path / "out" / "chains.h5")["iteration"] == 60
     # lossfit report rebuilds the same summary from the stored chain (refusing to
     # overwrite without --overwrite); the medians depend only on the chain
-    proc = _run("report", tmp_path / "out")
+    proc = run_cli("report", tmp_path / "out")
     assert proc.returncode == 3, proc.stderr
     proc = _run("report", tmp_path / "out", "--overwrite")
     assert proc.returncode == 0, proc.stderr
