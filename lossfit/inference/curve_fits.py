@@ -134,6 +134,7 @@ class _CurveModel:
         self.dimers = curve.kind == "dimers"
         self.batch = DecayBatch([curve.t], species=sp, traps_hz=as_trap(curve), heating=heating,
                                 recombination_heating_nK=recombination_heating_nK, rtol=rtol)
+        self._copies = {1: self.batch}
         self.t_max = float(curve.t[-1])
         self.gamma_fixed = gamma
         self.value_scale = 1.0
@@ -187,6 +188,29 @@ class _CurveModel:
             # penalty sends it back
             return np.full(self.n_res, 1e6)
         return np.concatenate([self.residuals_of(main, temp, partner), self.priors_of(p)])
+
+    def residuals_many(self, xs):
+        """Residuals of every row of ``xs`` (W, ndim) from one batched integration of W
+        copies of the curve, row by row as :meth:`__call__` gives them (the batch
+        integrates each copy alone, with the same arithmetic)."""
+        params = [self.unpack(x) for x in xs]
+        if len(params) not in self._copies:
+            self._copies[len(params)] = self.batch.repeated(len(params))
+        batch = self._copies[len(params)]
+        column = {name: np.array([p[name] for p in params]) for name in params[0]}
+        try:
+            if self.dimers:
+                res = batch(column["n_atoms0"], column["t0_nK"], 0.0, 0.0, n_dimers0=column["n0"],
+                            beta=column["value"], gamma_dimer=column["gamma"])
+                main, partner = res.dimers.reshape(len(params), -1), res.atoms.reshape(len(params), -1)
+            else:
+                res = batch(column["n0"], column["t0_nK"], column["value"], column["gamma"])
+                main, partner = res.atoms.reshape(len(params), -1), [None] * len(params)
+        except LossfitValueError:
+            return np.array([self(x) for x in xs])          # the failing rows get their penalty
+        temp = res.temperature.reshape(len(params), -1)
+        return np.array([np.concatenate([self.residuals_of(main[w], temp[w], partner[w]), self.priors_of(p)])
+                         for w, p in enumerate(params)])
 
 
 def _n_residuals(curve):
@@ -254,13 +278,22 @@ def mcmc_settings(mcmc):
 
 
 class _CurveLogProb:
-    """Gaussian log-likelihood of one curve with flat priors in the fit coordinates."""
+    """Gaussian log-likelihood of one curve with flat priors in the fit coordinates; a
+    walker set (W, ndim) at once where the residuals have ``residuals_many``."""
 
     def __init__(self, model, lower):
         self.model = model
         self.lower = lower
+        self.vectorized = hasattr(model, "residuals_many")
 
     def __call__(self, x):
+        if x.ndim == 2:
+            out = np.full(x.shape[0], -math.inf)
+            inside = np.flatnonzero(np.all(x >= self.lower, axis=1))
+            if inside.size:
+                # row by row as for one walker: the same bits, the same chain
+                out[inside] = [-0.5 * float(r @ r) for r in self.model.residuals_many(x[inside])]
+            return out
         if np.any(x < self.lower):
             return -math.inf
         r = self.model(x)
@@ -324,7 +357,8 @@ def _sample_curve(model, x_best, cov, lower, settings):
     walkers = settings["walkers"]
     if walkers < 2 * ndim:
         raise LossfitValueError("mcmc", f"walkers must be at least {2 * ndim} for {ndim} parameters")
-    run = sample(_CurveLogProb(model, lower), p0, settings["steps"], seed=int(rng.integers(2 ** 31)))
+    log_prob = _CurveLogProb(model, lower)
+    run = sample(log_prob, p0, settings["steps"], seed=int(rng.integers(2 ** 31)), vectorize=log_prob.vectorized)
     chain = run.chain
     burn = auto_burn(chain)
     tau = autocorrelation_times(chain[burn:])

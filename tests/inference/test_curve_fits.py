@@ -18,7 +18,7 @@ from scipy.integrate import solve_ivp
 from lossfit.data.curves import DecayCurve
 from lossfit.errors import LossfitValueError
 from lossfit.experiment.feshbach import FeshbachResonance
-from lossfit.inference.curve_fits import fit_curve, spectrum_from_curves
+from lossfit.inference.curve_fits import _CurveLogProb, _CurveModel, fit_curve, spectrum_from_curves
 from lossfit.species import species
 
 SP = species("133Cs")
@@ -103,20 +103,28 @@ def test_reported_errors_match_the_monte_carlo_spread():
     assert abs(np.mean(values) - L3) < 3 * spread / math.sqrt(values.size) + 0.02 * L3
 
 
-def test_dimer_curve_against_solve_ivp():
-    beta, n_a0, n_d0, t0, gamma_d = 2.0e-11, 2.0e5, 3.0e4, 150.0, 0.5
+BETA, N_A0, N_D0, T0_D, GAMMA_D = 2.0e-11, 2.0e5, 3.0e4, 150.0, 0.5
+
+
+def _dimer_curve():
+    # the atom-dimer rate equations integrated by scipy (DOP853), independent of lossfit
     d = _cad()
 
     def rhs(_, y):
         na, nd, temp = y
-        r = beta * d * na * nd / temp ** 1.5
-        return [-r, -gamma_d * nd - r, 1.5 * r * temp / (3 * (na + nd))]
+        r = BETA * d * na * nd / temp ** 1.5
+        return [-r, -GAMMA_D * nd - r, 1.5 * r * temp / (3 * (na + nd))]
     t = np.linspace(0.0, 0.3, 15)
-    sol = solve_ivp(rhs, (0, t[-1]), [n_a0, n_d0, t0], t_eval=t, rtol=1e-11, atol=1e-9, method="DOP853")
+    sol = solve_ivp(rhs, (0, t[-1]), [N_A0, N_D0, T0_D], t_eval=t, rtol=1e-11, atol=1e-9, method="DOP853")
     na, nd, temp = sol.y
-    assert nd[-1] < 0.6 * n_d0
-    curve = DecayCurve(t=t, atoms=nd, atoms_err=0.02 * nd, temperature=temp, temperature_err=0.02 * temp,
-                       a=1500.0, kind="dimers", partner_atoms=na, partner_atoms_err=0.02 * na, trap_hz=TRAP)
+    return DecayCurve(t=t, atoms=nd, atoms_err=0.02 * nd, temperature=temp, temperature_err=0.02 * temp,
+                      a=1500.0, kind="dimers", partner_atoms=na, partner_atoms_err=0.02 * na, trap_hz=TRAP)
+
+
+def test_dimer_curve_against_solve_ivp():
+    beta, n_a0, n_d0, gamma_d = BETA, N_A0, N_D0, GAMMA_D
+    curve = _dimer_curve()
+    assert curve.atoms[-1] < 0.6 * n_d0
     fit = fit_curve(curve, species=SP)
     assert fit.kind == "beta"
     assert fit.value == pytest.approx(beta, rel=1e-5)
@@ -192,3 +200,27 @@ def test_bad_mcmc_settings_are_named(mcmc):
                        trap_hz=TRAP)
     with pytest.raises(LossfitValueError, match="mcmc"):
         fit_curve(curve, species=SP, mcmc=mcmc)
+
+
+@pytest.mark.parametrize("kind", ["atoms", "dimers"])
+def test_walker_set_of_one_curve_equals_walker_by_walker(kind):
+    # the sampled per-curve fit integrates every walker's copy of the curve in one batch:
+    # the log probabilities must be those of one walker at a time, bit for bit (then the
+    # chains are too: tests/inference/test_moves.py), a walker below its bound included
+    if kind == "atoms":
+        n, temp = _heated(TIMES, N0, T0, L3, GAMMA, 0.0)
+        curve = DecayCurve(t=TIMES, atoms=n, atoms_err=0.02 * n, temperature=temp, temperature_err=0.02 * temp,
+                           a=-1000.0, trap_hz=TRAP)
+    else:
+        curve = _dimer_curve()
+    fit = fit_curve(curve, species=SP)
+    model = _CurveModel(curve, SP, True, 0.0, None, 1e-8)
+    model.value_scale = fit.value
+    log_prob = _CurveLogProb(model, np.r_[0.0, np.full(len(model.coords) - 2, -np.inf), 0.0])
+    x = np.r_[1.0, np.log(fit.params["n0"]), [np.log(fit.params["n_atoms0"])] if kind == "dimers" else [],
+              np.log(fit.params["t0_nK"]), fit.params["gamma"] * curve.t[-1]]
+    xs = x * (1.0 + 0.01 * np.random.default_rng(1).standard_normal((6, x.size)))
+    xs[2, 0] = -0.1                                           # below its bound
+    many = log_prob(xs)
+    assert log_prob.vectorized and many[2] == -np.inf and np.isfinite(np.delete(many, 2)).all()
+    assert np.array_equal(many, np.array([log_prob(row) for row in xs]))
