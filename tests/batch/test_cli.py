@@ -128,12 +128,12 @@ def test_unwritable_output_folder_is_refused(tmp_path, monkeypatch):
 @pytest.mark.slow
 @pytest.mark.parametrize("study", ['kind = "temperature"\nfeature = "a_minus"',
                                    'kind = "model-comparison"\ncompare = ["free", "shared-eta", "universal"]'])
-def test_job_files_run_the_studies(job, tmp_path, study):
+def test_job_files_run_the_studies(job, tmp_path, study, run_cli):
     text = (job / "job.toml").read_text().replace("steps = 40", "steps = 400") + f"\n[study]\n{study}\n"
     path = job / f"study-{tmp_path.name}.toml"
     path.write_text(text)
     out = tmp_path / "out"
-    proc = _run("run", path, "--out", out)
+    proc = run_cli("run", path, "--out", out)
     assert proc.returncode == 0, proc.stderr
     import json
     record = json.loads((out / "study.json").read_text())
@@ -143,7 +143,7 @@ def test_job_files_run_the_studies(job, tmp_path, study):
         assert {"apparent", "thermal"} <= set(record["rows"][0])
     else:
         assert {r["name"] for r in record["rows"]} == {"free", "shared-eta", "universal"}
-    again = _run("run", path, "--out", out)
+    again = run_cli("run", path, "--out", out)
     assert again.returncode == 3                      # a finished study is not overwritten
 
 
@@ -160,7 +160,7 @@ def test_bad_study_sections_name_the_key(job, study, key):
 
 
 @pytest.mark.slow
-def test_job_files_run_the_calibration_and_the_spectrum(job, tmp_path):
+def test_job_files_run_the_calibration_and_the_spectrum(job, tmp_path, run_cli):
     import json
 
     import numpy as np
@@ -177,14 +177,14 @@ def test_job_files_run_the_calibration_and_the_spectrum(job, tmp_path):
     (tmp_path / "binding.csv").write_text("\n".join(lines) + "\n")
     (tmp_path / "cal.toml").write_text('[data]\nspecies = "133Cs"\nbinding_energies = "binding.csv"\n[study]\n'
                                        'kind = "calibration"\nguess = [549.9, -9.0, 190.0]\n')
-    proc = _run("run", tmp_path / "cal.toml", "--out", tmp_path / "cal")
+    proc = run_cli("run", tmp_path / "cal.toml", "--out", tmp_path / "cal")
     assert proc.returncode == 0, proc.stderr
     record = json.loads((tmp_path / "cal" / "study.json").read_text())
     assert record["preferred"] == "van-der-waals"
     assert abs(record["fits"][0]["params"][0] - 550.0) < 0.01
     spec = (job / "job.toml").read_text().replace("steps = 40", "steps = 300") + '\n[study]\nkind = "spectrum"\n'
     (job / f"spectrum-{tmp_path.name}.toml").write_text(spec)
-    proc = _run("run", job / f"spectrum-{tmp_path.name}.toml", "--out", tmp_path / "spec")
+    proc = run_cli("run", job / f"spectrum-{tmp_path.name}.toml", "--out", tmp_path / "spec")
     assert proc.returncode == 0, proc.stderr
     record = json.loads((tmp_path / "spec" / "study.json").read_text())
     assert record["kind"] == "spectrum" and record["kappa_star_per_a0"] > 0
@@ -196,12 +196,12 @@ def test_job_with_automatic_steps_runs_to_a_recorded_stop(job, tmp_path, run_cli
     # a bad cap is refused naming its key, and --steps takes "auto" too
     path = _job_with(job, tmp_path, "steps = 40", 'steps = "auto"\nmax_steps = 200')
     out = tmp_path / "auto"
-    proc = _run("run", path, "--out", out, "--quiet")
+    proc = run_cli("run", path, "--out", out, "--quiet")
     assert proc.returncode == 0, proc.stderr
     settings = json.loads((out / "summary.json").read_text())["settings"]
     assert settings["stopped"] in ("converged", "max_steps") and settings["steps"] <= 200
     assert settings["tau_at_stop"] > 0
-    again = _run("run", path, "--out", out)
+    again = run_cli("run", path, "--out", out)
     assert again.returncode == 0 and "already holds the finished run" in again.stdout
     bad = _job_with(job, tmp_path, "steps = 40", 'steps = "auto"\nmax_steps = 5')
     _refused(run_cli("run", bad, "--out", tmp_path / "bad"), "sampler.max_steps")

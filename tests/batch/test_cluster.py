@@ -252,7 +252,7 @@ steps = 60
 seed = 2
 checkpoint_every = 20
 """)
-    proc = _run("run", tmp_path / "job.toml", "--out", tmp_path / "out", "--quiet")
+    proc = run_cli("run", tmp_path / "job.toml", "--out", tmp_path / "out", "--quiet")
     assert proc.returncode == 0, proc.stderr
     summary = json.loads((tmp_path / "out" / "summary.json").read_text())
     assert {r["name"] for r in summary["summary"]} >= {"a_minus", "eta_minus", "density_scale"}
@@ -261,7 +261,7 @@ checkpoint_every = 20
     # overwrite without --overwrite); the medians depend only on the chain
     proc = run_cli("report", tmp_path / "out")
     assert proc.returncode == 3, proc.stderr
-    proc = _run("report", tmp_path / "out", "--overwrite")
+    proc = run_cli("report", tmp_path / "out", "--overwrite")
     assert proc.returncode == 0, proc.stderr
     again = json.loads((tmp_path / "out" / "summary.json").read_text())
     before = {r["name"]: r["median"] for r in summary["summary"]}
