@@ -73,7 +73,7 @@ def test_rejected_job_leaves_no_folder(job, tmp_path, run_cli):
 
 
 @pytest.mark.slow
-def test_quiet_prints_nothing_and_ignored_options_are_named(job, tmp_path):
+def test_quiet_prints_nothing_and_ignored_options_are_named(job, tmp_path, run_cli):
     out = tmp_path / "quiet"
     proc = _run("run", job / "job.toml", "--out", out, "--quiet", "--workers", "3")
     assert proc.returncode == 0, proc.stderr
@@ -81,7 +81,7 @@ def test_quiet_prints_nothing_and_ignored_options_are_named(job, tmp_path):
     assert (out / "summary.json").exists()
     # the same job again without --quiet: the finished folder is left alone, and the notice
     # names the ignored option (the result table of a loud run: test_demo_writes_all_outputs...)
-    loud = _run("run", job / "job.toml", "--out", out, "--workers", "3")
+    loud = run_cli("run", job / "job.toml", "--out", out, "--workers", "3")
     assert loud.returncode == 0, loud.stderr
     assert "--workers is ignored with --pool serial" in loud.stderr
     assert "already holds the finished run" in loud.stdout
