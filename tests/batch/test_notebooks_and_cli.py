@@ -34,7 +34,7 @@ def _lossfit(*args, **kw):
 
 
 @pytest.mark.slow
-def test_demo_writes_all_outputs_and_refuses_to_overwrite(tmp_path):
+def test_demo_writes_all_outputs_and_refuses_to_overwrite(tmp_path, run_cli):
     out = tmp_path / "demo"
     proc = _lossfit("demo", "--out", str(out), "--steps", "600")
     assert proc.returncode == 0, proc.stderr
@@ -50,7 +50,7 @@ def test_demo_writes_all_outputs_and_refuses_to_overwrite(tmp_path):
     assert {r["name"] for r in summary["summary"]} >= {"a_minus", "eta_minus", "a_star", "eta_star"}
     assert "a_minus (a0)" in proc.stdout
     before = (out / "summary.json").read_bytes()
-    again = _lossfit("demo", "--out", str(out), "--steps", "600", "--quiet")
+    again = run_cli("demo", "--out", str(out), "--steps", "600", "--quiet")
     assert again.returncode == 3 and "--overwrite" in again.stderr     # documented exit code
     assert (out / "summary.json").read_bytes() == before
 
@@ -74,7 +74,7 @@ def test_demo_from_raw_curves(tmp_path):
 
 
 @pytest.mark.slow
-def test_mixture_demo_and_its_job_file(tmp_path):
+def test_mixture_demo_and_its_job_file(tmp_path, run_cli):
     # the invented two-bosons-and-a-third-atom scenario (lossfit.simulate.MIXTURE_SCENARIO):
     # all outputs, the a_bb = 0 caution, and the job file reproducing the chain bit for bit
     out = tmp_path / "mixture"
@@ -88,7 +88,7 @@ def test_mixture_demo_and_its_job_file(tmp_path):
     assert summary["species"] == "133Cs-133Cs-6Li"
     rows = {r["name"]: r for r in summary["summary"]}
     assert rows["a_minus"]["median"] == pytest.approx(-320.0, rel=0.03)      # the scenario's truth
-    again = _lossfit("run", str(out / "job.toml"), "--out", str(tmp_path / "rerun"), "--quiet")
+    again = run_cli("run", str(out / "job.toml"), "--out", str(tmp_path / "rerun"), "--quiet")
     assert again.returncode == 0, again.stderr
     assert (tmp_path / "rerun" / "chains.h5").exists()
     first = json.loads((out / "summary.json").read_text())["summary"]
