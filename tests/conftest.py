@@ -6,6 +6,13 @@ import warnings
 # numpy loads (matplotlib brings it), or the workers' threads fight for the cores
 for _var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
     os.environ.setdefault(_var, "1")
+# numba compiles the kernels at LLVM optimisation level 1 instead of 3 in the tests (and in
+# the command-line and notebook processes they start, which inherit it): on a fresh cache,
+# as in CI, compiling is the largest single cost of the run (the spectrum demo compiled for
+# 18 s at level 3, 11 s at level 1), and lossfit's kernels run as fast at level 1 (decay
+# integration 9.7 vs 11.1 us per curve, thermal plan 112 vs 121 us per 16 walkers; no
+# fastmath, so the arithmetic is the same). Speed is measured by benchmarks/, not here.
+os.environ.setdefault("NUMBA_OPT", "1")
 
 import matplotlib  # noqa: E402
 
