@@ -35,9 +35,10 @@ class MPIPool:
     The function goes to the workers once (when it changes); each ``map`` sends every
     worker its share of the tasks (one block of walkers each when the sampler runs
     vectorised, :class:`lossfit.inference.posterior.WalkerBlocks`), works on its own
-    share and collects the results in order. Idle workers do not spin: they poll for the
-    next message with a growing sleep (10 us doubling up to 1 ms), so a rank waiting for
-    work costs no CPU (MPI's blocking receive busy-polls). mpi4py's own executor
+    share and collects the results in order. Waiting ranks do not spin: a worker waiting
+    for work, and rank 0 waiting for a worker's results, poll for the message with a
+    growing sleep (after 2 ms of polling: 10 us doubling up to 1 ms), so a waiting rank
+    costs no CPU (MPI's blocking receive busy-polls). mpi4py's own executor
     (``mpi4py.futures.MPICommExecutor``) was not used: its root rank only hands out work,
     so on 2 ranks one rank would compute (measured and discussed in docs/cluster.md).
     Use as::
@@ -67,23 +68,24 @@ class MPIPool:
     def is_master(self):
         return self.rank == 0
 
-    def _receive(self):
-        # probe polled with a growing sleep (idle ranks leave the CPU free), then a blocking
-        # receive sized to the message: irecv's default 32 KiB buffer truncates a pickled
-        # campaign posterior (tens of KiB to MBs) and left the master waiting forever
-        # receive. During a run the next map follows within a few ms, so the probe spins for
-        # _SPIN seconds before it starts to sleep (sleeping at once cost ~1 ms per map)
+    def _receive(self, source=0):
+        # probe polled with a growing sleep (waiting ranks leave the CPU free), then a
+        # blocking receive sized to the message: irecv's default 32 KiB buffer truncates a
+        # pickled campaign posterior (tens of KiB to MBs) and left the master waiting forever.
+        # During a run the next message follows within a few ms, so the probe spins for
+        # _SPIN seconds before it starts to sleep (sleeping at once cost ~1 ms per map).
+        # Workers wait so for work, rank 0 for its workers' results.
         spin_until = time.perf_counter() + self._SPIN
-        while not self.comm.Iprobe(source=0, tag=self._TAG):
+        while not self.comm.Iprobe(source=source, tag=self._TAG):
             if time.perf_counter() > spin_until:
                 break
         else:
-            return self.comm.recv(source=0, tag=self._TAG)
+            return self.comm.recv(source=source, tag=self._TAG)
         pause = self._BACKOFF[0]
-        while not self.comm.Iprobe(source=0, tag=self._TAG):
+        while not self.comm.Iprobe(source=source, tag=self._TAG):
             time.sleep(pause)
             pause = min(2.0 * pause, self._BACKOFF[1])
-        return self.comm.recv(source=0, tag=self._TAG)
+        return self.comm.recv(source=source, tag=self._TAG)
 
     def wait(self):
         """Worker loop: serve map requests until the master closes the pool."""
@@ -112,7 +114,7 @@ class MPIPool:
         out = [None] * len(items)
         out[0::self.size] = [func(x) for x in chunks[0]]
         for r in workers:
-            out[r::self.size] = self.comm.recv(source=r, tag=self._TAG)
+            out[r::self.size] = self._receive(source=r)
         return out
 
     def close(self):
