@@ -225,11 +225,13 @@ class CurvesLikelihood:
         None: the model's fast thermal averages; a number: the adaptive reference
         quadrature at this tolerance (slow; for checks).
     shift_margin : float
-        Extra reach of the T tables on both sides, in ln T (default 0). With free
-        resonance parameters a walker whose a move by factors rho with
-        2 |ln rho| <= ``shift_margin`` reuses the prepared thermal averages on knots
-        shifted by -2 ln rho (:meth:`lossfit.universal.averages.ThermalPlan.evaluate_scaled`);
-        other walkers rebuild them at their a.
+        Extra reach of the T tables on both sides, in ln T (default 0;
+        :func:`lossfit.inference.global_fit.prepare_curves` sets it from the priors). With
+        free resonance parameters or field noise, a walker whose scattering lengths move by
+        factors rho with 2 |ln rho| <= ``shift_margin`` (every curve and noise node) reuses
+        the prepared thermal averages on knots shifted by -2 ln rho
+        (:meth:`lossfit.universal.averages.ThermalPlan.evaluate_scaled`); other walkers
+        rebuild them at their a.
 
     Attributes
     ----------
