@@ -84,7 +84,7 @@ def _start(posterior, space, walkers, rng, initial):
     else:
         draws = np.column_stack([p.sample(rng, 256) for p in space.priors])
         thetas = space.theta(draws)
-        lps = np.array([posterior(t) for t in thetas])
+        lps = posterior.batch(thetas)            # one walker-set call for every draw
         if not np.isfinite(lps).any():
             raise LossfitValueError("priors", "no prior draw gives a finite posterior; check data and priors")
         best = None

@@ -249,7 +249,7 @@ def _find_centre(posterior, space, likelihood, rng, initial, draws=48):
     else:
         pri = np.column_stack([p.sample(rng, draws) for p in space.priors])
         thetas = space.theta(pri)
-        lps = np.array([posterior(t) for t in thetas])
+        lps = posterior.batch(thetas)            # one walker-set call for every draw
         if not np.isfinite(lps).any():
             raise LossfitValueError("priors", "no prior draw gives a finite posterior; check data and priors")
         theta = thetas[int(np.argmax(lps))]
