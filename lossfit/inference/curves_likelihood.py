@@ -589,7 +589,7 @@ class CurvesLikelihood:
         (``Efimov.trusted`` with arrays, values of W walkers): an array of W. The curves of
         all walkers are integrated in one batched call."""
         if not efimov.n_walkers:
-            if self._packed_path:
+            if not self.explicit.any():
                 # a set of one: the same tables, knots and bits as inside a walker set
                 one = Efimov.trusted(**{k: np.array([v]) for k, v in vars(efimov).items() if v is not None})
                 return float(self(one, values)[0])
@@ -696,15 +696,20 @@ class CurvesLikelihood:
         packed = self._packed_path
         tables, knots, s_t, ok = [], [], [], []
         slow = range(len(efimovs))
-        if packed and walker_set is not None:
-            if self.gh_x.size == 1 and not any(n in values[0] for n in RESONANCE_NAMES):
-                # nothing moves the scattering lengths: every walker's tables in one plan call
-                coefs, ok = self._spline_coefficients_of_set(*walker_set)
-                slow = []
-            else:
-                coefs, shifted, ok, slow = self._rescaled_coefficients_of_set(*walker_set)
-                knots.append(shifted)
+        moved = self.gh_x.size > 1 or any(n in values[0] for n in RESONANCE_NAMES)
+        if walker_set is not None and packed and not moved:
+            # nothing moves the scattering lengths: every walker's tables in one plan call
+            coefs, ok = self._spline_coefficients_of_set(*walker_set)
+            slow = []
             tables.append(coefs)
+        elif walker_set is not None and moved and not self.explicit.any():
+            coefs, shifted, ok, slow = self._rescaled_coefficients_of_set(*walker_set)
+            if packed:
+                tables.append(coefs)
+                knots.append(shifted)
+            else:
+                # dimer curves too: table objects on the shifted knots (exp(knots): their T)
+                tables += [_FastTable(k, c, np.exp(k), None) for k, c in zip(shifted, coefs)]
         for w in slow:
             t = self._spline_coefficients(efimovs[w], values[w]) if packed else self.tables(efimovs[w], values[w])
             if t is not None:

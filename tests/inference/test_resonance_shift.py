@@ -55,18 +55,23 @@ def test_scaled_plan_agrees_with_the_reference_quadrature():
     np.testing.assert_allclose(got, want, rtol=1e-5)
 
 
-@pytest.fixture(scope="module", params=["resonance", "resonance and field noise"])
+@pytest.fixture(scope="module", params=["resonance", "resonance and field noise", "dimer curves"])
 def campaign(request):
     # invented campaign (lossfit.simulate, not measured data), every resonance parameter
-    # free, and the field noise sigma_B (G) in the second case
+    # free; the field noise sigma_B (G) in the second case; atom-dimer curves at a > 0
+    # beside the atom curves in the third (beta tables, table objects per curve)
     systematics = {"density_scale": 0.2, "b0": 0.01, "width": 0.1, "a_bg": 5.0}
-    if request.param != "resonance":
+    if request.param == "resonance and field noise":
         systematics["sigma_B"] = (1e-4, 0.02)
+    dimers = request.param == "dimer curves"
+    free = ["a_minus", "eta_minus"] + (["a_star", "eta_star"] if dimers else [])
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        curves, res, truth = invented_campaign(11, n_fields=4)
-        space, likelihood, post = prepare_curves(curves, species=CS, free=["a_minus", "eta_minus"], resonance=res,
+        curves, res, truth = invented_campaign(11, n_fields=4, dimer_fields=2 if dimers else 0)
+        space, likelihood, post = prepare_curves(curves, species=CS, free=free, resonance=res,
+                                                 priors={"a_star": (300.0, 3000.0)} if dimers else None,
                                                  systematics=systematics)
+    assert likelihood.dimers.any() == dimers
     near = {**truth, "density_scale": 1.0, "b0": res.b0, "width": res.width, "a_bg": res.a_bg, "sigma_B": 0.004}
     centre = space.theta([near[n] for n in space.names])
     return space, likelihood, post, centre
