@@ -230,7 +230,7 @@ def bench_commands(run_tests):
          floor=True)
     demo_c = _command([sys.executable, "-m", "lossfit.cli", "demo", "--from-curves", "--out", "{out}", "--quiet"],
                       1, env)
-    _row("lossfit demo --from-curves", demo_c, floor, "python -c 'import lossfit'", "<= 60 s", unit="s", scale=1,
+    _row("lossfit demo --from-curves", demo_c, floor, "python -c 'import lossfit'", "<= 12 s", unit="s", scale=1,
          floor=True)
     start = ("import time; t = time.perf_counter(); import lossfit as lf; "
              "lf.l3(-900.0, 50.0, species='133Cs', efimov=lf.Efimov.universal(-900.0, 0.08)); "
