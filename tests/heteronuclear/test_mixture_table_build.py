@@ -11,11 +11,20 @@ from lossfit.cli import main
 from lossfit.errors import LossfitValueError
 from lossfit.mixture import heteronuclear
 from lossfit.units import A0
-from lossfit.universal.mixture_model import table_name
+from lossfit.universal.mixture_model import _mixture_model, table_name
 from lossfit.universal.solver.mixture_tables import build_table
 from lossfit.universal.solver.stm_mixture import MixtureSTM
 
 HBAR = 1.054571817e-34        # J s (CODATA 2018)
+
+
+@pytest.fixture(autouse=True)
+def _forget_models_of_the_temporary_cache():
+    # the models of a pair are kept per process and load their tables once: a model that
+    # loaded a table from this test's temporary cache would serve later tests in the same
+    # worker as if the pair had a table (tests/heteronuclear/test_mixture_rates.py refuses it)
+    yield
+    _mixture_model.cache_clear()
 
 
 def test_a_shipped_pair_needs_no_build(capsys):
