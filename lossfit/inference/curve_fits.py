@@ -152,12 +152,15 @@ class _CurveModel:
         out["gamma"] = self.gamma_fixed if self.gamma_fixed is not None else x[i + 1] / self.t_max
         return out
 
-    def solve(self, p):
+    def solve(self, p, batch=None):
+        """(counted, temperature, partner atoms or None) at parameters ``p``: floats for the
+        curve, or arrays for the copies of it in ``batch`` (:meth:`DecayBatch.repeated`)."""
+        batch = self.batch if batch is None else batch
         if self.dimers:
-            res = self.batch(p["n_atoms0"], p["t0_nK"], 0.0, 0.0, n_dimers0=p["n0"], beta=p["value"],
-                             gamma_dimer=p["gamma"])
+            res = batch(p["n_atoms0"], p["t0_nK"], 0.0, 0.0, n_dimers0=p["n0"], beta=p["value"],
+                        gamma_dimer=p["gamma"])
             return res.dimers, res.temperature, res.atoms
-        res = self.batch(p["n0"], p["t0_nK"], p["value"], p["gamma"])
+        res = batch(p["n0"], p["t0_nK"], p["value"], p["gamma"])
         return res.atoms, res.temperature, None
 
     def residuals_of(self, main, temp, partner):
@@ -194,21 +197,16 @@ class _CurveModel:
         copies of the curve, row by row as :meth:`__call__` gives them (the batch
         integrates each copy alone, with the same arithmetic)."""
         params = [self.unpack(x) for x in xs]
-        if len(params) not in self._copies:
-            self._copies[len(params)] = self.batch.repeated(len(params))
-        batch = self._copies[len(params)]
-        column = {name: np.array([p[name] for p in params]) for name in params[0]}
+        count = len(params)
+        if count not in self._copies:
+            self._copies[count] = self.batch.repeated(count)
         try:
-            if self.dimers:
-                res = batch(column["n_atoms0"], column["t0_nK"], 0.0, 0.0, n_dimers0=column["n0"],
-                            beta=column["value"], gamma_dimer=column["gamma"])
-                main, partner = res.dimers.reshape(len(params), -1), res.atoms.reshape(len(params), -1)
-            else:
-                res = batch(column["n0"], column["t0_nK"], column["value"], column["gamma"])
-                main, partner = res.atoms.reshape(len(params), -1), [None] * len(params)
+            main, temp, partner = self.solve({name: np.array([p[name] for p in params]) for name in params[0]},
+                                             self._copies[count])
         except LossfitValueError:
             return np.array([self(x) for x in xs])          # the failing rows get their penalty
-        temp = res.temperature.reshape(len(params), -1)
+        main, temp = main.reshape(count, -1), temp.reshape(count, -1)
+        partner = [None] * count if partner is None else partner.reshape(count, -1)
         return np.array([np.concatenate([self.residuals_of(main[w], temp[w], partner[w]), self.priors_of(p)])
                          for w, p in enumerate(params)])
 
