@@ -69,7 +69,7 @@ from dataclasses import dataclass
 
 import numba
 import numpy as np
-from scipy.special import gammaincc
+from scipy.special import gammaincc, gammainccinv
 
 from ..errors import LossfitValueError
 from ..mixture import HeteronuclearSystem, system_from_name
@@ -285,12 +285,12 @@ def beta_unitarity_prefactor(mass_ratio):
     return math.pi * ratio ** 1.5 / math.sqrt(2.0)
 
 
-def _refuse_beyond_table(x_e, x_max, x_unit, shape, collisions, table_name, thermal, safe_fraction):
+def _refuse_beyond_table(x_e, x_max, x_unit, shape, collisions, table_name, thermal):
     """Refuse energies beyond a table's end k a = ``x_max`` (fixed energy, ``x_e`` = k a of
     each point) or temperatures that put more than WEIGHT_BEYOND_TABLE_MAX of the Boltzmann
     weight (:func:`weight_above` with ``shape``) there (``x_e`` = k a at E = k_BT). Energies
     are reported in units of the dimer binding energy hbar^2/(2 mu a^2) = (k a/x_unit)^2 times
-    it; ``safe_fraction`` is the k_BT/E_max below which the weight stays under the limit."""
+    it."""
     reach = (x_max / x_unit) ** 2
     if not thermal:
         if (x_e > x_max).any():
@@ -300,10 +300,12 @@ def _refuse_beyond_table(x_e, x_max, x_unit, shape, collisions, table_name, ther
     weight = weight_above(x_e, x_max, shape)
     if (weight > WEIGHT_BEYOND_TABLE_MAX).any():
         worst = int(np.argmax(weight))
+        # E_max / k_BT at which Q(shape, E_max/k_BT) is the limit: 11.23 (shape 3), 8.13 (3/2)
+        safe_ratio = gammainccinv(shape, WEIGHT_BEYOND_TABLE_MAX)
         raise LossfitValueError("temperature", f"{weight[worst]:.2g} of the {collisions} (point {worst}: k_BT = "
                                 f"{(x_e[worst] / x_unit) ** 2:.3g} times the dimer binding energy hbar^2/(2 mu a^2)) "
                                 f"lie beyond {reach:.3g} times it, where {table_name} ends; lossfit accepts at "
-                                f"most {WEIGHT_BEYOND_TABLE_MAX:g} (k_BT below {safe_fraction * reach:.3g} times the "
+                                f"most {WEIGHT_BEYOND_TABLE_MAX:g} (k_BT below {reach / safe_ratio:.3g} times the "
                                 "binding energy): lower the temperature or leave such points out")
 
 
@@ -663,10 +665,9 @@ class MixtureZeroRangeModel(EnergyModel):
             raise LossfitValueError("temperature_x", f"a > 0 recombination of {self.system.label} is averaged at "
                                     "one temperature only")
         table = self.positive_channel.table
-        # Q(3, E_max/k_BT) <= 1e-3 below k_BT = E_max/11.23
         _refuse_beyond_table(np.abs(np.ravel(q)) * self.wavenumber_ratio, table.x_max, 1.0, 3.0,
                              "three-atom collisions", f"the a > 0 recombination table of {self.system.label}",
-                             thermal, 1.0 / 11.23)
+                             thermal)
 
     def two_theta(self, a, a_minus):
         """2 theta = 2 s0 ln(kappa*|a|) at scattering lengths ``a`` (a0) for a_- (a0)."""
@@ -776,10 +777,8 @@ class MixtureZeroRangeModel(EnergyModel):
         if (np.asarray(a) <= 0).any():
             raise LossfitValueError("a", "atom-dimer relaxation needs a shallow B-X dimer: a must be > 0 a0")
         table = self.atom_dimer_table
-        # Q(3/2, E_max/k_BT) <= 1e-3 below k_BT = 0.123 E_max
         _refuse_beyond_table(np.abs(np.ravel(q)) * self.atom_dimer_wavenumber_ratio, table.x_max, table.breakup_x,
-                             1.5, "atom-dimer collisions", f"the atom-dimer table of {self.system.label}", thermal,
-                             0.123)
+                             1.5, "atom-dimer collisions", f"the atom-dimer table of {self.system.label}", thermal)
 
     def atom_dimer_rows(self, a, efimov, q, channel="relaxation", x_max=U_MAX ** 2):
         """Parameter rows of :attr:`atom_dimer_kernel` (a > 0, relaxation); as the base class.
