@@ -496,7 +496,12 @@ class CurvesLikelihood:
             power = 2.0 if kind == "l3" else 1.0
             logv[idx] = np.log(pred) - power * math.log(s_n)
         # spline coefficients are linear in the tabulated values: one matrix product
-        return (logv @ self._spline_rows).reshape(self.n_curves, 4, -1), kinetics     # (m, 4, n_knots - 1)
+        return self._spline_of(logv), kinetics                                        # (m, 4, n_knots - 1)
+
+    def _spline_of(self, logv):
+        """Coefficients (rows, 4, n_knots - 1) of the not-a-knot splines through rows of
+        values (..., n_knots) on the T-table knots: linear in the values, one product."""
+        return (logv.reshape(-1, self.n_knots) @ self._spline_rows).reshape(-1, 4, self.n_knots - 1)
 
     def _kinetics_coefficients(self, parts, n, s_n):
         """Spline coefficients (n, 4, 6 (n_knots - 1)) of the kinetics tables of ``n`` curves
@@ -508,7 +513,7 @@ class CurvesLikelihood:
             return None
         # the spline coefficients are linear in the tabulated columns: one product for all,
         # reordered to (curve, power, column block, interval)
-        coefs = (kinetics_columns(avg).reshape(-1, self.n_knots) @ self._spline_rows).reshape(6, n, 4, -1)
+        coefs = self._spline_of(kinetics_columns(avg)).reshape(6, n, 4, -1)
         return np.ascontiguousarray(coefs.transpose(1, 2, 0, 3)).reshape(n, 4, -1)
 
     def _batch_for(self, copies):
@@ -612,7 +617,7 @@ class CurvesLikelihood:
             with np.errstate(divide="ignore", invalid="ignore"):
                 logv[:, idx] = np.log(pred) - (2.0 if kind == "l3" else 1.0) * ln_scale[:, None, None]
         ok = np.flatnonzero(valid)
-        coefs = (logv[ok].reshape(-1, self.n_knots) @ self._spline_rows).reshape(ok.size * self.n_curves, 4, -1)
+        coefs = self._spline_of(logv[ok])
         return coefs, list(ok)
 
     @property
@@ -675,7 +680,7 @@ class CurvesLikelihood:
                 logv[:, idx] = np.log(pred @ self.gh_w) - power * ln_scale[served][:, None, None]
         # a served walker with an invalid rate goes the rebuilding way too (which refuses it)
         near[served[~finite]] = False
-        coefs = (logv[finite].reshape(-1, n) @ self._spline_rows).reshape(int(finite.sum()) * m, 4, n - 1)
+        coefs = self._spline_of(logv[finite])
         knots = self._knots_all[None] - shift[finite][:, :, None]
         return coefs, knots.reshape(-1, n), list(served[finite]), list(np.flatnonzero(valid & ~near))
 
@@ -684,7 +689,7 @@ class CurvesLikelihood:
         every knot moved by ``offset`` (...,) in ln T (the end intervals' cubics beyond
         the ends)."""
         n, h = self.n_knots, self.rel_knots[1]
-        coefs = (logv.reshape(-1, n) @ self._spline_rows).reshape(logv.shape[:-1] + (4, n - 1))
+        coefs = self._spline_of(logv).reshape(logv.shape[:-1] + (4, n - 1))
         where = self.rel_knots + offset[..., None]
         interval = np.clip(np.floor(where / h).astype(np.int64), 0, n - 2)
         dx = where - self.rel_knots[interval]
