@@ -1180,7 +1180,9 @@ def simulate_decay(t, *, species, trap_hz, n0, t0_nK, l3=None, efimov=None, a=No
 def _integrate_one(times, y0, p, l3_knots, l3_coefs, b_knots, b_coefs, rtol):
     """One curve through the batch kernel, a batch of one: (status, states (times, 4)).
     One compiled integrator serves single curves and batches (each array layout would
-    compile the whole integrator again, tens of seconds on a fresh cache)."""
+    compile the whole integrator again, tens of seconds on a fresh cache; so does a
+    read-only array, as a curve's own times are: they are copied)."""
+    times = np.array(times, dtype=float)
     out = np.empty((times.size, _DIM))
     status = np.zeros(1, dtype=np.int64)
     ends = np.array([0, times.size], dtype=np.int64)

@@ -587,7 +587,8 @@ def _efimov_arrays(family, efimov, eta_min, walkers):
     a_f = np.asarray(a_f, dtype=float)
     eta = np.asarray(eta, dtype=float)
     if a_f.shape != (n,) or eta.shape != (n,):
-        a_f, eta = np.broadcast_to(a_f, (n,)), np.broadcast_to(eta, (n,))
+        # copies, not broadcast views: a read-only array would compile the kernel again
+        a_f, eta = np.array(np.broadcast_to(a_f, (n,))), np.array(np.broadcast_to(eta, (n,)))
     out = np.empty((4, n))
     if _walker_terms(a_f, eta, kappa, eta_min, out):
         raise LossfitValueError(eta_name, f"{eta.min():g} is below eta_min={eta_min:g}, the smallest eta this "

@@ -152,6 +152,18 @@ def test_tabulated_rate_and_batch_match_solve_ivp():
     assert sols[1].temperature == pytest.approx(t_ref[:7], rel=1e-6)
 
 
+def test_read_only_times_reuse_the_one_compiled_integrator():
+    # a curve's own times are read-only, and numba compiles a kernel once per array type:
+    # single curves and batches must reach the integrator with the same types, or a fresh
+    # cache pays its compile (the largest of the library) twice
+    frozen = TIMES.copy()
+    frozen.setflags(write=False)
+    simulate_decay(frozen, species=SP, trap_hz=FREQS, n0=N0, t0_nK=T0, l3=L3)
+    simulate_decay_batch([frozen, frozen[:7]], species=SP, traps_hz=FREQS, n0=N0, t0_nK=T0, l3=L3)
+    readonly = [sig for sig in decay._integrate_batch.signatures if sig[0].mutable is False]
+    assert not readonly, readonly
+
+
 def test_batch_mixture_curves_match_single_simulation():
     beta_table = tabulate_rate(lambda temp: 2e-13 * (T0 / temp), 150.0, 1000.0)
     sols = simulate_decay_batch([TIMES, TIMES[:9]], species=SP, traps_hz=FREQS, n0=[N0, 0.5 * N0],
