@@ -599,18 +599,20 @@ def _integrate_rosenbrock(t_out, y0, p, l3k, l3c, bk, bc, rtol, atol, floor, max
 
 
 @numba.njit(cache=True)
-def _integrate(t_out, y0, p, l3k, l3c, bk, bc, rtol, atol, max_steps, out):
+def _integrate(t_out, y0, p, l3k, l3c, bk, bc, rtol, atol, max_steps, out, stiff_solver):
     """Integrate from t = 0 with the method in ``p`` and write the state at each
     ``t_out`` into ``out[k, :]``. Returns a status code (0 ok). ``t_out`` is increasing
-    and non-negative."""
+    and non-negative. ``stiff_solver`` None: Dormand-Prince only (:func:`_stiff_solver`)."""
     floor = np.empty(y0.shape[0])
     scale = max(y0[0], y0[1], 1.0)
     floor[0] = 1e-3 * scale
     floor[1] = 1e-3 * scale
     floor[2] = 1e-3 * y0[2]
     floor[3] = 1e-3 * scale
-    if p[_METHOD] == _ROSENBROCK or (p[_METHOD] == _AUTO and _stiff(t_out, y0, p, l3k, l3c)):
-        return _integrate_rosenbrock(t_out, y0, p, l3k, l3c, bk, bc, rtol, atol, floor, max_steps, out)
+    if stiff_solver is not None:
+        # numba prunes this branch when stiff_solver is None: no Rosenbrock code compiled
+        if p[_METHOD] == _ROSENBROCK or (p[_METHOD] == _AUTO and _stiff(t_out, y0, p, l3k, l3c)):
+            return _integrate_rosenbrock(t_out, y0, p, l3k, l3c, bk, bc, rtol, atol, floor, max_steps, out)
     return _integrate_dopri(t_out, y0, p, l3k, l3c, bk, bc, rtol, atol, floor, max_steps, out)
 
 
@@ -628,12 +630,13 @@ def _stiff(t_out, y0, p, l3k, l3c):
 
 @numba.njit(cache=True)
 def _integrate_batch(t_all, t_off, y0s, ps, l3k, l3c, l3_koff, l3_coff, bk, bc, b_koff, b_coff,
-                     rtol, atol_rel, max_steps, out, status):
+                     rtol, atol_rel, max_steps, out, status, stiff_solver):
     """Integrate many curves.
 
     Curve j uses times t_all[t_off[j]:t_off[j+1]], L3 (or kinetics) knots
     l3k[l3_koff[j]:l3_koff[j+1]] and coefficient columns l3c[:, l3_coff[j]:l3_coff[j+1]]
-    (empty slices: the constant in ps[j]), and likewise for beta.
+    (empty slices: the constant in ps[j]), and likewise for beta; ``stiff_solver`` as
+    :func:`_stiff_solver` gives it for ``ps``.
     """
     atol = np.empty(_DIM)
     for j in range(y0s.shape[0]):
@@ -646,7 +649,17 @@ def _integrate_batch(t_all, t_off, y0s, ps, l3k, l3c, l3_koff, l3_coff, bk, bc, 
         status[j] = _integrate(t_all[t_off[j]:t_off[j + 1]], y0, ps[j],
                                l3k[l3_koff[j]:l3_koff[j + 1]], l3c[:, l3_coff[j]:l3_coff[j + 1]],
                                bk[b_koff[j]:b_koff[j + 1]], bc[:, b_coff[j]:b_coff[j + 1]],
-                               rtol, atol, max_steps, out[t_off[j]:t_off[j + 1], :dim])
+                               rtol, atol, max_steps, out[t_off[j]:t_off[j + 1], :dim], stiff_solver)
+
+
+def _stiff_solver(ps):
+    """The last argument of :func:`_integrate_batch` for curve parameters ``ps`` (m, _NPAR):
+    True if a curve may need the Rosenbrock solver (explicit kinetics, or that method
+    asked for), else None. numba compiles one integrator per argument type, so batches
+    without such curves never compile the stiff solver (about half of the integrator's
+    compile on a fresh cache, docs/architecture.md)."""
+    may_be_stiff = (ps[:, _KIN] != 0.0) | (ps[:, _METHOD] == _ROSENBROCK)
+    return True if may_be_stiff.any() else None
 
 
 # --- rates as functions of temperature ---------------------------------------------------
@@ -1189,7 +1202,8 @@ def _integrate_one(times, y0, p, l3_knots, l3_coefs, b_knots, b_coefs, rtol):
     _integrate_batch(times, ends, y0[None, :], p[None, :], l3_knots, np.ascontiguousarray(l3_coefs),
                      np.array([0, l3_knots.size], dtype=np.int64), np.array([0, l3_coefs.shape[1]], dtype=np.int64),
                      b_knots, np.ascontiguousarray(b_coefs), np.array([0, b_knots.size], dtype=np.int64),
-                     np.array([0, b_coefs.shape[1]], dtype=np.int64), rtol, rtol * 1e-6, 1_000_000, out, status)
+                     np.array([0, b_coefs.shape[1]], dtype=np.int64), rtol, rtol * 1e-6, 1_000_000, out, status,
+                     _stiff_solver(p[None, :]))
     return int(status[0]), out
 
 
@@ -1437,7 +1451,7 @@ class DecayBatch:
         out = np.empty((self._t_all.size, _DIM))
         status = np.zeros(m, dtype=np.int64)
         _integrate_batch(self._t_all, self.offsets, self._y0, self._p, *l3_args, *b_args,
-                         self._rtol, self._rtol * 1e-6, 1_000_000, out, status)
+                         self._rtol, self._rtol * 1e-6, 1_000_000, out, status, _stiff_solver(self._p))
         bad = np.flatnonzero(status)
         if bad.size:
             j = int(bad[0])
