@@ -441,7 +441,10 @@ def _plan_weights(family, part, edges, y, ex, omega, sigma, y_threshold, scale_q
     for p in range(m):
         if offset[p] + ex.size > wt.size:
             grown = np.empty(2 * wt.size + ex.size)
-            grown[:offset[p]] = wt[:offset[p]]
+            # element by element: numba's array-to-slice assignment brings its shape check
+            # and error-message code, ~4 s of compile on a fresh cache
+            for k in range(offset[p]):
+                grown[k] = wt[k]
             wt = grown
         first[p], stop[p], status = _point_weights(family, part, edges, y, ex, omega, sigma, y_threshold,
                                                    scale_q[p], scale[p], cuts[p], wt[offset[p]:])

@@ -742,10 +742,12 @@ def recombination_eval(packed, energy):
         lnx = math.log(energy)
         i = min(int((lnx - lnx0) / h), n - 2)
         dx = lnx - (lnx0 + i * h)
-    return (_rc_column(packed, 0, n, below, i, dx, r), _rc_column(packed, 1, n, below, i, dx, r),
-            _rc_column(packed, 2, n, below, i, dx, r), _rc_column(packed, 3, n, below, i, dx, r),
-            _rc_column(packed, 4, n, below, i, dx, r), _rc_column(packed, 5, n, below, i, dx, r),
-            _rc_column(packed, 6, n, below, i, dx, r), _rc_column(packed, 7, n, below, i, dx, r))
+    # the column index is a loop variable: numba would compile _rc_column once per literal
+    # constant 0..7 (eight compiles on a fresh cache) if the calls named them
+    col = np.empty(_RC_COLUMNS)
+    for c in range(_RC_COLUMNS):
+        col[c] = _rc_column(packed, c, n, below, i, dx, r)
+    return col[0], col[1], col[2], col[3], col[4], col[5], col[6], col[7]
 
 
 def load_recombination_table(path=None, high_energy_path=None):
@@ -1007,7 +1009,8 @@ def mixture_recombination_values(packed, x):
     one = np.empty(_MRC_COLUMNS)
     for j in range(x.size):
         mixture_recombination_eval(packed, x[j], one)
-        out[:, j] = one
+        for c in range(_MRC_COLUMNS):        # not out[:, j] = one: see _plan_weights
+            out[c, j] = one[c]
     return out
 
 
