@@ -96,6 +96,9 @@ class CheckpointBackend(emcee.backends.Backend):
         self.names = list(names or [])
         self.metadata = dict(metadata or {})
         self._since_flush = 0
+        #: The sampler's live numpy RandomState while it runs (lossfit.inference.sampling):
+        #: its state is read when a checkpoint is written, not copied at every step.
+        self.generator = None
         if os.path.exists(self.path):
             stored = read_chain_file(self.path)
             if stored["iteration"]:
@@ -124,6 +127,8 @@ class CheckpointBackend(emcee.backends.Backend):
         """Write the chain so far to the file (temporary file, then atomic rename)."""
         if not self.initialized:
             return
+        if self.generator is not None:
+            self.random_state = self.generator.get_state()
         n = self.iteration
         with atomic_path(self.path) as tmp, h5py.File(tmp, "w") as h5:
             h5.attrs["schema"] = CHAIN_SCHEMA

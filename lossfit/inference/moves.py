@@ -45,24 +45,42 @@ class WalkerSetStretchMove(emcee.moves.StretchMove):
             raise LossfitValueError("log_prob", "returned NaN (return -inf outside the support)")
         return log_prob, None
 
+    def stretch(self, s, others, random):
+        """Proposals for the walkers ``s`` (n, ndim) from the complementary set ``others``
+        and their log acceptance factors: emcee's ``get_proposal``, the same draws and the
+        same arithmetic, without its concatenation of a one-set list and with the chosen
+        partners indexed once."""
+        ns, ndim = s.shape
+        zz = ((self.a - 1.0) * random.rand(ns) + 1) ** 2.0 / self.a
+        factors = (ndim - 1.0) * np.log(zz)
+        partners = others[random.randint(len(others), size=(ns,))]
+        return partners - (partners - s) * zz[:, None], factors
+
     def propose(self, model, state):
-        """One stretch step of every walker, half-ensemble by half-ensemble: (state, accepted)."""
+        """One stretch step of every walker, half-ensemble by half-ensemble: (state, accepted).
+        ``state`` is updated in place, as emcee's moves do."""
         walkers, ndim = state.coords.shape
         if walkers < 2 * ndim:
             raise LossfitValueError("walkers", f"the stretch move needs at least 2 x {ndim} walkers, got {walkers}")
         accepted = np.zeros(walkers, dtype=bool)
-        every = np.arange(walkers)
-        halves = every % self.nsplits
+        halves = np.arange(walkers) % self.nsplits
         if self.randomize_split:
             model.random.shuffle(halves)
         for half in range(self.nsplits):
             moving = halves == half
-            sets = [state.coords[halves == j] for j in range(self.nsplits)]
-            proposal, factors = self.get_proposal(sets[half], sets[:half] + sets[half + 1:], model.random)
+            members = np.flatnonzero(moving)
+            others = [state.coords[halves == j] for j in range(self.nsplits) if j != half]
+            proposal, factors = self.stretch(state.coords[members], others[0] if len(others) == 1
+                                             else np.concatenate(others), model.random)
             log_prob, blobs = self._log_probs(model, proposal)
-            members = every[moving]
             # one uniform per walker in walker order: MT19937 draws rand(n) as n calls of
             # rand(), so the decisions are emcee's loop's
-            accepted[members] = factors + log_prob - state.log_prob[members] > np.log(model.random.rand(members.size))
-            state = self.update(state, emcee.State(proposal, log_prob=log_prob, blobs=blobs), accepted, moving)
+            take = factors + log_prob - state.log_prob[members] > np.log(model.random.rand(members.size))
+            accepted[members] = take
+            if blobs is None and state.blobs is None:
+                moved = members[take]
+                state.coords[moved] = proposal[take]
+                state.log_prob[moved] = log_prob[take]
+            else:
+                state = self.update(state, emcee.State(proposal, log_prob=log_prob, blobs=blobs), accepted, moving)
         return state, accepted

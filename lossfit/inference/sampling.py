@@ -19,6 +19,7 @@ from dataclasses import dataclass
 
 import emcee
 import numpy as np
+from emcee.ensemble import Model, walkers_independent
 
 try:
     # notebook progress widgets where ipywidgets is installed; tqdm.auto would otherwise
@@ -212,12 +213,12 @@ def sample(log_prob, p0, steps, *, backend=None, pool=None, seed=None, progress=
         raise LossfitValueError("pool", "a vectorised log_prob splits the walkers itself; pass pool=None")
     # emcee's stretch move with the acceptance of a half-ensemble in one array operation
     # (the same chain, bit for bit: lossfit.inference.moves)
+    move = WalkerSetStretchMove(vectorized=vectorize)
     sampler = emcee.EnsembleSampler(walkers, ndim, log_prob, pool=pool, backend=store, vectorize=vectorize,
-                                    moves=WalkerSetStretchMove(vectorized=vectorize))
+                                    moves=move)
     if done == 0:
         store.reset(walkers, ndim)
-        sampler.random_state = np.random.RandomState(seed).get_state()
-        start = p0
+        start = emcee.State(p0, random_state=np.random.RandomState(seed).get_state())
     else:
         start = store.get_last_sample()
     stream = log_stream or sys.stderr
@@ -233,7 +234,7 @@ def sample(log_prob, p0, steps, *, backend=None, pool=None, seed=None, progress=
     bar = _AutoBar(steps, done) if auto and progress else None
     with _SignalGuard() as guard:
         if done < steps:
-            for _ in sampler.sample(start, iterations=steps - done, progress=progress and not auto):
+            for _ in _steps(sampler, move, store, start, steps - done, progress=progress and not auto):
                 i = store.iteration
                 if auto and i % check_every == 0:
                     converged, tau, needed = convergence_state(store.get_chain(), check_every)
@@ -256,6 +257,53 @@ def sample(log_prob, p0, steps, *, backend=None, pool=None, seed=None, progress=
     return ChainRun(chain=store.get_chain(), log_prob=store.get_log_prob(),
                     acceptance=store.accepted / max(store.iteration, 1), resumed_from=done,
                     stop_reason=reason, tau=tau)
+
+
+def _steps(sampler, move, store, start, iterations, progress=False):
+    """emcee's ``EnsembleSampler.sample`` for one move, kept in ``store`` at every step
+    (``thin_by=1``): the same checks, random draws and chain, yielding after each step.
+
+    emcee copies its random state into the state of every step (46 us: ~3 us per walker
+    of a 16-walker ensemble) and draws the move from its list by ``choice`` (13 us); here
+    the random state is read only when the backend writes (:class:`CheckpointBackend`)
+    and at the end, and the move's draw is the one uniform ``choice`` would take
+    (docs/architecture.md, "The sampler step of a spectrum fit").
+    """
+    state = emcee.State(start, copy=True)
+    walkers = sampler.nwalkers
+    if np.shape(state.coords) != (walkers, sampler.ndim):
+        raise ValueError(f"incompatible input dimensions {np.shape(state.coords)}")
+    if not walkers_independent(state.coords):
+        raise ValueError("Initial state has a large condition number. Make sure that your walkers are linearly "
+                         "independent for the best performance")
+    random = np.random.RandomState()
+    random.set_state(state.random_state)
+    if state.log_prob is None:
+        state.log_prob, state.blobs = sampler.compute_log_prob(state.coords)
+    if np.shape(state.log_prob) != (walkers,):
+        raise ValueError("incompatible input dimensions")
+    if np.any(np.isnan(state.log_prob)):
+        raise ValueError("The initial log_prob was NaN")
+    store.grow(iterations, state.blobs)
+    model = Model(sampler.log_prob_fn, sampler.compute_log_prob, map if sampler.pool is None else sampler.pool.map,
+                  random)
+    if isinstance(store, CheckpointBackend):
+        store.generator = random
+    bar = tqdm(total=iterations) if progress else None
+    try:
+        for _ in range(iterations):
+            random.random_sample()          # emcee's choice of a move among one: one uniform
+            state, accepted = move.propose(model, state)
+            store.save_step(state, accepted)
+            if bar is not None:
+                bar.update(1)
+            yield state
+    finally:
+        store.random_state = random.get_state()
+        if isinstance(store, CheckpointBackend):
+            store.generator = None
+        if bar is not None:
+            bar.close()
 
 
 def stop_record(run):

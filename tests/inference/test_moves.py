@@ -7,6 +7,7 @@ import pytest
 
 from lossfit.errors import LossfitValueError
 from lossfit.inference.moves import WalkerSetStretchMove
+from lossfit.inference.sampling import sample
 
 PRECISIONS = np.array([1.0, 4.0, 9.0])
 
@@ -53,3 +54,20 @@ def test_bad_vectorised_log_probability_is_named():
                                     moves=WalkerSetStretchMove(vectorized=True))
     with pytest.raises(LossfitValueError, match="walkers"):
         sampler.run_mcmc(np.zeros((3, 2)) + 0.1, 2, progress=False, skip_initial_state_check=True)
+
+
+@pytest.mark.parametrize("vectorize", [True, False])
+def test_lossfits_sampler_loop_gives_emcees_chain(vectorize, tmp_path):
+    # lossfit's loop (lossfit.inference.sampling) against emcee's own EnsembleSampler with
+    # emcee's StretchMove, seeded alike; through a checkpoint file too, whose stored random
+    # state is read when it is written, not copied at every step
+    ref = _run(emcee.moves.StretchMove(), vectorize)
+    start = 0.3 * np.random.default_rng(1).standard_normal((12, 3))
+    run = sample(_log_prob, start, 300, seed=3, vectorize=vectorize)
+    assert np.array_equal(run.chain, ref.get_chain())
+    assert np.array_equal(run.log_prob, ref.get_log_prob())
+    part = sample(_log_prob, start, 170, seed=3, vectorize=vectorize, backend=tmp_path / "c.h5", checkpoint_every=7)
+    assert np.array_equal(part.chain, ref.get_chain()[:170])
+    resumed = sample(_log_prob, start, 300, seed=3, vectorize=vectorize, backend=tmp_path / "c.h5")
+    assert resumed.resumed_from == 170
+    assert np.array_equal(resumed.chain, ref.get_chain())
