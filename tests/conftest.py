@@ -49,3 +49,24 @@ def run_cli(capsys):
         out = capsys.readouterr()
         return subprocess.CompletedProcess(["lossfit", *argv], code, out.out, out.err)
     return run
+
+
+# Tests that start other processes (the command line, notebooks, MPI ranks) and the long
+# tests that compile nothing of lossfit's (the guide build, the van der Waals solves).
+_SPAWNING = os.sep + os.path.join("tests", "batch") + os.sep
+_LAST = ("test_guide.py::test_guide_builds_with_warnings_as_errors",
+         "test_binding.py::test_van_der_waals_tends_to_the_universal_law_and_is_converged")
+
+
+def pytest_collection_modifyitems(config, items):
+    # On a fresh numba cache (CI) every process compiles the kernels it calls until one
+    # has written them to the cache. The tests in this process compile them once; the
+    # processes that tests start come after them and load the cache instead of compiling
+    # the same kernels again, each on its own. The long numba-free tests come last, to
+    # fill the second core while the other worker finishes.
+    def rank(item):
+        path = str(item.fspath)
+        if any(item.nodeid.endswith(name) for name in _LAST):
+            return 2
+        return 1 if _SPAWNING in path else 0
+    items.sort(key=rank)          # a stable sort: collection order within each group
