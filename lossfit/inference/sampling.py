@@ -263,11 +263,11 @@ def _steps(sampler, move, store, start, iterations, progress=False):
     """emcee's ``EnsembleSampler.sample`` for one move, kept in ``store`` at every step
     (``thin_by=1``): the same checks, random draws and chain, yielding after each step.
 
-    emcee copies its random state into the state of every step (46 us: ~3 us per walker
-    of a 16-walker ensemble) and draws the move from its list by ``choice`` (13 us); here
-    the random state is read only when the backend writes (:class:`CheckpointBackend`)
-    and at the end, and the move's draw is the one uniform ``choice`` would take
-    (docs/architecture.md, "The sampler step of a spectrum fit").
+    emcee copies its random state into the state of every step and draws the move from
+    its list by ``choice``, both costly next to a vectorised step; here the random state
+    is read only when the backend writes (:class:`CheckpointBackend`) and at the end, and
+    the move's draw is the one uniform ``choice`` would take (measured in
+    docs/architecture.md, "The sampler step of a spectrum fit").
     """
     state = emcee.State(start, copy=True)
     walkers = sampler.nwalkers
@@ -277,7 +277,9 @@ def _steps(sampler, move, store, start, iterations, progress=False):
         raise ValueError("Initial state has a large condition number. Make sure that your walkers are linearly "
                          "independent for the best performance")
     random = np.random.RandomState()
-    random.set_state(state.random_state)
+    if state.random_state is not None:
+        # none given: emcee too keeps its generator's own (entropy-seeded) state
+        random.set_state(state.random_state)
     if state.log_prob is None:
         state.log_prob, state.blobs = sampler.compute_log_prob(state.coords)
     if np.shape(state.log_prob) != (walkers,):
