@@ -53,7 +53,7 @@ def run_cli(capsys):
 
 # Tests that start other processes (the command line, notebooks, MPI ranks) and the long
 # tests that compile nothing of lossfit's (the guide build, the van der Waals solves).
-_SPAWNING = os.sep + os.path.join("tests", "batch") + os.sep
+_SPAWNING = "tests/batch/"
 _LAST = ("test_guide.py::test_guide_builds_with_warnings_as_errors",
          "test_binding.py::test_van_der_waals_tends_to_the_universal_law_and_is_converged")
 
@@ -65,8 +65,8 @@ def pytest_collection_modifyitems(config, items):
     # the same kernels again, each on its own. The long numba-free tests come last, to
     # fill the second core while the other worker finishes.
     def rank(item):
-        path = str(item.fspath)
-        if any(item.nodeid.endswith(name) for name in _LAST):
+        # node ids are paths relative to the repository root, with forward slashes
+        if item.nodeid.endswith(_LAST):
             return 2
-        return 1 if _SPAWNING in path else 0
+        return 1 if item.nodeid.startswith(_SPAWNING) else 0
     items.sort(key=rank)          # a stable sort: collection order within each group

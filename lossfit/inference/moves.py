@@ -48,8 +48,7 @@ class WalkerSetStretchMove(emcee.moves.StretchMove):
     def stretch(self, s, others, random):
         """Proposals for the walkers ``s`` (n, ndim) from the complementary set ``others``
         and their log acceptance factors: emcee's ``get_proposal``, the same draws and the
-        same arithmetic, without its concatenation of a one-set list and with the chosen
-        partners indexed once."""
+        same arithmetic, with the chosen partners indexed once."""
         ns, ndim = s.shape
         zz = ((self.a - 1.0) * random.rand(ns) + 1) ** 2.0 / self.a
         factors = (ndim - 1.0) * np.log(zz)
@@ -69,9 +68,8 @@ class WalkerSetStretchMove(emcee.moves.StretchMove):
         for half in range(self.nsplits):
             moving = halves == half
             members = np.flatnonzero(moving)
-            others = [state.coords[halves == j] for j in range(self.nsplits) if j != half]
-            proposal, factors = self.stretch(state.coords[members], others[0] if len(others) == 1
-                                             else np.concatenate(others), model.random)
+            others = np.concatenate([state.coords[halves == j] for j in range(self.nsplits) if j != half])
+            proposal, factors = self.stretch(state.coords[members], others, model.random)
             log_prob, blobs = self._log_probs(model, proposal)
             # one uniform per walker in walker order: MT19937 draws rand(n) as n calls of
             # rand(), so the decisions are emcee's loop's
