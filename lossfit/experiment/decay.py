@@ -1386,15 +1386,25 @@ class DecayBatch:
         sets, e.g. every walker of an ensemble."""
         if not (isinstance(copies, (int, np.integer)) and copies >= 1):
             raise LossfitValueError("copies", f"must be a positive integer, got {copies!r}")
+        return self.select(np.tile(np.arange(self.n_curves), copies))
+
+    def select(self, indices):
+        """The batch of the curves ``indices`` (in that order, repeats allowed), with
+        everything prepared here taken over as it is."""
+        idx = np.asarray(indices)
+        if idx.ndim != 1 or idx.size == 0 or idx.dtype.kind not in "iu" or idx.min() < 0 \
+                or idx.max() >= self.n_curves:
+            raise LossfitValueError("indices", f"must be a non-empty 1-D array of curve indices in "
+                                    f"0..{self.n_curves - 1}, got {indices!r}")
         out = object.__new__(DecayBatch)
         out.__dict__.update(self.__dict__)
-        out.n_curves = self.n_curves * copies
-        out.times = self.times * copies
+        out.n_curves = idx.size
+        out.times = [self.times[j] for j in idx]
         out.offsets = np.cumsum([0] + [x.size for x in out.times]).astype(np.int64)
-        out._t_all = np.tile(self._t_all, copies)
-        out._p = np.tile(self._p, (copies, 1))
-        out._counts = np.tile(self._counts, copies)
-        out._point_counts = np.tile(self._point_counts, copies)
+        out._t_all = np.concatenate(out.times)
+        out._p = self._p[idx]
+        out._counts = self._counts[idx]
+        out._point_counts = np.repeat(out._counts, [x.size for x in out.times])
         out._y0 = np.zeros((out.n_curves, _DIM))
         return out
 

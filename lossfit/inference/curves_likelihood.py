@@ -66,8 +66,10 @@ the rate rather than the curves, which is exact to first order in the loss.
 __all__ = ["CurvesLikelihood", "display_spectra"]
 
 
+import copy
 import math
 
+import numba
 import numpy as np
 from scipy.interpolate import CubicSpline
 from scipy.optimize import least_squares
@@ -102,6 +104,23 @@ from .likelihood import PreparedPlanCache, RateBlock
 # The decay integrator's tolerance: 1e-6 relative is far below counting noise and keeps a
 # batched call of 40 curves near 0.5 ms.
 _INTEGRATOR_RTOL = 1e-6
+
+
+@numba.njit(cache=True)
+def _rows_times(x, m):
+    """x (rows, n) @ m (n, p), every element summed over n in order: a row's result does
+    not depend on how many rows come with it. BLAS' products do (their edge kernels round
+    differently), and the walkers of a set or the curves of a group (two-level
+    parallelism) would then not give the same bits as alone (docs/cluster.md)."""
+    out = np.zeros((x.shape[0], m.shape[1]))
+    for r in range(x.shape[0]):
+        row = out[r]
+        for k in range(x.shape[1]):
+            v = x[r, k]
+            mk = m[k]
+            for q in range(mk.size):
+                row[q] += v * mk[q]
+    return out
 
 
 class _FastTable(TabulatedRate):
@@ -286,13 +305,19 @@ class CurvesLikelihood:
         self._setup_data()
         self._setup_tables(reference_fits, temperature_scale_range, table_step, field_noise,
                            field_noise_nodes)
+        # which way the tables are made is decided for the whole campaign, so that a group
+        # of its curves (:meth:`split`) takes the same way and gives the same bits
+        self._packed_path = not (self.dimers.any() or self.explicit.any())
+        self._rescalable = not self.explicit.any()
+        self._campaign_a = (self.a_nominal, self.fields, self.by_field)
+        self._campaign_index = np.arange(m)
         self._set_reference(np.array([self._coords_of_fit(f) for f in reference_fits]),
                             self._jacobian_of_fits(reference_fits))
         self.two_stage_spectra = spectrum_from_curves(self.curves, species=self.species, fits=reference_fits)
         self.spectra = display_spectra(self.two_stage_spectra)
 
     # -- setup ------------------------------------------------------------------------
-    def _setup_data(self):
+    def _setup_data(self, width=None):
         cs = self.curves
         self.main = np.concatenate([c.atoms for c in cs])
         self.main_err = np.concatenate([c.atoms_err for c in cs])
@@ -325,7 +350,7 @@ class CurvesLikelihood:
         res_owner = np.concatenate(parts)
         self.n_res = res_owner.size
         lists = [np.flatnonzero(res_owner == j) for j in range(self.n_curves)]
-        width = max(len(x) for x in lists)
+        width = max(len(x) for x in lists) if width is None else width
         self.res_index = np.full((self.n_curves, width), self.n_res, dtype=np.int64)
         for j, x in enumerate(lists):
             self.res_index[j, :len(x)] = x
@@ -356,9 +381,19 @@ class CurvesLikelihood:
             self.gh_x, self.gh_w = math.sqrt(2.0) * x, w / math.sqrt(math.pi)
         else:
             self.gh_x, self.gh_w = np.zeros(1), np.ones(1)
-        nh = self.gh_x.size
-        # one rows block per kind; rows ordered (curve, knot, node); noise nodes only matter
-        # for curves given by field, but the layout is uniform for simplicity
+        self._make_blocks()
+        self._knots_all = np.log(self.t_lo)[:, None] + self.rel_knots[None, :]
+        # not-a-knot cubic spline of ln rate in ln T (as TabulatedRate): coefficients of the
+        # unit vectors, so that any table's coefficients are M @ values
+        self._spline_matrix = CubicSpline(self.rel_knots, np.eye(n_knots)).c   # (4, n-1, n)
+        # the same as a (n, 4 (n-1)) matrix: values (rows) @ it = coefficients (power, interval)
+        self._spline_rows = np.ascontiguousarray(self._spline_matrix.reshape(-1, n_knots).T)
+
+    def _make_blocks(self):
+        """The prepared thermal averages, one rows block per kind; rows ordered (curve,
+        knot, node). Noise nodes only matter for curves given by field, but the layout is
+        uniform for simplicity."""
+        n_knots, nh = self.n_knots, self.gh_x.size
         self.blocks = {}
         for kind, sel in (("l3", ~self.dimers & ~self.explicit), ("beta", self.dimers), ("kinetics", self.explicit)):
             idx = np.flatnonzero(sel)
@@ -372,12 +407,6 @@ class CurvesLikelihood:
             else:
                 block = RateBlock(kind, a, temps, self.species, self.model, rtol=self.rtol)
             self.blocks[kind] = (idx, block)
-        self._knots_all = np.log(self.t_lo)[:, None] + self.rel_knots[None, :]
-        # not-a-knot cubic spline of ln rate in ln T (as TabulatedRate): coefficients of the
-        # unit vectors, so that any table's coefficients are M @ values
-        self._spline_matrix = CubicSpline(self.rel_knots, np.eye(n_knots)).c   # (4, n-1, n)
-        # the same as a (n, 4 (n-1)) matrix: values (rows) @ it = coefficients (power, interval)
-        self._spline_rows = np.ascontiguousarray(self._spline_matrix.reshape(-1, n_knots).T)
 
     def _coords_of_fit(self, f):
         x = np.zeros(self.k)
@@ -490,7 +519,7 @@ class CurvesLikelihood:
                 if kinetics is None:
                     return None
                 continue
-            pred = block.predict(efimov, a=a_block).reshape(idx.size, self.n_knots, nh) @ self.gh_w
+            pred = self._over_nodes(block.predict(efimov, a=a_block).reshape(idx.size, self.n_knots, nh))
             if not np.all(np.isfinite(pred)) or np.any(pred <= 0):
                 return None
             power = 2.0 if kind == "l3" else 1.0
@@ -498,16 +527,23 @@ class CurvesLikelihood:
         # spline coefficients are linear in the tabulated values: one matrix product
         return self._spline_of(logv), kinetics                                        # (m, 4, n_knots - 1)
 
+    def _over_nodes(self, v):
+        """The field-noise average: Gauss-Hermite sum over the last axis. Summed row by row
+        in C order, so that a row's bits do not depend on the rows beside it (a matrix-vector
+        product's do: its kernels block the rows)."""
+        return np.sum(np.ascontiguousarray(v) * self.gh_w, axis=-1)
+
     def _spline_of(self, logv):
         """Coefficients (rows, 4, n_knots - 1) of the not-a-knot splines through rows of
         values (..., n_knots) on the T-table knots: linear in the values, one product."""
-        return (logv.reshape(-1, self.n_knots) @ self._spline_rows).reshape(-1, 4, self.n_knots - 1)
+        rows = np.ascontiguousarray(logv.reshape(-1, self.n_knots))
+        return _rows_times(rows, self._spline_rows).reshape(-1, 4, self.n_knots - 1)
 
     def _kinetics_coefficients(self, parts, n, s_n):
         """Spline coefficients (n, 4, 6 (n_knots - 1)) of the kinetics tables of ``n`` curves
         from the six coefficients on the (curve, knot, node) rows, or None if invalid.
         On measured numbers the three-body parts act as L3 / s^2, beta as beta / s."""
-        avg = np.reshape(parts, (6, n, self.n_knots, self.gh_x.size)) @ self.gh_w        # (6, n, knots)
+        avg = self._over_nodes(np.reshape(parts, (6, n, self.n_knots, self.gh_x.size)))    # (6, n, knots)
         avg /= (s_n ** np.array([2.0, 2.0, 2.0, 2.0, 1.0, 1.0]))[:, None, None]
         if not np.all(np.isfinite(avg)) or np.any(avg[1] <= 0):
             return None
@@ -562,12 +598,19 @@ class CurvesLikelihood:
                  (np.exp(x[:, self.na_curves, 1]) - self.na_data) / self.na_err]
         return np.concatenate(parts + [np.zeros((copies, 1))], axis=1), res
 
+    def _per_curve(self, r):
+        """Residuals (c, n_res + 1) laid out per curve: (c, m, width), C-ordered. The fancy
+        index alone returns another memory order, in which einsum sums in an order that
+        depends on c and m: a walker's or a curve's sums would change with the set or group
+        it comes in."""
+        return np.ascontiguousarray(r[:, self.res_index])
+
     def _chord_step(self, x, r):
         """One chord Gauss-Newton step of every curve: x (m, 4) or (c, m, 4), r (n_res + 1,)
         or (c, n_res + 1)."""
         if x.ndim == 2:
             return self._chord_step(x[None], r[None])[0]
-        per_curve = r[:, self.res_index]                              # (c, m, width)
+        per_curve = self._per_curve(r)
         new = x - np.einsum("jkn,cjn->cjk", self.pinv, per_curve)
         low = new[..., 3] < 0.0
         if low.any():
@@ -593,16 +636,67 @@ class CurvesLikelihood:
         """log L of one parameter set (floats), or of every walker of a walker-array set
         (``Efimov.trusted`` with arrays, values of W walkers): an array of W. The curves of
         all walkers are integrated in one batched call."""
+        out = self.log_likelihood_of(self.curve_chi2(efimov, values))
+        return out if efimov.n_walkers else float(out)
+
+    def curve_chi2(self, efimov, values):
+        """chi2 of every curve after the chord steps: shape (m,) for one parameter set
+        (floats), (W, m) for a walker-array set; inf where the parameters are outside the
+        support. :meth:`log_likelihood_of` turns it into log L."""
         if not efimov.n_walkers:
-            if not self.explicit.any():
+            if self._rescalable:
                 # a set of one: the same tables, knots and bits as inside a walker set
                 one = Efimov.trusted(**{k: np.array([v]) for k, v in vars(efimov).items() if v is not None})
-                return float(self(one, values)[0])
-            return float(self._log_likelihoods([efimov], [values])[0])
+                return self.curve_chi2(one, values)[0]
+            return self._curve_chi2s([efimov], [values])[0]
         count = efimov.n_walkers
         per_walker = [{k: (float(np.asarray(v).reshape(-1)[w]) if np.ndim(v) else v) for k, v in values.items()}
                       for w in range(count)]
-        return self._log_likelihoods(efimov.walkers(), per_walker, walker_set=(efimov, values))
+        return self._curve_chi2s(efimov.walkers(), per_walker, walker_set=(efimov, values))
+
+    @staticmethod
+    def log_likelihood_of(chi2):
+        """log L = -chi2 / 2 summed over curves (last axis) from :meth:`curve_chi2`, or from
+        the curve groups of :meth:`split` side by side; -inf outside the support."""
+        total = -0.5 * np.sum(chi2, axis=-1)
+        return np.where(np.isfinite(total), total, -math.inf)
+
+    def split(self, groups):
+        """The likelihood cut into ``groups`` (at most the number of curves) likelihoods of
+        consecutive curves, for two-level parallelism: given the same parameters, their
+        :meth:`curve_chi2` side by side are this one's, bit for bit. They keep this one's
+        temperature knots, reference nuisances and frozen Jacobians (refresh before
+        splitting), and decide as this one does, from the whole campaign, which walkers
+        reuse the prepared averages under resonance shifts."""
+        if not (isinstance(groups, (int, np.integer)) and 1 <= groups <= self.n_curves):
+            raise LossfitValueError("groups", f"must be an integer in 1..{self.n_curves}, got {groups!r}")
+        return [self._curve_group(idx) for idx in np.array_split(np.arange(self.n_curves), groups)]
+
+    #: per-curve arrays (first axis: curve) that a curve group takes its rows of
+    _PER_CURVE = ("dimers", "recombination_heating", "t_max", "fields", "by_field", "a_nominal", "signs",
+                  "explicit", "depth", "t_lo", "grid", "_knots_all", "x_ref", "jac", "pinv", "pinv_fixed_gamma",
+                  "_campaign_index")
+
+    def _curve_group(self, idx):
+        group = copy.copy(self)
+        group.curves = [self.curves[j] for j in idx]
+        group.n_curves = idx.size
+        group.n_points = sum(len(c) for c in group.curves)
+        for name in self._PER_CURVE:
+            if name in self.__dict__:            # no Jacobians before a reference is set
+                setattr(group, name, getattr(self, name)[idx])
+        group.trap_depths = [self.trap_depths[j] for j in idx]
+        # the per-kind spectra for figures are the campaign's: a group carries none
+        del group.two_stage_spectra, group.spectra
+        group.batch = self.batch.select(idx)
+        group.offsets = group.batch.offsets
+        group._batches, group._packing = {1: group.batch}, {}
+        # the padded width of the residual layout stays this one's (the same sums per curve)
+        group._setup_data(width=self.res_index.shape[1])
+        group._make_blocks()
+        for kind, (_, block) in group.blocks.items():
+            block.eta_min = self.blocks[kind][1].eta_min
+        return group
 
     def _spline_coefficients_of_set(self, efimov, values):
         """Coefficients (c m, 4, n_knots - 1) of the c valid walkers of a walker-array set
@@ -619,11 +713,6 @@ class CurvesLikelihood:
         ok = np.flatnonzero(valid)
         coefs = self._spline_of(logv[ok])
         return coefs, list(ok)
-
-    @property
-    def _packed_path(self):
-        # atom curves with effective rates only: the tables go packed (no object per curve)
-        return not (self.dimers.any() or self.explicit.any())
 
     def _rescaled_coefficients_of_set(self, efimov, values):
         """Tables of a walker-array set whose resonance parameters (or field noise) move the
@@ -646,12 +735,14 @@ class CurvesLikelihood:
         b0, width, a_bg = (np.broadcast_to(np.asarray(values.get(k, getattr(r, k)), dtype=float),
                                            (count,))[:, None, None] for k in RESONANCE_NAMES)
         sigma_b = np.broadcast_to(np.asarray(values.get("sigma_B", 0.0), dtype=float), (count,))[:, None, None]
-        a = np.broadcast_to(self.a_nominal[None, :, None], (count, m, nodes)).copy()
-        fields = self.fields[self.by_field][None, :, None] + sigma_b * self.gh_x
-        a[:, self.by_field] = resonance_scattering_length(fields, b0, width, a_bg)
+        # decided over the whole campaign (a curve group of :meth:`split` decides as it does)
+        a_nominal, fields, by_field = self._campaign_a
+        a = np.broadcast_to(a_nominal[None, :, None], (count, a_nominal.size, nodes)).copy()
+        a[:, by_field] = resonance_scattering_length(fields[by_field][None, :, None] + sigma_b * self.gh_x,
+                                                     b0, width, a_bg)
         with np.errstate(invalid="ignore", divide="ignore"):
-            ln_rho = np.log(a / self.a_nominal[None, :, None])                          # (c, m, nodes)
-        valid = np.all(np.sign(a) == self.signs[None, :, None], axis=(1, 2))
+            ln_rho = np.log(a / a_nominal[None, :, None])                             # (c, campaign, nodes)
+        valid = np.all(np.sign(a) == np.sign(a_nominal)[None, :, None], axis=(1, 2))
         # every node's own table still covers the curve's range (the margin is padding)
         near = valid & np.all(2.0 * np.abs(ln_rho) <= self.shift_margin, axis=(1, 2))
         if not all(block.rtol is None and hasattr(block.plan, "evaluate_scaled") for _, block in self.blocks.values()):
@@ -660,8 +751,8 @@ class CurvesLikelihood:
         served = np.flatnonzero(near)
         if served.size == 0:
             return np.empty((0, 4, n - 1)), np.empty((0, n)), [], list(np.flatnonzero(valid))
-        ln_rho = ln_rho[served]
-        shift = 2.0 * ln_rho @ self.gh_w                                                  # (s, m)
+        ln_rho = ln_rho[served][:, self._campaign_index]                                # (s, m, nodes)
+        shift = 2.0 * self._over_nodes(ln_rho)                                            # (s, m)
         offset = 2.0 * ln_rho - shift[..., None]
         subset = Efimov.trusted(**{k: (v[served] if isinstance(v, np.ndarray) and v.ndim else v)
                                    for k, v in vars(efimov).items()})
@@ -677,7 +768,7 @@ class CurvesLikelihood:
                     moved = self._at_offset(np.log(pred).transpose(0, 1, 3, 2), offset[:, idx])
                     pred = np.exp(moved).transpose(0, 1, 3, 2)
                 power = 2.0 if kind == "l3" else 1.0
-                logv[:, idx] = np.log(pred @ self.gh_w) - power * ln_scale[served][:, None, None]
+                logv[:, idx] = np.log(self._over_nodes(pred)) - power * ln_scale[served][:, None, None]
         # a served walker with an invalid rate goes the rebuilding way too (which refuses it)
         near[served[~finite]] = False
         coefs = self._spline_of(logv[finite])
@@ -696,8 +787,8 @@ class CurvesLikelihood:
         c = np.take_along_axis(coefs, interval[..., None, :], axis=-1)
         return ((c[..., 0, :] * dx + c[..., 1, :]) * dx + c[..., 2, :]) * dx + c[..., 3, :]
 
-    def _log_likelihoods(self, efimovs, values, walker_set=None):
-        out = np.full(len(efimovs), -math.inf)
+    def _curve_chi2s(self, efimovs, values, walker_set=None):
+        out = np.full((len(efimovs), self.n_curves), math.inf)
         packed = self._packed_path
         tables, knots, s_t, ok = [], [], [], []
         slow = range(len(efimovs))
@@ -707,7 +798,7 @@ class CurvesLikelihood:
             coefs, ok = self._spline_coefficients_of_set(*walker_set)
             slow = []
             tables.append(coefs)
-        elif walker_set is not None and moved and not self.explicit.any():
+        elif walker_set is not None and moved and self._rescalable:
             coefs, shifted, ok, slow = self._rescaled_coefficients_of_set(*walker_set)
             if packed:
                 tables.append(coefs)
@@ -731,31 +822,29 @@ class CurvesLikelihood:
             tables = self._packed(np.concatenate(tables),
                                   np.concatenate([k.reshape(-1, self.n_knots) for k in knots]) if knots else None)
         try:
-            out[ok] = self._chi2_many(tables, np.array(s_t, dtype=float)) * -0.5
+            out[ok] = self._chi2_many(tables, np.array(s_t, dtype=float))
         except LossfitValueError:
             if len(ok) == 1:
                 return out     # T(t) left the table or the integrator failed: outside support
             # one walker's curve failed: the others keep their values (each set alone)
             for w in ok:
-                out[w] = self(efimovs[w], values[w])
-            return out
-        out[~np.isfinite(out)] = -math.inf
+                out[w] = self.curve_chi2(efimovs[w], values[w])
         return out
 
     def _chi2_many(self, tables, s_t):
-        """chi2 after the chord steps for c parameter sets (tables of c m curves, s_t (c,))."""
+        """chi2 of every curve after the chord steps for c parameter sets (tables of c m
+        curves, s_t (c,)): shape (c, m)."""
         copies = s_t.size
         x = np.broadcast_to(self.x_ref, (copies,) + self.x_ref.shape)
         r, _ = self._residuals_many(x, tables, s_t)
         if self.inner_steps == 0:
-            step = self._chord_step(x, r)
-            curve, slot = self._flat_owner()
-            lin = r[:, :-1] + np.einsum("jnk,cjk->cjn", self.jac, step - x)[:, curve, slot]
-            return np.einsum("ci,ci->c", lin, lin)
-        for _ in range(self.inner_steps):
-            x = self._chord_step(x, r)
-            r, _ = self._residuals_many(x, tables, s_t)
-        return np.einsum("ci,ci->c", r, r)
+            per_curve = self._per_curve(r) + np.einsum("jnk,cjk->cjn", self.jac, self._chord_step(x, r) - x)
+        else:
+            for _ in range(self.inner_steps):
+                x = self._chord_step(x, r)
+                r, _ = self._residuals_many(x, tables, s_t)
+            per_curve = self._per_curve(r)
+        return np.einsum("cjn,cjn->cj", per_curve, per_curve)
 
     def fit_check(self, space, kept_theta, median_values):
         """(checks dict, messages) of a finished fit: chi^2 of the curves (and the initial-value
@@ -769,14 +858,6 @@ class CurvesLikelihood:
                                 for j, c in enumerate(self.curves)) if m]
         poor = poor_fit_message(checks)
         return checks, messages + ([poor] if poor else [])
-
-    def _flat_owner(self):
-        # (curve, slot) pairs of the padded residual layout, in residual order
-        if not hasattr(self, "_flat"):
-            j, n = np.nonzero(self.res_index < self.n_res)
-            order = np.argsort(self.res_index[j, n])
-            self._flat = (j[order], n[order])
-        return self._flat
 
     # -- reference point ------------------------------------------------------------------
     def jacobian(self, x, tables, s_t, h=1e-3):

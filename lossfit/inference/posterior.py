@@ -30,15 +30,21 @@ class Posterior:
     def __call__(self, theta):
         return float(self.batch(np.asarray(theta, dtype=float)[None, :])[0])
 
-    def batch(self, thetas):
-        """log posterior of every row of ``thetas`` (W, ndim): an array of W."""
+    def batch(self, thetas, log_likelihood=None):
+        """log posterior of every row of ``thetas`` (W, ndim): an array of W.
+
+        ``log_likelihood`` (optional) replaces the likelihood's own evaluation: a callable
+        taking the rows with a finite prior and returning their log L (the two-level
+        evaluation of :class:`WalkerBlocks`)."""
         thetas = np.asarray(thetas, dtype=float)
         out = np.full(thetas.shape[0], -math.inf)
         lp = self.space.log_prior(thetas)
         ok = np.flatnonzero(np.isfinite(lp))
         if ok.size == 0:
             return out
-        if getattr(self.likelihood, "vectorized", False):
+        if log_likelihood is not None:
+            ll = np.asarray(log_likelihood(thetas[ok]), dtype=float)
+        elif getattr(self.likelihood, "vectorized", False):
             values = self.space.values(thetas[ok])
             ll = np.asarray(self.likelihood.given_values(self.space.efimov(values), values), dtype=float)
         else:
@@ -56,7 +62,15 @@ class Posterior:
 class WalkerBlocks:
     """emcee's vectorised log probability: the walker set in one :meth:`Posterior.batch`
     call, or split into one block per worker of ``pool`` (blocks, not single walkers,
-    cross the process or MPI boundary)."""
+    cross the process or MPI boundary).
+
+    Two-level parallelism: when the pool has more workers than the set has walkers
+    (emcee hands out half the ensemble per call) and the likelihood can be cut into
+    groups of curves (:meth:`lossfit.inference.curves_likelihood.CurvesLikelihood.split`),
+    the curves are split as well: workers // walkers groups, every walker's chi2 of every
+    group evaluated as one task, the groups' chi2 put side by side and summed here. The
+    log posteriors, and so the chains, are bit for bit those of one process.
+    """
 
     def __init__(self, posterior, pool=None):
         self.posterior = posterior
@@ -64,12 +78,51 @@ class WalkerBlocks:
         self._batch = posterior.batch          # one bound method: the pool sends it once
         size = getattr(pool, "size", None) or getattr(pool, "_processes", None)
         self.blocks = int(size) if size else (2 if pool is not None else 1)
+        self._group_tasks = {}
+
+    def curve_groups(self, walkers):
+        """Number of curve groups a set of ``walkers`` is evaluated in (1: no split)."""
+        likelihood = getattr(self.posterior, "likelihood", None)
+        if self.pool is None or self.blocks <= walkers or not hasattr(likelihood, "split"):
+            return 1
+        return min(self.blocks // walkers, likelihood.n_curves)
 
     def __call__(self, coords):
         if self.pool is None or self.blocks == 1:
             return self.posterior.batch(coords)
+        groups = self.curve_groups(len(coords))
+        if groups > 1:
+            return self.posterior.batch(coords, log_likelihood=self._in_groups(groups, len(coords)))
         parts = [p for p in np.array_split(coords, self.blocks) if len(p)]
         return np.concatenate(list(self.pool.map(self._batch, parts)))
+
+    def _in_groups(self, groups, walkers):
+        if groups not in self._group_tasks:
+            # one task object per split: the pool sends the curve groups once
+            self._group_tasks[groups] = _CurveGroupTask(self.posterior.space,
+                                                        self.posterior.likelihood.split(groups))
+        task = self._group_tasks[groups]
+
+        def log_likelihood(thetas):
+            parts = [p for p in np.array_split(thetas, min(walkers, len(thetas))) if len(p)]
+            chi2 = self.pool.map(task, [(g, p) for p in parts for g in range(groups)])
+            rows = [np.concatenate(chi2[i:i + groups], axis=1) for i in range(0, len(chi2), groups)]
+            return self.posterior.likelihood.log_likelihood_of(np.concatenate(rows))
+        return log_likelihood
+
+
+class _CurveGroupTask:
+    """One task of the two-level split: (group, walker rows) -> chi2 of the group's curves
+    for every row, shape (rows, curves of the group)."""
+
+    def __init__(self, space, likelihoods):
+        self.space = space
+        self.likelihoods = likelihoods
+
+    def __call__(self, item):
+        group, thetas = item
+        values = self.space.values(thetas)
+        return self.likelihoods[group].curve_chi2(self.space.efimov(values), values)
 
 
 def interactive():

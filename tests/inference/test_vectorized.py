@@ -7,7 +7,7 @@ import pytest
 
 import lossfit as lf
 from lossfit.inference.fitting import prepare
-from lossfit.inference.pools import SerialPool
+from lossfit.inference.pools import SerialPool, make_pool
 from lossfit.inference.posterior import WalkerBlocks
 from lossfit.inference.priors import LogNormal, LogUniform
 from lossfit.inference.sampling import sample
@@ -109,26 +109,138 @@ def campaign_posterior(request):
         space, likelihood, post = prepare_curves(curves, species=CS, free=free, resonance=res,
                                                  priors={"a_star": (300.0, 3000.0)} if dimers else None,
                                                  systematics={"density_scale": 0.2, "temperature_scale": 0.05,
-                                                              "b0": 0.01})
+                                                              "b0": 0.01, "sigma_B": (1e-4, 0.02)})
     return post, res, truth
 
 
-def test_campaign_walker_set_equals_walker_by_walker(campaign_posterior):
-    # every walker's curves in one batched integration against one call per walker (to
-    # 1e-12: the chord algebra runs batched), a walker outside its prior and one whose
-    # resonance shift leaves its tables' support (-inf without spoiling the others)
-    post, res, truth = campaign_posterior
-    rng = np.random.default_rng(2)
+def _campaign_walkers(post, res, truth, n, seed):
+    # walkers around the invented truth; walker 0 outside the a_- prior, walker 1 with b0
+    # moved by 30 mG, which moves the curves nearest the resonance beyond the prepared
+    # tables' reach (they rebuild their thermal averages) but not the others
+    rng = np.random.default_rng(seed)
     names = post.space.names
-    near = {"density_scale": 1.0, "temperature_scale": 1.0, "b0": res.b0, **truth}
+    near = {"density_scale": 1.0, "temperature_scale": 1.0, "b0": res.b0, "sigma_B": 3e-3, **truth}
     centre = post.space.theta([near[n] for n in names])
     spread = np.array([2e-6 if n == "b0" else 0.02 for n in names])          # b0: ~1 mG
-    thetas = centre + spread * rng.standard_normal((6, len(names)))
-    thetas[0, names.index("a_minus")] = np.log(1e6)           # outside the a_- prior
+    thetas = centre + spread * rng.standard_normal((n, len(names)))
+    thetas[0, names.index("a_minus")] = np.log(1e6)
+    thetas[1] = post.space.theta([res.b0 + 0.03 if k == "b0" else near[k] for k in names])
+    return thetas
+
+
+def test_campaign_walker_set_equals_walker_by_walker(campaign_posterior):
+    # every walker's curves in one batched integration against one call per walker: the
+    # same bits (every sum runs in an order that does not depend on the set), for a
+    # walker outside its prior (-inf without spoiling the others) and one whose
+    # resonance shift makes it rebuild its tables; and against the likelihood's own
+    # single-walker path with floats
+    post, res, truth = campaign_posterior
+    thetas = _campaign_walkers(post, res, truth, 6, 2)
     many = post.batch(thetas)
     one_by_one = np.array([post(t) for t in thetas])
     assert many[0] == -np.inf and np.isfinite(many[1:]).all()
-    np.testing.assert_allclose(many[1:], one_by_one[1:], rtol=1e-12, atol=1e-9)
+    assert np.array_equal(many, one_by_one)
     single = np.array([post.space.log_prior(t) + post.likelihood(post.space.efimov(post.space.values(t)),
                                                                    post.space.values(t)) for t in thetas[1:]])
-    np.testing.assert_allclose(many[1:], single, rtol=1e-12, atol=1e-9)
+    assert np.array_equal(many[1:], single)
+
+
+@pytest.fixture(scope="module")
+def mixed_campaign():
+    # invented campaign (lossfit.simulate): atom curves at a < 0, atom curves at a > 0 with
+    # the explicit trapped-dimer kinetics, atom-dimer mixture curves; b0 and the field
+    # noise free (every curve rebuilds its averages: the explicit kinetics do not rescale)
+    from lossfit.inference.global_fit import prepare_curves
+    from lossfit.simulate import invented_campaign
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        curves, res, truth = invented_campaign(3, n_fields=2, dimer_fields=1, positive_fields=1)
+        space, likelihood, post = prepare_curves(
+            curves, species=CS, free=["a_minus", "eta_minus", "a_star", "eta_star", "a_plus", "eta_plus"],
+            resonance=res, priors={"a_star": (300.0, 3000.0), "a_plus": (100.0, 1000.0)},
+            systematics={"density_scale": 0.2, "b0": 0.01, "sigma_B": (1e-4, 0.02)})
+    return post, res, truth
+
+
+def test_curve_groups_side_by_side_give_the_campaign_bits(campaign_posterior):
+    # two-level parallelism: the chi2 of the curve groups, side by side, are the whole
+    # campaign's bit for bit, also where a resonance shift sends some curves of a walker
+    # (not all) beyond the prepared tables (the campaign decides, not the group)
+    _check_curve_groups(*campaign_posterior)
+
+
+def test_curve_groups_of_a_mixed_campaign_give_its_bits(mixed_campaign):
+    _check_curve_groups(*mixed_campaign)
+
+
+def _check_curve_groups(post, res, truth):
+    likelihood = post.likelihood
+    thetas = _campaign_walkers(post, res, truth, 17, 0)[1:]
+    values = post.space.values(thetas)
+    efimov = post.space.efimov(values)
+    whole = likelihood.curve_chi2(efimov, values)
+    assert whole.shape == (16, likelihood.n_curves) and np.isfinite(whole).all()
+    for groups in (2, 3, likelihood.n_curves):
+        parts = likelihood.split(groups)
+        assert [p.n_curves for p in parts] == [len(x) for x in np.array_split(np.arange(likelihood.n_curves),
+                                                                              groups)]
+        side = np.concatenate([p.curve_chi2(efimov, values) for p in parts], axis=1)
+        assert np.array_equal(side, whole)
+    # one walker and one curve per task (the most workers two-level parallelism can use)
+    for w, theta in enumerate(thetas):
+        one = post.space.values(theta[None, :])
+        side = np.concatenate([p.curve_chi2(post.space.efimov(one), one) for p in parts], axis=1)
+        assert np.array_equal(side[0], whole[w])
+    assert np.array_equal(likelihood.log_likelihood_of(whole), likelihood(efimov, values))
+    for bad in (0, likelihood.n_curves + 1, 1.5):
+        with pytest.raises(lf.LossfitValueError) as info:
+            likelihood.split(bad)
+        assert info.value.argument == "groups"
+
+
+class _SizedPool(SerialPool):
+    """A serial pool that reports ``size`` workers and records the tasks of every map."""
+
+    def __init__(self, size):
+        self.size = size
+        self.maps = []
+
+    def map(self, func, iterable):
+        items = list(iterable)
+        self.maps.append(items)
+        return [func(x) for x in items]
+
+
+def test_more_workers_than_walkers_split_the_curves_and_keep_the_chain(campaign_posterior):
+    # emcee hands out half the ensemble (ndim walkers): 2 ndim + 1 workers take 2 curve
+    # groups of every walker; the chain is the one-process chain, bit for bit
+    post, res, truth = campaign_posterior
+    ndim = post.space.ndim
+    p0 = _campaign_walkers(post, res, truth, 2 * ndim + 2, 5)[2:]
+    pool = _SizedPool(2 * ndim + 1)
+    blocks = WalkerBlocks(post, pool)
+    assert blocks.curve_groups(ndim) == 2 and blocks.curve_groups(2 * ndim) == 1
+    alone = sample(WalkerBlocks(post), p0, 20, vectorize=True, seed=3)
+    split = sample(blocks, p0, 20, vectorize=True, seed=3)
+    assert np.array_equal(alone.chain, split.chain)
+    assert np.array_equal(alone.log_prob, split.log_prob)
+    assert 0.1 < split.acceptance.mean() < 0.9
+    # the first call (every walker) went out in walker blocks, the half-ensembles as
+    # (group, walker rows) tasks: every walker in both groups
+    assert len(pool.maps[0]) == 2 * ndim
+    assert all(len(m) == 2 * ndim and [g for g, _ in m] == [0, 1] * ndim for m in pool.maps[1:])
+
+
+def test_curve_groups_cross_a_process_boundary(campaign_posterior):
+    # the groups travel pickled (thermal plans rebuilt where they arrive): one walker on
+    # two worker processes, two curve groups, the same bits
+    post, res, truth = campaign_posterior
+    thetas = _campaign_walkers(post, res, truth, 4, 6)[2:3]
+    pool = make_pool("processes", 2)
+    try:
+        out = WalkerBlocks(post, pool)(thetas)
+    finally:
+        pool.close()
+        pool.join()
+    assert np.array_equal(out, post.batch(thetas))
