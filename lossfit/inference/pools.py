@@ -1,8 +1,10 @@
 """Pools with a ``map`` method for the sampler: serial, processes on one node, MPI.
 
 emcee evaluates the log posteriors of half the ensemble per ``map`` call, so the
-work per call is (walkers / 2) likelihoods; parallelism pays once one likelihood
-costs well above the messaging overhead (about 0.1 ms for MPI on one node).
+work per call is (walkers / 2) likelihoods (a global fit of decay curves on more
+workers splits its curves as well: :class:`lossfit.inference.posterior.WalkerBlocks`);
+parallelism pays once one likelihood costs well above the messaging overhead (about
+0.1 ms for MPI on one node).
 """
 
 __all__ = ["mpi_size", "SerialPool", "MPIPool", "make_pool", "find_mpiexec"]
