@@ -83,7 +83,7 @@ class WalkerBlocks:
     def curve_groups(self, walkers):
         """Number of curve groups a set of ``walkers`` is evaluated in (1: no split)."""
         likelihood = getattr(self.posterior, "likelihood", None)
-        if self.pool is None or self.blocks <= walkers or not hasattr(likelihood, "split"):
+        if self.pool is None or walkers < 1 or self.blocks <= walkers or not hasattr(likelihood, "split"):
             return 1
         return min(self.blocks // walkers, likelihood.n_curves)
 

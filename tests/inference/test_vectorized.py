@@ -220,7 +220,8 @@ def test_more_workers_than_walkers_split_the_curves_and_keep_the_chain(campaign_
     p0 = _campaign_walkers(post, res, truth, 2 * ndim + 2, 5)[2:]
     pool = _SizedPool(2 * ndim + 1)
     blocks = WalkerBlocks(post, pool)
-    assert blocks.curve_groups(ndim) == 2 and blocks.curve_groups(2 * ndim) == 1
+    assert blocks.curve_groups(ndim) == 2 and blocks.curve_groups(2 * ndim) == 1 and blocks.curve_groups(0) == 1
+    assert blocks.curve_groups(1) == min(2 * ndim + 1, post.likelihood.n_curves)
     alone = sample(WalkerBlocks(post), p0, 20, vectorize=True, seed=3)
     split = sample(blocks, p0, 20, vectorize=True, seed=3)
     assert np.array_equal(alone.chain, split.chain)
