@@ -454,7 +454,9 @@ class CurvesLikelihood:
     # -- evaluation -----------------------------------------------------------------------
     def scattering_lengths(self, values):
         """Scattering length of every curve (a0) under the resonance systematics in ``values``."""
-        if not self.by_field.any() or not any(n in values for n in RESONANCE_NAMES):
+        # the nominal array itself (prepared averages reused) only where no curve of the
+        # whole campaign moves: a curve group (:meth:`split`) then takes the campaign's way
+        if not self._campaign_a[2].any() or not any(n in values for n in RESONANCE_NAMES):
             return self.a_nominal
         r = self.resonance
         b0, width, a_bg = (values.get(n, getattr(r, n)) for n in RESONANCE_NAMES)

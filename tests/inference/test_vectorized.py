@@ -174,6 +174,34 @@ def test_curve_groups_of_a_mixed_campaign_give_its_bits(mixed_campaign):
     _check_curve_groups(*mixed_campaign)
 
 
+@pytest.fixture(scope="module")
+def campaign_partly_by_length():
+    # the mixed campaign with its first curves given by their scattering length, the others
+    # by field, b0 free and no field noise: groups without a curve given by field still
+    # take the campaign's way (rates rebuilt at the moved lengths, not the prepared ones)
+    from lossfit.inference.global_fit import prepare_curves
+    from lossfit.simulate import invented_campaign
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        curves, res, truth = invented_campaign(3, n_fields=2, dimer_fields=1, positive_fields=1)
+        curves = [lf.DecayCurve(t=c.t, atoms=c.atoms, atoms_err=c.atoms_err, temperature=c.temperature,
+                                temperature_err=c.temperature_err, a=c.scattering_length(res), trap_hz=c.trap_hz,
+                                kind=c.kind, partner_atoms=c.partner_atoms, partner_atoms_err=c.partner_atoms_err,
+                                trap_depth=c.trap_depth)
+                  if j < 3 else c for j, c in enumerate(curves)]
+        space, likelihood, post = prepare_curves(
+            curves, species=CS, free=["a_minus", "eta_minus", "a_star", "eta_star", "a_plus", "eta_plus"],
+            resonance=res, priors={"a_star": (300.0, 3000.0), "a_plus": (100.0, 1000.0)},
+            systematics={"density_scale": 0.2, "b0": 0.01})
+    assert not likelihood.by_field[:3].any() and likelihood.by_field[3:].all()
+    return post, res, truth
+
+
+def test_curve_groups_of_a_campaign_partly_by_scattering_length_give_its_bits(campaign_partly_by_length):
+    _check_curve_groups(*campaign_partly_by_length)
+
+
 def _check_curve_groups(post, res, truth):
     likelihood = post.likelihood
     thetas = _campaign_walkers(post, res, truth, 17, 0)[1:]
