@@ -67,7 +67,7 @@ class WalkerBlocks:
     Two-level parallelism: when the pool has more workers than the set has walkers
     (emcee hands out half the ensemble per call) and the likelihood can be cut into
     groups of curves (:meth:`lossfit.inference.curves_likelihood.CurvesLikelihood.split`),
-    the curves are split as well: workers // walkers groups, every walker's chi2 of every
+    the curves are split as well (:meth:`curve_groups`), every walker's chi2 of every
     group evaluated as one task, the groups' chi2 put side by side and summed here. The
     log posteriors, and so the chains, are bit for bit those of one process.
     """
@@ -78,14 +78,21 @@ class WalkerBlocks:
         self._batch = posterior.batch          # one bound method: the pool sends it once
         size = getattr(pool, "size", None) or getattr(pool, "_processes", None)
         self.blocks = int(size) if size else (2 if pool is not None else 1)
-        self._group_tasks = {}
+        self._groups, self._group_tasks = {}, {}
 
     def curve_groups(self, walkers):
         """Number of curve groups a set of ``walkers`` is evaluated in (1: no split)."""
         likelihood = getattr(self.posterior, "likelihood", None)
         if self.pool is None or walkers < 1 or self.blocks <= walkers or not hasattr(likelihood, "split"):
             return 1
-        return min(self.blocks // walkers, likelihood.n_curves)
+        # each worker gets ceil(walkers x groups / workers) tasks of 1/groups of the curves:
+        # the fewest groups that make the busiest worker's share smallest (64 workers and 32
+        # walkers: 2 groups; 48 workers: 3 groups, two tasks each, 2/3 of a walker's curves)
+        if walkers not in self._groups:
+            workers = self.blocks
+            self._groups[walkers] = min(range(1, min(workers, likelihood.n_curves) + 1),
+                                        key=lambda g: (math.ceil(walkers * g / workers) / g, g))
+        return self._groups[walkers]
 
     def __call__(self, coords):
         if self.pool is None or self.blocks == 1:

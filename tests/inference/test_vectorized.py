@@ -250,6 +250,10 @@ def test_more_workers_than_walkers_split_the_curves_and_keep_the_chain(campaign_
     blocks = WalkerBlocks(post, pool)
     assert blocks.curve_groups(ndim) == 2 and blocks.curve_groups(2 * ndim) == 1 and blocks.curve_groups(0) == 1
     assert blocks.curve_groups(1) == min(2 * ndim + 1, post.likelihood.n_curves)
+    # 48 workers, 32 walkers per set: 3 groups give each worker 2 tasks of a third of the
+    # curves (2 groups: 2 tasks of a half; no split: one whole walker)
+    assert WalkerBlocks(post, _SizedPool(48)).curve_groups(32) == 3
+    assert WalkerBlocks(post, _SizedPool(64)).curve_groups(32) == 2
     alone = sample(WalkerBlocks(post), p0, 20, vectorize=True, seed=3)
     split = sample(blocks, p0, 20, vectorize=True, seed=3)
     assert np.array_equal(alone.chain, split.chain)
