@@ -17,8 +17,8 @@ measured in the same run:
     script), the serial fraction and the Amdahl estimate for 64 ranks;
 (d) two-level parallelism: one walker's log posterior with the curves in 2 groups on 2
     MPI ranks against the same call serially (the walker set of a run with more ranks
-    than walkers per set), whether the values are identical, and the Amdahl estimate for
-    64 ranks with 64 walkers (32 per set, 2 curve groups).
+    than walkers per set), whether the values are identical, and what it means for 64
+    walkers on 64 ranks (32 per set, 2 curve groups) against walker blocks alone.
 
 Scaled down, because at 300 curves an ESS of 1000 takes about an hour serially on a
 2-core machine: the chain that reaches the target ESS runs on a smaller campaign of the
@@ -426,6 +426,7 @@ def two_level(post, p0, m, args):
     print(f"    64 walkers on 64 ranks: every rank gets one walker's half of the curves instead of 32 ranks "
           f"one walker each: each half-step {speedup:.2f}x faster than with walker blocks alone "
           f"(before the messages to more ranks)")
+
 
 if __name__ == "__main__":
     main()
