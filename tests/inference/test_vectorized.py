@@ -7,10 +7,12 @@ import pytest
 
 import lossfit as lf
 from lossfit.inference.fitting import prepare
+from lossfit.inference.global_fit import prepare_curves
 from lossfit.inference.pools import SerialPool, make_pool
 from lossfit.inference.posterior import WalkerBlocks
 from lossfit.inference.priors import LogNormal, LogUniform
 from lossfit.inference.sampling import sample
+from lossfit.simulate import invented_campaign
 
 CS = lf.species("133Cs")
 
@@ -98,9 +100,6 @@ def test_blocks_split_the_set_across_pool_workers(posterior):
 def campaign_posterior(request):
     # invented campaign (lossfit.simulate): atom curves at a < 0, with a dimer curve in the
     # second case (the table-object path); every systematic that moves the tables is free
-    from lossfit.inference.global_fit import prepare_curves
-    from lossfit.simulate import invented_campaign
-
     dimers = 1 if request.param == "dimers" else 0
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
@@ -145,22 +144,29 @@ def test_campaign_walker_set_equals_walker_by_walker(campaign_posterior):
     assert np.array_equal(many[1:], single)
 
 
-@pytest.fixture(scope="module")
-def mixed_campaign():
+def _mixed_campaign(systematics, by_length=0):
     # invented campaign (lossfit.simulate): atom curves at a < 0, atom curves at a > 0 with
-    # the explicit trapped-dimer kinetics, atom-dimer mixture curves; b0 and the field
-    # noise free (every curve rebuilds its averages: the explicit kinetics do not rescale)
-    from lossfit.inference.global_fit import prepare_curves
-    from lossfit.simulate import invented_campaign
-
+    # the explicit trapped-dimer kinetics, atom-dimer mixture curves; the first
+    # ``by_length`` curves given by their scattering length instead of their field
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         curves, res, truth = invented_campaign(3, n_fields=2, dimer_fields=1, positive_fields=1)
+        curves = [lf.DecayCurve(t=c.t, atoms=c.atoms, atoms_err=c.atoms_err, temperature=c.temperature,
+                                temperature_err=c.temperature_err, a=c.scattering_length(res), trap_hz=c.trap_hz,
+                                kind=c.kind, partner_atoms=c.partner_atoms, partner_atoms_err=c.partner_atoms_err,
+                                trap_depth=c.trap_depth)
+                  if j < by_length else c for j, c in enumerate(curves)]
         space, likelihood, post = prepare_curves(
             curves, species=CS, free=["a_minus", "eta_minus", "a_star", "eta_star", "a_plus", "eta_plus"],
-            resonance=res, priors={"a_star": (300.0, 3000.0), "a_plus": (100.0, 1000.0)},
-            systematics={"density_scale": 0.2, "b0": 0.01, "sigma_B": (1e-4, 0.02)})
+            resonance=res, priors={"a_star": (300.0, 3000.0), "a_plus": (100.0, 1000.0)}, systematics=systematics)
     return post, res, truth
+
+
+@pytest.fixture(scope="module")
+def mixed_campaign():
+    # b0 and the field noise free (every curve rebuilds its averages: the explicit
+    # kinetics do not rescale)
+    return _mixed_campaign({"density_scale": 0.2, "b0": 0.01, "sigma_B": (1e-4, 0.02)})
 
 
 def test_curve_groups_side_by_side_give_the_campaign_bits(campaign_posterior):
@@ -179,22 +185,8 @@ def campaign_partly_by_length():
     # the mixed campaign with its first curves given by their scattering length, the others
     # by field, b0 free and no field noise: groups without a curve given by field still
     # take the campaign's way (rates rebuilt at the moved lengths, not the prepared ones)
-    from lossfit.inference.global_fit import prepare_curves
-    from lossfit.simulate import invented_campaign
-
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        curves, res, truth = invented_campaign(3, n_fields=2, dimer_fields=1, positive_fields=1)
-        curves = [lf.DecayCurve(t=c.t, atoms=c.atoms, atoms_err=c.atoms_err, temperature=c.temperature,
-                                temperature_err=c.temperature_err, a=c.scattering_length(res), trap_hz=c.trap_hz,
-                                kind=c.kind, partner_atoms=c.partner_atoms, partner_atoms_err=c.partner_atoms_err,
-                                trap_depth=c.trap_depth)
-                  if j < 3 else c for j, c in enumerate(curves)]
-        space, likelihood, post = prepare_curves(
-            curves, species=CS, free=["a_minus", "eta_minus", "a_star", "eta_star", "a_plus", "eta_plus"],
-            resonance=res, priors={"a_star": (300.0, 3000.0), "a_plus": (100.0, 1000.0)},
-            systematics={"density_scale": 0.2, "b0": 0.01})
-    assert not likelihood.by_field[:3].any() and likelihood.by_field[3:].all()
+    post, res, truth = _mixed_campaign({"density_scale": 0.2, "b0": 0.01}, by_length=3)
+    assert not post.likelihood.by_field[:3].any() and post.likelihood.by_field[3:].all()
     return post, res, truth
 
 
